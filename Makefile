@@ -1,0 +1,26 @@
+# Two commands a fresh machine needs: `make demo` and `make test`.
+# Each creates or reuses .venv and installs what it needs.
+PY ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+.PHONY: demo test bench clean
+
+$(STAMP): pyproject.toml
+	test -x $(BIN)/python || $(PY) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/python -m modeldiff.demo
+
+test: $(STAMP)
+	$(BIN)/python -m pytest
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/run.py
+
+clean:
+	rm -rf $(VENV) build *.egg-info

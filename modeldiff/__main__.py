@@ -1,0 +1,5 @@
+import sys
+
+from modeldiff.cli import main
+
+sys.exit(main())

@@ -1,0 +1,186 @@
+"""Immutable, typed records of one revision of a model.
+
+YAML, git and the terminal never reach these records: the loader builds them,
+and everything else (check, graph, diff, impact) only reads them.
+Field names follow ../shared/spec/model-format.md; `from`/`to` of a link are
+split into table and columns.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Mapping
+
+TABLE_KINDS = ("fact", "dimension", "bridge", "access")
+COLUMN_TYPES = ("integer", "decimal", "float", "text", "date", "timestamp", "boolean")
+CARDINALITIES = ("many-to-one", "one-to-one", "many-to-many")
+FLOWS = ("one-way", "two-way")
+FLOW_OVERRIDES = ("one-way", "two-way", "off")
+SECTIONS = ("tables", "links", "measures", "variants", "roles", "reports")
+
+
+@dataclass(frozen=True)
+class Pos:
+    """Where something was written: file, 1-based line and column."""
+
+    file: str
+    line: int
+    column: int
+
+    def __str__(self) -> str:
+        return f"{self.file}:{self.line}:{self.column}"
+
+
+@dataclass(frozen=True)
+class Column:
+    name: str
+    type: str
+    description: str | None = None
+    unique: bool = False
+
+
+@dataclass(frozen=True)
+class History:
+    """Slowly changing dimension handling (Kimball's types 0-3)."""
+
+    type: int
+    valid_from: str | None = None
+    valid_to: str | None = None
+    current: str | None = None
+    previous: str | None = None  # type 3: column holding the prior value
+
+
+@dataclass(frozen=True)
+class Table:
+    name: str
+    kind: str
+    key: tuple[str, ...]
+    columns: Mapping[str, Column]
+    natural_key: tuple[str, ...] = ()
+    history: History | None = None
+    source: str | None = None
+    description: str | None = None
+
+
+@dataclass(frozen=True)
+class Overrides:
+    """`use` and `flow` of a measure, variant option or report."""
+
+    use: tuple[str, ...] = ()
+    flow: Mapping[str, str] = field(default_factory=dict)  # link -> one-way | two-way | off
+
+    def __bool__(self) -> bool:
+        return bool(self.use) or bool(self.flow)
+
+
+NO_OVERRIDES = Overrides()
+
+
+@dataclass(frozen=True)
+class Link:
+    """Reads like a foreign key: from the referencing columns to the referenced ones."""
+
+    name: str
+    from_table: str
+    from_columns: tuple[str, ...]
+    to_table: str
+    to_columns: tuple[str, ...]
+    cardinality: str = "many-to-one"
+    flow: str = "one-way"
+    security_flow: str = "one-way"
+    standby: bool = False
+    description: str | None = None
+
+    @property
+    def tables(self) -> frozenset[str]:
+        return frozenset((self.from_table, self.to_table))
+
+
+@dataclass(frozen=True)
+class Measure:
+    """A base measure has a home `table`; a derived one (table None) combines measures."""
+
+    name: str
+    expr: str
+    table: str | None = None
+    where: str | None = None
+    overrides: Overrides = NO_OVERRIDES
+    description: str | None = None
+    unit: str | None = None
+    owner: str | None = None
+    folder: str | None = None
+
+    @property
+    def is_base(self) -> bool:
+        return self.table is not None
+
+
+@dataclass(frozen=True)
+class VariantOption:
+    name: str
+    overrides: Overrides = NO_OVERRIDES
+    where: Mapping[str, str] = field(default_factory=dict)  # table -> SQL predicate
+
+
+@dataclass(frozen=True)
+class Variant:
+    name: str
+    default: str
+    options: Mapping[str, VariantOption]
+    description: str | None = None
+
+
+@dataclass(frozen=True)
+class Role:
+    name: str
+    filters: Mapping[str, str]  # table -> SQL predicate (may use :user)
+    description: str | None = None
+
+
+@dataclass(frozen=True)
+class Report:
+    name: str
+    measures: tuple[str, ...]
+    by: tuple[str, ...] = ()  # "table.column"
+    where: Mapping[str, str] = field(default_factory=dict)
+    variant: Mapping[str, str] = field(default_factory=dict)  # variant -> option
+    role: str | None = None
+    owner: str | None = None
+    overrides: Overrides = NO_OVERRIDES
+    description: str | None = None
+
+
+@dataclass(frozen=True)
+class Model:
+    name: str
+    tables: Mapping[str, Table]
+    links: Mapping[str, Link] = field(default_factory=dict)
+    measures: Mapping[str, Measure] = field(default_factory=dict)
+    variants: Mapping[str, Variant] = field(default_factory=dict)
+    roles: Mapping[str, Role] = field(default_factory=dict)
+    reports: Mapping[str, Report] = field(default_factory=dict)
+    format: int = 1
+    # subject path ("links.trips_bike", "links.trips_bike.to") -> where it was written
+    positions: Mapping[str, Pos] = field(default_factory=dict, compare=False, repr=False)
+
+    def pos(self, subject: str) -> Pos | None:
+        """The position of a subject, or of its nearest enclosing subject."""
+        parts = subject.split(".")
+        while parts:
+            found = self.positions.get(".".join(parts))
+            if found is not None:
+                return found
+            parts.pop()
+        return None
+
+
+@dataclass(frozen=True)
+class Finding:
+    """One result of checking one revision (semantics.md section 7)."""
+
+    rule: str
+    severity: str  # error | warning
+    subject: str
+    message: str
+    paths: tuple[tuple[str, ...], ...] = ()
+    pos: Pos | None = None
