@@ -1,0 +1,483 @@
+"""Rules for one revision of a model (semantics.md section 7).
+
+Each rule is a small function `rule_x(ctx) -> Iterable[Finding]`; `check_model`
+runs them all and returns the findings sorted. Findings carry a stable rule id,
+a severity, a subject path and a message that says what to do.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from functools import cached_property
+from typing import Callable, Iterable, Iterator
+
+from modeldiff.model import Finding, Link, Model, Overrides, Table
+
+ERROR = "error"
+WARNING = "warning"
+
+RULES = {
+    "invalid-model": ERROR,
+    "broken-reference": ERROR,
+    "duplicate-active-link": ERROR,
+    "key-not-unique": ERROR,
+    "type-mismatch": ERROR,
+    "measure-cycle": ERROR,
+    "history-incomplete": ERROR,
+    "ambiguous-paths": WARNING,
+    "security-stops": WARNING,
+    "role-reaches-no-fact": WARNING,
+    "standby-unused": WARNING,
+    "use-not-standby": WARNING,
+}
+
+
+@dataclass
+class _Context:
+    model: Model
+
+    def finding(self, rule: str, subject: str, message: str, paths=(), at: str | None = None) -> Finding:
+        return Finding(rule, RULES[rule], subject, message, tuple(tuple(p) for p in paths),
+                       self.model.pos(at or subject))
+
+    @cached_property
+    def measure_names(self) -> frozenset[str]:
+        return frozenset(self.model.measures)
+
+    def column_exists(self, table: str, column: str) -> bool:
+        t = self.model.tables.get(table)
+        return t is not None and _column(t, column) is not None
+
+
+def _column(table: Table, name: str):
+    found = table.columns.get(name)
+    if found is not None:
+        return found
+    lowered = name.lower()
+    for column in table.columns.values():
+        if column.name.lower() == lowered:
+            return column
+    return None
+
+
+# --- references -------------------------------------------------------------------
+
+
+def _overrides_refs(ctx: _Context, subject: str, overrides: Overrides) -> Iterator[Finding]:
+    for link in overrides.use:
+        if link not in ctx.model.links:
+            yield ctx.finding("broken-reference", subject,
+                              f"{subject} uses link '{link}', which does not exist; name an existing standby link or remove it from `use`.",
+                              at=f"{subject}.use")
+    for link in overrides.flow:
+        if link not in ctx.model.links:
+            yield ctx.finding("broken-reference", subject,
+                              f"{subject} sets the flow of link '{link}', which does not exist; fix the name or remove it from `flow`.",
+                              at=f"{subject}.flow")
+
+
+def _predicate_refs(ctx: _Context, subject: str, filters, what: str) -> Iterator[Finding]:
+    """Predicates keyed by table (role filters, report/option `where`)."""
+    from modeldiff import sql
+
+    for table, text in filters.items():
+        at = f"{subject}.{what}.{table}"
+        if table not in ctx.model.tables:
+            yield ctx.finding("broken-reference", subject,
+                              f"{subject} filters table '{table}', which does not exist; name an existing table.", at=at)
+            continue
+        try:
+            refs = sql.column_refs(text)
+        except sql.SqlError as exc:
+            yield ctx.finding("invalid-model", subject, f"{subject}: the filter on {table} is not valid SQL: {exc}", at=at)
+            continue
+        for qualifier, column in sorted(refs, key=lambda r: (r[0] or "", r[1])):
+            if qualifier not in (None, table) and qualifier.lower() != table.lower():
+                yield ctx.finding("broken-reference", subject,
+                                  f"{subject}: the filter on {table} reads {qualifier}.{column}; a filter may read only its own table's columns.", at=at)
+            elif not ctx.column_exists(table, column):
+                yield ctx.finding("broken-reference", subject,
+                                  f"{subject}: the filter on {table} reads column '{column}', which {table} does not have; fix the column name.", at=at)
+
+
+def rule_table_references(ctx: _Context) -> Iterator[Finding]:
+    for table in ctx.model.tables.values():
+        subject = f"tables.{table.name}"
+        named = [("key", c) for c in table.key] + [("natural_key", c) for c in table.natural_key]
+        if table.history is not None:
+            h = table.history
+            named += [(f, c) for f, c in (("history.valid_from", h.valid_from), ("history.valid_to", h.valid_to),
+                                          ("history.current", h.current), ("history.previous", h.previous)) if c is not None]
+        for field_name, column in named:
+            if _column(table, column) is None:
+                yield ctx.finding("broken-reference", subject,
+                                  f"Table {table.name}: {field_name} names column '{column}', which is not among its columns; add the column or fix the name.",
+                                  at=f"{subject}.{field_name.split('.')[0]}")
+
+
+def rule_link_references(ctx: _Context) -> Iterator[Finding]:
+    for link in ctx.model.links.values():
+        subject = f"links.{link.name}"
+        for end, table, columns in (("from", link.from_table, link.from_columns), ("to", link.to_table, link.to_columns)):
+            if table not in ctx.model.tables:
+                yield ctx.finding("broken-reference", subject,
+                                  f"Link {link.name}: its `{end}` table '{table}' does not exist; fix the name or add the table.", at=f"{subject}.{end}")
+                continue
+            for column in columns:
+                if not ctx.column_exists(table, column):
+                    yield ctx.finding("broken-reference", subject,
+                                      f"Link {link.name}: its `{end}` column '{table}.{column}' does not exist; fix the name or add the column.",
+                                      at=f"{subject}.{end}")
+
+
+def rule_measure_references(ctx: _Context) -> Iterator[Finding]:
+    from modeldiff import sql
+
+    for measure in ctx.model.measures.values():
+        subject = f"measures.{measure.name}"
+        yield from _overrides_refs(ctx, subject, measure.overrides)
+        if measure.table is None:
+            try:
+                used = sql.names(measure.expr)
+            except sql.SqlError as exc:
+                yield ctx.finding("invalid-model", subject, f"Measure {measure.name}: `expr` is not valid SQL: {exc}", at=f"{subject}.expr")
+                continue
+            for name in sorted(used - ctx.measure_names):
+                yield ctx.finding("broken-reference", subject,
+                                  f"Derived measure {measure.name} names '{name}', which is not a measure; fix the name, or give the measure a `table` if it aggregates columns.",
+                                  at=f"{subject}.expr")
+            if measure.where is not None:
+                yield ctx.finding("invalid-model", subject,
+                                  f"Derived measure {measure.name} has a `where`; a row condition needs a home `table`.", at=f"{subject}.where")
+            continue
+        table = ctx.model.tables.get(measure.table)
+        if table is None:
+            yield ctx.finding("broken-reference", subject,
+                              f"Measure {measure.name}: home table '{measure.table}' does not exist; fix `table`.", at=f"{subject}.table")
+            continue
+        for field_name, text in (("expr", measure.expr), ("where", measure.where)):
+            if text is None:
+                continue
+            try:
+                refs = sql.column_refs(text)
+                aggregates = sql.has_aggregate(text)
+            except sql.SqlError as exc:
+                yield ctx.finding("invalid-model", subject, f"Measure {measure.name}: `{field_name}` is not valid SQL: {exc}", at=f"{subject}.{field_name}")
+                continue
+            if field_name == "expr" and not aggregates:
+                yield ctx.finding("invalid-model", subject,
+                                  f"Measure {measure.name}: `expr` has no aggregate function; wrap it in sum(), count(), avg(), min() or max().",
+                                  at=f"{subject}.expr")
+            if field_name == "where" and aggregates:
+                yield ctx.finding("invalid-model", subject,
+                                  f"Measure {measure.name}: `where` is a row condition and may not aggregate; move the aggregate into `expr`.",
+                                  at=f"{subject}.where")
+            for qualifier, column in sorted(refs, key=lambda r: (r[0] or "", r[1])):
+                if qualifier is not None and qualifier.lower() != table.name.lower():
+                    yield ctx.finding("broken-reference", subject,
+                                      f"Measure {measure.name} reads {qualifier}.{column}, but a base measure may read only its home table {table.name}; make it a derived measure over a measure of {qualifier}.",
+                                      at=f"{subject}.{field_name}")
+                elif _column(table, column) is None:
+                    yield ctx.finding("broken-reference", subject,
+                                      f"Measure {measure.name} reads column '{column}', which {table.name} does not have; fix the column name.",
+                                      at=f"{subject}.{field_name}")
+
+
+def rule_variant_references(ctx: _Context) -> Iterator[Finding]:
+    for variant in ctx.model.variants.values():
+        subject = f"variants.{variant.name}"
+        if variant.default not in variant.options:
+            yield ctx.finding("broken-reference", subject,
+                              f"Variant {variant.name}: default '{variant.default}' is not one of its options ({', '.join(sorted(variant.options)) or 'none'}).",
+                              at=f"{subject}.default")
+        for option in variant.options.values():
+            option_subject = f"{subject}.options.{option.name}"
+            yield from _overrides_refs(ctx, option_subject, option.overrides)
+            yield from _predicate_refs(ctx, option_subject, option.where, "where")
+
+
+def rule_role_references(ctx: _Context) -> Iterator[Finding]:
+    for role in ctx.model.roles.values():
+        yield from _predicate_refs(ctx, f"roles.{role.name}", role.filters, "filters")
+
+
+def rule_report_references(ctx: _Context) -> Iterator[Finding]:
+    model = ctx.model
+    for report in model.reports.values():
+        subject = f"reports.{report.name}"
+        for name in report.measures:
+            if name not in model.measures:
+                yield ctx.finding("broken-reference", subject,
+                                  f"Report {report.name} shows measure '{name}', which does not exist; fix the name or remove it.", at=f"{subject}.measures")
+        for item in report.by:
+            table, _, column = item.partition(".")
+            if not column or not ctx.column_exists(table, column):
+                yield ctx.finding("broken-reference", subject,
+                                  f"Report {report.name} groups by '{item}', which is not an existing table.column.", at=f"{subject}.by")
+        yield from _predicate_refs(ctx, subject, report.where, "where")
+        for variant, option in report.variant.items():
+            if variant not in model.variants:
+                yield ctx.finding("broken-reference", subject,
+                                  f"Report {report.name} picks variant '{variant}', which does not exist.", at=f"{subject}.variant")
+            elif option not in model.variants[variant].options:
+                yield ctx.finding("broken-reference", subject,
+                                  f"Report {report.name} picks option '{option}' of variant {variant}, which has no such option.", at=f"{subject}.variant")
+        if report.role is not None and report.role not in model.roles:
+            yield ctx.finding("broken-reference", subject,
+                              f"Report {report.name} is seen as role '{report.role}', which does not exist.", at=f"{subject}.role")
+        yield from _overrides_refs(ctx, subject, report.overrides)
+
+
+# --- links ---------------------------------------------------------------------------
+
+
+def rule_duplicate_active_link(ctx: _Context) -> Iterator[Finding]:
+    by_pair: dict[frozenset[str], list[str]] = {}
+    for link in ctx.model.links.values():
+        if not link.standby:
+            by_pair.setdefault(link.tables, []).append(link.name)
+    for pair, names in sorted(by_pair.items(), key=lambda item: sorted(item[1])):
+        if len(names) > 1:
+            names = sorted(names)
+            tables = " and ".join(sorted(pair))
+            for extra in names[1:]:
+                yield ctx.finding("duplicate-active-link", f"links.{extra}",
+                                  f"Links {', '.join(names)} all join {tables} and none is on standby; set `standby: true` on all but one and name the others in `use` where needed.")
+
+
+def _is_unique_target(table: Table, columns: tuple[str, ...]) -> bool:
+    wanted = {c.lower() for c in columns}
+    if table.history is not None and table.history.type == 2 and table.natural_key \
+            and wanted == {c.lower() for c in table.natural_key}:
+        return False  # Kimball: a type-2 natural key repeats across versions
+    if wanted == {c.lower() for c in table.key}:
+        return True
+    if len(columns) == 1:
+        column = _column(table, columns[0])
+        return column is not None and column.unique
+    return False
+
+
+def rule_key_not_unique(ctx: _Context) -> Iterator[Finding]:
+    for link in ctx.model.links.values():
+        if link.cardinality == "many-to-many":
+            continue
+        table = ctx.model.tables.get(link.to_table)
+        if table is None or not all(_column(table, c) for c in link.to_columns):
+            continue  # reported as broken-reference
+        if _is_unique_target(table, link.to_columns):
+            continue
+        target = ", ".join(f"{link.to_table}.{c}" for c in link.to_columns)
+        why = ""
+        if table.history is not None and table.history.type == 2 and \
+                {c.lower() for c in link.to_columns} == {c.lower() for c in table.natural_key}:
+            why = f" ({link.to_table} keeps type-2 history, so its natural key repeats once per version)"
+        yield ctx.finding("key-not-unique", f"links.{link.name}",
+                          f"Link {link.name} is {link.cardinality} but points at {target}, which is not unique{why}; point it at the key {', '.join(table.key)}, declare the column `unique: true`, or make the link many-to-many.",
+                          at=f"links.{link.name}.to")
+
+
+def rule_type_mismatch(ctx: _Context) -> Iterator[Finding]:
+    for link in ctx.model.links.values():
+        source, target = ctx.model.tables.get(link.from_table), ctx.model.tables.get(link.to_table)
+        if source is None or target is None:
+            continue
+        for a, b in zip(link.from_columns, link.to_columns):
+            ca, cb = _column(source, a), _column(target, b)
+            if ca is not None and cb is not None and ca.type != cb.type:
+                yield ctx.finding("type-mismatch", f"links.{link.name}",
+                                  f"Link {link.name} joins {link.from_table}.{a} ({ca.type}) to {link.to_table}.{b} ({cb.type}); make both columns the same type.")
+
+
+# --- measures, history -----------------------------------------------------------------
+
+
+def rule_measure_cycle(ctx: _Context) -> Iterator[Finding]:
+    from modeldiff import sql
+
+    deps: dict[str, list[str]] = {}
+    for measure in ctx.model.measures.values():
+        if measure.table is None:
+            try:
+                deps[measure.name] = sorted(sql.measure_refs(measure.expr, ctx.measure_names))
+            except sql.SqlError:
+                deps[measure.name] = []  # reported as invalid-model
+    for cycle in _cycles(deps):
+        shown = " -> ".join(cycle + [cycle[0]])
+        yield ctx.finding("measure-cycle", f"measures.{cycle[0]}",
+                          f"Derived measures refer to each other in a cycle ({shown}); break the cycle so each measure can be computed.")
+
+
+def _cycles(deps: dict[str, list[str]]) -> list[list[str]]:
+    """One readable cycle per strongly connected group of measures, found with an explicit work list."""
+    color: dict[str, int] = {}
+    found: list[list[str]] = []
+    seen_groups: set[frozenset[str]] = set()
+    for root in sorted(deps):
+        if root in color:
+            continue
+        stack: list[tuple[str, Iterator[str]]] = [(root, iter(deps.get(root, ())))]
+        trail = [root]
+        color[root] = 1
+        while stack:
+            node, children = stack[-1]
+            child = next(children, None)
+            if child is None:
+                stack.pop()
+                trail.pop()
+                color[node] = 2
+            elif color.get(child) == 1:
+                cycle = trail[trail.index(child):]
+                group = frozenset(cycle)
+                if group not in seen_groups:
+                    seen_groups.add(group)
+                    start = cycle.index(min(cycle))
+                    found.append(cycle[start:] + cycle[:start])
+            elif child not in color and child in deps:
+                color[child] = 1
+                trail.append(child)
+                stack.append((child, iter(deps.get(child, ()))))
+    return found
+
+
+def rule_history_incomplete(ctx: _Context) -> Iterator[Finding]:
+    for table in ctx.model.tables.values():
+        h = table.history
+        if h is None or h.type != 2:
+            continue
+        missing = [name for name, value in (("natural_key", table.natural_key), ("valid_from", h.valid_from), ("valid_to", h.valid_to)) if not value]
+        if missing:
+            yield ctx.finding("history-incomplete", f"tables.{table.name}",
+                              f"Table {table.name} keeps type-2 history but lacks {', '.join(missing)}; without them the versions of one member cannot be told apart in time. Add {' and '.join(missing)}.",
+                              at=f"tables.{table.name}.history")
+
+
+# --- graph rules ------------------------------------------------------------------------
+
+
+def _settings(model: Model):
+    """Every distinct setting the model can be evaluated in, with a label for messages.
+
+    Yields (label, Setting): the default setting, then each measure's, variant
+    option's and report's (and each report measure's) own, skipping repeats.
+    """
+    from modeldiff import graph
+
+    seen: set[frozenset] = set()
+
+    def emit(label: str, layers: tuple[Overrides, ...]):
+        setting = graph.resolve_setting(model, *layers)
+        key = frozenset(setting.flows.items())
+        if key in seen:
+            return None
+        seen.add(key)
+        return label, setting
+
+    candidates: list[tuple[str, tuple[Overrides, ...]]] = [("the default setting", ())]
+    for measure in model.measures.values():
+        if measure.overrides:
+            candidates.append((f"measure {measure.name}'s setting", graph.setting_layers(model, measure=measure)))
+    for variant in model.variants.values():
+        for option in variant.options.values():
+            if option.overrides:
+                candidates.append((f"option {option.name} of variant {variant.name}", (option.overrides,)))
+    for report in model.reports.values():
+        candidates.append((f"report {report.name}'s setting", graph.setting_layers(model, report=report)))
+        for name in report.measures:
+            measure = model.measures.get(name)
+            if measure is not None and measure.overrides:
+                candidates.append((f"measure {name} in report {report.name}", graph.setting_layers(model, measure=measure, report=report)))
+    for label, layers in candidates:
+        result = emit(label, layers)
+        if result is not None:
+            yield result
+
+
+def rule_ambiguous_paths(ctx: _Context) -> Iterator[Finding]:
+    from modeldiff import graph
+
+    reported: set[tuple[str, str]] = set()
+    for label, setting in _settings(ctx.model):
+        fg = graph.flow_graph(ctx.model, setting)
+        for source, target, first, second in fg.ambiguous_pairs():
+            if (source, target) in reported:
+                continue
+            reported.add((source, target))
+            where = "" if label == "the default setting" else f" in {label}"
+            yield ctx.finding("ambiguous-paths", f"paths.{source}->{target}",
+                              f"A filter on {source} reaches {target} along more than one route{where} "
+                              f"({' / '.join(first)} and {' / '.join(second)}); numbers on {target} then depend on the data along each route. "
+                              f"Put one of the links on standby, or make the flow one-way, so one route remains.",
+                              paths=(first, second), at=f"tables.{target}")
+
+
+def rule_security(ctx: _Context) -> Iterator[Finding]:
+    from modeldiff import graph
+
+    model = ctx.model
+    security = None
+    for role in model.roles.values():
+        subject = f"roles.{role.name}"
+        if not all(t in model.tables for t in role.filters):
+            continue  # broken-reference says it
+        for link, table in graph.security_stops(model, role):
+            yield ctx.finding("security-stops", subject,
+                              f"Role {role.name}'s filter stops at two-way link {link}: filters cross it into {table}, but row security does not (its security_flow is one-way), "
+                              f"so members of {role.name} see every row of {table} the link would otherwise restrict. Set `security_flow: two-way` on {link} if that was intended, "
+                              f"and have the organisation's own security review decide.")
+        if security is None:
+            security = graph.security_graph(model)
+        restricted = graph.role_restricted(model, role, security)
+        if not any(model.tables[t].kind == "fact" for t in restricted if t in model.tables):
+            yield ctx.finding("role-reaches-no-fact", subject,
+                              f"Role {role.name}'s filters restrict no fact table (they reach only {', '.join(sorted(restricted)) or 'nothing'}); "
+                              f"its members see every fact row. Filter a table whose links lead to the facts, or check the links' flow.")
+
+
+def rule_standby(ctx: _Context) -> Iterator[Finding]:
+    model = ctx.model
+    users: dict[str, list[str]] = {}
+    holders = [(f"measures.{m.name}", m.overrides) for m in model.measures.values()]
+    holders += [(f"variants.{v.name}.options.{o.name}", o.overrides) for v in model.variants.values() for o in v.options.values()]
+    holders += [(f"reports.{r.name}", r.overrides) for r in model.reports.values()]
+    for subject, overrides in holders:
+        for link in overrides.use:
+            users.setdefault(link, []).append(subject)
+            target = model.links.get(link)
+            if target is not None and not target.standby:
+                yield ctx.finding("use-not-standby", subject,
+                                  f"{subject} names link {link} in `use`, but {link} is not on standby and carries filters anyway; "
+                                  f"remove it from `use`, or set `standby: true` on {link} if only some measures should follow it.",
+                                  at=f"{subject}.use")
+    for link in model.links.values():
+        if link.standby and link.name not in users:
+            yield ctx.finding("standby-unused", f"links.{link.name}",
+                              f"Standby link {link.name} is used by no measure, variant option or report, so it never carries a filter; name it in a `use` or remove it.")
+
+
+ALL_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (
+    rule_table_references, rule_link_references, rule_measure_references, rule_variant_references,
+    rule_role_references, rule_report_references, rule_duplicate_active_link, rule_key_not_unique,
+    rule_type_mismatch, rule_measure_cycle, rule_history_incomplete, rule_ambiguous_paths,
+    rule_security, rule_standby,
+)
+
+
+def check_model(model: Model, load_findings: Iterable[Finding] = ()) -> list[Finding]:
+    """All findings for one revision, sorted errors first, then by rule and subject."""
+    ctx = _Context(model)
+    findings = list(load_findings)
+    for rule in ALL_RULES:
+        findings.extend(rule(ctx))
+    unique = {(f.rule, f.subject, f.message): f for f in findings}
+    return sorted(unique.values(), key=lambda f: (f.severity != ERROR, f.rule, f.subject, f.message))
+
+
+def exit_code(findings: Iterable[Finding], strict: bool = False) -> int:
+    """0 no error; 3 errors; 1 warnings with --strict only (changes.md)."""
+    severities = {f.severity for f in findings}
+    if ERROR in severities:
+        return 3
+    if strict and WARNING in severities:
+        return 1
+    return 0

@@ -1,0 +1,68 @@
+"""Rendering the findings of `modeldiff check`."""
+
+from __future__ import annotations
+
+import json
+from typing import Sequence, TextIO
+
+from modeldiff.model import Finding
+
+
+def finding_json(f: Finding) -> dict:
+    out = {"rule": f.rule, "severity": f.severity, "subject": f.subject, "message": f.message,
+           "paths": [list(p) for p in f.paths]}
+    if f.pos is not None:
+        out["location"] = {"file": f.pos.file, "line": f.pos.line, "column": f.pos.column}
+    return out
+
+
+def as_json(model_name: str, findings: Sequence[Finding], stream: TextIO) -> None:
+    doc = {"format": 1, "model": model_name, "findings": [finding_json(f) for f in findings],
+           "summary": {"errors": sum(f.severity == "error" for f in findings),
+                       "warnings": sum(f.severity == "warning" for f in findings)}}
+    json.dump(doc, stream, indent=2)
+    stream.write("\n")
+
+
+def _counts(findings: Sequence[Finding]) -> tuple[int, int]:
+    return sum(f.severity == "error" for f in findings), sum(f.severity == "warning" for f in findings)
+
+
+def as_text(model_name: str, source: str, findings: Sequence[Finding], stream: TextIO) -> None:
+    from rich.markup import escape
+
+    from modeldiff.render import console
+
+    out = console(stream)
+    errors, warnings = _counts(findings)
+    if not findings:
+        out.print(f"[bold green]ok[/] model {escape(model_name)} ({escape(source)}): no findings")
+        return
+    out.print(f"model [bold]{escape(model_name)}[/] ({escape(source)}): {errors} error(s), {warnings} warning(s)")
+    for severity, style, title in (("error", "bold red", "Errors"), ("warning", "yellow", "Warnings")):
+        group = [f for f in findings if f.severity == severity]
+        if not group:
+            continue
+        out.print()
+        out.print(f"[{style}]{title}[/]")
+        for f in group:
+            where = f"{f.pos}: " if f.pos else ""
+            out.print(f"  [{style}]{f.rule}[/] {escape(f.subject)}")
+            out.print(f"    {escape(where + f.message)}")
+            for path in f.paths:
+                out.print(f"    path: {escape(' -> '.join(path))}")
+
+
+def as_markdown(model_name: str, source: str, findings: Sequence[Finding], stream: TextIO) -> None:
+    errors, warnings = _counts(findings)
+    lines = [f"## modeldiff check: `{model_name}`", "", f"Source: `{source}`. **{errors}** error(s), **{warnings}** warning(s).", ""]
+    if findings:
+        lines += ["| severity | rule | subject | location | what to do |", "|---|---|---|---|---|"]
+        for f in findings:
+            message = f.message.replace("|", "\\|")
+            if f.paths:
+                message += "<br>" + "<br>".join("path: " + " → ".join(p) for p in f.paths)
+            lines.append(f"| {f.severity} | `{f.rule}` | `{f.subject}` | {f.pos or ''} | {message} |")
+    else:
+        lines.append("No findings.")
+    stream.write("\n".join(lines) + "\n")
