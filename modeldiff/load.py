@@ -1,0 +1,1110 @@
+"""YAML -> Model, with file:line:col for every problem.
+
+Two kinds of bad input (model-format.md, semantics.md section 7):
+
+* input that cannot be read at all (missing file, binary content, malformed
+  YAML, tabs, duplicate keys, alias bombs, no `model`/`format`, ...) raises
+  ModeldiffError with one line "FILE:LINE:COL: what is wrong; what to do";
+* input that is readable YAML but does not follow the format still gives a
+  Model, with the bad item dropped or defaulted, plus `invalid-model` findings.
+
+YAML is read event by event with an explicit stack (no recursion, no
+`yaml.load`), so nesting depth, alias expansion and duplicate keys are checked
+while reading, and every mapping entry keeps the position of its key and of
+its value. Plain scalars follow the YAML 1.2 core schema: `on`, `yes`, `no` and
+dates stay strings.
+
+Positions recorded in Model.positions: a named item ("tables.trips",
+"tables.trips.columns.fare", "links.trips_bike", "variants.v.options.o", ...)
+points at its name; a field ("links.trips_bike.from", "measures.m.expr") and
+an entry of a table-keyed map ("roles.r.filters.trips", "reports.p.where.t",
+"measures.m.flow.L") point at the value.
+"""
+
+from __future__ import annotations
+
+import math
+import os
+import re
+from dataclasses import dataclass
+from typing import Any, Iterable, Iterator, Mapping, Sequence
+
+from modeldiff.errors import ModeldiffError
+from modeldiff.model import (
+    CARDINALITIES,
+    COLUMN_TYPES,
+    FLOW_OVERRIDES,
+    FLOWS,
+    NO_OVERRIDES,
+    SECTIONS,
+    TABLE_KINDS,
+    Column,
+    Finding,
+    History,
+    Link,
+    Measure,
+    Model,
+    Overrides,
+    Pos,
+    Report,
+    Role,
+    Table,
+    Variant,
+    VariantOption,
+)
+
+MAX_DEPTH = 64  # nesting levels of mappings and lists
+ALIAS_BUDGET = 100_000  # nodes that aliases may add by re-using anchored values
+MAX_FILE_BYTES = 50 * 1024 * 1024
+YAML_SUFFIXES = (".yaml", ".yml")
+FOLDER_SUFFIX = ".model"
+RULE = "invalid-model"
+
+_NAME_PATTERN = "[A-Za-z][A-Za-z0-9_]*"
+_NAME = re.compile(_NAME_PATTERN + r"\Z")
+_COLREF = re.compile(rf"({_NAME_PATTERN})\.({_NAME_PATTERN})\Z")
+
+
+@dataclass(frozen=True)
+class LoadResult:
+    model: Model
+    findings: tuple[Finding, ...]  # rule "invalid-model", severity "error"
+
+
+# --------------------------------------------------------------------------
+# Public API
+
+
+def load_path(path: str | os.PathLike) -> LoadResult:
+    """Load a NAME.model.yaml file or a NAME.model/ folder of *.yaml/*.yml files."""
+    shown = os.fspath(path)
+    if not os.path.exists(shown):
+        raise ModeldiffError(
+            f"{shown}: no such file or folder; give the path of a NAME.model.yaml file or a NAME.model/ folder"
+        )
+    if os.path.isdir(shown):
+        return load_files(_folder_files(shown))
+    return load_files([(shown, _read_file(shown))])
+
+
+def load_files(files: Sequence[tuple[str, bytes | str]]) -> LoadResult:
+    """Load (display name, content) pairs: one file, or several merged as a folder."""
+    if not files:
+        raise ModeldiffError("no model files were given; give a NAME.model.yaml file or a NAME.model/ folder")
+    docs = [_read_document(name, content) for name, content in files]
+    name, fmt = _model_identity(docs)
+    return _RecordBuilder().build(docs, name, fmt)
+
+
+def schema_text() -> str:
+    """The JSON Schema (draft-07) of model format 1, as shipped in modeldiff/schema.json."""
+    from importlib import resources
+
+    return resources.files("modeldiff").joinpath("schema.json").read_text(encoding="utf-8")
+
+
+def read_yaml(name: str, content: bytes | str) -> Any:
+    """Plain values (dict subclasses, list subclasses, scalars) of one YAML file.
+
+    Applies every reading check (encoding, syntax, depth, aliases, duplicate
+    keys) but none of the format's rules; used by tests to compare the loader
+    with the JSON Schema.
+    """
+    return _parse(name, _decode(name, content))
+
+
+# --------------------------------------------------------------------------
+# Files and folders
+
+
+def _fail(name: str, line: int | None, column: int | None, message: str) -> ModeldiffError:
+    where = name if line is None else f"{name}:{line}:{column}"
+    return ModeldiffError(f"{where}: {message}")
+
+
+def _read_file(path: str) -> bytes:
+    try:
+        size = os.path.getsize(path)
+        if size > MAX_FILE_BYTES:
+            raise _too_big(path, size)
+        with open(path, "rb") as handle:
+            return handle.read()
+    except OSError as exc:
+        raise ModeldiffError(f"{path}: cannot be read ({exc.strerror or exc}); check the path and its permissions")
+
+
+def _too_big(name: str, size: int) -> ModeldiffError:
+    limit = MAX_FILE_BYTES // (1024 * 1024)
+    return _fail(
+        name, None, None, f"file is {size / 1024 / 1024:.0f} MB, over the {limit} MB limit for a model file; split it into a NAME.model/ folder"
+    )
+
+
+def _folder_files(folder: str) -> list[tuple[str, bytes]]:
+    base = os.path.basename(os.path.normpath(folder))
+    if not base.endswith(FOLDER_SUFFIX):
+        raise ModeldiffError(
+            f"{folder}: is a folder but not a NAME.model/ folder; give a NAME.model.yaml file or a folder named NAME.model"
+        )
+    try:
+        entries = sorted(os.listdir(folder))
+    except OSError as exc:
+        raise ModeldiffError(f"{folder}: cannot be listed ({exc.strerror or exc}); check its permissions")
+    paths = [
+        os.path.join(folder, entry)
+        for entry in entries
+        if entry.endswith(YAML_SUFFIXES) and not entry.startswith(".")
+    ]
+    paths = [path for path in paths if os.path.isfile(path)]
+    if not paths:
+        raise ModeldiffError(f"{folder}: holds no .yaml or .yml files; put the model's YAML files in it")
+    return [(path, _read_file(path)) for path in paths]
+
+
+_CONTROL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f\ufffe\uffff]")
+
+
+def _line_col(text: str | bytes, index: int) -> tuple[int, int]:
+    newline = "\n" if isinstance(text, str) else b"\n"
+    line = text.count(newline, 0, index) + 1
+    start = text.rfind(newline, 0, index) + 1
+    if isinstance(text, bytes):
+        return line, len(text[start:index].decode("utf-8", "replace")) + 1
+    return line, index - start + 1
+
+
+def _decode(name: str, content: bytes | str) -> str:
+    """UTF-8 text of one file, refusing binary and oversized content."""
+    if len(content) > MAX_FILE_BYTES:
+        raise _too_big(name, len(content))
+    if isinstance(content, str):
+        text = content
+    else:
+        nul = content.find(b"\0")
+        if nul >= 0:
+            line, col = _line_col(content, nul)
+            raise _fail(name, line, col, "binary content (a NUL byte); a model file must be UTF-8 text")
+        try:
+            text = content.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            line, col = _line_col(content, exc.start)
+            raise _fail(name, line, col, "not valid UTF-8 text; save the file as UTF-8")
+    if text.startswith("\ufeff"):
+        text = text[1:]
+    bad = _CONTROL.search(text)
+    if bad:
+        line, col = _line_col(text, bad.start())
+        what = "binary content (a NUL character)" if bad.group() == "\0" else f"a control character (U+{ord(bad.group()):04X})"
+        raise _fail(name, line, col, f"{what}; a model file must be plain UTF-8 text")
+    return text
+
+
+# --------------------------------------------------------------------------
+# YAML events -> plain values with positions
+
+
+class YamlMap(dict):
+    """A YAML mapping; `at[key]` = (key line, key column, value line, value column), 1-based."""
+
+    __slots__ = ("at", "file", "line", "column")
+
+
+class YamlList(list):
+    """A YAML sequence; `at[i]` = (line, column) of item i, 1-based."""
+
+    __slots__ = ("at", "file", "line", "column")
+
+
+class _Frame:
+    __slots__ = ("container", "is_map", "key", "key_line", "key_col", "size", "anchor", "merges")
+
+    def __init__(self, container, is_map, anchor):
+        self.container = container
+        self.is_map = is_map
+        self.key = _NO_KEY
+        self.key_line = self.key_col = 0
+        self.size = 0
+        self.anchor = anchor
+        self.merges = None
+
+
+_NO_KEY = object()
+_MERGE = object()
+_NOTHING = object()
+_INF = float("inf")
+_PLAIN_SPECIAL = {
+    "": None, "~": None, "null": None, "Null": None, "NULL": None,
+    "true": True, "True": True, "TRUE": True,
+    "false": False, "False": False, "FALSE": False,
+    ".inf": _INF, ".Inf": _INF, ".INF": _INF,
+    "+.inf": _INF, "+.Inf": _INF, "+.INF": _INF,
+    "-.inf": -_INF, "-.Inf": -_INF, "-.INF": -_INF,
+    ".nan": math.nan, ".NaN": math.nan, ".NAN": math.nan,
+}  # fmt: skip
+_NUMBER_START = frozenset("0123456789+-.")
+_INT = re.compile(r"[-+]?[0-9]+\Z")
+_FLOAT = re.compile(r"[-+]?(?:\.[0-9]+|[0-9]+(?:\.[0-9]*)?)(?:[eE][-+]?[0-9]+)?\Z")
+_OCT = re.compile(r"0o[0-7]+\Z")
+_HEX = re.compile(r"0x[0-9a-fA-F]+\Z")
+_CORE = "tag:yaml.org,2002:"
+
+
+def _resolve_plain(value: str) -> Any:
+    """A plain scalar by the YAML 1.2 core schema."""
+    special = _PLAIN_SPECIAL.get(value, _NOTHING)
+    if special is not _NOTHING:
+        return special
+    if value[0] in _NUMBER_START:
+        if _INT.match(value):
+            return int(value)
+        if _FLOAT.match(value):
+            return float(value)
+        if _OCT.match(value):
+            return int(value[2:], 8)
+        if _HEX.match(value):
+            return int(value[2:], 16)
+    return value
+
+
+def _tagged_scalar(name: str, event) -> Any:
+    tag = event.tag
+    if tag == "!" or tag == _CORE + "str":
+        return event.value
+    kinds = {"null": type(None), "bool": bool, "int": int, "float": float}
+    wanted = kinds.get(tag[len(_CORE):]) if tag.startswith(_CORE) else None
+    line, col = event.start_mark.line + 1, event.start_mark.column + 1
+    if wanted is None:
+        raise _fail(name, line, col, f"unsupported YAML tag '{tag}'; remove the tag, a model file uses plain values")
+    value = _resolve_plain(event.value)
+    if wanted is float and type(value) is int:
+        value = float(value)
+    if type(value) is not wanted:
+        raise _fail(name, line, col, f"'{event.value}' is not a valid {tag[len(_CORE):]}; fix the value or remove the tag")
+    return value
+
+
+def _parse(name: str, text: str) -> Any:
+    """The one document of a YAML text as plain values, or _NOTHING when there is none."""
+    import yaml
+
+    loader_class = getattr(yaml, "CSafeLoader", None) or yaml.SafeLoader
+    loader = loader_class(text)
+    try:
+        return _build(name, loader, yaml)
+    except yaml.MarkedYAMLError as exc:
+        raise _syntax_error(name, text, exc) from None
+    except yaml.YAMLError as exc:
+        raise _fail(name, None, None, f"malformed YAML ({_one_line(str(exc))}); fix the YAML syntax") from None
+    finally:
+        loader.dispose()
+
+
+def _one_line(text: str) -> str:
+    return " ".join(text.split())
+
+
+def _syntax_error(name: str, text: str, exc) -> ModeldiffError:
+    mark = exc.problem_mark or exc.context_mark
+    if mark is None:
+        return _fail(name, None, None, f"malformed YAML ({_one_line(str(exc))}); fix the YAML syntax")
+    line, col = mark.line + 1, mark.column + 1
+    lines = text.split("\n")
+    source = lines[mark.line] if mark.line < len(lines) else ""
+    indent = source[: len(source) - len(source.lstrip(" \t"))]
+    if "\t" in indent:
+        return _fail(
+            name, line, indent.index("\t") + 1, "a tab is used for indentation; YAML indentation must use spaces"
+        )
+    problem = _one_line(exc.problem or "syntax error")
+    context = ""
+    if exc.context and exc.context_mark is not None and exc.context_mark is not mark:
+        context = f" ({_one_line(exc.context)} at line {exc.context_mark.line + 1})"
+    return _fail(name, line, col, f"malformed YAML: {problem}{context}; fix the YAML syntax")
+
+
+def _build(name: str, loader, yaml) -> Any:
+    """Values of the document, built from parser events with an explicit stack."""
+    scalar_event, alias_event = yaml.ScalarEvent, yaml.AliasEvent
+    mapping_start, sequence_start = yaml.MappingStartEvent, yaml.SequenceStartEvent
+    mapping_end, sequence_end = yaml.MappingEndEvent, yaml.SequenceEndEvent
+    document_start, stream_end = yaml.DocumentStartEvent, yaml.StreamEndEvent
+    get_event = loader.get_event
+    stack: list[_Frame] = []
+    anchors: dict[str, tuple[Any, int]] = {}
+    opening: set[str] = set()  # anchors of collections still being read
+    expanded = 0
+    documents = 0
+    root = _NOTHING
+    while True:
+        event = get_event()
+        kind = event.__class__
+        if kind is scalar_event:
+            mark = event.start_mark
+            if event.tag is not None:
+                value = _tagged_scalar(name, event)
+            elif event.style:
+                value = event.value
+            else:
+                value = _resolve_plain(event.value)
+            size = 1
+            if event.anchor is not None:
+                anchors[event.anchor] = (value, 1)
+        elif kind is mapping_start or kind is sequence_start:
+            mark = event.start_mark
+            if len(stack) >= MAX_DEPTH:
+                raise _fail(
+                    name, mark.line + 1, mark.column + 1,
+                    f"nesting is deeper than {MAX_DEPTH} levels; a model needs only a few levels",
+                )  # fmt: skip
+            _check_collection_tag(name, event, mark)
+            container = YamlMap() if kind is mapping_start else YamlList()
+            container.at = {} if kind is mapping_start else []
+            container.file = name
+            container.line = mark.line + 1
+            container.column = mark.column + 1
+            if event.anchor is not None:
+                opening.add(event.anchor)
+            stack.append(_Frame(container, kind is mapping_start, event.anchor))
+            continue
+        elif kind is mapping_end or kind is sequence_end:
+            frame = stack.pop()
+            value = frame.container
+            if frame.merges:
+                _apply_merges(value, frame.merges)
+            size = frame.size + 1
+            mark = None
+            if frame.anchor is not None:
+                opening.discard(frame.anchor)
+                anchors[frame.anchor] = (value, size)
+        elif kind is alias_event:
+            mark = event.start_mark
+            value, size = _alias_target(name, event, mark, anchors, opening)
+            expanded += size
+            if expanded > ALIAS_BUDGET:
+                raise _fail(
+                    name, mark.line + 1, mark.column + 1,
+                    f"aliases expand to more than {ALIAS_BUDGET} values (an alias bomb?); "
+                    "write the values out or use fewer nested aliases",
+                )  # fmt: skip
+        elif kind is document_start:
+            documents += 1
+            if documents > 1:
+                mark = event.start_mark
+                raise _fail(
+                    name, mark.line + 1, mark.column + 1,
+                    "a second YAML document starts here; a model file holds one document",
+                )  # fmt: skip
+            continue
+        elif kind is stream_end:
+            return root
+        else:
+            continue
+        if not stack:
+            root = value
+            continue
+        frame = stack[-1]
+        frame.size += size
+        if mark is None:
+            line, col = value.line, value.column
+        else:
+            line, col = mark.line + 1, mark.column + 1
+        container = frame.container
+        if not frame.is_map:
+            container.append(value)
+            container.at.append((line, col))
+        elif frame.key is _NO_KEY:
+            if value.__class__ is YamlMap or value.__class__ is YamlList:
+                raise _fail(name, line, col, "a mapping key is a list or mapping; keys must be plain names")
+            if value == "<<" and type(value) is str:
+                frame.key = _MERGE
+            elif value in container:
+                first = container.at[value]
+                raise _fail(
+                    name, line, col,
+                    f"duplicate key '{value}' (first at line {first[0]}, again at line {line}); "
+                    "remove or rename one of them",
+                )  # fmt: skip
+            else:
+                frame.key = value
+            frame.key_line, frame.key_col = line, col
+        else:
+            if frame.key is _MERGE:
+                _add_merge(name, frame, value, line, col)
+            else:
+                container[frame.key] = value
+                container.at[frame.key] = (frame.key_line, frame.key_col, line, col)
+            frame.key = _NO_KEY
+
+
+def _check_collection_tag(name: str, event, mark) -> None:
+    tag = event.tag
+    if tag is not None and tag not in ("!", _CORE + "map", _CORE + "seq", _CORE + "omap"):
+        raise _fail(
+            name, mark.line + 1, mark.column + 1, f"unsupported YAML tag '{tag}'; remove the tag, a model file uses plain values"
+        )
+
+
+def _alias_target(name: str, event, mark, anchors, opening) -> tuple[Any, int]:
+    target = anchors.get(event.anchor)
+    if target is not None:
+        return target
+    why = "refers to itself" if event.anchor in opening else "has no matching anchor before it"
+    raise _fail(name, mark.line + 1, mark.column + 1, f"alias '*{event.anchor}' {why}; define '&{event.anchor}' first")
+
+
+def _add_merge(name: str, frame: _Frame, value: Any, line: int, col: int) -> None:
+    """Record a `<<` merge key's value: a mapping or a list of mappings."""
+    sources = value if isinstance(value, YamlList) else [value]
+    if not all(isinstance(source, YamlMap) for source in sources):
+        raise _fail(name, line, col, "a '<<' merge key needs a mapping or a list of mappings; fix or remove it")
+    if frame.merges is None:
+        frame.merges = []
+    frame.merges.extend(sources)
+
+
+def _apply_merges(container: YamlMap, sources: list[YamlMap]) -> None:
+    """YAML merge keys: explicit keys win, then earlier sources over later ones."""
+    for source in sources:
+        for key, value in source.items():
+            if key not in container:
+                container[key] = value
+                container.at[key] = source.at[key]
+
+
+# --------------------------------------------------------------------------
+# Documents: the top level of each file
+
+
+@dataclass(frozen=True)
+class _Document:
+    file: str
+    top: YamlMap
+
+
+def _read_document(name: str, content: bytes | str) -> _Document:
+    root = _parse(name, _decode(name, content))
+    if root is _NOTHING or root is None:
+        raise _fail(
+            name, 1, 1, "the file is empty; a model file needs at least `model: NAME`, `format: 1` and `tables:`"
+        )
+    if not isinstance(root, YamlMap):
+        line, col = (root.line, root.column) if isinstance(root, YamlList) else (1, 1)
+        raise _fail(
+            name, line, col,
+            f"the top level is {_describe(root)}, not a mapping; a model file starts with `model:`, `format: 1` and `tables:`",
+        )  # fmt: skip
+    return _Document(name, root)
+
+
+def _model_identity(docs: list[_Document]) -> tuple[str, int]:
+    """`model` and `format`: required (in at least one file of a folder) and the same everywhere."""
+    name = _agreed(docs, "model", "add `model: NAME` at the top of the file")
+    fmt = _agreed(docs, "format", "add `format: 1` at the top of the file")
+    name_value, name_doc = name
+    fmt_value, fmt_doc = fmt
+    if not isinstance(name_value, str) or not name_value.strip():
+        line, col = _value_at(name_doc.top, "model")
+        raise _fail(name_doc.file, line, col, f"`model` must be the model's name, found {_describe(name_value)}; write `model: NAME`")
+    if type(fmt_value) is not int or fmt_value != 1:
+        line, col = _value_at(fmt_doc.top, "format")
+        found = _describe(fmt_value)
+        raise _fail(fmt_doc.file, line, col, f"`format` is {found}, but this modeldiff reads format 1 only; write `format: 1`")
+    return name_value, fmt_value
+
+
+def _agreed(docs: list[_Document], key: str, advice: str) -> tuple[Any, _Document]:
+    """The value of a top-level key and the first file that sets it; all files must agree."""
+    found = [(doc, doc.top[key]) for doc in docs if key in doc.top]
+    if not found:
+        where = docs[0].file if len(docs) == 1 else f"{docs[0].file} (and the other files of the folder)"
+        raise ModeldiffError(f"{where}:1:1: `{key}` is missing; {advice}")
+    first_doc, first = found[0]
+    for doc, value in found[1:]:
+        if type(value) is not type(first) or value != first:
+            line, col = _value_at(doc.top, key)
+            first_line = _value_at(first_doc.top, key)[0]
+            raise _fail(
+                doc.file, line, col,
+                f"`{key}` is {_describe(value)} here but {_describe(first)} in {first_doc.file}:{first_line}; "
+                "make the files of the folder agree",
+            )  # fmt: skip
+    return first, first_doc
+
+
+def _value_at(mapping: YamlMap, key: Any) -> tuple[int, int]:
+    at = mapping.at[key]
+    return at[2], at[3]
+
+
+def _describe(value: Any) -> str:
+    """A short description of a found value for messages."""
+    if value is None:
+        return "nothing (null)"
+    if value is True or value is False:
+        return "true" if value else "false"
+    if isinstance(value, str):
+        shown = value if len(value) <= 40 else value[:37] + "..."
+        return "''" if not value else f"'{shown}'"
+    if isinstance(value, (int, float)):
+        return f"the number {value}"
+    if isinstance(value, dict):
+        return "a mapping"
+    if isinstance(value, list):
+        return "a list"
+    return type(value).__name__
+
+
+# --------------------------------------------------------------------------
+# Values -> records, with invalid-model findings
+
+_TOP_KEYS = ("model", "format") + SECTIONS
+_TABLE_KEYS = ("kind", "key", "natural_key", "history", "columns", "source", "description")
+_COLUMN_KEYS = ("type", "description", "unique")
+_HISTORY_KEYS = ("type", "valid_from", "valid_to", "current", "previous")
+_LINK_KEYS = ("from", "to", "cardinality", "flow", "security_flow", "standby", "description")
+_MEASURE_KEYS = ("table", "expr", "where", "use", "flow", "description", "unit", "owner", "folder")
+_VARIANT_KEYS = ("default", "options", "description")
+_OPTION_KEYS = ("use", "flow", "where")
+_ROLE_KEYS = ("filters", "description")
+_REPORT_KEYS = ("measures", "by", "where", "variant", "role", "owner", "use", "flow", "description")
+_SINGULAR = {
+    "tables": "table", "links": "link", "measures": "measure",
+    "variants": "variant", "roles": "role", "reports": "report",
+}  # fmt: skip
+_BAD = object()  # a field that was present but wrong (a finding was recorded)
+
+
+_At = tuple  # (file, line, column): a position before it becomes a Pos
+
+
+class _Positions(Mapping):
+    """Model.positions: Pos records made on first use from (file, line, column) tuples."""
+
+    __slots__ = ("_raw", "_made")
+
+    def __init__(self, raw: dict[str, _At]) -> None:
+        self._raw = raw
+        self._made: dict[str, Pos] = {}
+
+    def __getitem__(self, subject: str) -> Pos:
+        pos = self._made.get(subject)
+        if pos is None:
+            pos = self._made[subject] = Pos(*self._raw[subject])
+        return pos
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._raw)
+
+    def __len__(self) -> int:
+        return len(self._raw)
+
+    def __repr__(self) -> str:
+        return f"<{len(self._raw)} positions>"
+
+
+class _RecordBuilder:
+    """Turns the documents' plain values into Model records and invalid-model findings."""
+
+    def __init__(self) -> None:
+        self.findings: list[Finding] = []
+        self.positions: dict[str, _At] = {}
+
+    # ---- the whole model
+
+    def build(self, docs: list[_Document], name: str, fmt: int) -> LoadResult:
+        for doc in docs:
+            self._check_keys(doc.top, _TOP_KEYS, "", "at the top level")
+        first = next(doc for doc in docs if "model" in doc.top)
+        self.positions["model"] = self._pos_value(first.top, "model")
+        if not any("tables" in doc.top for doc in docs):
+            self._bad("tables", (docs[0].file, 1, 1), "`tables` is missing; a model needs a `tables:` section")
+        builders = {
+            "tables": self._table, "links": self._link, "measures": self._measure,
+            "variants": self._variant, "roles": self._role, "reports": self._report,
+        }  # fmt: skip
+        sections = {section: self._section(docs, section, builders[section]) for section in SECTIONS}
+        model = Model(name=name, format=fmt, positions=_Positions(self.positions), **sections)
+        findings = sorted(
+            self.findings, key=lambda f: (f.pos.file, f.pos.line, f.pos.column, f.subject, f.message)
+        )
+        return LoadResult(model, tuple(findings))
+
+    def _section(self, docs: list[_Document], section: str, build_item) -> dict[str, Any]:
+        """One section merged over the files; a name in two files cannot be read."""
+        records: dict[str, Any] = {}
+        seen: dict[str, _At] = {}
+        for doc in docs:
+            items = self._get_map(doc.top, section, section)
+            if items is None:
+                continue
+            for name, value in items.items():
+                if not self._check_name(items, name, section):
+                    continue
+                subject = f"{section}.{name}"
+                pos = self._pos_key(items, name)
+                if name in seen:
+                    first = seen[name]
+                    raise _fail(
+                        *pos,
+                        f"{_SINGULAR[section]} '{name}' is defined in both {first[0]}:{first[1]} and "
+                        f"{pos[0]}:{pos[1]}; keep one definition",
+                    )  # fmt: skip
+                seen[name] = pos
+                self.positions[subject] = pos
+                record = build_item(name, value, subject, items)
+                if record is not None:
+                    records[name] = record
+        return records
+
+    # ---- sections
+
+    def _item_map(self, name: str, value: Any, subject: str, parent: YamlMap, keys: tuple[str, ...]) -> YamlMap | None:
+        what = f"{subject.split('.')[0][:-1]} '{name}'"
+        if not isinstance(value, YamlMap):
+            self._expected(subject, self._pos_value(parent, name), "a mapping of fields", value, f"{what} is ignored")
+            return None
+        self._check_keys(value, keys, subject, f"in {what}")
+        return value
+
+    def _table(self, name: str, value: Any, subject: str, parent: YamlMap) -> Table | None:
+        fields = self._item_map(name, value, subject, parent, _TABLE_KEYS)
+        if fields is None:
+            return None
+        kind = self._get_enum(fields, "kind", subject, TABLE_KINDS, "fact", required=True)
+        columns = self._columns(fields, subject)
+        return Table(
+            name=name,
+            kind=kind,
+            key=self._get_columns(fields, "key", subject),
+            columns=columns,
+            natural_key=self._get_columns(fields, "natural_key", subject),
+            history=self._history(fields, subject),
+            source=self._get_str(fields, "source", subject),
+            description=self._get_str(fields, "description", subject),
+        )
+
+    def _columns(self, fields: YamlMap, subject: str) -> dict[str, Column]:
+        columns = self._get_map(fields, "columns", f"{subject}.columns", required=True)
+        if columns is None:
+            return {}
+        records = {}
+        for name, value in columns.items():
+            column_subject = f"{subject}.columns.{name}"
+            if not self._check_name(columns, name, f"{subject}.columns"):
+                continue
+            self.positions[column_subject] = self._pos_key(columns, name)
+            records[name] = self._column(name, value, column_subject, columns)
+        return records
+
+    def _column(self, name: str, value: Any, subject: str, parent: YamlMap) -> Column:
+        if isinstance(value, str):
+            if value in COLUMN_TYPES:
+                return Column(name, value)
+            return self._bad_column_type(name, value, subject, self._pos_value(parent, name))
+        if not isinstance(value, YamlMap):
+            expected = "a column type or a mapping {type, description, unique}"
+            self._expected(subject, self._pos_value(parent, name), expected, value, "read as text")
+            return Column(name, "text")
+        self._check_keys(value, _COLUMN_KEYS, subject, f"in column '{name}'")
+        if "type" not in value:
+            self._bad(subject, self._pos_value(parent, name), f"{subject}: `type` is missing (read as text)")
+            column_type = "text"
+        else:
+            column_type = self._get_enum(value, "type", subject, COLUMN_TYPES, "text")
+        return Column(
+            name,
+            column_type,
+            description=self._get_str(value, "description", subject),
+            unique=self._get_bool(value, "unique", subject, False),
+        )
+
+    def _bad_column_type(self, name: str, value: str, subject: str, pos: _At) -> Column:
+        self._expected(subject, pos, "one of " + ", ".join(COLUMN_TYPES), value, "read as text")
+        return Column(name, "text")
+
+    def _history(self, fields: YamlMap, subject: str) -> History | None:
+        subject = f"{subject}.history"
+        history = self._get_map(fields, "history", subject)
+        if history is None:
+            return None
+        self._check_keys(history, _HISTORY_KEYS, subject, "in `history`")
+        if "type" not in history:
+            self._bad(subject, self._pos_value(fields, "history"), f"{subject}: `type` is missing; history is ignored")
+            return None
+        history_type = history["type"]
+        if type(history_type) is not int or history_type not in (0, 1, 2, 3):
+            where = self._pos_value(history, "type")
+            self._expected(f"{subject}.type", where, "0, 1, 2 or 3", history_type, "history is ignored")
+            return None
+        return History(
+            type=history_type,
+            valid_from=self._get_name(history, "valid_from", subject),
+            valid_to=self._get_name(history, "valid_to", subject),
+            current=self._get_name(history, "current", subject),
+            previous=self._previous(history, subject, history_type),
+        )
+
+    def _previous(self, history: YamlMap, subject: str, history_type: int) -> str | None:
+        if "previous" not in history:
+            return None
+        subject = f"{subject}.previous"
+        if history_type != 3:
+            self._bad(subject, self._pos_key(history, "previous"), f"{subject}: `previous` applies only to history type 3; it is ignored")
+            return None
+        previous = self._get_map(history, "previous", subject)
+        if previous is None:
+            return None
+        self._check_keys(previous, ("column",), subject, "in `previous`")
+        if "column" not in previous:
+            self._bad(subject, self._pos_value(history, "previous"), f"{subject}: `column` is missing")
+            return None
+        return self._get_name(previous, "column", subject)
+
+    def _link(self, name: str, value: Any, subject: str, parent: YamlMap) -> Link | None:
+        fields = self._item_map(name, value, subject, parent, _LINK_KEYS)
+        if fields is None:
+            return None
+        ends = [self._link_end(fields, end, subject, name) for end in ("from", "to")]
+        if _BAD in ends:
+            return None
+        (from_table, from_columns), (to_table, to_columns) = ends
+        if len(from_columns) != len(to_columns):
+            self._bad(
+                subject,
+                self._pos_value(fields, "to"),
+                f"{subject}: `from` has {len(from_columns)} column(s) but `to` has {len(to_columns)}; "
+                f"they must pair up one to one (link '{name}' is ignored)",
+            )
+            return None
+        return Link(
+            name=name,
+            from_table=from_table,
+            from_columns=from_columns,
+            to_table=to_table,
+            to_columns=to_columns,
+            cardinality=self._get_enum(fields, "cardinality", subject, CARDINALITIES, "many-to-one"),
+            flow=self._get_enum(fields, "flow", subject, FLOWS, "one-way"),
+            security_flow=self._get_enum(fields, "security_flow", subject, FLOWS, "one-way"),
+            standby=self._get_bool(fields, "standby", subject, False),
+            description=self._get_str(fields, "description", subject),
+        )
+
+    def _link_end(self, fields: YamlMap, end: str, subject: str, name: str):
+        """(table, columns) of a link's `from` or `to`, or _BAD."""
+        field_subject = f"{subject}.{end}"
+        if end not in fields:
+            self._bad(field_subject, self.positions[subject], f"{field_subject}: `{end}` is missing (link '{name}' is ignored)")
+            return _BAD
+        value, pos = self._field(fields, end, subject)
+        refs = list(value) if isinstance(value, YamlList) else [value]
+        expected = "\"table.column\" or a list of them, all of one table"
+        parsed = [_COLREF.match(ref) if isinstance(ref, str) else None for ref in refs]
+        if not refs or None in parsed:
+            bad = next((ref for ref, match in zip(refs, parsed) if match is None), value)
+            self._expected(field_subject, pos, expected, bad, f"link '{name}' is ignored")
+            return _BAD
+        tables = sorted({match.group(1) for match in parsed})
+        if len(tables) > 1:
+            self._bad(
+                field_subject,
+                pos,
+                f"{field_subject}: expected columns of one table, found tables {', '.join(tables)} (link '{name}' is ignored)",
+            )
+            return _BAD
+        return tables[0], tuple(match.group(2) for match in parsed)
+
+    def _measure(self, name: str, value: Any, subject: str, parent: YamlMap) -> Measure | None:
+        fields = self._item_map(name, value, subject, parent, _MEASURE_KEYS)
+        if fields is None:
+            return None
+        expr = self._get_str(fields, "expr", subject, sql=True)
+        if expr is None:
+            if "expr" not in fields:
+                self._bad(subject, self.positions[subject], f"{subject}: `expr` is missing; measure '{name}' is ignored")
+            return None
+        return Measure(
+            name=name,
+            expr=expr,
+            table=self._get_name(fields, "table", subject),
+            where=self._get_str(fields, "where", subject, sql=True),
+            overrides=self._overrides(fields, subject),
+            description=self._get_str(fields, "description", subject),
+            unit=self._get_str(fields, "unit", subject),
+            owner=self._get_str(fields, "owner", subject),
+            folder=self._get_str(fields, "folder", subject),
+        )
+
+    def _variant(self, name: str, value: Any, subject: str, parent: YamlMap) -> Variant | None:
+        fields = self._item_map(name, value, subject, parent, _VARIANT_KEYS)
+        if fields is None:
+            return None
+        default = self._get_name(fields, "default", subject)
+        if default is None and "default" not in fields:
+            self._bad(subject, self.positions[subject], f"{subject}: `default` is missing; variant '{name}' is ignored")
+        options = self._options(fields, subject)
+        if default is None or not options:
+            return None
+        return Variant(name, default, options, description=self._get_str(fields, "description", subject))
+
+    def _options(self, fields: YamlMap, subject: str) -> dict[str, VariantOption]:
+        options = self._get_map(fields, "options", f"{subject}.options", required=True)
+        if options is None:
+            return {}
+        if not options:
+            self._bad(f"{subject}.options", self._pos_value(fields, "options"), f"{subject}.options: a variant needs at least one option")
+        records = {}
+        for name, value in options.items():
+            if not self._check_name(options, name, f"{subject}.options"):
+                continue
+            option_subject = f"{subject}.options.{name}"
+            self.positions[option_subject] = self._pos_key(options, name)
+            if not isinstance(value, YamlMap):
+                self._expected(option_subject, self._pos_value(options, name), "a mapping (write {} for no changes)", value, "read as {}")
+                records[name] = VariantOption(name)
+                continue
+            self._check_keys(value, _OPTION_KEYS, option_subject, f"in option '{name}'")
+            where = self._get_predicates(value, "where", option_subject)
+            records[name] = VariantOption(name, overrides=self._overrides(value, option_subject), where=where)
+        return records
+
+    def _role(self, name: str, value: Any, subject: str, parent: YamlMap) -> Role | None:
+        fields = self._item_map(name, value, subject, parent, _ROLE_KEYS)
+        if fields is None:
+            return None
+        if "filters" not in fields:
+            self._bad(subject, self.positions[subject], f"{subject}: `filters` is missing; role '{name}' is ignored")
+            return None
+        filters = self._get_predicates(fields, "filters", subject)
+        return Role(name, filters, description=self._get_str(fields, "description", subject))
+
+    def _report(self, name: str, value: Any, subject: str, parent: YamlMap) -> Report | None:
+        fields = self._item_map(name, value, subject, parent, _REPORT_KEYS)
+        if fields is None:
+            return None
+        if "measures" not in fields:
+            self._bad(subject, self.positions[subject], f"{subject}: `measures` is missing; report '{name}' is ignored")
+            return None
+        measures = self._get_names(fields, "measures", subject, nonempty=True)
+        return Report(
+            name=name,
+            measures=measures,
+            by=self._get_colrefs(fields, "by", subject),
+            where=self._get_predicates(fields, "where", subject),
+            variant=self._get_name_map(fields, "variant", subject),
+            role=self._get_name(fields, "role", subject),
+            owner=self._get_str(fields, "owner", subject),
+            overrides=self._overrides(fields, subject),
+            description=self._get_str(fields, "description", subject),
+        )
+
+    def _overrides(self, fields: YamlMap, subject: str) -> Overrides:
+        use = self._get_names(fields, "use", subject)
+        flow = self._get_flow(fields, subject)
+        return Overrides(use, flow) if use or flow else NO_OVERRIDES
+
+    # ---- typed fields: each returns the value, or a default after recording a finding
+
+    def _field(self, fields: YamlMap, key: str, subject: str) -> tuple[Any, _At | None]:
+        if key not in fields:
+            return _NOTHING, None
+        pos = self._pos_value(fields, key)
+        self.positions[f"{subject}.{key}"] = pos
+        return fields[key], pos
+
+    def _get_str(self, fields: YamlMap, key: str, subject: str, sql: bool = False) -> str | None:
+        value, pos = self._field(fields, key, subject)
+        if value is _NOTHING:
+            return None
+        if isinstance(value, str) and (not sql or value.strip()):
+            return value
+        expected = "a non-empty SQL expression" if sql else "text"
+        self._expected(f"{subject}.{key}", pos, expected, value, "it is ignored")
+        return None
+
+    def _get_name(self, fields: YamlMap, key: str, subject: str) -> str | None:
+        value, pos = self._field(fields, key, subject)
+        if value is _NOTHING:
+            return None
+        if isinstance(value, str) and _NAME.match(value):
+            return value
+        self._expected(f"{subject}.{key}", pos, f"a name matching {_NAME_PATTERN}", value, "it is ignored")
+        return None
+
+    def _get_bool(self, fields: YamlMap, key: str, subject: str, default: bool) -> bool:
+        value, pos = self._field(fields, key, subject)
+        if value is _NOTHING:
+            return default
+        if value is True or value is False:
+            return value
+        self._expected(f"{subject}.{key}", pos, "true or false", value, f"read as {str(default).lower()}")
+        return default
+
+    def _get_enum(self, fields: YamlMap, key: str, subject: str, choices, default: str, required: bool = False) -> str:
+        value, pos = self._field(fields, key, subject)
+        if value is _NOTHING:
+            if required:
+                self._bad(f"{subject}.{key}", self.positions.get(subject) or self._pos_first(fields),
+                          f"{subject}: `{key}` is missing; expected one of {', '.join(choices)} (read as {default})")  # fmt: skip
+            return default
+        if isinstance(value, str) and value in choices:
+            return value
+        self._expected(f"{subject}.{key}", pos, "one of " + ", ".join(choices), value, f"read as {default}")
+        return default
+
+    def _get_list(self, fields: YamlMap, key: str, subject: str, expected: str, nonempty: bool = False):
+        """The items of a list field that pass, with a finding for the rest; None when absent."""
+        value, pos = self._field(fields, key, subject)
+        if value is _NOTHING:
+            return None, None
+        if not isinstance(value, YamlList) or (nonempty and not value):
+            self._expected(f"{subject}.{key}", pos, f"a non-empty list of {expected}" if nonempty else f"a list of {expected}", value, "it is ignored")
+            return None, None
+        return value, pos
+
+    def _get_names(self, fields: YamlMap, key: str, subject: str, nonempty: bool = False) -> tuple[str, ...]:
+        items, _ = self._get_list(fields, key, subject, "names", nonempty)
+        if items is None:
+            return ()
+        good = []
+        for index, item in enumerate(items):
+            if isinstance(item, str) and _NAME.match(item):
+                good.append(item)
+            else:
+                item_pos = (items.file, *items.at[index])
+                self._expected(f"{subject}.{key}", item_pos, f"a name matching {_NAME_PATTERN}", item, "it is ignored")
+        return tuple(good)
+
+    def _get_colrefs(self, fields: YamlMap, key: str, subject: str) -> tuple[str, ...]:
+        items, _ = self._get_list(fields, key, subject, '"table.column" entries')
+        if items is None:
+            return ()
+        good = []
+        for index, item in enumerate(items):
+            if isinstance(item, str) and _COLREF.match(item):
+                good.append(item)
+            else:
+                item_pos = (items.file, *items.at[index])
+                self._expected(f"{subject}.{key}", item_pos, '"table.column"', item, "it is ignored")
+        return tuple(good)
+
+    def _get_columns(self, fields: YamlMap, key: str, subject: str) -> tuple[str, ...]:
+        """`key`/`natural_key`: one column name or a non-empty list of them."""
+        value, pos = self._field(fields, key, subject)
+        if value is _NOTHING:
+            return ()
+        if isinstance(value, str) and _NAME.match(value):
+            return (value,)
+        if isinstance(value, YamlList) and value and all(isinstance(v, str) and _NAME.match(v) for v in value):
+            return tuple(value)
+        self._expected(f"{subject}.{key}", pos, "a column name or a non-empty list of column names", value, "it is ignored")
+        return ()
+
+    def _get_flow(self, fields: YamlMap, subject: str) -> dict[str, str]:
+        flows = self._get_map(fields, "flow", f"{subject}.flow")
+        if flows is None:
+            return {}
+        result = {}
+        for link, value in flows.items():
+            if not self._check_name(flows, link, f"{subject}.flow"):
+                continue
+            pos = self._pos_value(flows, link)
+            self.positions[f"{subject}.flow.{link}"] = pos
+            if isinstance(value, str) and value in FLOW_OVERRIDES:
+                result[link] = value
+            else:
+                self._expected(f"{subject}.flow.{link}", pos, "one of " + ", ".join(FLOW_OVERRIDES), value, "it is ignored")
+        return result
+
+    def _get_predicates(self, fields: YamlMap, key: str, subject: str) -> dict[str, str]:
+        """A map table -> SQL predicate (`where`, `filters`)."""
+        return self._get_name_keyed(fields, key, subject, "a non-empty SQL predicate", _is_sql)
+
+    def _get_name_map(self, fields: YamlMap, key: str, subject: str) -> dict[str, str]:
+        """A map name -> name (a report's `variant`: variant -> option)."""
+        return self._get_name_keyed(fields, key, subject, f"a name matching {_NAME_PATTERN}", _is_name)
+
+    def _get_name_keyed(self, fields: YamlMap, key: str, subject: str, expected: str, accept) -> dict[str, str]:
+        entries = self._get_map(fields, key, f"{subject}.{key}")
+        if entries is None:
+            return {}
+        result = {}
+        for name, value in entries.items():
+            if not self._check_name(entries, name, f"{subject}.{key}"):
+                continue
+            pos = self._pos_value(entries, name)
+            self.positions[f"{subject}.{key}.{name}"] = pos
+            if accept(value):
+                result[name] = value
+            else:
+                self._expected(f"{subject}.{key}.{name}", pos, expected, value, "it is ignored")
+        return result
+
+    def _get_map(self, fields: YamlMap, key: str, subject: str, required: bool = False) -> YamlMap | None:
+        if key not in fields:
+            if required:
+                parent = subject.rsplit(".", 1)[0]
+                where = self.positions.get(parent) or self._pos_first(fields)
+                self._bad(subject, where, f"{parent}: `{key}` is missing; expected a mapping")
+            return None
+        value = fields[key]
+        pos = self._pos_value(fields, key)
+        self.positions[subject] = pos
+        if isinstance(value, YamlMap):
+            return value
+        self._expected(subject, pos, "a mapping", value, "it is ignored")
+        return None
+
+    # ---- names, keys, findings
+
+    def _check_name(self, mapping: YamlMap, name: Any, section: str) -> bool:
+        if isinstance(name, str) and _NAME.match(name):
+            return True
+        self._expected(f"{section}.{name}", self._pos_key(mapping, name), f"a name matching {_NAME_PATTERN}", name, "the entry is ignored")
+        return False
+
+    def _check_keys(self, mapping: YamlMap, allowed: tuple[str, ...], subject: str, where: str) -> None:
+        for key in mapping:
+            if key in allowed:
+                continue
+            hint = _close_match(key, allowed)
+            suggestion = f"; did you mean `{hint}`?" if hint else f"; expected one of {', '.join(allowed)}"
+            key_subject = f"{subject}.{key}" if subject else str(key)
+            self._bad(key_subject, self._pos_key(mapping, key), f"unknown key {_describe(key)} {where} (ignored){suggestion}")
+
+    def _expected(self, subject: str, pos: _At, expected: str, found: Any, consequence: str) -> None:
+        self._bad(subject, pos, f"{subject}: expected {expected}, found {_describe(found)} ({consequence})")
+
+    def _bad(self, subject: str, at: _At, message: str) -> None:
+        pos = Pos(*at)
+        self.findings.append(Finding(rule=RULE, severity="error", subject=subject, message=message, pos=pos))
+
+    @staticmethod
+    def _pos_key(mapping: YamlMap, key: Any) -> _At:
+        at = mapping.at[key]
+        return (mapping.file, at[0], at[1])
+
+    @staticmethod
+    def _pos_value(mapping: YamlMap, key: Any) -> _At:
+        at = mapping.at[key]
+        return (mapping.file, at[2], at[3])
+
+    @staticmethod
+    def _pos_first(mapping: YamlMap) -> _At:
+        return (mapping.file, mapping.line, mapping.column)
+
+
+def _is_sql(value: Any) -> bool:
+    return isinstance(value, str) and bool(value.strip())
+
+
+def _is_name(value: Any) -> bool:
+    return isinstance(value, str) and _NAME.match(value) is not None
+
+
+def _close_match(key: Any, allowed: Iterable[str]) -> str | None:
+    if not isinstance(key, str):
+        return None
+    import difflib
+
+    matches = difflib.get_close_matches(key, list(allowed), n=1, cutoff=0.75)
+    return matches[0] if matches else None
