@@ -1,0 +1,1171 @@
+"""Structural comparison of two revisions: the Change records of changes.md's structural kinds.
+
+Identity is the name. `keyed_diff` splits every section into added, removed and
+kept names. A removed and an added item with the same definition (everything
+but the name and metadata), whose references in the new revision all follow the
+new name, become one `*.renamed` change. Before two items are compared, the old
+one is translated into the new revision's names (renamed tables, columns,
+links, measures, variants, roles), so a rename that every reference follows
+yields that one change and nothing else.
+
+Sections are compared in dependency order (tables with their columns, links,
+measures, variants, roles, reports) through one dict of section specs; each
+has a signature (its definition, for renames), a comparator, and messages for
+added/removed items. Each semantic rule is a small named predicate. SQL text is
+compared through `modeldiff.sql.normal_form`, and only where the text differs.
+
+The full list of kinds, with default severities, is docs/change-kinds.md.
+"""
+
+from __future__ import annotations
+
+import re
+from collections import defaultdict
+from dataclasses import asdict, dataclass, field, replace
+from functools import cached_property, lru_cache
+from typing import Any, Callable, Hashable, Iterable, Iterator, Mapping, TypeVar
+
+from modeldiff.changes import Change
+from modeldiff.model import Column, History, Link, Measure, Model, Overrides, Report, Role, Table, Variant, VariantOption
+
+SAFE, NUMBERS, BREAKING = "safe", "numbers", "breaking"
+
+# How two SQL texts compare.
+SAME, COSMETIC, LOGIC = "same", "cosmetic", "logic"
+
+T = TypeVar("T")
+
+# Above this many (removed x added) candidates of one type in one table, no column
+# renames are guessed there: each is reported as a removal and an addition.
+MAX_COLUMN_CANDIDATES = 400
+
+
+# --- the generic keyed differ -------------------------------------------------------------
+
+
+def keyed_diff(old: Mapping[str, T], new: Mapping[str, T]) -> tuple[list[str], list[str], list[str]]:
+    """Added, removed and kept names, each sorted. Membership is tested with `in`."""
+    added = sorted(name for name in new if name not in old)
+    removed = sorted(name for name in old if name not in new)
+    kept = sorted(name for name in old if name in new)
+    return added, removed, kept
+
+
+# --- semantic predicates ------------------------------------------------------------------
+
+
+def flow_widened(old: Link, new: Link) -> bool:
+    return old.flow == "one-way" and new.flow == "two-way"
+
+
+def flow_narrowed(old: Link, new: Link) -> bool:
+    return old.flow == "two-way" and new.flow == "one-way"
+
+
+def security_flow_changed(old: Link, new: Link) -> bool:
+    return old.security_flow != new.security_flow
+
+
+def cardinality_changed(old: Link, new: Link) -> bool:
+    return old.cardinality != new.cardinality
+
+
+def standby_set(old: Link, new: Link) -> bool:
+    return not old.standby and new.standby
+
+
+def standby_cleared(old: Link, new: Link) -> bool:
+    return old.standby and not new.standby
+
+
+def from_switched(old: Link, new: Link) -> bool:
+    return (old.from_table, old.from_columns) != (new.from_table, new.from_columns)
+
+
+def to_switched(old: Link, new: Link) -> bool:
+    return (old.to_table, old.to_columns) != (new.to_table, new.to_columns)
+
+
+def is_type2(table: Table | None) -> bool:
+    return table is not None and table.history is not None and table.history.type == 2
+
+
+def _same_columns(a: Iterable[str], b: Iterable[str]) -> bool:
+    return [c.lower() for c in a] == [c.lower() for c in b]
+
+
+def moved_surrogate_to_natural(old_link: Link, old_to: Table | None, new_link: Link, new_to: Table | None) -> bool:
+    """The link left a type-2 table's surrogate key for its natural key: facts now reach every version."""
+    return (is_type2(new_to) and old_to is not None and old_link.to_table == new_link.to_table
+            and _same_columns(old_link.to_columns, old_to.key)
+            and bool(new_to.natural_key) and _same_columns(new_link.to_columns, new_to.natural_key))
+
+
+def moved_natural_to_surrogate(old_link: Link, old_to: Table | None, new_link: Link, new_to: Table | None) -> bool:
+    """The link left a type-2 table's natural key for its surrogate key: facts reach one version again."""
+    return (is_type2(old_to) and new_to is not None and old_link.to_table == new_link.to_table
+            and bool(old_to.natural_key) and _same_columns(old_link.to_columns, old_to.natural_key)
+            and _same_columns(new_link.to_columns, new_to.key))
+
+
+def only_order_differs(a: tuple, b: tuple) -> bool:
+    return a != b and sorted(a) == sorted(b)
+
+
+# --- SQL ----------------------------------------------------------------------------------
+
+_WORD = re.compile(r"[A-Za-z_][A-Za-z0-9_]*")
+
+
+@lru_cache(maxsize=4096)
+def _words(text: str) -> frozenset[str]:
+    """Every identifier-like word of `text`, lowercased (literals included: a conservative pre-check)."""
+    return frozenset(w.lower() for w in _WORD.findall(text))
+
+
+def _sql_module():
+    try:
+        from modeldiff import sql
+    except ImportError:  # pragma: no cover - only while sql.py is being written
+        return None
+    return sql
+
+
+def _sql_errors(sql) -> tuple[type[BaseException], ...]:
+    return tuple(e for e in (getattr(sql, "SqlError", None),) if e is not None) or (ValueError,)
+
+
+@lru_cache(maxsize=4096)
+def _column_refs(text: str) -> frozenset[tuple[str | None, str]] | None:
+    """Lowercased (qualifier, column) pairs read by `text`, or None when it cannot be parsed."""
+    sql = _sql_module()
+    if sql is None:
+        return None
+    try:
+        refs = sql.column_refs(text)
+    except _sql_errors(sql):
+        return None
+    return frozenset((q.lower() if q else None, c.lower()) for q, c in refs)
+
+
+def sql_reads_column(text: str, table: str, column: str) -> bool:
+    """Whether a predicate or expression over `table` reads `column` (True when it cannot tell)."""
+    col = column.lower()
+    if col not in _words(text):
+        return False
+    refs = _column_refs(text)
+    if refs is None:
+        return True
+    return any(c == col and (q is None or q == table.lower()) for q, c in refs)
+
+
+def sql_names_measure(expr: str, name: str) -> bool:
+    """Whether a derived measure's expression names measure `name` (True when it cannot tell)."""
+    if name.lower() not in _words(expr):
+        return False
+    sql = _sql_module()
+    if sql is None:
+        return True
+    try:
+        return any(n.lower() == name.lower() for n in sql.measure_refs(expr, frozenset({name})))
+    except _sql_errors(sql):
+        return True
+
+
+def _normal_form(text: str, table: str | None = None) -> str | None:
+    """modeldiff.sql's normal form (memoised there), or None when the text cannot be parsed."""
+    sql = _sql_module()
+    if sql is None:
+        return None
+    try:
+        return sql.normal_form(text, table)
+    except _sql_errors(sql):
+        return None
+
+
+def sql_verdict(old: str | None, new: str | None, table: str | None = None) -> str:
+    """SAME when the texts are equal, COSMETIC when only their spelling differs, else LOGIC.
+
+    With `table`, a column qualified by that table equals the bare column. Text
+    that cannot be parsed counts as LOGIC when it differs (conservative).
+    """
+    if old == new:
+        return SAME
+    if old is None or new is None:
+        return LOGIC
+    a, b = _normal_form(old, table), _normal_form(new, table)
+    return COSMETIC if a is not None and a == b else LOGIC
+
+
+def rename_in_sql(text: str, columns: Mapping[str, str], qualifiers: Mapping[str, str], scope: str | None) -> str | None:
+    """`text` with renamed columns (and table qualifiers) spelled by their new names; None if unparsable.
+
+    `columns` and `qualifiers` map lowercased old names to new names. A column is
+    renamed when it is unqualified or qualified by the scope table (old or new name).
+    """
+    import sqlglot
+    from sqlglot import exp
+
+    sql = _sql_module()
+    if sql is None:
+        return None
+    try:
+        tree = sql.parse(text).copy()  # parse() memoises its trees: never change them in place
+    except _sql_errors(sql):
+        return None
+    scope_names = {scope.lower()} if scope else set()
+    scope_names |= {old for old, new in qualifiers.items() if scope and new.lower() == scope.lower()}
+
+    def rename(node):
+        if isinstance(node, exp.Column):
+            qualifier = node.table.lower() if node.table else ""
+            if node.name.lower() in columns and (not qualifier or qualifier in scope_names):
+                node.set("this", exp.to_identifier(columns[node.name.lower()]))
+            if qualifier in qualifiers:
+                node.set("table", exp.to_identifier(qualifiers[qualifier]))
+        return node
+
+    try:
+        return tree.transform(rename).sql(dialect=sql.DIALECT)
+    except sqlglot.errors.SqlglotError:
+        return None
+
+
+# --- JSON-ready values ----------------------------------------------------------------------
+
+
+def _plain(value: Any) -> Any:
+    if isinstance(value, Overrides):
+        return {"use": list(value.use), "flow": dict(sorted(value.flow.items()))}
+    if isinstance(value, History):
+        return {k: v for k, v in asdict(value).items() if v is not None}
+    if isinstance(value, VariantOption):
+        return {"use": list(value.overrides.use), "flow": dict(sorted(value.overrides.flow.items())),
+                "where": dict(sorted(value.where.items()))}
+    if isinstance(value, Mapping):
+        return {k: _plain(v) for k, v in sorted(value.items())}
+    if isinstance(value, (tuple, list)):
+        return [_plain(v) for v in value]
+    return value
+
+
+def _frozen(value: Any) -> Hashable:
+    """A hashable, order-stable form of mappings and sequences (for signatures)."""
+    if isinstance(value, Mapping):
+        return tuple(sorted((k, _frozen(v)) for k, v in value.items()))
+    if isinstance(value, (tuple, list)):
+        return tuple(_frozen(v) for v in value)
+    if isinstance(value, Overrides):
+        return ("overrides", _frozen(value.use), _frozen(value.flow))
+    return value
+
+
+def _columns_text(table: str, columns: tuple[str, ...]) -> str | list[str]:
+    names = [f"{table}.{c}" for c in columns]
+    return names[0] if len(names) == 1 else names
+
+
+def _list(items: Iterable[str], limit: int = 4) -> str:
+    items = list(items)
+    shown = ", ".join(items[:limit])
+    return shown + (f" and {len(items) - limit} more" if len(items) > limit else "")
+
+
+def _changed_fields(old: Any, new: Any, names: Iterable[str]) -> tuple[dict, dict]:
+    before, after = {}, {}
+    for name in names:
+        a, b = getattr(old, name), getattr(new, name)
+        if a != b:
+            before[name], after[name] = _plain(a), _plain(b)
+    return before, after
+
+
+# --- what refers to what, in one revision ---------------------------------------------------
+
+_COLS, _SQL = "cols", "sql"
+
+
+class References:
+    """Who names a table, link, measure, variant, role or column in one revision.
+
+    Indexes are built lazily in one pass each; SQL is parsed only for texts that
+    contain the name as a word.
+    """
+
+    def __init__(self, model: Model):
+        self.model = model
+
+    @cached_property
+    def _by_name(self) -> dict[str, dict[str, set[str]]]:
+        out: dict[str, dict[str, set[str]]] = {s: defaultdict(set) for s in ("tables", "links", "measures", "variants", "roles")}
+        m = self.model
+
+        def overrides(subject: str, o: Overrides) -> None:
+            for link in (*o.use, *o.flow):
+                out["links"][link].add(subject)
+
+        for link in m.links.values():
+            out["tables"][link.from_table].add(f"links.{link.name}")
+            out["tables"][link.to_table].add(f"links.{link.name}")
+        for measure in m.measures.values():
+            subject = f"measures.{measure.name}"
+            if measure.table is not None:
+                out["tables"][measure.table].add(subject)
+            overrides(subject, measure.overrides)
+        for variant in m.variants.values():
+            subject = f"variants.{variant.name}"
+            for option in variant.options.values():
+                overrides(subject, option.overrides)
+                for table in option.where:
+                    out["tables"][table].add(subject)
+        for role in m.roles.values():
+            for table in role.filters:
+                out["tables"][table].add(f"roles.{role.name}")
+        for report in m.reports.values():
+            subject = f"reports.{report.name}"
+            for name in report.measures:
+                out["measures"][name].add(subject)
+            for item in report.by:
+                out["tables"][item.partition(".")[0]].add(subject)
+            for table in report.where:
+                out["tables"][table].add(subject)
+            for variant in report.variant:
+                out["variants"][variant].add(subject)
+            if report.role is not None:
+                out["roles"][report.role].add(subject)
+            overrides(subject, report.overrides)
+        return out
+
+    def referrers(self, section: str, name: str) -> tuple[str, ...]:
+        """Subjects that name `name` of `section` (reports and derived measures for a measure)."""
+        if section not in self._by_name:
+            return ()
+        found = set(self._by_name[section].get(name, ()))
+        if section == "measures":
+            found |= {f"measures.{m.name}" for m in self.model.measures.values()
+                      if m.table is None and m.name != name and sql_names_measure(m.expr, name)}
+        return tuple(sorted(found))
+
+    @cached_property
+    def _column_sites(self) -> dict[str, list[tuple[str, str, Any]]]:
+        """table -> [(subject, how, payload)]: every place that can name one of its columns."""
+        sites: dict[str, list[tuple[str, str, Any]]] = defaultdict(list)
+        m = self.model
+        for table in m.tables.values():
+            own = (*table.key, *table.natural_key)
+            if table.history is not None:
+                h = table.history
+                own += tuple(c for c in (h.valid_from, h.valid_to, h.current, h.previous) if c is not None)
+            sites[table.name].append((f"tables.{table.name}", _COLS, own))
+        for link in m.links.values():
+            sites[link.from_table].append((f"links.{link.name}", _COLS, link.from_columns))
+            sites[link.to_table].append((f"links.{link.name}", _COLS, link.to_columns))
+        for measure in m.measures.values():
+            if measure.table is not None:
+                for text in (measure.expr, measure.where):
+                    if text is not None:
+                        sites[measure.table].append((f"measures.{measure.name}", _SQL, text))
+        for variant in m.variants.values():
+            for option in variant.options.values():
+                for table, text in option.where.items():
+                    sites[table].append((f"variants.{variant.name}", _SQL, text))
+        for role in m.roles.values():
+            for table, text in role.filters.items():
+                sites[table].append((f"roles.{role.name}", _SQL, text))
+        for report in m.reports.values():
+            for item in report.by:
+                table, _, column = item.partition(".")
+                sites[table].append((f"reports.{report.name}", _COLS, (column,)))
+            for table, text in report.where.items():
+                sites[table].append((f"reports.{report.name}", _SQL, text))
+        return sites
+
+    def column_referrers(self, table: str, column: str) -> tuple[str, ...]:
+        """Subjects that read `table.column` (by key, link, `by`, or SQL)."""
+        col = column.lower()
+        found: set[str] = set()
+        for subject, how, payload in self._column_sites.get(table, ()):
+            if subject in found:
+                continue
+            if how == _COLS:
+                hit = any(c.lower() == col for c in payload)
+            else:
+                hit = sql_reads_column(payload, table, column)
+            if hit:
+                found.add(subject)
+        return tuple(sorted(found))
+
+
+# --- renames found so far, and the old revision seen through them ---------------------------
+
+
+@dataclass
+class Renames:
+    """Old name -> new name, per section; columns per (new) table, keyed by the lowercased old name."""
+
+    sections: dict[str, dict[str, str]] = field(default_factory=lambda: {
+        s: {} for s in ("tables", "links", "measures", "variants", "roles", "reports")})
+    columns: dict[str, dict[str, str]] = field(default_factory=dict)
+
+    def name(self, section: str, old: str) -> str:
+        return self.sections[section].get(old, old)
+
+    def column(self, table: str, old: str) -> str:
+        """`table` is the new table name."""
+        mapping = self.columns.get(table)
+        return mapping.get(old.lower(), old) if mapping else old
+
+    def table_column(self, item: str) -> str:
+        """A "table.column" string of the old revision, in new names."""
+        table, dot, column = item.partition(".")
+        table = self.name("tables", table)
+        return f"{table}{dot}{self.column(table, column)}" if dot else table
+
+    def overrides(self, o: Overrides) -> Overrides:
+        links = self.sections["links"]
+        if not links or not o:
+            return o
+        return Overrides(tuple(links.get(n, n) for n in o.use), {links.get(n, n): v for n, v in o.flow.items()})
+
+    def tables_keyed(self, by_table: Mapping[str, str]) -> dict[str, str]:
+        return {self.name("tables", t): text for t, text in by_table.items()}
+
+    def subject(self, subject: str) -> str:
+        """An item subject ("links.x") of the old revision, in new names."""
+        section, _, name = subject.partition(".")
+        return f"{section}.{self.name(section, name)}" if section in self.sections else subject
+
+    # translations of whole items (structure only; SQL text is left as written)
+
+    def table(self, t: Table) -> Table:
+        name = self.name("tables", t.name)
+        if name == t.name and name not in self.columns:
+            return t
+        col = lambda c: self.column(name, c)  # noqa: E731
+        columns = {col(n): (replace(c, name=col(n)) if col(n) != n else c) for n, c in t.columns.items()}
+        history = t.history
+        if history is not None:
+            history = replace(history, **{f: col(getattr(history, f)) for f in ("valid_from", "valid_to", "current", "previous")
+                                          if getattr(history, f) is not None})
+        return replace(t, name=name, key=tuple(map(col, t.key)), natural_key=tuple(map(col, t.natural_key)),
+                       columns=columns, history=history)
+
+    def link(self, link: Link) -> Link:
+        from_table, to_table = self.name("tables", link.from_table), self.name("tables", link.to_table)
+        return replace(link, name=self.name("links", link.name),
+                       from_table=from_table, from_columns=tuple(self.column(from_table, c) for c in link.from_columns),
+                       to_table=to_table, to_columns=tuple(self.column(to_table, c) for c in link.to_columns))
+
+    def measure(self, m: Measure) -> Measure:
+        table = self.name("tables", m.table) if m.table is not None else None
+        return replace(m, name=self.name("measures", m.name), table=table, overrides=self.overrides(m.overrides))
+
+    def variant(self, v: Variant) -> Variant:
+        options = {n: replace(o, overrides=self.overrides(o.overrides), where=self.tables_keyed(o.where))
+                   for n, o in v.options.items()}
+        return replace(v, name=self.name("variants", v.name), options=options)
+
+    def role(self, r: Role) -> Role:
+        return replace(r, name=self.name("roles", r.name), filters=self.tables_keyed(r.filters))
+
+    def report(self, p: Report) -> Report:
+        return replace(p, name=self.name("reports", p.name),
+                       measures=tuple(self.name("measures", m) for m in p.measures),
+                       by=tuple(self.table_column(b) for b in p.by),
+                       where=self.tables_keyed(p.where),
+                       variant={self.name("variants", v): o for v, o in p.variant.items()},
+                       role=self.name("roles", p.role) if p.role is not None else None,
+                       overrides=self.overrides(p.overrides))
+
+
+# --- the comparison context -------------------------------------------------------------------
+
+DERIVED = object()  # SQL scope of a derived measure's expression: measure names
+
+
+class DiffContext:
+    def __init__(self, old: Model, new: Model):
+        self.old, self.new = old, new
+        self.renames = Renames()
+        self.old_refs, self.new_refs = References(old), References(new)
+
+    def change(self, kind: str, subject: str, severity: str, message: str, before=None, after=None, **details) -> Change:
+        return Change(kind, subject, severity, message, before, after, details)
+
+    # SQL seen through the renames
+
+    def _sql_maps(self, scope) -> tuple[dict[str, str], dict[str, str], str | None]:
+        if scope is DERIVED:
+            return {o.lower(): n for o, n in self.renames.sections["measures"].items()}, {}, None
+        if scope is None:
+            return {}, {}, None
+        tables = {o.lower(): n for o, n in self.renames.sections["tables"].items()}
+        return self.renames.columns.get(scope, {}), tables, scope
+
+    def old_sql(self, text: str | None, scope) -> str | None:
+        """An old SQL text spelled in new names (rewritten only when it names something renamed)."""
+        if text is None:
+            return None
+        columns, tables, table = self._sql_maps(scope)
+        if not columns and not tables:
+            return text
+        words = _words(text)
+        if not any(w in words for w in (*columns, *tables)):
+            return text
+        rewritten = rename_in_sql(text, columns, tables, table)
+        return text if rewritten is None else rewritten
+
+    def compare_sql(self, old: str | None, new: str | None, scope) -> str:
+        """SAME, COSMETIC or LOGIC; a difference explained by renames alone counts as SAME."""
+        if old == new:
+            return SAME
+        seen = self.old_sql(old, scope)
+        verdict = sql_verdict(seen, new, None if scope is DERIVED else scope)
+        if seen is not old and verdict == COSMETIC:
+            return SAME
+        return verdict
+
+    def sql_key(self, text: str | None, scope, old: bool, deep: bool) -> Hashable:
+        """A text's part of a signature: as written (old ones in new names), or its normal form."""
+        if text is None:
+            return None
+        if old:
+            text = self.old_sql(text, scope)
+        if deep:
+            normal = _normal_form(text, None if scope is DERIVED else scope)
+            return ("normal", normal) if normal is not None else ("text", text)
+        return ("text", text)
+
+
+# --- pairing renames ---------------------------------------------------------------------------
+
+
+def pair_renames(removed: Mapping[str, Hashable], added: Mapping[str, Hashable],
+                 confirm: Callable[[str, str], bool], limit: int | None = None) -> list[tuple[str, str]]:
+    """Pairs (old, new) of equal signature that `confirm` accepts, where the match is one-to-one.
+
+    Ambiguous matches (one old item fitting several new ones, or the reverse) are
+    left unpaired: they are reported as removals and additions.
+    """
+    buckets: dict[Hashable, tuple[list[str], list[str]]] = {}
+    for name, sig in sorted(removed.items()):
+        buckets.setdefault(sig, ([], []))[0].append(name)
+    for name, sig in sorted(added.items()):
+        if sig in buckets:
+            buckets[sig][1].append(name)
+    pairs = []
+    for olds, news in buckets.values():
+        if not news or (limit is not None and len(olds) * len(news) > limit):
+            continue
+        candidates = [(o, n) for o in olds for n in news if confirm(o, n)]
+        old_count: dict[str, int] = defaultdict(int)
+        new_count: dict[str, int] = defaultdict(int)
+        for o, n in candidates:
+            old_count[o] += 1
+            new_count[n] += 1
+        pairs += [(o, n) for o, n in candidates if old_count[o] == 1 and new_count[n] == 1]
+    return sorted(pairs)
+
+
+def _references_follow(ctx: DiffContext, section: str) -> Callable[[str, str], bool]:
+    """A rename only if nothing in the new revision still names the old name."""
+    return lambda old, new: not ctx.new_refs.referrers(section, old)
+
+
+# --- tables and columns ------------------------------------------------------------------------
+
+
+def _table_signature(ctx: DiffContext, t: Table, old: bool, deep: bool) -> Hashable:
+    columns = frozenset((n.lower(), c.type) for n, c in t.columns.items())
+    return (t.kind, tuple(c.lower() for c in t.key), tuple(c.lower() for c in t.natural_key), columns)
+
+
+def _table_added(ctx: DiffContext, t: Table) -> Change:
+    users = ctx.new_refs.referrers("tables", t.name)
+    severity = NUMBERS if users else SAFE
+    tail = f"; {_list(users)} already use it" if users else "; nothing uses it yet"
+    return ctx.change("table.added", f"tables.{t.name}", severity,
+                      f"Table {t.name} was added (a {t.kind} with {len(t.columns)} columns){tail}.", None, t.name)
+
+
+def _table_removed(ctx: DiffContext, t: Table) -> Change:
+    users = ctx.new_refs.referrers("tables", t.name)
+    if users:
+        return ctx.change("table.removed", f"tables.{t.name}", BREAKING,
+                          f"Table {t.name} was removed, but {_list(users)} still refer to it.", t.name, None,
+                          referenced_by=list(users))
+    return ctx.change("table.removed", f"tables.{t.name}", NUMBERS,
+                      f"Table {t.name} was removed, with every number that read it.", t.name, None)
+
+
+def _column_rename_ok(ctx: DiffContext, old_table: str, new_table: str, old_col: str, new_col: str) -> bool:
+    """Every reference to the old column that survives now names the new one, and none names the old."""
+    if ctx.new_refs.column_referrers(new_table, old_col):
+        return False
+    now = set(ctx.new_refs.column_referrers(new_table, new_col))
+    for subject in ctx.old_refs.column_referrers(old_table, old_col):
+        if subject.startswith("tables."):
+            subject = f"tables.{new_table}"
+        section, _, name = subject.partition(".")
+        if name in getattr(ctx.new, section) and subject not in now:
+            return False
+    return True
+
+
+def find_column_renames(ctx: DiffContext, old_t: Table, new_t: Table) -> dict[str, str]:
+    """Old column -> new column of one table (kept or renamed): same type, references follow."""
+    added, removed, _ = keyed_diff(old_t.columns, new_t.columns)
+    if not added or not removed:
+        return {}
+    pairs = pair_renames({c: old_t.columns[c].type for c in removed}, {c: new_t.columns[c].type for c in added},
+                         lambda o, n: _column_rename_ok(ctx, old_t.name, new_t.name, o, n),
+                         limit=MAX_COLUMN_CANDIDATES)
+    return dict(pairs)
+
+
+def compare_column(ctx: DiffContext, table: str, old: Column, new: Column) -> Iterator[Change]:
+    subject = f"tables.{table}.columns.{new.name}"
+    if old.type != new.type:
+        yield ctx.change("column.type_changed", subject, NUMBERS,
+                         f"Column {table}.{new.name} changed type ({old.type} -> {new.type}): values, joins and sums over it can change.",
+                         old.type, new.type)
+    if old.unique != new.unique:
+        said = "now declared unique" if new.unique else "no longer declared unique"
+        yield ctx.change("column.unique_changed", subject, NUMBERS,
+                         f"Column {table}.{new.name} is {said}: links that point at it are checked for a unique key differently.",
+                         old.unique, new.unique)
+    if old.description != new.description:
+        yield ctx.change("column.metadata_changed", subject, SAFE,
+                         f"The description of column {table}.{new.name} changed; no number changes.",
+                         {"description": old.description}, {"description": new.description})
+
+
+def _column_added(ctx: DiffContext, table: str, c: Column) -> Change:
+    users = ctx.new_refs.column_referrers(table, c.name)
+    severity = NUMBERS if users else SAFE
+    tail = f"; {_list(users)} already read it" if users else "; nothing reads it yet"
+    return ctx.change("column.added", f"tables.{table}.columns.{c.name}", severity,
+                      f"Column {table}.{c.name} ({c.type}) was added{tail}.", None, c.name)
+
+
+def _column_removed(ctx: DiffContext, table: str, c: Column) -> Change:
+    users = ctx.new_refs.column_referrers(table, c.name)
+    subject = f"tables.{table}.columns.{c.name}"
+    if users:
+        return ctx.change("column.removed", subject, BREAKING,
+                          f"Column {table}.{c.name} was removed, but {_list(users)} still read it.", c.name, None,
+                          referenced_by=list(users))
+    return ctx.change("column.removed", subject, NUMBERS, f"Column {table}.{c.name} was removed.", c.name, None)
+
+
+def _diff_columns(ctx: DiffContext, old_t: Table, new_t: Table, renamed: Mapping[str, str]) -> Iterator[Change]:
+    """`old_t` is already in new names; `renamed` maps old column names (as written) to new ones."""
+    back = {new: old for old, new in renamed.items()}
+    added, removed, kept = keyed_diff(old_t.columns, new_t.columns)
+    for name in removed:
+        yield _column_removed(ctx, new_t.name, old_t.columns[name])
+    for name in added:
+        yield _column_added(ctx, new_t.name, new_t.columns[name])
+    for name in kept:
+        old_c, new_c = old_t.columns[name], new_t.columns[name]
+        if name in back:
+            yield ctx.change("column.renamed", f"tables.{new_t.name}.columns.{name}", SAFE,
+                             f"Column {new_t.name}.{back[name]} was renamed to {name}; every reference follows it.",
+                             back[name], name)
+        if old_c != new_c:
+            yield from compare_column(ctx, new_t.name, old_c, new_c)
+
+
+def key_changed(old: Table, new: Table) -> bool:
+    return tuple(old.key) != tuple(new.key)
+
+
+def natural_key_changed(old: Table, new: Table) -> bool:
+    return tuple(old.natural_key) != tuple(new.natural_key)
+
+
+def history_changed(old: Table, new: Table) -> bool:
+    return old.history != new.history
+
+
+def _history_text(h: History | None) -> str:
+    return "no history handling" if h is None else f"history type {h.type}"
+
+
+def compare_tables(ctx: DiffContext, old_raw: Table, new: Table) -> Iterator[Change]:
+    renames = find_column_renames(ctx, old_raw, new)
+    if renames:
+        ctx.renames.columns[new.name] = {o.lower(): n for o, n in renames.items()}
+    old = ctx.renames.table(old_raw)
+    subject, name = f"tables.{new.name}", new.name
+    if old.kind != new.kind:
+        yield ctx.change("table.kind_changed", subject, NUMBERS,
+                         f"Table {name} is now a {new.kind} (was a {old.kind}): checks and row-security rules treat it differently.",
+                         old.kind, new.kind)
+    if key_changed(old, new):
+        yield ctx.change("table.key_changed", subject, NUMBERS,
+                         f"Table {name}'s key changed ({_list(old.key) or 'none'} -> {_list(new.key) or 'none'}): what counts as one row of it changed.",
+                         list(old.key), list(new.key))
+    if natural_key_changed(old, new):
+        yield ctx.change("table.natural_key_changed", subject, NUMBERS,
+                         f"Table {name}'s natural key changed ({_list(old.natural_key) or 'none'} -> {_list(new.natural_key) or 'none'}): links to it and its history are matched differently.",
+                         list(old.natural_key), list(new.natural_key))
+    if history_changed(old, new):
+        yield ctx.change("table.history_changed", subject, NUMBERS,
+                         f"Table {name}'s history handling changed ({_history_text(old.history)} -> {_history_text(new.history)}): which version of a member a fact counts for can change.",
+                         _plain(old.history), _plain(new.history))
+    before, after = _changed_fields(old, new, ("description", "source"))
+    if before:
+        yield ctx.change("table.metadata_changed", subject, SAFE,
+                         f"The {' and '.join(before)} of table {name} changed; no number changes.", before, after)
+    if old.columns != new.columns or renames:
+        yield from _diff_columns(ctx, old, new, renames)
+
+
+# --- links ----------------------------------------------------------------------------------------
+
+
+def _link_signature(ctx: DiffContext, link: Link, old: bool, deep: bool) -> Hashable:
+    if old:
+        link = ctx.renames.link(link)
+    return (link.from_table, tuple(c.lower() for c in link.from_columns), link.to_table,
+            tuple(c.lower() for c in link.to_columns), link.cardinality, link.flow, link.security_flow, link.standby)
+
+
+def _link_used(ctx: DiffContext, link: Link) -> tuple[str, ...]:
+    return ctx.new_refs.referrers("links", link.name)
+
+
+def _link_added(ctx: DiffContext, link: Link) -> Change:
+    users = _link_used(ctx, link)
+    subject = f"links.{link.name}"
+    if link.standby and not users:
+        return ctx.change("link.added", subject, SAFE,
+                          f"Standby link {link.name} ({link.from_table} -> {link.to_table}) was added; nothing uses it yet.", None, link.name)
+    how = "on standby, used by " + _list(users) if link.standby else "carrying filters"
+    return ctx.change("link.added", subject, NUMBERS,
+                      f"Link {link.name} was added ({how}): filters on {link.to_table} now reach {link.from_table} through it.",
+                      None, link.name)
+
+
+def _link_removed(ctx: DiffContext, link: Link) -> Change:
+    users = _link_used(ctx, link)
+    subject = f"links.{link.name}"
+    if users:
+        return ctx.change("link.removed", subject, BREAKING,
+                          f"Link {link.name} was removed, but {_list(users)} still name it.", link.name, None,
+                          referenced_by=list(users))
+    return ctx.change("link.removed", subject, NUMBERS,
+                      f"Link {link.name} was removed: filters on {link.to_table} no longer reach {link.from_table} through it.",
+                      link.name, None)
+
+
+def _key_switch_message(link: Link, side: str, before, after, history: str | None) -> str:
+    joined = lambda v: v if isinstance(v, str) else ", ".join(v)  # noqa: E731
+    text = f"Link {link.name} now joins {'from' if side == 'from' else 'to'} {joined(after)} instead of {joined(before)}"
+    if history == "surrogate->natural":
+        return (text + f": it moved from the surrogate key to the natural key of type-2 table {link.to_table}, so each "
+                f"{link.from_table} row now reaches every version of its member; history is no longer attributed to the "
+                "version valid when the fact happened, and the link is effectively many-to-many.")
+    if history == "natural->surrogate":
+        return (text + f": it moved from the natural key to the surrogate key of type-2 table {link.to_table}, so each "
+                f"{link.from_table} row now reaches only the version of its member valid when the fact happened, "
+                "instead of every version.")
+    return text + ": rows now match on different values, so totals across the link can change."
+
+
+def compare_links(ctx: DiffContext, old_raw: Link, new: Link) -> Iterator[Change]:
+    old = ctx.renames.link(old_raw)
+    subject, name = f"links.{new.name}", new.name
+    if from_switched(old, new):
+        before, after = _columns_text(old.from_table, old.from_columns), _columns_text(new.from_table, new.from_columns)
+        yield ctx.change("link.key_switched", subject, NUMBERS, _key_switch_message(new, "from", before, after, None),
+                         before, after, side="from")
+    if to_switched(old, new):
+        before, after = _columns_text(old.to_table, old.to_columns), _columns_text(new.to_table, new.to_columns)
+        old_to = ctx.old.tables.get(old_raw.to_table)
+        old_to = ctx.renames.table(old_to) if old_to is not None else None
+        new_to = ctx.new.tables.get(new.to_table)
+        history = ("surrogate->natural" if moved_surrogate_to_natural(old, old_to, new, new_to)
+                   else "natural->surrogate" if moved_natural_to_surrogate(old, old_to, new, new_to) else None)
+        details = {"side": "to"} | ({"history": history} if history else {})
+        yield ctx.change("link.key_switched", subject, NUMBERS, _key_switch_message(new, "to", before, after, history),
+                         before, after, **details)
+    if cardinality_changed(old, new):
+        yield ctx.change("link.cardinality_changed", subject, NUMBERS,
+                         f"Link {name}'s cardinality changed ({old.cardinality} -> {new.cardinality}): how rows of {new.from_table} "
+                         f"match rows of {new.to_table} changed, so totals across the link can change.",
+                         old.cardinality, new.cardinality)
+    if flow_widened(old, new):
+        yield ctx.change("link.flow_widened", subject, NUMBERS,
+                         f"Link {name} now lets filters flow both ways (one-way -> two-way): a filter on {new.from_table} now also restricts {new.to_table}.",
+                         old.flow, new.flow)
+    if flow_narrowed(old, new):
+        yield ctx.change("link.flow_narrowed", subject, NUMBERS,
+                         f"Link {name} now lets filters flow one way only (two-way -> one-way): a filter on {new.from_table} no longer restricts {new.to_table}.",
+                         old.flow, new.flow)
+    if security_flow_changed(old, new):
+        effect = ("row security on {f} now also restricts {t} where the link flows both ways" if new.security_flow == "two-way"
+                  else "row security on {f} no longer restricts {t}").format(f=new.from_table, t=new.to_table)
+        yield ctx.change("link.security_flow_changed", subject, NUMBERS,
+                         f"Link {name}'s security_flow changed ({old.security_flow} -> {new.security_flow}): {effect}.",
+                         old.security_flow, new.security_flow)
+    if standby_set(old, new):
+        yield ctx.change("link.standby_set", subject, NUMBERS,
+                         f"Link {name} is now on standby: filters on {new.to_table} no longer reach {new.from_table} through it, "
+                         "except where a measure, variant option or report names it in `use`.", False, True)
+    if standby_cleared(old, new):
+        yield ctx.change("link.standby_cleared", subject, NUMBERS,
+                         f"Link {name} is no longer on standby: filters on {new.to_table} now reach {new.from_table} through it everywhere.",
+                         True, False)
+    if old.description != new.description:
+        yield ctx.change("link.metadata_changed", subject, SAFE, f"The description of link {name} changed; no number changes.",
+                         {"description": old.description}, {"description": new.description})
+
+
+# --- measures -------------------------------------------------------------------------------------
+
+_MEASURE_METADATA = ("description", "unit", "owner", "folder")
+
+
+def _measure_scope(m: Measure):
+    return DERIVED if m.table is None else m.table
+
+
+def _measure_signature(ctx: DiffContext, m: Measure, old: bool, deep: bool) -> Hashable:
+    if old:
+        m = ctx.renames.measure(m)
+    scope = _measure_scope(m)
+    return (m.table, ctx.sql_key(m.expr, scope, old, deep), ctx.sql_key(m.where, scope, old, deep), _frozen(m.overrides))
+
+
+def _measure_added(ctx: DiffContext, m: Measure) -> Change:
+    users = ctx.new_refs.referrers("measures", m.name)
+    severity = NUMBERS if users else SAFE
+    tail = f"; {_list(users)} already use it" if users else "; nothing uses it yet"
+    return ctx.change("measure.added", f"measures.{m.name}", severity, f"Measure {m.name} was added{tail}.", None, m.name)
+
+
+def _measure_removed(ctx: DiffContext, m: Measure) -> Change:
+    users = ctx.new_refs.referrers("measures", m.name)
+    subject = f"measures.{m.name}"
+    if users:
+        return ctx.change("measure.removed", subject, BREAKING,
+                          f"Measure {m.name} was removed, but {_list(users)} still use it.", m.name, None,
+                          referenced_by=list(users))
+    return ctx.change("measure.removed", subject, NUMBERS, f"Measure {m.name} was removed.", m.name, None)
+
+
+def _measure_renamed(ctx: DiffContext, old: str, new: str) -> Change:
+    reports = tuple(r for r in ctx.new_refs.referrers("measures", new) if r.startswith("reports."))
+    if reports:
+        return ctx.change("measure.renamed", f"measures.{new}", BREAKING,
+                          f"Measure {old} was renamed to {new}, and {_list(reports)} show it: their output names a different measure.",
+                          old, new, used_by=list(reports))
+    return ctx.change("measure.renamed", f"measures.{new}", SAFE,
+                      f"Measure {old} was renamed to {new}; its definition is unchanged and every reference follows it.", old, new)
+
+
+def compare_measures(ctx: DiffContext, old_raw: Measure, new: Measure) -> Iterator[Change]:
+    old = ctx.renames.measure(old_raw)
+    subject, name = f"measures.{new.name}", new.name
+    logic_before, logic_after, cosmetic_before, cosmetic_after = {}, {}, {}, {}
+    if old.table != new.table:
+        logic_before["table"], logic_after["table"] = old.table, new.table
+    scope = _measure_scope(old)
+    for fld in ("expr", "where"):
+        a, b = getattr(old, fld), getattr(new, fld)
+        verdict = ctx.compare_sql(a, b, scope)
+        if verdict == LOGIC:
+            logic_before[fld], logic_after[fld] = a, b
+        elif verdict == COSMETIC:
+            cosmetic_before[fld], cosmetic_after[fld] = a, b
+    if logic_before:
+        yield ctx.change("measure.logic_changed", subject, NUMBERS,
+                         f"Measure {name}'s {' and '.join(logic_before)} changed in meaning: its values can change.",
+                         logic_before, logic_after)
+    if cosmetic_before:
+        yield ctx.change("measure.cosmetic_changed", subject, SAFE,
+                         f"Measure {name}'s {' and '.join(cosmetic_before)} was respelled (same SQL after normalising); no number changes.",
+                         cosmetic_before, cosmetic_after)
+    if old.overrides != new.overrides:
+        yield ctx.change("measure.overrides_changed", subject, NUMBERS,
+                         f"Measure {name} follows different links now (`use`/`flow` changed): which filters reach its table can change.",
+                         _plain(old.overrides), _plain(new.overrides))
+    before, after = _changed_fields(old, new, _MEASURE_METADATA)
+    if before:
+        yield ctx.change("measure.metadata_changed", subject, SAFE,
+                         f"The {' and '.join(before)} of measure {name} changed; no number changes.", before, after)
+
+
+# --- variants --------------------------------------------------------------------------------------
+
+
+def _option_signature(ctx: DiffContext, o: VariantOption, old: bool, deep: bool) -> Hashable:
+    where = tuple(sorted((t, ctx.sql_key(text, t, old, deep)) for t, text in o.where.items()))
+    return (_frozen(o.overrides), where)
+
+
+def _variant_signature(ctx: DiffContext, v: Variant, old: bool, deep: bool) -> Hashable:
+    if old:
+        v = ctx.renames.variant(v)
+    return (v.default, tuple(sorted((n, _option_signature(ctx, o, old, deep)) for n, o in v.options.items())))
+
+
+def _variant_added(ctx: DiffContext, v: Variant) -> Change:
+    users = ctx.new_refs.referrers("variants", v.name)
+    severity = NUMBERS if users else SAFE
+    tail = f"; {_list(users)} already choose an option of it" if users else "; no report chooses it yet"
+    return ctx.change("variant.added", f"variants.{v.name}", severity,
+                      f"Variant {v.name} was added with options {_list(sorted(v.options))}{tail}.", None, v.name)
+
+
+def _variant_removed(ctx: DiffContext, v: Variant) -> Change:
+    users = ctx.new_refs.referrers("variants", v.name)
+    subject = f"variants.{v.name}"
+    if users:
+        return ctx.change("variant.removed", subject, BREAKING,
+                          f"Variant {v.name} was removed, but {_list(users)} still choose an option of it.", v.name, None,
+                          referenced_by=list(users))
+    return ctx.change("variant.removed", subject, NUMBERS, f"Variant {v.name} was removed.", v.name, None)
+
+
+def _where_verdicts(ctx: DiffContext, old: Mapping[str, str], new: Mapping[str, str]) -> tuple[dict, dict, dict, dict]:
+    """Predicates keyed by table: (logic before, logic after, cosmetic before, cosmetic after)."""
+    lb, la, cb, ca = {}, {}, {}, {}
+    for table in sorted(set(old) | set(new)):
+        a, b = old.get(table), new.get(table)
+        verdict = ctx.compare_sql(a, b, table)
+        if verdict == LOGIC:
+            lb[table], la[table] = a, b
+        elif verdict == COSMETIC:
+            cb[table], ca[table] = a, b
+    return lb, la, cb, ca
+
+
+def compare_variants(ctx: DiffContext, old_raw: Variant, new: Variant) -> Iterator[Change]:
+    old = ctx.renames.variant(old_raw)
+    subject, name = f"variants.{new.name}", new.name
+    if old.default != new.default:
+        yield ctx.change("variant.changed", subject, NUMBERS,
+                         f"Variant {name}'s default option changed ({old.default} -> {new.default}): reports that do not choose an option now get {new.default}.",
+                         {"default": old.default}, {"default": new.default})
+    added, removed, kept = keyed_diff(old.options, new.options)
+    for option in removed:
+        if _option_chosen(ctx, name, option):
+            yield ctx.change("variant.changed", f"{subject}.options.{option}", BREAKING,
+                             f"Option {option} of variant {name} was removed, but it is still chosen (as the default or by a report).",
+                             {"option": _plain(old.options[option])}, None, option=option)
+        else:
+            yield ctx.change("variant.changed", f"{subject}.options.{option}", NUMBERS,
+                             f"Option {option} of variant {name} was removed.", {"option": _plain(old.options[option])}, None,
+                             option=option)
+    for option in added:
+        yield ctx.change("variant.changed", f"{subject}.options.{option}", SAFE if not _option_chosen(ctx, name, option) else NUMBERS,
+                         f"Option {option} was added to variant {name}.", None, {"option": _plain(new.options[option])},
+                         option=option)
+    for option in kept:
+        a, b = old.options[option], new.options[option]
+        if a == b:
+            continue
+        opt_subject = f"{subject}.options.{option}"
+        before, after = {}, {}
+        if a.overrides.use != b.overrides.use:
+            before["use"], after["use"] = list(a.overrides.use), list(b.overrides.use)
+        if a.overrides.flow != b.overrides.flow:
+            before["flow"], after["flow"] = _plain(a.overrides.flow), _plain(b.overrides.flow)
+        lb, la, cb, ca = _where_verdicts(ctx, a.where, b.where)
+        if lb:
+            before["where"], after["where"] = lb, la
+        if before:
+            yield ctx.change("variant.changed", opt_subject, NUMBERS,
+                             f"Option {option} of variant {name} changed its {' and '.join(before)}: reports choosing it can show different numbers.",
+                             before, after, option=option)
+        if cb:
+            yield ctx.change("variant.cosmetic_changed", opt_subject, SAFE,
+                             f"A `where` of option {option} of variant {name} was respelled (same SQL after normalising); no number changes.",
+                             {"where": cb}, {"where": ca}, option=option)
+    if old.description != new.description:
+        yield ctx.change("variant.metadata_changed", subject, SAFE, f"The description of variant {name} changed; no number changes.",
+                         {"description": old.description}, {"description": new.description})
+
+
+def _option_chosen(ctx: DiffContext, variant: str, option: str) -> bool:
+    v = ctx.new.variants.get(variant)
+    if v is not None and v.default == option:
+        return True
+    return any(r.variant.get(variant) == option for r in ctx.new.reports.values())
+
+
+# --- roles -----------------------------------------------------------------------------------------
+
+
+def _role_signature(ctx: DiffContext, r: Role, old: bool, deep: bool) -> Hashable:
+    if old:
+        r = ctx.renames.role(r)
+    return tuple(sorted((t, ctx.sql_key(text, t, old, deep)) for t, text in r.filters.items()))
+
+
+def _role_added(ctx: DiffContext, r: Role) -> Change:
+    users = ctx.new_refs.referrers("roles", r.name)
+    severity = NUMBERS if users else SAFE
+    tail = f"; {_list(users)} are seen as it" if users else "; no report is seen as it yet"
+    return ctx.change("role.added", f"roles.{r.name}", severity,
+                      f"Role {r.name} was added, filtering {_list(sorted(r.filters)) or 'nothing'}{tail}.", None, r.name)
+
+
+def _role_removed(ctx: DiffContext, r: Role) -> Change:
+    users = ctx.new_refs.referrers("roles", r.name)
+    subject = f"roles.{r.name}"
+    if users:
+        return ctx.change("role.removed", subject, BREAKING, f"Role {r.name} was removed, but {_list(users)} are still seen as it.",
+                          r.name, None, referenced_by=list(users))
+    return ctx.change("role.removed", subject, NUMBERS,
+                      f"Role {r.name} was removed: its members no longer get its row filters.", r.name, None)
+
+
+def compare_roles(ctx: DiffContext, old_raw: Role, new: Role) -> Iterator[Change]:
+    old = ctx.renames.role(old_raw)
+    subject, name = f"roles.{new.name}", new.name
+    lb, la, cb, ca = _where_verdicts(ctx, old.filters, new.filters)
+    if lb:
+        yield ctx.change("role.filter_changed", subject, NUMBERS,
+                         f"Role {name}'s filter on {_list(sorted(lb))} changed: the rows its members see can change.",
+                         lb, la, tables=sorted(lb))
+    if cb:
+        yield ctx.change("role.cosmetic_changed", subject, SAFE,
+                         f"Role {name}'s filter on {_list(sorted(cb))} was respelled (same SQL after normalising); no visible row changes.",
+                         cb, ca, tables=sorted(cb))
+    if old.description != new.description:
+        yield ctx.change("role.metadata_changed", subject, SAFE, f"The description of role {name} changed; no visible row changes.",
+                         {"description": old.description}, {"description": new.description})
+
+
+# --- reports ---------------------------------------------------------------------------------------
+
+_REPORT_DEFINITION = ("measures", "by", "variant", "role")
+
+
+def _report_signature(ctx: DiffContext, p: Report, old: bool, deep: bool) -> Hashable:
+    if old:
+        p = ctx.renames.report(p)
+    where = tuple(sorted((t, ctx.sql_key(text, t, old, deep)) for t, text in p.where.items()))
+    return (p.measures, p.by, where, _frozen(p.variant), p.role, _frozen(p.overrides))
+
+
+def _report_added(ctx: DiffContext, p: Report) -> Change:
+    return ctx.change("report.added", f"reports.{p.name}", SAFE,
+                      f"Report {p.name} was added, showing {_list(p.measures)}.", None, p.name)
+
+
+def _report_removed(ctx: DiffContext, p: Report) -> Change:
+    return ctx.change("report.removed", f"reports.{p.name}", NUMBERS,
+                      f"Report {p.name} was removed: its consumers no longer get its numbers.", p.name, None)
+
+
+def compare_reports(ctx: DiffContext, old_raw: Report, new: Report) -> Iterator[Change]:
+    old = ctx.renames.report(old_raw)
+    subject, name = f"reports.{new.name}", new.name
+    before, after = _changed_fields(old, new, _REPORT_DEFINITION)
+    if old.overrides != new.overrides:
+        before["overrides"], after["overrides"] = _plain(old.overrides), _plain(new.overrides)
+    lb, la, cb, ca = _where_verdicts(ctx, old.where, new.where)
+    if lb:
+        before["where"], after["where"] = lb, la
+    if before:
+        order_only = set(before) <= {"measures", "by"} and all(only_order_differs(getattr(old, f), getattr(new, f)) for f in before)
+        what = " and ".join("use/flow" if f == "overrides" else f for f in before)
+        message = (f"Report {name} lists its {what} in a different order; the numbers stay the same but its layout changes."
+                   if order_only else f"Report {name}'s {what} changed: it can show different numbers.")
+        yield ctx.change("report.changed", subject, SAFE if order_only else NUMBERS, message, before, after)
+    if cb:
+        yield ctx.change("report.cosmetic_changed", subject, SAFE,
+                         f"Report {name}'s `where` on {_list(sorted(cb))} was respelled (same SQL after normalising); no number changes.",
+                         {"where": cb}, {"where": ca})
+    before, after = _changed_fields(old, new, ("owner", "description"))
+    if before:
+        yield ctx.change("report.metadata_changed", subject, SAFE,
+                         f"The {' and '.join(before)} of report {name} changed; no number changes.", before, after)
+
+
+# --- sections ---------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Section:
+    """How one section of a model is compared."""
+
+    noun: str  # kind prefix: "table"
+    signature: Callable[[DiffContext, Any, bool, bool], Hashable]  # (ctx, item, old?, deep?) definition without name
+    compare: Callable[[DiffContext, Any, Any], Iterator[Change]]  # (ctx, old item as written, new item)
+    added: Callable[[DiffContext, Any], Change]
+    removed: Callable[[DiffContext, Any], Change]
+    has_sql: bool = False
+    renamed: Callable[[DiffContext, str, str], Change] | None = None
+
+
+def _renamed_change(ctx: DiffContext, section: str, noun: str, old: str, new: str) -> Change:
+    return ctx.change(f"{noun}.renamed", f"{section}.{new}", SAFE,
+                      f"{noun.capitalize()} {old} was renamed to {new}; its definition is unchanged and every reference follows it.",
+                      old, new)
+
+
+# In dependency order: each section's renames are known before later sections are compared.
+SECTIONS: dict[str, Section] = {
+    "tables": Section("table", _table_signature, compare_tables, _table_added, _table_removed),
+    "links": Section("link", _link_signature, compare_links, _link_added, _link_removed),
+    "measures": Section("measure", _measure_signature, compare_measures, _measure_added, _measure_removed,
+                        has_sql=True, renamed=_measure_renamed),
+    "variants": Section("variant", _variant_signature, compare_variants, _variant_added, _variant_removed, has_sql=True),
+    "roles": Section("role", _role_signature, compare_roles, _role_added, _role_removed, has_sql=True),
+    "reports": Section("report", _report_signature, compare_reports, _report_added, _report_removed, has_sql=True),
+}
+
+
+def find_renames(ctx: DiffContext, section: str, removed: list[str], added: list[str]) -> list[tuple[str, str]]:
+    """Removed/added pairs of one section with the same definition, whose references follow."""
+    if not removed or not added:
+        return []
+    spec = SECTIONS[section]
+    old_items, new_items = getattr(ctx.old, section), getattr(ctx.new, section)
+    confirm = _references_follow(ctx, section)
+    pairs = pair_renames({n: spec.signature(ctx, old_items[n], True, False) for n in removed},
+                         {n: spec.signature(ctx, new_items[n], False, False) for n in added}, confirm)
+    if spec.has_sql:  # second chance: SQL spelled differently but the same after normalising
+        paired_old, paired_new = {o for o, _ in pairs}, {n for _, n in pairs}
+        rest_old = [n for n in removed if n not in paired_old]
+        rest_new = [n for n in added if n not in paired_new]
+        if rest_old and rest_new:
+            pairs += pair_renames({n: spec.signature(ctx, old_items[n], True, True) for n in rest_old},
+                                  {n: spec.signature(ctx, new_items[n], False, True) for n in rest_new}, confirm)
+    return sorted(pairs)
+
+
+def diff_section(ctx: DiffContext, section: str) -> Iterator[Change]:
+    spec = SECTIONS[section]
+    old_items, new_items = getattr(ctx.old, section), getattr(ctx.new, section)
+    added, removed, kept = keyed_diff(old_items, new_items)
+    pairs = find_renames(ctx, section, removed, added)
+    ctx.renames.sections[section].update(pairs)
+    paired_old, paired_new = {o for o, _ in pairs}, {n for _, n in pairs}
+    for name in removed:
+        if name not in paired_old:
+            yield spec.removed(ctx, old_items[name])
+    for name in added:
+        if name not in paired_new:
+            yield spec.added(ctx, new_items[name])
+    for old, new in pairs:
+        yield spec.renamed(ctx, old, new) if spec.renamed else _renamed_change(ctx, section, spec.noun, old, new)
+        yield from spec.compare(ctx, old_items[old], new_items[new])
+    for name in kept:
+        if old_items[name] != new_items[name]:
+            yield from spec.compare(ctx, old_items[name], new_items[name])
+
+
+def diff_models(old: Model, new: Model) -> list[Change]:
+    """Every structural change from `old` to `new`, sorted by Change.sort_key (ids not yet assigned)."""
+    ctx = DiffContext(old, new)
+    changes: list[Change] = []
+    for section in SECTIONS:
+        changes.extend(diff_section(ctx, section))
+    return sorted(changes, key=Change.sort_key)
