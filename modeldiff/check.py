@@ -455,19 +455,25 @@ def rule_standby(ctx: _Context) -> Iterator[Finding]:
                               f"Standby link {link.name} is used by no measure, variant option or report, so it never carries a filter; name it in a `use` or remove it.")
 
 
-ALL_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (
+# Rules that need only the model's own records; every error rule is among them.
+RECORD_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (
     rule_table_references, rule_link_references, rule_measure_references, rule_variant_references,
     rule_role_references, rule_report_references, rule_duplicate_active_link, rule_key_not_unique,
-    rule_type_mismatch, rule_measure_cycle, rule_history_incomplete, rule_ambiguous_paths,
-    rule_security, rule_standby,
+    rule_type_mismatch, rule_measure_cycle, rule_history_incomplete, rule_standby,
 )
+# Rules that walk the flow and security graphs (warnings only).
+GRAPH_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (rule_ambiguous_paths, rule_security)
 
 
-def check_model(model: Model, load_findings: Iterable[Finding] = ()) -> list[Finding]:
-    """All findings for one revision, sorted errors first, then by rule and subject."""
+def check_model(model: Model, load_findings: Iterable[Finding] = (), graph_rules: bool = True) -> list[Finding]:
+    """All findings for one revision, sorted errors first, then by rule and subject.
+
+    `graph_rules=False` skips the graph walks, which raise only warnings: the
+    diff uses it to learn a revision's errors cheaply.
+    """
     ctx = _Context(model)
     findings = list(load_findings)
-    for rule in ALL_RULES:
+    for rule in RECORD_RULES + (GRAPH_RULES if graph_rules else ()):
         findings.extend(rule(ctx))
     unique = {(f.rule, f.subject, f.message): f for f in findings}
     return sorted(unique.values(), key=lambda f: (f.severity != ERROR, f.rule, f.subject, f.message))

@@ -54,6 +54,82 @@ def cmd_check(args, stdout: TextIO) -> int:
     return check.exit_code(findings, strict=args.strict)
 
 
+def _empty_model(name: str):
+    from modeldiff.model import Model
+
+    return Model(name=name, tables={})
+
+
+def _diff_pair(old_spec: str | None, new_spec: str | None, old_side, new_side):
+    """One ModelDiff; a side that is None is a model absent there (whole-model addition or removal)."""
+    from modeldiff import impact, load
+    from modeldiff.render.diff_out import ModelDiff
+
+    def side(spec, source):
+        if source is not None:
+            return load.load_files(source.files)
+        if spec is not None:
+            return read_model(spec)[1]
+        return None
+
+    old_result, new_result = side(*old_side), side(*new_side)
+    name = (new_result or old_result).model.name
+    old_model = old_result.model if old_result else _empty_model(name)
+    new_model = new_result.model if new_result else _empty_model(name)
+    return impact.analyse(old_model, new_model, old_result.findings if old_result else (),
+                          new_result.findings if new_result else ())
+
+
+def _split_side(spec: str) -> tuple[str | None, str]:
+    if not os.path.exists(spec) and ":" in spec:
+        rev, _, path = spec.partition(":")
+        return rev, path
+    return None, spec
+
+
+def cmd_diff(args, stdout: TextIO) -> int:
+    from modeldiff.render import diff_out
+    from modeldiff.render.diff_out import ModelDiff, Side
+
+    diffs: list[ModelDiff] = []
+    if args.base is None:
+        if len(args.models) != 2:
+            raise UsageError("diff takes OLD and NEW (paths or REV:PATH), or --base REV [--head REV] [MODEL ...]")
+        if args.head is not None:
+            raise UsageError("--head goes with --base")
+        old_spec, new_spec = args.models
+        result = _diff_pair(old_spec, new_spec, (old_spec, None), (new_spec, None))
+        diffs.append(ModelDiff(Side(*_split_side(old_spec)), Side(*_split_side(new_spec)), result))
+    else:
+        from modeldiff import git
+
+        root = git.repo_root(".")
+        if args.models:
+            paths = [git.model_path_of(_repo_relative(root, m)) or _repo_relative(root, m) for m in args.models]
+        else:
+            paths = sorted(set(git.list_models(root, args.base)) | set(git.list_models(root, args.head)))
+        if not paths:
+            raise ModeldiffError(f"no model files (*.model.yaml or *.model/) found at {args.base} or "
+                                 f"{args.head or 'the working tree'}; name them after --base")
+        for path in paths:
+            old_source = git.read_at(root, args.base, path)
+            new_source = git.read_at(root, args.head, path)
+            if old_source is None and new_source is None:
+                raise ModeldiffError(f"{path}: not found at {args.base} nor at {args.head or 'the working tree'}; check the path")
+            result = _diff_pair(None, None, (None, old_source), (None, new_source))
+            diffs.append(ModelDiff(Side(args.base, path), Side(args.head, path), result))
+    {"json": diff_out.as_json, "markdown": diff_out.as_markdown}.get(args.format, diff_out.as_text)(diffs, stdout)
+    from modeldiff.changes import EXIT_CODES
+
+    return EXIT_CODES[diff_out.verdict_of(diffs)]
+
+
+def _repo_relative(root: str, path: str) -> str:
+    absolute = os.path.abspath(path)
+    rel = os.path.relpath(absolute, root)
+    return rel.replace(os.sep, "/") if not rel.startswith("..") else path
+
+
 def cmd_schema(args, stdout: TextIO) -> int:
     from modeldiff import load
 
@@ -73,6 +149,13 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--format", choices=FORMATS, default="text")
     p.add_argument("--strict", action="store_true", help="exit 1 when there are warnings")
     p.set_defaults(run=cmd_check)
+
+    p = sub.add_parser("diff", help="compare two revisions: changes, and what could return different numbers")
+    p.add_argument("models", nargs="*", metavar="MODEL", help="OLD NEW (paths or REV:PATH); with --base, the models to compare (default: all)")
+    p.add_argument("--base", metavar="REV", help="compare every model file at REV with the working tree (or --head)")
+    p.add_argument("--head", metavar="REV", help="with --base: compare with this revision instead of the working tree")
+    p.add_argument("--format", choices=FORMATS, default="text")
+    p.set_defaults(run=cmd_diff)
 
     p = sub.add_parser("schema", help="print the JSON Schema of the model file format")
     p.set_defaults(run=cmd_schema)

@@ -1,0 +1,212 @@
+"""Rendering the result of `modeldiff diff`: JSON (the contract), text (rich) and Markdown.
+
+Everything here reads `DiffResult` records; nothing is re-derived.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from typing import Sequence, TextIO
+
+from modeldiff.changes import EXIT_CODES, SEVERITIES, worst
+from modeldiff.impact import DiffResult, Impact, Reason
+
+SECURITY_CAUTION = ("Row security changed in a way that can expose rows. modeldiff reads only the model's definition; "
+                    "the organisation's own security review decides whether this is acceptable.")
+MARKDOWN_LIST_LIMIT = 15  # rows shown before a list is folded into <details>
+
+
+@dataclass(frozen=True)
+class Side:
+    rev: str | None
+    path: str
+
+
+@dataclass(frozen=True)
+class ModelDiff:
+    """One model's comparison, with where each side came from."""
+
+    old: Side
+    new: Side
+    result: DiffResult
+
+
+# --- JSON -----------------------------------------------------------------------------
+
+
+def _paths(paths) -> list[list[str]]:
+    return [list(p) for p in paths]
+
+
+def reason_json(r: Reason) -> dict:
+    out = {"change": r.change, "source": r.source, "paths_added": _paths(r.paths_added),
+           "paths_removed": _paths(r.paths_removed), "message": r.message}
+    if r.via is not None:
+        out["via"] = r.via
+    return out
+
+
+def impact_json(i: Impact, role: bool = False) -> dict:
+    out = {"name": i.name, "severity": i.severity}
+    if role:
+        out.update(exposed=list(i.exposed), tightened=list(i.tightened), rerouted=list(i.rerouted))
+    out["reasons"] = [reason_json(r) for r in i.reasons]
+    return out
+
+
+def model_json(md: ModelDiff) -> dict:
+    r = md.result
+    counts = r.counts()
+    return {
+        "format": 1,
+        "model": r.new.name or r.old.name,
+        "old": {"rev": md.old.rev, "path": md.old.path},
+        "new": {"rev": md.new.rev, "path": md.new.path},
+        "changes": [{"id": c.id, "kind": c.kind, "subject": c.subject, "severity": c.severity,
+                     "before": c.before, "after": c.after, "message": c.message, **({"details": dict(c.details)} if c.details else {})}
+                    for c in r.changes],
+        "impacts": {
+            "measures": [impact_json(i) for i in r.measures],
+            "roles": [impact_json(i, role=True) for i in r.roles],
+            "reports": [impact_json(i) for i in r.reports],
+        },
+        "findings": [{"rule": f.rule, "severity": f.severity, "subject": f.subject, "message": f.message} for f in r.new_errors],
+        "summary": {**counts, "errors": len(r.new_errors), "verdict": r.verdict, "exit_code": r.exit_code},
+    }
+
+
+def verdict_of(diffs: Sequence[ModelDiff]) -> str:
+    return worst(d.result.verdict for d in diffs)
+
+
+def as_json(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
+    """One model: the document of changes.md. Several: {"format": 1, "models": [...], "summary": ...}."""
+    if len(diffs) == 1:
+        doc = model_json(diffs[0])
+    else:
+        docs = [model_json(d) for d in diffs]
+        summary = {k: sum(d["summary"][k] for d in docs) for k in ("breaking", "numbers", "safe", "errors")}
+        verdict = verdict_of(diffs)
+        doc = {"format": 1, "models": docs, "summary": {**summary, "verdict": verdict, "exit_code": EXIT_CODES[verdict]}}
+    json.dump(doc, stream, indent=2)
+    stream.write("\n")
+
+
+# --- text -----------------------------------------------------------------------------
+
+_STYLE = {"breaking": "bold red", "numbers": "yellow", "safe": "green"}
+
+
+def _side(side: Side) -> str:
+    return f"{side.rev}:{side.path}" if side.rev else side.path
+
+
+def _path_text(path) -> str:
+    return " / ".join(path)
+
+
+def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
+    from rich.markup import escape
+
+    from modeldiff.render import console
+
+    out = console(stream)
+    for md in diffs:
+        r = md.result
+        counts = r.counts()
+        out.print(f"[bold]{escape(r.new.name or r.old.name)}[/]: {escape(_side(md.old))} -> {escape(_side(md.new))}")
+        if not r.changes and not r.new_errors:
+            out.print("  [green]no changes[/]")
+            out.print()
+            continue
+        out.print(f"  verdict: [{_STYLE[r.verdict]}]{r.verdict}[/] "
+                  f"({counts['breaking']} breaking, {counts['numbers']} can move numbers, {counts['safe']} safe)")
+        if any(c.kind == "security.exposed" for c in r.changes):
+            out.print(f"  [bold red]SECURITY:[/] {escape(SECURITY_CAUTION)}")
+        for severity in reversed(SEVERITIES):
+            group = [c for c in r.changes if c.severity == severity]
+            if not group:
+                continue
+            out.print()
+            out.print(f"  [{_STYLE[severity]}]{severity}[/]")
+            for c in group:
+                out.print(f"    {c.id} [{_STYLE[severity]}]{escape(c.kind)}[/] {escape(c.subject)}")
+                out.print(f"       {escape(c.message)}")
+        if r.new_errors:
+            out.print()
+            out.print("  [bold red]errors in the new revision[/] (run `modeldiff check` for details)")
+            for f in r.new_errors:
+                out.print(f"    {escape(f.rule)} {escape(f.subject)}: {escape(f.message)}")
+        for title, impacts in (("measures", r.measures), ("roles", r.roles), ("reports", r.reports)):
+            if not impacts:
+                continue
+            out.print()
+            out.print(f"  [bold]impacted {title}[/] ({len(impacts)})")
+            for i in impacts:
+                extra = ""
+                if i.exposed:
+                    extra = f"  exposed: {', '.join(i.exposed)}"
+                out.print(f"    [{_STYLE[i.severity]}]{escape(i.name)}[/] ({i.severity}){escape(extra)}")
+                for reason in i.reasons:
+                    bits = [reason.change]
+                    if reason.source:
+                        bits.append(f"when filtered or grouped by {reason.source}")
+                    if reason.via:
+                        bits.append(f"via {reason.via}")
+                    out.print(f"       {escape(', '.join(bits))}")
+                    for p in reason.paths_added:
+                        out.print(f"         + {escape(_path_text(p))}")
+                    for p in reason.paths_removed:
+                        out.print(f"         - {escape(_path_text(p))}")
+        out.print()
+
+
+# --- Markdown ---------------------------------------------------------------------------
+
+
+def _md(text: str) -> str:
+    return text.replace("|", "\\|").replace("\n", " ")
+
+
+def _fold(title: str, rows: list[str]) -> list[str]:
+    if len(rows) <= MARKDOWN_LIST_LIMIT:
+        return rows
+    return rows[:MARKDOWN_LIST_LIMIT] + ["", f"<details><summary>{len(rows) - MARKDOWN_LIST_LIMIT} more {title}</summary>", ""] \
+        + rows[MARKDOWN_LIST_LIMIT:] + ["", "</details>"]
+
+
+def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
+    lines = ["## modeldiff", "", "| model | verdict | breaking | can move numbers | safe | impacted measures | roles | reports |",
+             "|---|---|---|---|---|---|---|---|"]
+    for md in diffs:
+        r, c = md.result, md.result.counts()
+        lines.append(f"| `{r.new.name or r.old.name}` | **{r.verdict}** | {c['breaking']} | {c['numbers']} | {c['safe']} | "
+                     f"{len(r.measures)} | {len(r.roles)} | {len(r.reports)} |")
+    for md in diffs:
+        r = md.result
+        lines += ["", f"### `{r.new.name or r.old.name}`: `{_side(md.old)}` → `{_side(md.new)}`", ""]
+        if any(c.kind == "security.exposed" for c in r.changes):
+            lines += [f"> **Security:** {SECURITY_CAUTION}", ""]
+        if not r.changes:
+            lines.append("No changes.")
+            continue
+        rows = ["| id | severity | kind | subject | what it means |", "|---|---|---|---|---|"]
+        body = [f"| {c.id} | {c.severity} | `{c.kind}` | `{c.subject}` | {_md(c.message)} |" for c in r.changes]
+        lines += rows + _fold("changes", body)
+        if r.new_errors:
+            lines += ["", "**Errors in the new revision:**", ""] + [f"- `{f.rule}` `{f.subject}`: {_md(f.message)}" for f in r.new_errors]
+        for title, impacts in (("measures", r.measures), ("roles", r.roles), ("reports", r.reports)):
+            if not impacts:
+                continue
+            lines += ["", f"#### Impacted {title} ({len(impacts)})", ""]
+            items = []
+            for i in impacts:
+                why = "; ".join(
+                    f"{x.change}" + (f" via {x.via}" if x.via else "") + (f", by `{x.source}`" if x.source else "")
+                    + "".join(f", + {_path_text(p)}" for p in x.paths_added) + "".join(f", − {_path_text(p)}" for p in x.paths_removed)
+                    for x in i.reasons)
+                exposed = f" — **exposed:** {', '.join(i.exposed)}" if i.exposed else ""
+                items.append(f"- **{i.name}** ({i.severity}){exposed}: {_md(why)}")
+            lines += _fold(title, items)
+    stream.write("\n".join(lines) + "\n")
