@@ -141,24 +141,22 @@ def _too_big(name: str, size: int) -> ModeldiffError:
 
 
 def _folder_files(folder: str) -> list[tuple[str, bytes]]:
+    """Every .yaml/.yml file below a NAME.model/ folder, sorted by path relative to it (as git.py does)."""
     base = os.path.basename(os.path.normpath(folder))
-    if not base.endswith(FOLDER_SUFFIX):
+    if not (base.lower().endswith(FOLDER_SUFFIX) and len(base) > len(FOLDER_SUFFIX)):
         raise ModeldiffError(
             f"{folder}: is a folder but not a NAME.model/ folder; give a NAME.model.yaml file or a folder named NAME.model"
         )
-    try:
-        entries = sorted(os.listdir(folder))
-    except OSError as exc:
-        raise ModeldiffError(f"{folder}: cannot be listed ({exc.strerror or exc}); check its permissions")
-    paths = [
-        os.path.join(folder, entry)
-        for entry in entries
-        if entry.endswith(YAML_SUFFIXES) and not entry.startswith(".")
-    ]
-    paths = [path for path in paths if os.path.isfile(path)]
-    if not paths:
+    found = []
+    for parent, subfolders, names in os.walk(folder):
+        subfolders.sort()
+        for entry in names:
+            path = os.path.join(parent, entry)
+            if entry.lower().endswith(YAML_SUFFIXES) and os.path.isfile(path):
+                found.append((os.path.relpath(path, folder).replace(os.sep, "/"), path))
+    if not found:
         raise ModeldiffError(f"{folder}: holds no .yaml or .yml files; put the model's YAML files in it")
-    return [(path, _read_file(path)) for path in paths]
+    return [(path, _read_file(path)) for _, path in sorted(found)]
 
 
 _CONTROL = re.compile("[\x00-\x08\x0b\x0c\x0e-\x1f\x7f\ufffe\uffff]")
@@ -266,6 +264,10 @@ def _resolve_plain(value: str) -> Any:
     return value
 
 
+def _shown_tag(tag: str) -> str:
+    return "!!" + tag[len(_CORE):] if tag.startswith(_CORE) else tag
+
+
 def _tagged_scalar(name: str, event) -> Any:
     tag = event.tag
     if tag == "!" or tag == _CORE + "str":
@@ -274,12 +276,12 @@ def _tagged_scalar(name: str, event) -> Any:
     wanted = kinds.get(tag[len(_CORE):]) if tag.startswith(_CORE) else None
     line, col = event.start_mark.line + 1, event.start_mark.column + 1
     if wanted is None:
-        raise _fail(name, line, col, f"unsupported YAML tag '{tag}'; remove the tag, a model file uses plain values")
+        raise _fail(name, line, col, f"unsupported YAML tag '{_shown_tag(tag)}'; remove the tag, a model file uses plain values")
     value = _resolve_plain(event.value)
     if wanted is float and type(value) is int:
         value = float(value)
     if type(value) is not wanted:
-        raise _fail(name, line, col, f"'{event.value}' is not a valid {tag[len(_CORE):]}; fix the value or remove the tag")
+        raise _fail(name, line, col, f"'{event.value}' is not a valid {_shown_tag(tag)}; fix the value or remove the tag")
     return value
 
 
@@ -316,6 +318,8 @@ def _syntax_error(name: str, text: str, exc) -> ModeldiffError:
             name, line, indent.index("\t") + 1, "a tab is used for indentation; YAML indentation must use spaces"
         )
     problem = _one_line(exc.problem or "syntax error")
+    if "nesting depth" in problem:  # libyaml's own limit, met while scanning ahead
+        return _fail(name, line, col, f"nesting is deeper than {MAX_DEPTH} levels; a model needs only a few levels")
     context = ""
     if exc.context and exc.context_mark is not None and exc.context_mark is not mark:
         context = f" ({_one_line(exc.context)} at line {exc.context_mark.line + 1})"
@@ -440,7 +444,7 @@ def _check_collection_tag(name: str, event, mark) -> None:
     tag = event.tag
     if tag is not None and tag not in ("!", _CORE + "map", _CORE + "seq", _CORE + "omap"):
         raise _fail(
-            name, mark.line + 1, mark.column + 1, f"unsupported YAML tag '{tag}'; remove the tag, a model file uses plain values"
+            name, mark.line + 1, mark.column + 1, f"unsupported YAML tag '{_shown_tag(tag)}'; remove the tag, a model file uses plain values"
         )
 
 
@@ -448,8 +452,11 @@ def _alias_target(name: str, event, mark, anchors, opening) -> tuple[Any, int]:
     target = anchors.get(event.anchor)
     if target is not None:
         return target
-    why = "refers to itself" if event.anchor in opening else "has no matching anchor before it"
-    raise _fail(name, mark.line + 1, mark.column + 1, f"alias '*{event.anchor}' {why}; define '&{event.anchor}' first")
+    if event.anchor in opening:
+        problem = f"alias '*{event.anchor}' refers to the collection it is in; write the values out instead"
+    else:
+        problem = f"alias '*{event.anchor}' has no matching anchor before it; define '&{event.anchor}' first"
+    raise _fail(name, mark.line + 1, mark.column + 1, problem)
 
 
 def _add_merge(name: str, frame: _Frame, value: Any, line: int, col: int) -> None:
