@@ -35,6 +35,25 @@ SAME, COSMETIC, LOGIC = "same", "cosmetic", "logic"
 
 T = TypeVar("T")
 
+# Every kind this module emits (docs/change-kinds.md describes each, with its default severity).
+KINDS = (
+    "table.added", "table.removed", "table.renamed", "table.kind_changed", "table.key_changed",
+    "table.natural_key_changed", "table.history_changed", "table.metadata_changed",
+    "column.added", "column.removed", "column.renamed", "column.type_changed", "column.unique_changed",
+    "column.metadata_changed",
+    "link.added", "link.removed", "link.renamed", "link.flow_widened", "link.flow_narrowed",
+    "link.security_flow_changed", "link.cardinality_changed", "link.key_switched", "link.standby_set",
+    "link.standby_cleared", "link.metadata_changed",
+    "measure.added", "measure.removed", "measure.renamed", "measure.logic_changed", "measure.cosmetic_changed",
+    "measure.overrides_changed", "measure.metadata_changed",
+    "variant.added", "variant.removed", "variant.renamed", "variant.changed", "variant.cosmetic_changed",
+    "variant.metadata_changed",
+    "role.added", "role.removed", "role.renamed", "role.filter_changed", "role.cosmetic_changed",
+    "role.metadata_changed",
+    "report.added", "report.removed", "report.renamed", "report.changed", "report.cosmetic_changed",
+    "report.metadata_changed",
+)
+
 # Above this many (removed x added) candidates of one type in one table, no column
 # renames are guessed there: each is reported as a removal and an addition.
 MAX_COLUMN_CANDIDATES = 400
@@ -271,6 +290,16 @@ def _list(items: Iterable[str], limit: int = 4) -> str:
     return shown + (f" and {len(items) - limit} more" if len(items) > limit else "")
 
 
+def _and(items: Iterable[str]) -> str:
+    """"a", "a and b", "a, b and c"."""
+    items = list(items)
+    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " and " + items[-1]
+
+
+def _was(items: Iterable[str]) -> str:
+    return "was" if len(list(items)) == 1 else "were"
+
+
 def _changed_fields(old: Any, new: Any, names: Iterable[str]) -> tuple[dict, dict]:
     before, after = {}, {}
     for name in names:
@@ -342,9 +371,20 @@ class References:
             return ()
         found = set(self._by_name[section].get(name, ()))
         if section == "measures":
-            found |= {f"measures.{m.name}" for m in self.model.measures.values()
-                      if m.table is None and m.name != name and sql_names_measure(m.expr, name)}
+            measures = self.model.measures
+            found |= {f"measures.{m}" for m in self._derived_by_word.get(name.lower(), ())
+                      if m != name and sql_names_measure(measures[m].expr, name)}
         return tuple(sorted(found))
+
+    @cached_property
+    def _derived_by_word(self) -> dict[str, list[str]]:
+        """word -> derived measures whose expression contains it (candidates; confirmed by parsing)."""
+        out: dict[str, list[str]] = defaultdict(list)
+        for m in self.model.measures.values():
+            if m.table is None:
+                for word in _words(m.expr):
+                    out[word].append(m.name)
+        return out
 
     @cached_property
     def _column_sites(self) -> dict[str, list[tuple[str, str, Any]]]:
@@ -380,11 +420,27 @@ class References:
                 sites[table].append((f"reports.{report.name}", _SQL, text))
         return sites
 
+    @cached_property
+    def _column_indexes(self) -> dict[str, dict[str, list[tuple[str, str, Any]]]]:
+        return {}
+
+    def _column_index(self, table: str) -> dict[str, list[tuple[str, str, Any]]]:
+        """word -> the sites of `table` that contain it: only those can name a column of that name."""
+        index = self._column_indexes.get(table)
+        if index is None:
+            index = defaultdict(list)
+            for site in self._column_sites.get(table, ()):
+                _, how, payload = site
+                for word in ({c.lower() for c in payload} if how == _COLS else _words(payload)):
+                    index[word].append(site)
+            self._column_indexes[table] = index
+        return index
+
     def column_referrers(self, table: str, column: str) -> tuple[str, ...]:
         """Subjects that read `table.column` (by key, link, `by`, or SQL)."""
         col = column.lower()
         found: set[str] = set()
-        for subject, how, payload in self._column_sites.get(table, ()):
+        for subject, how, payload in self._column_index(table).get(col, ()):
             if subject in found:
                 continue
             if how == _COLS:
@@ -583,7 +639,7 @@ def _table_signature(ctx: DiffContext, t: Table, old: bool, deep: bool) -> Hasha
 def _table_added(ctx: DiffContext, t: Table) -> Change:
     users = ctx.new_refs.referrers("tables", t.name)
     severity = NUMBERS if users else SAFE
-    tail = f"; {_list(users)} already use it" if users else "; nothing uses it yet"
+    tail = f"; it is already used by {_list(users)}" if users else "; nothing uses it yet"
     return ctx.change("table.added", f"tables.{t.name}", severity,
                       f"Table {t.name} was added (a {t.kind} with {len(t.columns)} columns){tail}.", None, t.name)
 
@@ -592,7 +648,7 @@ def _table_removed(ctx: DiffContext, t: Table) -> Change:
     users = ctx.new_refs.referrers("tables", t.name)
     if users:
         return ctx.change("table.removed", f"tables.{t.name}", BREAKING,
-                          f"Table {t.name} was removed, but {_list(users)} still refer to it.", t.name, None,
+                          f"Table {t.name} was removed, but it is still named by {_list(users)}.", t.name, None,
                           referenced_by=list(users))
     return ctx.change("table.removed", f"tables.{t.name}", NUMBERS,
                       f"Table {t.name} was removed, with every number that read it.", t.name, None)
@@ -643,7 +699,7 @@ def compare_column(ctx: DiffContext, table: str, old: Column, new: Column) -> It
 def _column_added(ctx: DiffContext, table: str, c: Column) -> Change:
     users = ctx.new_refs.column_referrers(table, c.name)
     severity = NUMBERS if users else SAFE
-    tail = f"; {_list(users)} already read it" if users else "; nothing reads it yet"
+    tail = f"; it is already read by {_list(users)}" if users else "; nothing reads it yet"
     return ctx.change("column.added", f"tables.{table}.columns.{c.name}", severity,
                       f"Column {table}.{c.name} ({c.type}) was added{tail}.", None, c.name)
 
@@ -653,7 +709,7 @@ def _column_removed(ctx: DiffContext, table: str, c: Column) -> Change:
     subject = f"tables.{table}.columns.{c.name}"
     if users:
         return ctx.change("column.removed", subject, BREAKING,
-                          f"Column {table}.{c.name} was removed, but {_list(users)} still read it.", c.name, None,
+                          f"Column {table}.{c.name} was removed, but it is still read by {_list(users)}.", c.name, None,
                           referenced_by=list(users))
     return ctx.change("column.removed", subject, NUMBERS, f"Column {table}.{c.name} was removed.", c.name, None)
 
@@ -704,20 +760,20 @@ def compare_tables(ctx: DiffContext, old_raw: Table, new: Table) -> Iterator[Cha
                          old.kind, new.kind)
     if key_changed(old, new):
         yield ctx.change("table.key_changed", subject, NUMBERS,
-                         f"Table {name}'s key changed ({_list(old.key) or 'none'} -> {_list(new.key) or 'none'}): what counts as one row of it changed.",
+                         f"The key of table {name} changed ({_and(old.key) if old.key else 'none'} -> {_and(new.key) if new.key else 'none'}): what counts as one row of it changed.",
                          list(old.key), list(new.key))
     if natural_key_changed(old, new):
         yield ctx.change("table.natural_key_changed", subject, NUMBERS,
-                         f"Table {name}'s natural key changed ({_list(old.natural_key) or 'none'} -> {_list(new.natural_key) or 'none'}): links to it and its history are matched differently.",
+                         f"The natural key of table {name} changed ({', '.join(old.natural_key) or 'none'} -> {', '.join(new.natural_key) or 'none'}): links to it and its history are matched differently.",
                          list(old.natural_key), list(new.natural_key))
     if history_changed(old, new):
         yield ctx.change("table.history_changed", subject, NUMBERS,
-                         f"Table {name}'s history handling changed ({_history_text(old.history)} -> {_history_text(new.history)}): which version of a member a fact counts for can change.",
+                         f"The history handling of table {name} changed ({_history_text(old.history)} -> {_history_text(new.history)}): which version of a member a fact counts for can change.",
                          _plain(old.history), _plain(new.history))
     before, after = _changed_fields(old, new, ("description", "source"))
     if before:
         yield ctx.change("table.metadata_changed", subject, SAFE,
-                         f"The {' and '.join(before)} of table {name} changed; no number changes.", before, after)
+                         f"The {_and(before)} of table {name} changed; no number changes.", before, after)
     if old.columns != new.columns or renames:
         yield from _diff_columns(ctx, old, new, renames)
 
@@ -753,7 +809,7 @@ def _link_removed(ctx: DiffContext, link: Link) -> Change:
     subject = f"links.{link.name}"
     if users:
         return ctx.change("link.removed", subject, BREAKING,
-                          f"Link {link.name} was removed, but {_list(users)} still name it.", link.name, None,
+                          f"Link {link.name} was removed, but it is still named by {_list(users)}.", link.name, None,
                           referenced_by=list(users))
     return ctx.change("link.removed", subject, NUMBERS,
                       f"Link {link.name} was removed: filters on {link.to_table} no longer reach {link.from_table} through it.",
@@ -793,7 +849,7 @@ def compare_links(ctx: DiffContext, old_raw: Link, new: Link) -> Iterator[Change
                          before, after, **details)
     if cardinality_changed(old, new):
         yield ctx.change("link.cardinality_changed", subject, NUMBERS,
-                         f"Link {name}'s cardinality changed ({old.cardinality} -> {new.cardinality}): how rows of {new.from_table} "
+                         f"The cardinality of link {name} changed ({old.cardinality} -> {new.cardinality}): how rows of {new.from_table} "
                          f"match rows of {new.to_table} changed, so totals across the link can change.",
                          old.cardinality, new.cardinality)
     if flow_widened(old, new):
@@ -808,7 +864,7 @@ def compare_links(ctx: DiffContext, old_raw: Link, new: Link) -> Iterator[Change
         effect = ("row security on {f} now also restricts {t} where the link flows both ways" if new.security_flow == "two-way"
                   else "row security on {f} no longer restricts {t}").format(f=new.from_table, t=new.to_table)
         yield ctx.change("link.security_flow_changed", subject, NUMBERS,
-                         f"Link {name}'s security_flow changed ({old.security_flow} -> {new.security_flow}): {effect}.",
+                         f"The security_flow of link {name} changed ({old.security_flow} -> {new.security_flow}): {effect}.",
                          old.security_flow, new.security_flow)
     if standby_set(old, new):
         yield ctx.change("link.standby_set", subject, NUMBERS,
@@ -842,7 +898,7 @@ def _measure_signature(ctx: DiffContext, m: Measure, old: bool, deep: bool) -> H
 def _measure_added(ctx: DiffContext, m: Measure) -> Change:
     users = ctx.new_refs.referrers("measures", m.name)
     severity = NUMBERS if users else SAFE
-    tail = f"; {_list(users)} already use it" if users else "; nothing uses it yet"
+    tail = f"; it is already used by {_list(users)}" if users else "; nothing uses it yet"
     return ctx.change("measure.added", f"measures.{m.name}", severity, f"Measure {m.name} was added{tail}.", None, m.name)
 
 
@@ -851,7 +907,7 @@ def _measure_removed(ctx: DiffContext, m: Measure) -> Change:
     subject = f"measures.{m.name}"
     if users:
         return ctx.change("measure.removed", subject, BREAKING,
-                          f"Measure {m.name} was removed, but {_list(users)} still use it.", m.name, None,
+                          f"Measure {m.name} was removed, but it is still used by {_list(users)}.", m.name, None,
                           referenced_by=list(users))
     return ctx.change("measure.removed", subject, NUMBERS, f"Measure {m.name} was removed.", m.name, None)
 
@@ -860,7 +916,7 @@ def _measure_renamed(ctx: DiffContext, old: str, new: str) -> Change:
     reports = tuple(r for r in ctx.new_refs.referrers("measures", new) if r.startswith("reports."))
     if reports:
         return ctx.change("measure.renamed", f"measures.{new}", BREAKING,
-                          f"Measure {old} was renamed to {new}, and {_list(reports)} show it: their output names a different measure.",
+                          f"Measure {old} was renamed to {new}, and it is shown by {_list(reports)}: their output now names a different measure.",
                           old, new, used_by=list(reports))
     return ctx.change("measure.renamed", f"measures.{new}", SAFE,
                       f"Measure {old} was renamed to {new}; its definition is unchanged and every reference follows it.", old, new)
@@ -882,11 +938,11 @@ def compare_measures(ctx: DiffContext, old_raw: Measure, new: Measure) -> Iterat
             cosmetic_before[fld], cosmetic_after[fld] = a, b
     if logic_before:
         yield ctx.change("measure.logic_changed", subject, NUMBERS,
-                         f"Measure {name}'s {' and '.join(logic_before)} changed in meaning: its values can change.",
+                         f"The {_and(logic_before)} of measure {name} changed in meaning: its values can change.",
                          logic_before, logic_after)
     if cosmetic_before:
         yield ctx.change("measure.cosmetic_changed", subject, SAFE,
-                         f"Measure {name}'s {' and '.join(cosmetic_before)} was respelled (same SQL after normalising); no number changes.",
+                         f"The {_and(cosmetic_before)} of measure {name} {_was(cosmetic_before)} respelled (same SQL after normalising); no number changes.",
                          cosmetic_before, cosmetic_after)
     if old.overrides != new.overrides:
         yield ctx.change("measure.overrides_changed", subject, NUMBERS,
@@ -895,7 +951,7 @@ def compare_measures(ctx: DiffContext, old_raw: Measure, new: Measure) -> Iterat
     before, after = _changed_fields(old, new, _MEASURE_METADATA)
     if before:
         yield ctx.change("measure.metadata_changed", subject, SAFE,
-                         f"The {' and '.join(before)} of measure {name} changed; no number changes.", before, after)
+                         f"The {_and(before)} of measure {name} changed; no number changes.", before, after)
 
 
 # --- variants --------------------------------------------------------------------------------------
@@ -915,7 +971,7 @@ def _variant_signature(ctx: DiffContext, v: Variant, old: bool, deep: bool) -> H
 def _variant_added(ctx: DiffContext, v: Variant) -> Change:
     users = ctx.new_refs.referrers("variants", v.name)
     severity = NUMBERS if users else SAFE
-    tail = f"; {_list(users)} already choose an option of it" if users else "; no report chooses it yet"
+    tail = f"; it is already chosen by {_list(users)}" if users else "; no report chooses it yet"
     return ctx.change("variant.added", f"variants.{v.name}", severity,
                       f"Variant {v.name} was added with options {_list(sorted(v.options))}{tail}.", None, v.name)
 
@@ -925,7 +981,7 @@ def _variant_removed(ctx: DiffContext, v: Variant) -> Change:
     subject = f"variants.{v.name}"
     if users:
         return ctx.change("variant.removed", subject, BREAKING,
-                          f"Variant {v.name} was removed, but {_list(users)} still choose an option of it.", v.name, None,
+                          f"Variant {v.name} was removed, but it is still chosen by {_list(users)}.", v.name, None,
                           referenced_by=list(users))
     return ctx.change("variant.removed", subject, NUMBERS, f"Variant {v.name} was removed.", v.name, None)
 
@@ -948,7 +1004,7 @@ def compare_variants(ctx: DiffContext, old_raw: Variant, new: Variant) -> Iterat
     subject, name = f"variants.{new.name}", new.name
     if old.default != new.default:
         yield ctx.change("variant.changed", subject, NUMBERS,
-                         f"Variant {name}'s default option changed ({old.default} -> {new.default}): reports that do not choose an option now get {new.default}.",
+                         f"The default option of variant {name} changed ({old.default} -> {new.default}): reports that do not choose an option now get {new.default}.",
                          {"default": old.default}, {"default": new.default})
     added, removed, kept = keyed_diff(old.options, new.options)
     for option in removed:
@@ -979,7 +1035,7 @@ def compare_variants(ctx: DiffContext, old_raw: Variant, new: Variant) -> Iterat
             before["where"], after["where"] = lb, la
         if before:
             yield ctx.change("variant.changed", opt_subject, NUMBERS,
-                             f"Option {option} of variant {name} changed its {' and '.join(before)}: reports choosing it can show different numbers.",
+                             f"Option {option} of variant {name} changed its {_and(before)}: reports choosing it can show different numbers.",
                              before, after, option=option)
         if cb:
             yield ctx.change("variant.cosmetic_changed", opt_subject, SAFE,
@@ -1009,7 +1065,7 @@ def _role_signature(ctx: DiffContext, r: Role, old: bool, deep: bool) -> Hashabl
 def _role_added(ctx: DiffContext, r: Role) -> Change:
     users = ctx.new_refs.referrers("roles", r.name)
     severity = NUMBERS if users else SAFE
-    tail = f"; {_list(users)} are seen as it" if users else "; no report is seen as it yet"
+    tail = f"; {_list(users)} already show what it sees" if users else "; no report is seen as it yet"
     return ctx.change("role.added", f"roles.{r.name}", severity,
                       f"Role {r.name} was added, filtering {_list(sorted(r.filters)) or 'nothing'}{tail}.", None, r.name)
 
@@ -1018,7 +1074,7 @@ def _role_removed(ctx: DiffContext, r: Role) -> Change:
     users = ctx.new_refs.referrers("roles", r.name)
     subject = f"roles.{r.name}"
     if users:
-        return ctx.change("role.removed", subject, BREAKING, f"Role {r.name} was removed, but {_list(users)} are still seen as it.",
+        return ctx.change("role.removed", subject, BREAKING, f"Role {r.name} was removed, but {_list(users)} still name it as their role.",
                           r.name, None, referenced_by=list(users))
     return ctx.change("role.removed", subject, NUMBERS,
                       f"Role {r.name} was removed: its members no longer get its row filters.", r.name, None)
@@ -1030,11 +1086,11 @@ def compare_roles(ctx: DiffContext, old_raw: Role, new: Role) -> Iterator[Change
     lb, la, cb, ca = _where_verdicts(ctx, old.filters, new.filters)
     if lb:
         yield ctx.change("role.filter_changed", subject, NUMBERS,
-                         f"Role {name}'s filter on {_list(sorted(lb))} changed: the rows its members see can change.",
+                         f"The filter of role {name} on {_and(sorted(lb))} changed: the rows its members see can change.",
                          lb, la, tables=sorted(lb))
     if cb:
         yield ctx.change("role.cosmetic_changed", subject, SAFE,
-                         f"Role {name}'s filter on {_list(sorted(cb))} was respelled (same SQL after normalising); no visible row changes.",
+                         f"The filter of role {name} on {_and(sorted(cb))} was respelled (same SQL after normalising); no visible row changes.",
                          cb, ca, tables=sorted(cb))
     if old.description != new.description:
         yield ctx.change("role.metadata_changed", subject, SAFE, f"The description of role {name} changed; no visible row changes.",
@@ -1044,6 +1100,8 @@ def compare_roles(ctx: DiffContext, old_raw: Role, new: Role) -> Iterator[Change
 # --- reports ---------------------------------------------------------------------------------------
 
 _REPORT_DEFINITION = ("measures", "by", "variant", "role")
+_REPORT_FIELD_WORDS = {"measures": "measures", "by": "grouping (`by`)", "variant": "variant choice", "role": "role",
+                       "overrides": "links followed (`use`/`flow`)", "where": "row filter (`where`)"}
 
 
 def _report_signature(ctx: DiffContext, p: Report, old: bool, deep: bool) -> Hashable:
@@ -1074,18 +1132,18 @@ def compare_reports(ctx: DiffContext, old_raw: Report, new: Report) -> Iterator[
         before["where"], after["where"] = lb, la
     if before:
         order_only = set(before) <= {"measures", "by"} and all(only_order_differs(getattr(old, f), getattr(new, f)) for f in before)
-        what = " and ".join("use/flow" if f == "overrides" else f for f in before)
+        what = _and(_REPORT_FIELD_WORDS[f] for f in before)
         message = (f"Report {name} lists its {what} in a different order; the numbers stay the same but its layout changes."
-                   if order_only else f"Report {name}'s {what} changed: it can show different numbers.")
+                   if order_only else f"Report {name} changed its {what}: it can show different numbers.")
         yield ctx.change("report.changed", subject, SAFE if order_only else NUMBERS, message, before, after)
     if cb:
         yield ctx.change("report.cosmetic_changed", subject, SAFE,
-                         f"Report {name}'s `where` on {_list(sorted(cb))} was respelled (same SQL after normalising); no number changes.",
+                         f"The `where` of report {name} on {_and(sorted(cb))} was respelled (same SQL after normalising); no number changes.",
                          {"where": cb}, {"where": ca})
     before, after = _changed_fields(old, new, ("owner", "description"))
     if before:
         yield ctx.change("report.metadata_changed", subject, SAFE,
-                         f"The {' and '.join(before)} of report {name} changed; no number changes.", before, after)
+                         f"The {_and(before)} of report {name} changed; no number changes.", before, after)
 
 
 # --- sections ---------------------------------------------------------------------------------------
