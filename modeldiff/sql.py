@@ -1,0 +1,857 @@
+"""Parsing, normalising and inspecting the SQL expressions of a model.
+
+A model holds SQL in four places: a measure's `expr` and `where`, a role's
+filters, a report's `where` and a variant option's `where`. Each is one plain
+SQL expression, read in DuckDB's dialect (the engine that data verification
+runs on). `:user` is a parameter, the person viewing; DuckDB also spells it
+`$user`, and both mean the same.
+
+Names are compared the way DuckDB compares them: case-insensitively, quoted or
+not. Functions here return names as they were written; compare them with
+`.lower()`.
+
+Every answer is memoised by the text, so a model with tens of thousands of
+measures parses each distinct text once. sqlglot is imported on first use:
+importing this module is cheap.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import functools
+import json
+import logging
+import re
+from dataclasses import dataclass
+from collections.abc import Iterable, Iterator, Mapping, Set
+from typing import TYPE_CHECKING
+
+if TYPE_CHECKING:  # pragma: no cover
+    from sqlglot import exp
+
+DIALECT = "duckdb"
+USER_PARAMETER = "user"
+
+# DuckDB aggregate functions (duckdb 2.0.1, `duckdb_functions()` where
+# function_type = 'aggregate') that sqlglot 30 parses as plain, unknown
+# functions instead of aggregates.
+EXTRA_AGGREGATES = frozenset(
+    {
+        "arbitrary", "arg_max_null", "arg_max_nulls_last", "arg_min_null",
+        "arg_min_nulls_last", "bitstring_agg", "count_star", "entropy", "favg",
+        "fsum", "histogram", "histogram_exact", "kahan_sum", "kurtosis_pop", "mad",
+        "mean", "product", "reservoir_quantile", "sem", "sum_no_overflow", "sumkahan",
+    }
+)  # fmt: skip
+
+_MAX_SHOWN = 80
+
+
+class SqlError(ValueError):
+    """SQL text that cannot be read as one expression.
+
+    `str(error)` is one sentence that quotes the text and says what is wrong.
+    """
+
+    def __init__(self, message: str, text: str | None = None) -> None:
+        super().__init__(message)
+        self.text = text
+
+
+# ---------------------------------------------------------------- parsing
+
+
+def parse(text: str) -> "exp.Expression":
+    """The sqlglot tree of one SQL expression; raises SqlError.
+
+    Memoised by text: the same tree object comes back for the same text, so
+    never change it (call `.copy()` first).
+    """
+    if not isinstance(text, str):
+        raise SqlError(f"expected SQL text, got {type(text).__name__} {text!r}")
+    outcome = _parse_outcome(text)
+    if isinstance(outcome, _Failure):
+        raise SqlError(outcome.message, text)
+    return outcome
+
+
+@dataclass(frozen=True)
+class _Failure:
+    message: str
+
+
+@functools.lru_cache(maxsize=4096)
+def _parse_outcome(text: str) -> "exp.Expression | _Failure":
+    import sqlglot
+    from sqlglot import exp
+    from sqlglot.errors import ParseError, TokenError
+
+    if not text.strip():
+        return _Failure(f"{_describe(text)} is empty; write an SQL expression")
+    try:
+        with _quiet_sqlglot():
+            tree = sqlglot.parse_one(text, read=DIALECT, into=exp.Condition)
+    except ParseError as error:
+        return _Failure(_parse_error_message(text, error))
+    except TokenError:
+        return _Failure(f"{_describe(text)} cannot be read: {_token_problem(text)}")
+    except RecursionError:
+        return _Failure(f"{_describe(text)} is nested too deeply to read")
+    except Exception as error:  # noqa: BLE001 - sqlglot must never leak a traceback
+        first = str(error).splitlines()[0] if str(error) else type(error).__name__
+        return _Failure(f"{_describe(text)} cannot be read: {_strip_ansi(first)}")
+    if tree is None:
+        return _Failure(f"{_describe(text)} is empty; write an SQL expression")
+    if isinstance(tree, exp.Block):
+        return _Failure(f"{_describe(text)} holds several statements; write one expression without ';'")
+    if isinstance(tree, exp.Command) or tree.find(exp.Command) is not None:
+        return _Failure(f"{_describe(text)} cannot be read as an expression")
+    return tree
+
+
+@contextlib.contextmanager
+def _quiet_sqlglot() -> Iterator[None]:
+    """sqlglot logs a warning when it falls back to a raw command; we report it ourselves."""
+    logger = logging.getLogger("sqlglot")
+    level = logger.level
+    logger.setLevel(logging.ERROR)
+    try:
+        yield
+    finally:
+        logger.setLevel(level)
+
+
+def _describe(text: str) -> str:
+    """`the SQL `...`` with the text shortened to one readable line."""
+    shown = " ".join(text.split())
+    if len(shown) > _MAX_SHOWN:
+        shown = shown[: _MAX_SHOWN - 3] + "..."
+    return f"the SQL `{shown}`"
+
+
+_ANSI = re.compile(r"\x1b\[[0-9;]*m")
+_MISSING = re.compile(r"Required keyword: '\w+' missing for <class '[\w.]*?(\w+)'>")
+
+
+def _strip_ansi(message: str) -> str:
+    return _ANSI.sub("", message)
+
+
+def _parse_error_message(text: str, error: Exception) -> str:
+    details = getattr(error, "errors", None) or []
+    if not details:
+        first = _strip_ansi(str(error)).splitlines()[0] if str(error) else "it is not an expression"
+        if first.startswith("No expression was parsed"):
+            return f"{_describe(text)} is not an expression"
+        return f"{_describe(text)} cannot be read: {first}"
+    detail = details[0]
+    description = _strip_ansi(str(detail.get("description") or "")).strip()
+    near = _strip_ansi(str(detail.get("highlight") or "")).strip()
+    before = _strip_ansi(str(detail.get("start_context") or "") + str(detail.get("highlight") or ""))
+    before = " ".join(before.split())[-24:]
+    if description.startswith("Invalid expression / Unexpected token"):
+        problem = f"unexpected `{near}`" if near else "unexpected end"
+    elif description.startswith("Expecting )"):
+        problem = "a closing `)` is missing"
+    elif _MISSING.match(description):
+        problem = f"something is missing after `{before}`"
+    else:
+        problem = description.rstrip(".")
+    col = detail.get("col")
+    if isinstance(col, int) and near:
+        col = max(1, col - len(near) + 1)  # sqlglot gives the column where the token ends
+    where = _where(text, detail.get("line"), col)
+    return f"{_describe(text)} cannot be read: {problem}{where}"
+
+
+def _where(text: str, line: object, col: object) -> str:
+    if not isinstance(line, int) or not isinstance(col, int):
+        return ""
+    if "\n" in text.strip():
+        return f" (line {line}, column {col})"
+    return f" (column {col})"
+
+
+def _token_problem(text: str) -> str:
+    """Why the tokenizer gave up: usually a string, quoted name or comment left open."""
+    unclosed = _unterminated(text)
+    if unclosed:
+        return f"a {unclosed} is not closed"
+    return "it holds a character that SQL does not allow here"
+
+
+_OPENERS = re.compile(r"--|/\*|'|\"")
+
+
+def _unterminated(text: str) -> str | None:
+    """"string", "quoted name" or "comment" when one is left open, else None."""
+    pos = 0
+    while True:
+        match = _OPENERS.search(text, pos)
+        if match is None:
+            return None
+        opener = match.group()
+        if opener == "--":
+            newline = text.find("\n", match.end())
+            if newline < 0:
+                return None
+            pos = newline + 1
+        elif opener == "/*":
+            close = text.find("*/", match.end())
+            if close < 0:
+                return "comment"
+            pos = close + 2
+        else:
+            body, pos = _quoted_body(text, match.end(), opener)
+            if body is None:
+                return "string" if opener == "'" else "quoted name"
+
+
+# ---------------------------------------------------------------- normal form
+
+
+def normal_form(text: str, table: str | None = None) -> str:
+    """A canonical string of the expression's logic.
+
+    Case of keywords, names and function names, spaces, newlines, comments,
+    quoting of names and redundant parentheses never count; the case of string
+    literals does, and so does the grouping that parentheses force. `a AND
+    (b AND c)` equals `a AND b AND c` (AND and OR are associative); operands are
+    never reordered. With `table`, a column qualified with that table equals the
+    bare column (a base measure may write `trips.fare` for `fare`).
+    Raises SqlError.
+    """
+    parse(text)  # raises a fresh SqlError for bad text
+    return _normal_form(text, table.lower() if table else None)
+
+
+def same_logic(a: str | None, b: str | None, table: str | None = None) -> bool:
+    """Whether two optional expressions have the same normal form.
+
+    None equals only None. Identical texts are equal without parsing.
+    Raises SqlError when a text cannot be read.
+    """
+    if a is None or b is None:
+        return a is b
+    if a == b:
+        return True
+    return normal_form(a, table) == normal_form(b, table)
+
+
+@functools.lru_cache(maxsize=1 << 16)
+def _normal_form(text: str, table: str | None) -> str:
+    return _canonical(parse(text), table)
+
+
+def _canonical(root: "exp.Expression", table: str | None) -> str:
+    """An s-expression of node types and normalised arguments, without Paren nodes.
+
+    Iterative (reverse pre-order computes children first), so deep trees such
+    as a 3,000-term OR chain do not exhaust Python's recursion limit.
+    """
+    from sqlglot import exp
+
+    order = []
+    stack = [root]
+    while stack:
+        node = stack.pop()
+        order.append(node)
+        stack.extend(node.iter_expressions())
+    form: dict[int, str] = {}
+    chain: dict[int, tuple[type, list[str]]] = {}  # AND/OR operands, flattened
+    bound = _lambda_bound(root)
+    for node in reversed(order):
+        key = id(node)
+        if key in bound:
+            form[key] = form[id(node.this)]  # a lambda's variable, written in another case
+        elif isinstance(node, exp.Paren) or (isinstance(node, exp.Alias) and not node.args.get("alias")):
+            # sqlglot reads `((:user))` as an alias without a name: a plain wrapper too
+            form[key] = form[id(node.this)]
+            if id(node.this) in chain:
+                chain[key] = chain[id(node.this)]
+        elif isinstance(node, (exp.And, exp.Or)):
+            items: list[str] = []
+            for side in (node.this, node.expression):
+                joined = chain.get(id(side))
+                if joined is not None and joined[0] is type(node):
+                    items.extend(joined[1])
+                else:
+                    items.append(form[id(side)])
+            chain[key] = (type(node), items)
+            form[key] = f"({type(node).__name__.lower()} {' '.join(items)})"
+        else:
+            form[key] = _node_form(node, form, table, exp)
+    return form[id(root)]
+
+
+def _node_form(node: "exp.Expression", form: dict[int, str], table: str | None, exp) -> str:  # noqa: ANN001
+    if isinstance(node, exp.Column) and table is not None:
+        qualifier = node.args.get("table")
+        if (
+            isinstance(qualifier, exp.Identifier)
+            and qualifier.this.lower() == table
+            and not node.args.get("db")
+            and not node.args.get("catalog")
+        ):
+            return f"(column this={form[id(node.this)]})"
+    caseless = _caseless_strings(node, exp)
+    parts = [type(node).__name__.lower()]
+    for name in sorted(node.args):
+        if name in ("comments", "quoted"):
+            continue
+        value = node.args[name]
+        if value is None or (isinstance(value, list) and not value):
+            continue
+        parts.append(f"{name}={_value_form(value, form, caseless, exp)}")
+    return "(" + " ".join(parts) + ")"
+
+
+def _caseless_strings(node: "exp.Expression", exp) -> bool:  # noqa: ANN001
+    """Whether the plain-text arguments of this node ignore case in SQL."""
+    if isinstance(node, exp.Literal):
+        return not node.is_string  # 1E3 == 1e3, 'East' != 'east'
+    return isinstance(node, _caseless_types(exp))
+
+
+@functools.lru_cache(maxsize=1)
+def _caseless_types(exp) -> tuple[type, ...]:  # noqa: ANN001
+    """Nodes whose text arguments are names or keywords, never data."""
+    return (exp.Identifier, exp.Var, exp.Anonymous, exp.Placeholder, exp.Window, exp.Trim, exp.DataType)
+
+
+def _value_form(value: object, form: dict[int, str], caseless: bool, exp) -> str:  # noqa: ANN001
+    if isinstance(value, exp.Expression):
+        return form[id(value)]
+    if isinstance(value, list):
+        return "[" + " ".join(_value_form(item, form, caseless, exp) for item in value) + "]"
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, str):
+        return json.dumps(value.lower() if caseless else value, ensure_ascii=False)
+    return json.dumps(str(value), ensure_ascii=False)
+
+
+# ---------------------------------------------------------------- facts about one text
+
+
+@dataclass(frozen=True)
+class Facts:
+    """What one expression reads and does, found in one walk over its tree."""
+
+    columns: frozenset[tuple[str | None, str]]  # (qualifier or None, name) as written
+    outside_aggregate: frozenset[tuple[str | None, str]]  # columns read outside any aggregate
+    aggregates: tuple[str, ...]  # aggregate function names, sorted, lower case
+    parameters: frozenset[str]  # parameter names, lower case; "?" for an anonymous one
+    subquery: bool
+    condition_like: bool  # False when the top node is plainly a value (number, arithmetic)
+
+
+def facts(text: str) -> Facts:
+    """Everything the checks need about one expression; raises SqlError."""
+    parse(text)
+    return _facts(text)
+
+
+@functools.lru_cache(maxsize=1 << 16)
+def _facts(text: str) -> Facts:
+    from sqlglot import exp
+
+    tree = parse(text)
+    columns: set[tuple[str | None, str]] = set()
+    outside: set[tuple[str | None, str]] = set()
+    aggregates: set[str] = set()
+    parameters: set[str] = set()
+    subquery = False
+    bound = _lambda_bound(tree)
+    stack: list[tuple[exp.Expression, bool]] = [(tree, False)]
+    while stack:
+        node, inside = stack.pop()
+        name = _aggregate_name(node)
+        if name is not None:
+            aggregates.add(name)
+            inside = True
+        elif isinstance(node, exp.Window):
+            inside = True
+        if isinstance(node, exp.Column) and isinstance(node.this, exp.Identifier) and id(node) not in bound:
+            ref = (_qualifier(node), node.this.this)
+            columns.add(ref)
+            if not inside:
+                outside.add(ref)
+        elif isinstance(node, exp.Placeholder):
+            parameters.add(str(node.this).lower() if node.this is not None else "?")
+        elif isinstance(node, (exp.Query, exp.Subquery, exp.Exists)):
+            subquery = True
+        stack.extend((child, inside) for child in node.iter_expressions())
+    return Facts(
+        columns=frozenset(columns),
+        outside_aggregate=frozenset(outside),
+        aggregates=tuple(sorted(aggregates)),
+        parameters=frozenset(parameters),
+        subquery=subquery,
+        condition_like=not _plainly_a_value(tree),
+    )
+
+
+def _lambda_bound(tree: "exp.Expression") -> frozenset[int]:
+    """Ids of Column nodes that are really a lambda's variable.
+
+    sqlglot binds `x -> x + 1` case-sensitively, so `x -> X + 1` leaves `X` as
+    a column; SQL names ignore case, so it is the variable.
+    """
+    from sqlglot import exp
+
+    bound: set[int] = set()
+    for lam in tree.find_all(exp.Lambda):
+        variables = {
+            variable.name.lower() for variable in lam.expressions if isinstance(variable, (exp.Identifier, exp.Column))
+        }
+        for column in lam.this.find_all(exp.Column):
+            if not column.args.get("table") and isinstance(column.this, exp.Identifier):
+                if column.this.this.lower() in variables:
+                    bound.add(id(column))
+    return frozenset(bound)
+
+
+def _aggregate_name(node: "exp.Expression") -> str | None:
+    from sqlglot import exp
+
+    if isinstance(node, exp.AggFunc):
+        return node.sql_name().lower() if hasattr(node, "sql_name") else type(node).__name__.lower()
+    if isinstance(node, exp.Anonymous) and isinstance(node.this, str):
+        if node.this.lower() in EXTRA_AGGREGATES:
+            return node.this.lower()
+    return None
+
+
+def _qualifier(column: "exp.Column") -> str | None:
+    from sqlglot import exp
+
+    parts = [column.args.get(key) for key in ("catalog", "db", "table")]
+    names = [part.this if isinstance(part, exp.Identifier) else str(part) for part in parts if part]
+    return ".".join(names) if names else None
+
+
+def _plainly_a_value(tree: "exp.Expression") -> bool:
+    from sqlglot import exp
+
+    node = tree
+    while isinstance(node, exp.Paren):
+        node = node.this
+    if isinstance(node, exp.Literal):
+        return True
+    arithmetic = (exp.Add, exp.Sub, exp.Mul, exp.Div, exp.Mod, exp.Neg, exp.DPipe, exp.IntDiv, exp.Pow)
+    return isinstance(node, arithmetic)
+
+
+# ---------------------------------------------------------------- small questions
+
+
+def column_refs(text: str) -> frozenset[tuple[str | None, str]]:
+    """The columns an expression reads, as (qualifier or None, name).
+
+    Names keep the case they were written in; compare them case-insensitively.
+    `count(*)` reads no column. Lambda parameters and struct keys are not
+    columns. A three-part name gives the qualifier `db.table`.
+    """
+    return facts(text).columns
+
+
+def has_aggregate(text: str) -> bool:
+    """Whether an aggregate function (sum, count, avg, min, max, median, ...) occurs anywhere."""
+    return bool(facts(text).aggregates)
+
+
+def names(text: str) -> frozenset[str]:
+    """The names of all columns an expression reads, qualified or not, as written.
+
+    In a derived measure these are the measures it names; function names are
+    never among them.
+    """
+    return frozenset(name for _, name in facts(text).columns)
+
+
+def measure_refs(expr: str, measure_names: Iterable[str]) -> frozenset[str]:
+    """Which of `measure_names` a derived measure's expression names.
+
+    A name written exactly as a measure is spelled means that measure;
+    otherwise case is ignored (`Fare_Revenue` finds `fare_revenue`). The answer
+    spells names as `measure_names` does. Pass a set, frozenset or mapping
+    keyed by name: each lookup is then constant time (a frozenset's
+    case-insensitive index is also cached), where a list costs a pass per call.
+    """
+    return _match_names(names(expr), measure_names)
+
+
+def _match_names(used: Iterable[str], measure_names: Iterable[str]) -> frozenset[str]:
+    if not isinstance(measure_names, (Set, Mapping)):
+        measure_names = frozenset(measure_names)
+    found: set[str] = set()
+    missing: list[str] = []
+    for name in used:
+        if name in measure_names:
+            found.add(name)
+        else:
+            missing.append(name.lower())
+    if missing:
+        if isinstance(measure_names, frozenset):
+            index = _lower_index(measure_names)
+        else:
+            index = _lower_index.__wrapped__(measure_names)
+        for name in missing:
+            found.update(index.get(name, ()))
+    return frozenset(found)
+
+
+@functools.lru_cache(maxsize=8)
+def _lower_index(measure_names: Iterable[str]) -> dict[str, tuple[str, ...]]:
+    index: dict[str, list[str]] = {}
+    for name in measure_names:
+        index.setdefault(name.lower(), []).append(name)
+    return {key: tuple(sorted(value)) for key, value in index.items()}
+
+
+def uses_user_parameter(text: str) -> bool:
+    """Whether the expression depends on `:user`, the person viewing."""
+    return USER_PARAMETER in facts(text).parameters
+
+
+# ---------------------------------------------------------------- checks
+
+
+def check_base_measure(
+    name: str,
+    expr: str,
+    where: str | None,
+    table: str,
+    table_columns: Iterable[str] | None,
+) -> list[str]:
+    """Problems of a base measure, one sentence each, sorted.
+
+    `table_columns` None means the home table is unknown (reported elsewhere):
+    column names are then not checked, qualifiers still are.
+    """
+    subject = f"measure `{name}`"
+    columns = _column_set(table_columns)
+    problems: list[str] = []
+    try:
+        found = facts(expr)
+    except SqlError as error:
+        problems.append(f"{subject}: {error}")
+    else:
+        if not found.aggregates:
+            problems.append(
+                f"{subject}: `expr` has no aggregate function (sum, count, avg, min, max, ...); "
+                "aggregate its column, or remove `table` to make it a derived measure"
+            )
+        elif found.outside_aggregate:
+            shown = _names_list(found.outside_aggregate)
+            problems.append(
+                f"{subject}: `expr` reads {shown} outside any aggregate function; "
+                "put every column inside one, for example sum(...)"
+            )
+        problems += _column_problems(subject, "expr", found, table, columns)
+        problems += _common_problems(subject, "expr", found, allow_user=False)
+    if where is not None:
+        try:
+            found = facts(where)
+        except SqlError as error:
+            problems.append(f"{subject}: `where`: {error}")
+        else:
+            if found.aggregates:
+                problems.append(
+                    f"{subject}: `where` uses the aggregate {', '.join(found.aggregates)}; "
+                    "a row condition tests one row at a time, so move the aggregate into `expr`"
+                )
+            problems += _column_problems(subject, "where", found, table, columns)
+            problems += _common_problems(subject, "where", found, allow_user=False)
+    return sorted(problems)
+
+
+def check_derived_measure(name: str, expr: str, measure_names: Iterable[str]) -> list[str]:
+    """Problems of a derived measure, one sentence each, sorted."""
+    subject = f"measure `{name}`"
+    try:
+        found = facts(expr)
+    except SqlError as error:
+        return [f"{subject}: {error}"]
+    if not isinstance(measure_names, (Set, Mapping)):
+        measure_names = frozenset(measure_names)
+    problems: list[str] = []
+    for qualifier, used in sorted(found.columns, key=_ref_key):
+        if qualifier is not None:
+            problems.append(
+                f"{subject}: `{qualifier}.{used}` is qualified, but a derived measure names measures; "
+                f"write `{used}` for a measure, or give the measure a `table` to read columns"
+            )
+        elif not _match_names((used,), measure_names):
+            problems.append(
+                f"{subject}: `{used}` is not a measure; a derived measure combines measures, "
+                "so define it or give this measure a `table` to read columns"
+            )
+    if found.aggregates:
+        problems.append(
+            f"{subject}: uses the aggregate {', '.join(found.aggregates)}, but a derived measure "
+            "combines values that are already aggregated; give it a `table` to make it a base measure"
+        )
+    problems += _common_problems(subject, "expr", found, allow_user=False)
+    return sorted(problems)
+
+
+def check_predicate(
+    text: str,
+    table: str,
+    table_columns: Iterable[str] | None,
+    *,
+    allow_user: bool = True,
+) -> list[str]:
+    """Problems of a row filter on `table` (role filter, report or option `where`), sorted.
+
+    It must parse, read only `table`'s columns, not aggregate, hold no subquery
+    and use no parameter but `:user` (none at all when `allow_user` is False).
+    """
+    subject = f"the filter on `{table}`"
+    try:
+        found = facts(text)
+    except SqlError as error:
+        return [f"{subject}: {error}"]
+    problems: list[str] = []
+    if found.aggregates:
+        problems.append(
+            f"{subject}: uses the aggregate {', '.join(found.aggregates)}; "
+            "a filter tests one row at a time, so compare columns with values instead"
+        )
+    if not found.condition_like:
+        problems.append(f"{subject}: `{_short(text)}` is a value, not a condition; compare it, for example `... = 1`")
+    problems += _column_problems(subject, None, found, table, _column_set(table_columns))
+    problems += _common_problems(subject, None, found, allow_user=allow_user)
+    return sorted(problems)
+
+
+def _column_set(table_columns: Iterable[str] | None) -> frozenset[str] | None:
+    if table_columns is None:
+        return None
+    return frozenset(column.lower() for column in table_columns)
+
+
+def _column_problems(
+    subject: str,
+    field: str | None,
+    found: Facts,
+    table: str,
+    columns: frozenset[str] | None,
+) -> list[str]:
+    prefix = f"{subject}: `{field}`" if field else subject
+    problems = []
+    for qualifier, name in sorted(found.columns, key=_ref_key):
+        if qualifier is not None and qualifier.lower() != table.lower():
+            problems.append(
+                f"{prefix} reads `{qualifier}.{name}` of another table; it may read only "
+                f"columns of `{table}`, and filters reach other tables through links"
+            )
+        elif columns is not None and name.lower() not in columns:
+            problems.append(f"{prefix} reads `{name}`, which is not a column of `{table}`; fix the name or add the column")
+    return problems
+
+
+def _common_problems(subject: str, field: str | None, found: Facts, *, allow_user: bool) -> list[str]:
+    prefix = f"{subject}: `{field}`" if field else subject
+    problems = []
+    if found.subquery:
+        problems.append(f"{prefix} holds a subquery; write a condition on columns and let links carry filters")
+    for parameter in sorted(found.parameters):
+        if parameter == USER_PARAMETER and allow_user:
+            continue
+        shown = "?" if parameter == "?" else f":{parameter}"
+        if parameter == USER_PARAMETER:
+            problems.append(f"{prefix} uses `:user`; only role filters may depend on the person viewing")
+        else:
+            problems.append(f"{prefix} uses the parameter `{shown}`; the only parameter is `:user`, the person viewing")
+    return problems
+
+
+def _ref_key(ref: tuple[str | None, str]) -> tuple[str, str]:
+    return (ref[0] or "", ref[1])
+
+
+def _names_list(refs: Iterable[tuple[str | None, str]]) -> str:
+    shown = [f"`{q}.{n}`" if q else f"`{n}`" for q, n in sorted(refs, key=_ref_key)]
+    return ", ".join(shown)
+
+
+def _short(text: str) -> str:
+    shown = " ".join(text.split())
+    return shown if len(shown) <= _MAX_SHOWN else shown[: _MAX_SHOWN - 3] + "..."
+
+
+# ---------------------------------------------------------------- fast path for derived measures
+
+
+def derived_refs_fast(expr: str, measure_names: Iterable[str]) -> frozenset[str]:
+    """The same answer as `measure_refs` for every text that parses, usually without parsing.
+
+    A small scanner handles the common shapes of derived measures (names,
+    numbers, strings, comments, + - * / %, comparisons, CASE, AND/OR/NOT and a
+    few plain functions such as nullif and coalesce). Anything else falls back
+    to `measure_refs`. On text that does not parse it may return names where
+    `measure_refs` raises SqlError; the check reports such text.
+    """
+    scanned = _fast_names(expr)
+    if scanned is None:
+        return measure_refs(expr, measure_names)
+    used, keywords = scanned
+    if keywords and _match_names(keywords, measure_names):
+        return measure_refs(expr, measure_names)  # a measure named like a keyword: `end`, `in`
+    return _match_names(used, measure_names)
+
+
+@dataclass(frozen=True)
+class _Scan:
+    tokens: tuple[tuple[str, str], ...]  # (kind, text); kinds: word quoted number string op ( ) , .
+    unsure: bool = False  # something outside the scanner's small grammar
+
+
+_TOKEN = re.compile(
+    r"""
+    (?P<space>\s+)
+  | (?P<line_comment>--[^\n]*)
+  | (?P<block_comment>/\*)
+  | (?P<string>')
+  | (?P<quoted>")
+  | (?P<number>\d+(?:\.\d*)?(?:[eE][+-]?\d+)?)
+  | (?P<word>[A-Za-z_][A-Za-z0-9_]*)
+  | (?P<op>[-+*/%=<>!]+)
+  | (?P<punct>[(),.])
+    """,
+    re.VERBOSE,
+)
+_SIMPLE_OPS = frozenset({"+", "-", "*", "/", "%", "=", "<", ">", "<=", ">=", "<>", "!="})
+_SIMPLE_KEYWORDS = frozenset(
+    {"and", "or", "not", "case", "when", "then", "else", "end", "is", "null", "true", "false",
+     "in", "between", "like", "ilike"}
+)  # fmt: skip
+_SIMPLE_FUNCTIONS = frozenset(
+    {"nullif", "coalesce", "ifnull", "round", "abs", "greatest", "least", "sqrt", "power",
+     "sign", "ln", "exp", "log"}
+)  # fmt: skip
+
+
+def _scan(text: str) -> _Scan:
+    tokens: list[tuple[str, str]] = []
+    pos, end = 0, len(text)
+    while pos < end:
+        match = _TOKEN.match(text, pos)
+        if match is None:
+            return _Scan(tuple(tokens), unsure=True)
+        kind = match.lastgroup
+        if kind == "space" or kind == "line_comment":
+            pos = match.end()
+        elif kind == "block_comment":
+            close = text.find("*/", match.end())
+            if close < 0:
+                return _Scan(tuple(tokens), unsure=True)
+            if "/*" in text[match.end() : close]:
+                return _Scan(tuple(tokens), unsure=True)  # nested comments
+            pos = close + 2
+        elif kind in ("string", "quoted"):
+            closing = match.group()
+            value, pos = _quoted_body(text, match.end(), closing)
+            if value is None:
+                return _Scan(tuple(tokens), unsure=True)
+            if kind == "quoted" and (closing in value or not value):
+                return _Scan(tuple(tokens), unsure=True)
+            if kind == "string" and "\\" in value:
+                return _Scan(tuple(tokens), unsure=True)
+            tokens.append((kind, value))
+        else:
+            value = match.group()
+            pos = match.end()
+            if kind == "number" and pos < end and (text[pos].isalnum() or text[pos] in "_."):
+                return _Scan(tuple(tokens), unsure=True)
+            if kind == "op" and value not in _SIMPLE_OPS:
+                return _Scan(tuple(tokens), unsure=True)
+            if kind == "punct":
+                kind = value
+            if kind == "word" and pos < end and not (text[pos].isspace() or text[pos] in "()+-*/%=<>!,."):
+                return _Scan(tuple(tokens), unsure=True)  # e'..', x'..', a$b, café ...
+            tokens.append((kind, value))
+    return _Scan(tuple(tokens))
+
+
+def _quoted_body(text: str, start: int, closing: str) -> tuple[str | None, int]:
+    """The body of a quoted string or name, with doubled quotes kept doubled."""
+    pos = start
+    while True:
+        found = text.find(closing, pos)
+        if found < 0:
+            return None, len(text)
+        if text.startswith(closing * 2, found):
+            pos = found + 2
+            continue
+        return text[start:found], found + 1
+
+
+@functools.lru_cache(maxsize=1 << 16)
+def _fast_names(text: str) -> tuple[frozenset[str], frozenset[str]] | None:
+    """(column names, keywords seen) by scanning, or None when the scanner is not sure.
+
+    sqlglot reads some keywords as names where they fit no grammar (`end`
+    alone is a column): the caller falls back when a keyword seen is a measure.
+    """
+    scan = _scan(text)
+    if scan.unsure:
+        return None
+    reserved = _reserved_words()
+    tokens = scan.tokens
+    found: set[str] = set()
+    keywords: set[str] = set()
+    for index, (kind, value) in enumerate(tokens):
+        after = tokens[index + 1][0] if index + 1 < len(tokens) else None
+        if kind == "." and (after not in ("word", "quoted") or index == 0 or not _names_something(tokens[index - 1])):
+            return None  # `.5`, `t.*`, `null.x`
+        if kind not in ("word", "quoted"):
+            continue
+        before = tokens[index - 1][0] if index > 0 else None
+        if kind == "word":
+            lowered = value.lower()
+            if lowered in _SIMPLE_KEYWORDS:
+                keywords.add(value)
+                continue
+            if lowered in reserved:
+                return None
+        if after == "(":
+            if kind == "word" and before != "." and (value.lower() in _SIMPLE_FUNCTIONS or value.upper() not in _known_functions()):
+                continue  # a function's name is not a column
+            return None
+        if after in ("string", "word", "quoted", "number"):
+            return None  # typed literals, aliases: not the scanner's business
+        if after == ".":
+            continue  # a qualifier
+        found.add(value)
+    return frozenset(found), frozenset(keywords)
+
+
+def _names_something(token: tuple[str, str]) -> bool:
+    """Whether a token can be a table or column name: a quoted name or a plain word."""
+    kind, value = token
+    return kind == "quoted" or (kind == "word" and value.lower() not in _SIMPLE_KEYWORDS)
+
+
+@functools.lru_cache(maxsize=1)
+def _reserved_words() -> frozenset[str]:
+    """Every word that sqlglot's DuckDB tokenizer or parser treats specially, lower case."""
+    from sqlglot.dialects.duckdb import DuckDB
+
+    words: set[str] = set()
+    keys = list(DuckDB.tokenizer_class.KEYWORDS) + list(DuckDB.parser_class.NO_PAREN_FUNCTION_PARSERS)
+    for key in keys:
+        words.update(part.lower() for part in re.findall(r"[A-Za-z_][A-Za-z0-9_]*", key))
+    return frozenset(words - _SIMPLE_KEYWORDS)
+
+
+@functools.lru_cache(maxsize=1)
+def _known_functions() -> frozenset[str]:
+    """Function names the DuckDB parser builds special nodes for (upper case)."""
+    from sqlglot.dialects.duckdb import DuckDB
+
+    parser = DuckDB.parser_class
+    return frozenset(parser.FUNCTIONS) | frozenset(parser.FUNCTION_PARSERS)
