@@ -185,8 +185,9 @@ def sql_names_measure(expr: str, name: str) -> bool:
     sql = _sql_module()
     if sql is None:
         return True
+    refs = getattr(sql, "derived_refs_fast", sql.measure_refs)  # same answer, usually without parsing
     try:
-        return any(n.lower() == name.lower() for n in sql.measure_refs(expr, frozenset({name})))
+        return any(n.lower() == name.lower() for n in refs(expr, (name,)))
     except _sql_errors(sql):
         return True
 
