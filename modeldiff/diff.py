@@ -657,6 +657,8 @@ def _table_removed(ctx: DiffContext, t: Table) -> Change:
 
 def _column_rename_ok(ctx: DiffContext, old_table: str, new_table: str, old_col: str, new_col: str) -> bool:
     """Every reference to the old column that survives now names the new one, and none names the old."""
+    if old_col.lower() == new_col.lower():
+        return True  # SQL and the checks read names case-insensitively: references cannot tell them apart
     if ctx.new_refs.column_referrers(new_table, old_col):
         return False
     now = set(ctx.new_refs.column_referrers(new_table, new_col))

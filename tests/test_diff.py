@@ -203,6 +203,14 @@ def test_a_column_rename_not_followed_by_the_sql_is_a_breaking_removal():
     assert only(changes, "column.removed").severity == "breaking"
 
 
+def test_a_column_whose_name_only_changes_case_is_renamed():
+    old = edit(BASE, table("riders", columns={"rider_key": "integer", "Plan": "text"}), role("students", {"riders": "plan = 's'"}))
+    new = edit(old, table("riders", columns={"rider_key": "integer", "plan": "text"}))
+    (change,) = diff_models(old, new)
+    assert (change.kind, change.subject, change.before, change.severity) == \
+        ("column.renamed", "tables.riders.columns.plan", "Plan", "safe")
+
+
 def test_ambiguous_column_renames_are_not_guessed():
     old = edit(BASE, table("riders", columns={"rider_key": "integer", "plan": "text", "age_band": "text"}))
     new = edit(BASE, table("riders", columns={"rider_key": "integer", "tier": "text", "age_group": "text"}))
