@@ -134,10 +134,16 @@ def _read_file(path: str) -> bytes:
 
 
 def _too_big(name: str, size: int) -> ModeldiffError:
-    limit = MAX_FILE_BYTES // (1024 * 1024)
     return _fail(
-        name, None, None, f"file is {size / 1024 / 1024:.0f} MB, over the {limit} MB limit for a model file; split it into a NAME.model/ folder"
-    )
+        name, None, None,
+        f"file is {_size_text(size)}, over the {_size_text(MAX_FILE_BYTES)} limit for a model file; "
+        "split it into a NAME.model/ folder",
+    )  # fmt: skip
+
+
+def _size_text(size: int) -> str:
+    megabytes = size / (1024 * 1024)
+    return f"{megabytes:.0f} MB" if megabytes >= 1 else f"{size} bytes"
 
 
 def _folder_files(folder: str) -> list[tuple[str, bytes]]:
@@ -145,7 +151,8 @@ def _folder_files(folder: str) -> list[tuple[str, bytes]]:
     base = os.path.basename(os.path.normpath(folder))
     if not (base.lower().endswith(FOLDER_SUFFIX) and len(base) > len(FOLDER_SUFFIX)):
         raise ModeldiffError(
-            f"{folder}: is a folder but not a NAME.model/ folder; give a NAME.model.yaml file or a folder named NAME.model"
+            f"{folder}: is a folder but not a NAME.model/ folder; "
+            "give a NAME.model.yaml file or a folder named NAME.model"
         )
     found = []
     for parent, subfolders, names in os.walk(folder):
@@ -192,7 +199,8 @@ def _decode(name: str, content: bytes | str) -> str:
     bad = _CONTROL.search(text)
     if bad:
         line, col = _line_col(text, bad.start())
-        what = "binary content (a NUL character)" if bad.group() == "\0" else f"a control character (U+{ord(bad.group()):04X})"
+        char = bad.group()
+        what = "binary content (a NUL character)" if char == "\0" else f"a control character (U+{ord(char):04X})"
         raise _fail(name, line, col, f"{what}; a model file must be plain UTF-8 text")
     return text
 
@@ -268,6 +276,10 @@ def _shown_tag(tag: str) -> str:
     return "!!" + tag[len(_CORE):] if tag.startswith(_CORE) else tag
 
 
+def _unsupported_tag(tag: str) -> str:
+    return f"unsupported YAML tag '{_shown_tag(tag)}'; remove the tag, a model file uses plain values"
+
+
 def _tagged_scalar(name: str, event) -> Any:
     tag = event.tag
     if tag == "!" or tag == _CORE + "str":
@@ -276,12 +288,13 @@ def _tagged_scalar(name: str, event) -> Any:
     wanted = kinds.get(tag[len(_CORE):]) if tag.startswith(_CORE) else None
     line, col = event.start_mark.line + 1, event.start_mark.column + 1
     if wanted is None:
-        raise _fail(name, line, col, f"unsupported YAML tag '{_shown_tag(tag)}'; remove the tag, a model file uses plain values")
+        raise _fail(name, line, col, _unsupported_tag(tag))
     value = _resolve_plain(event.value)
     if wanted is float and type(value) is int:
         value = float(value)
     if type(value) is not wanted:
-        raise _fail(name, line, col, f"'{event.value}' is not a valid {_shown_tag(tag)}; fix the value or remove the tag")
+        message = f"'{event.value}' is not a valid {_shown_tag(tag)}; fix the value or remove the tag"
+        raise _fail(name, line, col, message)
     return value
 
 
@@ -442,10 +455,8 @@ def _build(name: str, loader, yaml) -> Any:
 
 def _check_collection_tag(name: str, event, mark) -> None:
     tag = event.tag
-    if tag is not None and tag not in ("!", _CORE + "map", _CORE + "seq", _CORE + "omap"):
-        raise _fail(
-            name, mark.line + 1, mark.column + 1, f"unsupported YAML tag '{_shown_tag(tag)}'; remove the tag, a model file uses plain values"
-        )
+    if tag is not None and tag not in ("!", _CORE + "map", _CORE + "seq"):
+        raise _fail(name, mark.line + 1, mark.column + 1, _unsupported_tag(tag))
 
 
 def _alias_target(name: str, event, mark, anchors, opening) -> tuple[Any, int]:
@@ -498,7 +509,8 @@ def _read_document(name: str, content: bytes | str) -> _Document:
         line, col = (root.line, root.column) if isinstance(root, YamlList) else (1, 1)
         raise _fail(
             name, line, col,
-            f"the top level is {_describe(root)}, not a mapping; a model file starts with `model:`, `format: 1` and `tables:`",
+            f"the top level is {_describe(root)}, not a mapping; "
+            "a model file starts with `model:`, `format: 1` and `tables:`",
         )  # fmt: skip
     return _Document(name, root)
 
@@ -511,11 +523,13 @@ def _model_identity(docs: list[_Document]) -> tuple[str, int]:
     fmt_value, fmt_doc = fmt
     if not isinstance(name_value, str) or not name_value.strip():
         line, col = _value_at(name_doc.top, "model")
-        raise _fail(name_doc.file, line, col, f"`model` must be the model's name, found {_describe(name_value)}; write `model: NAME`")
+        found = _describe(name_value)
+        raise _fail(name_doc.file, line, col, f"`model` must be the model's name, found {found}; write `model: NAME`")
     if type(fmt_value) is not int or fmt_value != 1:
         line, col = _value_at(fmt_doc.top, "format")
         found = _describe(fmt_value)
-        raise _fail(fmt_doc.file, line, col, f"`format` is {found}, but this modeldiff reads format 1 only; write `format: 1`")
+        message = f"`format` is {found}, but this modeldiff reads format 1 only; write `format: 1`"
+        raise _fail(fmt_doc.file, line, col, message)
     return name_value, fmt_value
 
 
@@ -578,6 +592,7 @@ _SINGULAR = {
     "tables": "table", "links": "link", "measures": "measure",
     "variants": "variant", "roles": "role", "reports": "report",
 }  # fmt: skip
+_COLUMN_TYPE_SET = frozenset(COLUMN_TYPES)
 _BAD = object()  # a field that was present but wrong (a finding was recorded)
 
 
@@ -695,12 +710,18 @@ class _RecordBuilder:
         if columns is None:
             return {}
         records = {}
-        for name, value in columns.items():
-            column_subject = f"{subject}.columns.{name}"
-            if not self._check_name(columns, name, f"{subject}.columns"):
+        prefix = f"{subject}.columns."
+        positions, at, file = self.positions, columns.at, columns.file
+        for name, value in columns.items():  # the model's most numerous item: keep it lean
+            if not (name.__class__ is str and _NAME.match(name)):
+                self._check_name(columns, name, f"{subject}.columns")
                 continue
-            self.positions[column_subject] = self._pos_key(columns, name)
-            records[name] = self._column(name, value, column_subject, columns)
+            entry = at[name]
+            positions[prefix + name] = (file, entry[0], entry[1])
+            if value.__class__ is str and value in _COLUMN_TYPE_SET:
+                records[name] = Column(name, value)
+            else:
+                records[name] = self._column(name, value, prefix + name, columns)
         return records
 
     def _column(self, name: str, value: Any, subject: str, parent: YamlMap) -> Column:
@@ -756,7 +777,8 @@ class _RecordBuilder:
             return None
         subject = f"{subject}.previous"
         if history_type != 3:
-            self._bad(subject, self._pos_key(history, "previous"), f"{subject}: `previous` applies only to history type 3; it is ignored")
+            message = f"{subject}: `previous` applies only to history type 3; it is ignored"
+            self._bad(subject, self._pos_key(history, "previous"), message)
             return None
         previous = self._get_map(history, "previous", subject)
         if previous is None:
@@ -800,7 +822,8 @@ class _RecordBuilder:
         """(table, columns) of a link's `from` or `to`, or _BAD."""
         field_subject = f"{subject}.{end}"
         if end not in fields:
-            self._bad(field_subject, self.positions[subject], f"{field_subject}: `{end}` is missing (link '{name}' is ignored)")
+            message = f"{field_subject}: `{end}` is missing (link '{name}' is ignored)"
+            self._bad(field_subject, self.positions[subject], message)
             return _BAD
         value, pos = self._field(fields, end, subject)
         refs = list(value) if isinstance(value, YamlList) else [value]
@@ -815,7 +838,8 @@ class _RecordBuilder:
             self._bad(
                 field_subject,
                 pos,
-                f"{field_subject}: expected columns of one table, found tables {', '.join(tables)} (link '{name}' is ignored)",
+                f"{field_subject}: expected columns of one table, found tables {', '.join(tables)} "
+                f"(link '{name}' is ignored)",
             )
             return _BAD
         return tables[0], tuple(match.group(2) for match in parsed)
@@ -827,7 +851,8 @@ class _RecordBuilder:
         expr = self._get_str(fields, "expr", subject, sql=True)
         if expr is None:
             if "expr" not in fields:
-                self._bad(subject, self.positions[subject], f"{subject}: `expr` is missing; measure '{name}' is ignored")
+                message = f"{subject}: `expr` is missing; measure '{name}' is ignored"
+                self._bad(subject, self.positions[subject], message)
             return None
         return Measure(
             name=name,
@@ -858,7 +883,8 @@ class _RecordBuilder:
         if options is None:
             return {}
         if not options:
-            self._bad(f"{subject}.options", self._pos_value(fields, "options"), f"{subject}.options: a variant needs at least one option")
+            message = f"{subject}.options: a variant needs at least one option"
+            self._bad(f"{subject}.options", self._pos_value(fields, "options"), message)
         records = {}
         for name, value in options.items():
             if not self._check_name(options, name, f"{subject}.options"):
@@ -866,7 +892,8 @@ class _RecordBuilder:
             option_subject = f"{subject}.options.{name}"
             self.positions[option_subject] = self._pos_key(options, name)
             if not isinstance(value, YamlMap):
-                self._expected(option_subject, self._pos_value(options, name), "a mapping (write {} for no changes)", value, "read as {}")
+                pos = self._pos_value(options, name)
+                self._expected(option_subject, pos, "a mapping (write {} for no changes)", value, "read as {}")
                 records[name] = VariantOption(name)
                 continue
             self._check_keys(value, _OPTION_KEYS, option_subject, f"in option '{name}'")
@@ -950,8 +977,8 @@ class _RecordBuilder:
         value, pos = self._field(fields, key, subject)
         if value is _NOTHING:
             if required:
-                self._bad(f"{subject}.{key}", self.positions.get(subject) or self._pos_first(fields),
-                          f"{subject}: `{key}` is missing; expected one of {', '.join(choices)} (read as {default})")  # fmt: skip
+                message = f"{subject}: `{key}` is missing; expected one of {', '.join(choices)} (read as {default})"
+                self._bad(f"{subject}.{key}", self.positions.get(subject) or self._pos_first(fields), message)
             return default
         if isinstance(value, str) and value in choices:
             return value
@@ -964,7 +991,8 @@ class _RecordBuilder:
         if value is _NOTHING:
             return None, None
         if not isinstance(value, YamlList) or (nonempty and not value):
-            self._expected(f"{subject}.{key}", pos, f"a non-empty list of {expected}" if nonempty else f"a list of {expected}", value, "it is ignored")
+            wanted = f"a non-empty list of {expected}" if nonempty else f"a list of {expected}"
+            self._expected(f"{subject}.{key}", pos, wanted, value, "it is ignored")
             return None, None
         return value, pos
 
@@ -1003,7 +1031,8 @@ class _RecordBuilder:
             return (value,)
         if isinstance(value, YamlList) and value and all(isinstance(v, str) and _NAME.match(v) for v in value):
             return tuple(value)
-        self._expected(f"{subject}.{key}", pos, "a column name or a non-empty list of column names", value, "it is ignored")
+        wanted = "a column name or a non-empty list of column names"
+        self._expected(f"{subject}.{key}", pos, wanted, value, "it is ignored")
         return ()
 
     def _get_flow(self, fields: YamlMap, subject: str) -> dict[str, str]:
@@ -1019,7 +1048,8 @@ class _RecordBuilder:
             if isinstance(value, str) and value in FLOW_OVERRIDES:
                 result[link] = value
             else:
-                self._expected(f"{subject}.flow.{link}", pos, "one of " + ", ".join(FLOW_OVERRIDES), value, "it is ignored")
+                wanted = "one of " + ", ".join(FLOW_OVERRIDES)
+                self._expected(f"{subject}.flow.{link}", pos, wanted, value, "it is ignored")
         return result
 
     def _get_predicates(self, fields: YamlMap, key: str, subject: str) -> dict[str, str]:
@@ -1066,7 +1096,8 @@ class _RecordBuilder:
     def _check_name(self, mapping: YamlMap, name: Any, section: str) -> bool:
         if isinstance(name, str) and _NAME.match(name):
             return True
-        self._expected(f"{section}.{name}", self._pos_key(mapping, name), f"a name matching {_NAME_PATTERN}", name, "the entry is ignored")
+        wanted = f"a name matching {_NAME_PATTERN}"
+        self._expected(f"{section}.{name}", self._pos_key(mapping, name), wanted, name, "the entry is ignored")
         return False
 
     def _check_keys(self, mapping: YamlMap, allowed: tuple[str, ...], subject: str, where: str) -> None:
@@ -1076,7 +1107,8 @@ class _RecordBuilder:
             hint = _close_match(key, allowed)
             suggestion = f"; did you mean `{hint}`?" if hint else f"; expected one of {', '.join(allowed)}"
             key_subject = f"{subject}.{key}" if subject else str(key)
-            self._bad(key_subject, self._pos_key(mapping, key), f"unknown key {_describe(key)} {where} (ignored){suggestion}")
+            message = f"unknown key {_describe(key)} {where} (ignored){suggestion}"
+            self._bad(key_subject, self._pos_key(mapping, key), message)
 
     def _expected(self, subject: str, pos: _At, expected: str, found: Any, consequence: str) -> None:
         self._bad(subject, pos, f"{subject}: expected {expected}, found {_describe(found)} ({consequence})")

@@ -224,7 +224,7 @@ def test_oversized_file_on_disk_is_refused_before_reading(monkeypatch, tmp_path)
     path = tmp_path / NAME
     path.write_text(BASE)
     monkeypatch.setattr(load, "MAX_FILE_BYTES", 10)
-    with pytest.raises(ModeldiffError, match=r"over the 0 MB limit"):
+    with pytest.raises(ModeldiffError, match=rf"^{re.escape(str(path))}: file is {len(BASE)} bytes, over the 10 bytes limit"):
         load_path(path)
 
 
