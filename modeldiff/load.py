@@ -340,7 +340,13 @@ def _syntax_error(name: str, text: str, exc) -> ModeldiffError:
 
 
 def _build(name: str, loader, yaml) -> Any:
-    """Values of the document, built from parser events with an explicit stack."""
+    """Values of the document, built from parser events with an explicit stack.
+
+    One loop on purpose: it runs once per YAML node, so the common cases stay
+    inline and only the rare ones (tags, aliases, merges, errors) call out.
+    Each finished node is added to the collection on top of the stack; a
+    mapping alternates between waiting for a key and waiting for its value.
+    """
     scalar_event, alias_event = yaml.ScalarEvent, yaml.AliasEvent
     mapping_start, sequence_start = yaml.MappingStartEvent, yaml.SequenceStartEvent
     mapping_end, sequence_end = yaml.MappingEndEvent, yaml.SequenceEndEvent
