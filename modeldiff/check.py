@@ -9,9 +9,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from functools import cached_property
-from typing import Callable, Iterable, Iterator
+from typing import TYPE_CHECKING, Callable, Iterable, Iterator
 
 from modeldiff.model import Finding, Link, Model, Overrides, Table
+
+if TYPE_CHECKING:  # pragma: no cover
+    from modeldiff.graph import Setting
 
 ERROR = "error"
 WARNING = "warning"
@@ -43,6 +46,10 @@ class _Context:
     @cached_property
     def measure_names(self) -> frozenset[str]:
         return frozenset(self.model.measures)
+
+    @cached_property
+    def measure_names_lower(self) -> frozenset[str]:
+        return frozenset(name.lower() for name in self.model.measures)
 
     def column_exists(self, table: str, column: str) -> bool:
         t = self.model.tables.get(table)
@@ -76,28 +83,66 @@ def _overrides_refs(ctx: _Context, subject: str, overrides: Overrides) -> Iterat
                               at=f"{subject}.flow")
 
 
-def _predicate_refs(ctx: _Context, subject: str, filters, what: str) -> Iterator[Finding]:
-    """Predicates keyed by table (role filters, report/option `where`)."""
+def _sql_facts(ctx: _Context, subject: str, text: str, what: str, at: str):
+    """(Facts, None) for readable SQL, else (None, an invalid-model finding)."""
     from modeldiff import sql
 
-    for table, text in filters.items():
-        at = f"{subject}.{what}.{table}"
-        if table not in ctx.model.tables:
+    try:
+        return sql.facts(text), None
+    except sql.SqlError as exc:
+        return None, ctx.finding("invalid-model", subject, f"{what} is not valid SQL: {exc}", at=at)
+
+
+def _shape_problems(ctx: _Context, subject: str, found, what: str, at: str, allow_user: bool) -> Iterator[Finding]:
+    """Subqueries and parameters: shapes no model expression may take."""
+    if found.subquery:
+        yield ctx.finding("invalid-model", subject,
+                          f"{what} holds a subquery; write a condition on columns and let links carry filters.", at=at)
+    for parameter in sorted(found.parameters):
+        if parameter == "user" and allow_user:
+            continue
+        shown = "?" if parameter == "?" else f":{parameter}"
+        why = "only a role's filters may depend on the person viewing" if parameter == "user" \
+            else "the only parameter is :user, the person viewing, in a role's filters"
+        yield ctx.finding("invalid-model", subject, f"{what} uses the parameter {shown}; {why}.", at=at)
+
+
+def _column_problems(ctx: _Context, subject: str, found, table: Table, what: str, at: str,
+                     advice: str) -> Iterator[Finding]:
+    """Columns that are not `table`'s own: qualified by another table, or missing."""
+    for qualifier, column in sorted(found.columns, key=lambda r: (r[0] or "", r[1])):
+        if qualifier is not None and qualifier.lower() != table.name.lower():
             yield ctx.finding("broken-reference", subject,
-                              f"{subject} filters table '{table}', which does not exist; name an existing table.", at=at)
+                              f"{what} reads {qualifier}.{column}, but may read only columns of {table.name}; {advice}", at=at)
+        elif _column(table, column) is None:
+            yield ctx.finding("broken-reference", subject,
+                              f"{what} reads column '{column}', which {table.name} does not have; fix the column name.", at=at)
+
+
+def _predicate_refs(ctx: _Context, subject: str, filters, what: str, allow_user: bool) -> Iterator[Finding]:
+    """Predicates keyed by table (role filters, report/option `where`)."""
+    for table_name, text in filters.items():
+        at = f"{subject}.{what}.{table_name}"
+        table = ctx.model.tables.get(table_name)
+        if table is None:
+            yield ctx.finding("broken-reference", subject,
+                              f"{subject} filters table '{table_name}', which does not exist; name an existing table.", at=at)
             continue
-        try:
-            refs = sql.column_refs(text)
-        except sql.SqlError as exc:
-            yield ctx.finding("invalid-model", subject, f"{subject}: the filter on {table} is not valid SQL: {exc}", at=at)
+        label = f"{subject}: the filter on {table_name}"
+        found, bad = _sql_facts(ctx, subject, text, label, at)
+        if bad is not None:
+            yield bad
             continue
-        for qualifier, column in sorted(refs, key=lambda r: (r[0] or "", r[1])):
-            if qualifier not in (None, table) and qualifier.lower() != table.lower():
-                yield ctx.finding("broken-reference", subject,
-                                  f"{subject}: the filter on {table} reads {qualifier}.{column}; a filter may read only its own table's columns.", at=at)
-            elif not ctx.column_exists(table, column):
-                yield ctx.finding("broken-reference", subject,
-                                  f"{subject}: the filter on {table} reads column '{column}', which {table} does not have; fix the column name.", at=at)
+        if found.aggregates:
+            yield ctx.finding("invalid-model", subject,
+                              f"{label} uses the aggregate {', '.join(found.aggregates)}; a filter tests one row at a time, so compare columns with values.",
+                              at=at)
+        if not found.condition_like:
+            yield ctx.finding("invalid-model", subject,
+                              f"{label} is a value, not a condition; compare it, for example `... = 1`.", at=at)
+        yield from _shape_problems(ctx, subject, found, label, at, allow_user)
+        yield from _column_problems(ctx, subject, found, table, label, at,
+                                    "filters reach other tables through links.")
 
 
 def rule_table_references(ctx: _Context) -> Iterator[Finding]:
@@ -131,56 +176,65 @@ def rule_link_references(ctx: _Context) -> Iterator[Finding]:
 
 
 def rule_measure_references(ctx: _Context) -> Iterator[Finding]:
-    from modeldiff import sql
-
     for measure in ctx.model.measures.values():
         subject = f"measures.{measure.name}"
         yield from _overrides_refs(ctx, subject, measure.overrides)
         if measure.table is None:
-            try:
-                used = sql.names(measure.expr)
-            except sql.SqlError as exc:
-                yield ctx.finding("invalid-model", subject, f"Measure {measure.name}: `expr` is not valid SQL: {exc}", at=f"{subject}.expr")
-                continue
-            for name in sorted(used - ctx.measure_names):
-                yield ctx.finding("broken-reference", subject,
-                                  f"Derived measure {measure.name} names '{name}', which is not a measure; fix the name, or give the measure a `table` if it aggregates columns.",
-                                  at=f"{subject}.expr")
-            if measure.where is not None:
-                yield ctx.finding("invalid-model", subject,
-                                  f"Derived measure {measure.name} has a `where`; a row condition needs a home `table`.", at=f"{subject}.where")
+            yield from _derived_measure(ctx, measure, subject)
             continue
         table = ctx.model.tables.get(measure.table)
         if table is None:
             yield ctx.finding("broken-reference", subject,
                               f"Measure {measure.name}: home table '{measure.table}' does not exist; fix `table`.", at=f"{subject}.table")
             continue
-        for field_name, text in (("expr", measure.expr), ("where", measure.where)):
-            if text is None:
-                continue
-            try:
-                refs = sql.column_refs(text)
-                aggregates = sql.has_aggregate(text)
-            except sql.SqlError as exc:
-                yield ctx.finding("invalid-model", subject, f"Measure {measure.name}: `{field_name}` is not valid SQL: {exc}", at=f"{subject}.{field_name}")
-                continue
-            if field_name == "expr" and not aggregates:
-                yield ctx.finding("invalid-model", subject,
-                                  f"Measure {measure.name}: `expr` has no aggregate function; wrap it in sum(), count(), avg(), min() or max().",
-                                  at=f"{subject}.expr")
-            if field_name == "where" and aggregates:
-                yield ctx.finding("invalid-model", subject,
-                                  f"Measure {measure.name}: `where` is a row condition and may not aggregate; move the aggregate into `expr`.",
-                                  at=f"{subject}.where")
-            for qualifier, column in sorted(refs, key=lambda r: (r[0] or "", r[1])):
-                if qualifier is not None and qualifier.lower() != table.name.lower():
-                    yield ctx.finding("broken-reference", subject,
-                                      f"Measure {measure.name} reads {qualifier}.{column}, but a base measure may read only its home table {table.name}; make it a derived measure over a measure of {qualifier}.",
-                                      at=f"{subject}.{field_name}")
-                elif _column(table, column) is None:
-                    yield ctx.finding("broken-reference", subject,
-                                      f"Measure {measure.name} reads column '{column}', which {table.name} does not have; fix the column name.",
-                                      at=f"{subject}.{field_name}")
+        yield from _base_measure(ctx, measure, table, subject)
+
+
+def _base_measure(ctx: _Context, measure, table: Table, subject: str) -> Iterator[Finding]:
+    advice = "make it a derived measure over a measure of that table."
+    for field_name, text in (("expr", measure.expr), ("where", measure.where)):
+        if text is None:
+            continue
+        at, what = f"{subject}.{field_name}", f"Measure {measure.name}: `{field_name}`"
+        found, bad = _sql_facts(ctx, subject, text, what, at)
+        if bad is not None:
+            yield bad
+            continue
+        if field_name == "expr" and not found.aggregates:
+            yield ctx.finding("invalid-model", subject,
+                              f"{what} has no aggregate function; wrap it in sum(), count(), avg(), min() or max().", at=at)
+        elif field_name == "expr" and found.outside_aggregate:
+            shown = ", ".join(sorted(c for _, c in found.outside_aggregate))
+            yield ctx.finding("invalid-model", subject,
+                              f"{what} reads {shown} outside any aggregate function; put every column inside one, for example sum(...).",
+                              at=at)
+        if field_name == "where" and found.aggregates:
+            yield ctx.finding("invalid-model", subject,
+                              f"{what} is a row condition and may not aggregate; move the aggregate into `expr`.", at=at)
+        yield from _shape_problems(ctx, subject, found, what, at, allow_user=False)
+        yield from _column_problems(ctx, subject, found, table, what, at, advice)
+
+
+def _derived_measure(ctx: _Context, measure, subject: str) -> Iterator[Finding]:
+    at, what = f"{subject}.expr", f"Derived measure {measure.name}"
+    if measure.where is not None:
+        yield ctx.finding("invalid-model", subject,
+                          f"{what} has a `where`; a row condition needs a home `table`.", at=f"{subject}.where")
+    found, bad = _sql_facts(ctx, subject, measure.expr, f"{what}: `expr`", at)
+    if bad is not None:
+        yield bad
+        return
+    for qualifier, name in sorted(found.columns, key=lambda r: (r[0] or "", r[1])):
+        shown = f"{qualifier}.{name}" if qualifier else name
+        if qualifier is not None or name.lower() not in ctx.measure_names_lower:  # SQL names ignore case
+            yield ctx.finding("broken-reference", subject,
+                              f"{what} names '{shown}', which is not a measure; fix the name, or give the measure a `table` if it aggregates columns.",
+                              at=at)
+    if found.aggregates:
+        yield ctx.finding("invalid-model", subject,
+                          f"{what} uses the aggregate {', '.join(found.aggregates)}, but combines measures that are already aggregated; "
+                          f"give it a `table` to make it a base measure.", at=at)
+    yield from _shape_problems(ctx, subject, found, f"{what}: `expr`", at, allow_user=False)
 
 
 def rule_variant_references(ctx: _Context) -> Iterator[Finding]:
@@ -193,12 +247,12 @@ def rule_variant_references(ctx: _Context) -> Iterator[Finding]:
         for option in variant.options.values():
             option_subject = f"{subject}.options.{option.name}"
             yield from _overrides_refs(ctx, option_subject, option.overrides)
-            yield from _predicate_refs(ctx, option_subject, option.where, "where")
+            yield from _predicate_refs(ctx, option_subject, option.where, "where", allow_user=False)
 
 
 def rule_role_references(ctx: _Context) -> Iterator[Finding]:
     for role in ctx.model.roles.values():
-        yield from _predicate_refs(ctx, f"roles.{role.name}", role.filters, "filters")
+        yield from _predicate_refs(ctx, f"roles.{role.name}", role.filters, "filters", allow_user=True)
 
 
 def rule_report_references(ctx: _Context) -> Iterator[Finding]:
@@ -214,7 +268,7 @@ def rule_report_references(ctx: _Context) -> Iterator[Finding]:
             if not column or not ctx.column_exists(table, column):
                 yield ctx.finding("broken-reference", subject,
                                   f"Report {report.name} groups by '{item}', which is not an existing table.column.", at=f"{subject}.by")
-        yield from _predicate_refs(ctx, subject, report.where, "where")
+        yield from _predicate_refs(ctx, subject, report.where, "where", allow_user=False)
         for variant, option in report.variant.items():
             if variant not in model.variants:
                 yield ctx.finding("broken-reference", subject,
@@ -245,16 +299,30 @@ def rule_duplicate_active_link(ctx: _Context) -> Iterator[Finding]:
                                   f"Links {', '.join(names)} all join {tables} and none is on standby; set `standby: true` on all but one and name the others in `use` where needed.")
 
 
+def _type_2_natural_key(table: Table) -> frozenset[str]:
+    """The lower-cased natural key of a type-2 table, else empty."""
+    if table.history is not None and table.history.type == 2:
+        return frozenset(c.lower() for c in table.natural_key)
+    return frozenset()
+
+
 def _is_unique_target(table: Table, columns: tuple[str, ...]) -> bool:
+    """Whether `columns` name at most one row: they hold the key or a column declared unique.
+
+    Kimball (type 2): the natural key repeats once per version, so on a type-2
+    table it is never unique, whatever its columns declare.
+    """
     wanted = {c.lower() for c in columns}
-    if table.history is not None and table.history.type == 2 and table.natural_key \
-            and wanted == {c.lower() for c in table.natural_key}:
-        return False  # Kimball: a type-2 natural key repeats across versions
-    if wanted == {c.lower() for c in table.key}:
+    natural = _type_2_natural_key(table)
+    if natural and wanted == natural:
+        return False
+    key = {c.lower() for c in table.key}
+    if key and key <= wanted:
         return True
-    if len(columns) == 1:
-        column = _column(table, columns[0])
-        return column is not None and column.unique
+    for name in columns:
+        column = _column(table, name)
+        if column is not None and column.unique and name.lower() not in natural:
+            return True
     return False
 
 
@@ -269,8 +337,7 @@ def rule_key_not_unique(ctx: _Context) -> Iterator[Finding]:
             continue
         target = ", ".join(f"{link.to_table}.{c}" for c in link.to_columns)
         why = ""
-        if table.history is not None and table.history.type == 2 and \
-                {c.lower() for c in link.to_columns} == {c.lower() for c in table.natural_key}:
+        if _type_2_natural_key(table) & {c.lower() for c in link.to_columns}:
             why = f" ({link.to_table} keeps type-2 history, so its natural key repeats once per version)"
         yield ctx.finding("key-not-unique", f"links.{link.name}",
                           f"Link {link.name} is {link.cardinality} but points at {target}, which is not unique{why}; point it at the key {', '.join(table.key)}, declare the column `unique: true`, or make the link many-to-many.",
@@ -355,42 +422,57 @@ def rule_history_incomplete(ctx: _Context) -> Iterator[Finding]:
 # --- graph rules ------------------------------------------------------------------------
 
 
+def _default_options(model: Model) -> tuple[Overrides, ...]:
+    """The overrides of each variant's default option, in variant-name order.
+
+    A variant's default option applies wherever no option is chosen: to a
+    measure outside any report and in a report that does not name the variant
+    (DEVELOPERS.md, "Decisions where the spec is silent").
+    """
+    layers = []
+    for name in sorted(model.variants):
+        variant = model.variants[name]
+        option = variant.options.get(variant.default)
+        if option is not None and option.overrides:
+            layers.append(option.overrides)
+    return tuple(layers)
+
+
 def _settings(model: Model):
     """Every distinct setting the model can be evaluated in, with a label for messages.
 
-    Yields (label, Setting): the default setting, then each measure's, variant
-    option's and report's (and each report measure's) own, skipping repeats.
+    Yields (label, Setting): the default setting (the model's own links), then
+    each variant option's, measure's and report's (and each report measure's)
+    own, skipping repeats. A measure is checked alone and after the variants'
+    default options; a report with the options it picks or defaults to.
     """
     from modeldiff import graph
 
-    seen: set[frozenset] = set()
-
-    def emit(label: str, layers: tuple[Overrides, ...]):
-        setting = graph.resolve_setting(model, *layers)
-        key = frozenset(setting.flows.items())
-        if key in seen:
-            return None
-        seen.add(key)
-        return label, setting
-
+    resolver = graph.SettingResolver(model)
+    defaults = _default_options(model)
     candidates: list[tuple[str, tuple[Overrides, ...]]] = [("the default setting", ())]
-    for measure in model.measures.values():
-        if measure.overrides:
-            candidates.append((f"measure {measure.name}'s setting", graph.setting_layers(model, measure=measure)))
     for variant in model.variants.values():
         for option in variant.options.values():
             if option.overrides:
                 candidates.append((f"option {option.name} of variant {variant.name}", (option.overrides,)))
+    for measure in model.measures.values():
+        if measure.overrides:
+            label = f"measure {measure.name}'s setting"
+            candidates += [(label, (measure.overrides,)), (label, defaults + (measure.overrides,))]
     for report in model.reports.values():
-        candidates.append((f"report {report.name}'s setting", graph.setting_layers(model, report=report)))
+        candidates.append((f"report {report.name}'s setting",
+                           graph.setting_layers(model, report=report, variant_defaults=True)))
         for name in report.measures:
             measure = model.measures.get(name)
             if measure is not None and measure.overrides:
-                candidates.append((f"measure {name} in report {report.name}", graph.setting_layers(model, measure=measure, report=report)))
+                candidates.append((f"measure {name} in report {report.name}",
+                                   graph.setting_layers(model, measure=measure, report=report, variant_defaults=True)))
+    seen: set[Setting] = set()
     for label, layers in candidates:
-        result = emit(label, layers)
-        if result is not None:
-            yield result
+        setting = resolver.resolve(*layers)
+        if setting not in seen:
+            seen.add(setting)
+            yield label, setting
 
 
 def rule_ambiguous_paths(ctx: _Context) -> Iterator[Finding]:
