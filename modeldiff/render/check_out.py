@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 from typing import Sequence, TextIO
 
 from modeldiff.model import Finding
@@ -28,12 +29,22 @@ def _counts(findings: Sequence[Finding]) -> tuple[int, int]:
     return sum(f.severity == "error" for f in findings), sum(f.severity == "warning" for f in findings)
 
 
-def as_text(model_name: str, source: str, findings: Sequence[Finding], stream: TextIO) -> None:
-    from rich.markup import escape
-
+def _console(stream: TextIO):
+    """The shared console, but with no escape codes at all (not even bold) when NO_COLOR is set."""
     from modeldiff.render import console
 
     out = console(stream)
+    if os.environ.get("NO_COLOR"):
+        from rich.console import Console
+
+        out = Console(file=stream, width=out.width, color_system=None, highlight=False, emoji=False)
+    return out
+
+
+def as_text(model_name: str, source: str, findings: Sequence[Finding], stream: TextIO) -> None:
+    from rich.markup import escape
+
+    out = _console(stream)
     errors, warnings = _counts(findings)
     if not findings:
         out.print(f"[bold green]ok[/] model {escape(model_name)} ({escape(source)}): no findings")
@@ -53,16 +64,21 @@ def as_text(model_name: str, source: str, findings: Sequence[Finding], stream: T
                 out.print(f"    path: {escape(' -> '.join(path))}")
 
 
+def _cell(text: str) -> str:
+    """Text that stays inside one Markdown table cell."""
+    return " ".join(text.split()).replace("|", "\\|")
+
+
 def as_markdown(model_name: str, source: str, findings: Sequence[Finding], stream: TextIO) -> None:
     errors, warnings = _counts(findings)
     lines = [f"## modeldiff check: `{model_name}`", "", f"Source: `{source}`. **{errors}** error(s), **{warnings}** warning(s).", ""]
     if findings:
         lines += ["| severity | rule | subject | location | what to do |", "|---|---|---|---|---|"]
         for f in findings:
-            message = f.message.replace("|", "\\|")
+            message = _cell(f.message)
             if f.paths:
                 message += "<br>" + "<br>".join("path: " + " → ".join(p) for p in f.paths)
-            lines.append(f"| {f.severity} | `{f.rule}` | `{f.subject}` | {f.pos or ''} | {message} |")
+            lines.append(f"| {f.severity} | `{f.rule}` | `{f.subject}` | {_cell(str(f.pos or ''))} | {message} |")
     else:
         lines.append("No findings.")
     stream.write("\n".join(lines) + "\n")
