@@ -6,20 +6,40 @@ that could return different numbers, each with reasons naming the change, the
 source table and the paths added and removed (changes.md, "Impact").
 
 Work goes outward from the changed edges: only pairs (S, X) with S upstream
-of a changed edge and X downstream of it are compared, never all pairs.
+of a changed edge and X downstream of it are compared, never all pairs. The
+old graph is first read in the new revision's names, so a renamed table or
+link is the same node or edge in both graphs and changes no path.
+
+Settings (DEVELOPERS.md, "Decisions where the spec is silent"): a measure on
+its own is evaluated in the model plus every variant's default option plus its
+own overrides; inside a report, the variant options the report chooses (the
+default for the others), the report's overrides, then the measure's. A
+report's numbers move through path changes only from the tables it places
+filters on (`by`, `where`, and its variant options' `where`).
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
-from typing import Iterable, Mapping
+from dataclasses import dataclass, field, replace
+from typing import Any, Iterable, Mapping
 
 from modeldiff.changes import EXIT_CODES, Change, worst
-from modeldiff.model import Finding, Model, Overrides
+from modeldiff.model import Finding, Measure, Model, Overrides, Report, VariantOption
 
-PATH_LIMIT = 64  # paths enumerated per pair when listing what was added or removed
+PATH_LIMIT = 64  # paths listed per pair when telling what was added or removed
+PATH_BUDGET = 200_000  # search steps per pair listing; beyond it the pair counts as changed (conservative)
 
 Path = tuple[str, ...]
+
+# Link change kinds that move a link's edges, most telling first: a path that appeared or
+# disappeared because of a link names the first of these that the link has.
+EDGE_KINDS = ("link.added", "link.removed", "link.standby_set", "link.standby_cleared", "link.flow_widened",
+              "link.flow_narrowed", "link.cardinality_changed", "link.key_switched")
+# Changes to a computation's setting (which links carry filters for it).
+SETTING_KINDS = ("measure.overrides_changed", "variant.changed", "variant.added", "variant.removed",
+                 "variant.renamed", "report.changed")
+# Report fields whose change moves numbers only through the setting (paths) or the variant options' `where`.
+_SETTING_FIELDS = frozenset({"overrides", "variant"})
 
 
 @dataclass(frozen=True)
@@ -82,21 +102,28 @@ class Renames:
     measures: Mapping[str, str] = field(default_factory=dict)
     roles: Mapping[str, str] = field(default_factory=dict)
     reports: Mapping[str, str] = field(default_factory=dict)
+    variants: Mapping[str, str] = field(default_factory=dict)
 
     @classmethod
     def of(cls, changes: Iterable[Change]) -> "Renames":
-        maps: dict[str, dict[str, str]] = {"table": {}, "link": {}, "measure": {}, "role": {}, "report": {}}
+        maps: dict[str, dict[str, str]] = {s: {} for s in ("table", "link", "measure", "role", "report", "variant")}
         for change in changes:
             section, _, what = change.kind.partition(".")
             if what == "renamed" and section in maps:
                 maps[section][change.before] = change.after
-        return cls(maps["table"], maps["link"], maps["measure"], maps["role"], maps["report"])
+        return cls(maps["table"], maps["link"], maps["measure"], maps["role"], maps["report"], maps["variant"])
 
     def table(self, name: str) -> str:
         return self.tables.get(name, name)
 
+    def link(self, name: str) -> str:
+        return self.links.get(name, name)
+
     def path(self, path: Path) -> Path:
         return tuple(self.links.get(link, link) for link in path)
+
+    def __bool__(self) -> bool:
+        return bool(self.tables or self.links)
 
 
 # --- comparing two graphs around their changed edges ------------------------------------
@@ -104,191 +131,282 @@ class Renames:
 
 @dataclass(frozen=True)
 class PairChange:
+    """How the paths from `source` to `target` differ; `complete` is False when listing stopped early."""
+
     source: str
     target: str
     added: tuple[Path, ...]
     removed: tuple[Path, ...]
-    links: frozenset[str]  # links whose edges changed and that lie on an added or removed path
+    links: frozenset[str]  # links with a changed edge on an added or removed path
+    complete: bool = True
+    # per added/removed path: the links whose edge on that path is new/gone (what made the path appear/vanish)
+    added_by: Mapping[Path, tuple[str, ...]] = field(default_factory=dict, compare=False, repr=False)
+    removed_by: Mapping[Path, tuple[str, ...]] = field(default_factory=dict, compare=False, repr=False)
 
 
-def _edge_set(graph, renames: Renames | None) -> set[tuple[str, str, str]]:
-    if renames is None:
-        return {(e.link, e.src, e.dst) for e in graph.edges}
-    return {(renames.links.get(e.link, e.link), renames.table(e.src), renames.table(e.dst)) for e in graph.edges}
+def in_new_names(g, renames: Renames):
+    """`g` (a graph of the old revision) with its tables and links spelled by their new names."""
+    if not renames:
+        return g
+    from modeldiff import graph
+
+    edges = [graph.Edge(renames.link(e.link), renames.table(e.src), renames.table(e.dst)) for e in g.edges]
+    return graph.FilterGraph({renames.table(t) for t in g.tables}, edges)
 
 
-def changed_pairs(g_old, g_new, renames: Renames, sources: Iterable[str] | None = None,
+def _walk(g, source: str, path: Path):
+    """The edges of `g` a path of link names crosses from `source` (None if it is not a path of `g`)."""
+    edges, here = [], source
+    for link in path:
+        step = next((e for e in g.out_edges(here) if e.link == link and e.dst != here), None)
+        if step is None:
+            return None
+        edges.append(step)
+        here = step.dst
+    return edges
+
+
+def changed_pairs(g_old, g_new, renames: Renames | None = None, sources: Iterable[str] | None = None,
                   targets: Iterable[str] | None = None) -> dict[tuple[str, str], PairChange]:
-    """Pairs (S, X) whose sets of simple paths differ between the two graphs.
+    """Pairs (S, X), S != X, whose sets of simple paths differ between the two graphs.
 
-    Paths of the old graph are named in the new revision's names. Only pairs
-    upstream/downstream of an edge present in one graph and not the other can
-    differ, so only those are compared.
+    Paths are named in the new revision's names. A pair can differ only when
+    one of its paths crosses an edge present in one graph and not the other,
+    so only pairs upstream/downstream of such an edge are compared; each is
+    settled by `graph.path_delta` (equal path signatures answer at once).
     """
-    old_edges, new_edges = _edge_set(g_old, renames), _edge_set(g_new, None)
-    gone, came = old_edges - new_edges, new_edges - old_edges
+    from modeldiff import graph
+
+    old = in_new_names(g_old, renames or Renames())
+    gone, came = set(old.edges) - set(g_new.edges), set(g_new.edges) - set(old.edges)
     if not gone and not came:
         return {}
-    changed_links = {link for link, _, _ in gone | came}
-    back = {new: old for old, new in renames.tables.items()}
-    src_filter = set(sources) if sources is not None else None
-    tgt_filter = set(targets) if targets is not None else None
-
+    src_filter = None if sources is None else set(sources)
+    tgt_filter = None if targets is None else set(targets)
     candidates: set[tuple[str, str]] = set()
-    for graph, edges, to_new in ((g_old, gone, renames.table), (g_new, came, lambda t: t)):
-        for _, src, dst in edges:
-            here_src = back.get(src, src) if graph is g_old else src
-            here_dst = back.get(dst, dst) if graph is g_old else dst
-            ups = [to_new(t) for t in graph.reaching(here_src)]
-            downs = [to_new(t) for t in graph.reach(here_dst)]
-            if src_filter is not None:
-                ups = [t for t in ups if t in src_filter]
-            if tgt_filter is not None:
-                downs = [t for t in downs if t in tgt_filter]
+    for g, edges in ((old, gone), (g_new, came)):
+        for edge in edges:
+            ups = g.reaching(edge.src) if src_filter is None else g.reaching(edge.src) & src_filter
+            downs = g.reach(edge.dst) if tgt_filter is None else g.reach(edge.dst) & tgt_filter
             candidates.update((s, x) for s in ups for x in downs if s != x)
 
     result: dict[tuple[str, str], PairChange] = {}
     for source, target in sorted(candidates):
-        old_paths = set()
-        os_, ot = back.get(source, source), back.get(target, target)
-        if os_ in g_old.tables and ot in g_old.tables:
-            old_paths = {renames.path(p) for p in g_old.paths(os_, ot, limit=PATH_LIMIT)}
-        new_paths = set()
-        if source in g_new.tables and target in g_new.tables:
-            new_paths = set(g_new.paths(source, target, limit=PATH_LIMIT))
-        if old_paths == new_paths:
+        delta = graph.path_delta(old, g_new, source, target, limit=PATH_LIMIT, budget=PATH_BUDGET)
+        if not delta.changed:
             continue
-        added, removed = tuple(sorted(new_paths - old_paths)), tuple(sorted(old_paths - new_paths))
-        on_paths = {link for path in added + removed for link in path} & changed_links
-        result[(source, target)] = PairChange(source, target, added, removed, frozenset(on_paths or changed_links))
+        added_by = {p: _culprits(g_new, source, p, came) for p in delta.added}
+        removed_by = {p: _culprits(old, source, p, gone) for p in delta.removed}
+        on_paths = frozenset(link for links in (*added_by.values(), *removed_by.values()) for link in links)
+        if not on_paths:  # listing cut short: every changed link near the pair may be the cause
+            on_paths = frozenset(e.link for e in gone | came
+                                 if source in (old if e in gone else g_new).reaching(e.src))
+        result[(source, target)] = PairChange(source, target, delta.added, delta.removed, on_paths, delta.complete,
+                                              added_by, removed_by)
     return result
+
+
+def _culprits(g, source: str, path: Path, changed_edges: set) -> tuple[str, ...]:
+    edges = _walk(g, source, path) or []
+    return tuple(sorted({e.link for e in edges if e in changed_edges}))
 
 
 # --- the analysis ------------------------------------------------------------------------
 
 
+def _option_in_force(model: Model, variant: str, report: Report | None) -> tuple[str, VariantOption] | None:
+    """(name, option) a computation gets from a variant: the report's choice, else the default."""
+    v = model.variants.get(variant)
+    if v is None:
+        return None
+    name = report.variant.get(variant, v.default) if report is not None else v.default
+    option = v.options.get(name)
+    return None if option is None else (name, option)
+
+
+def setting_layers(model: Model, measure: Measure | None = None, report: Report | None = None) -> tuple[Overrides, ...]:
+    """Override layers of one computation: each variant's option in force, the report's, the measure's."""
+    layers: list[Overrides] = []
+    for name in sorted(model.variants):
+        found = _option_in_force(model, name, report)
+        if found is not None:
+            layers.append(found[1].overrides)
+    if report is not None:
+        layers.append(report.overrides)
+    if measure is not None:
+        layers.append(measure.overrides)
+    return tuple(layer for layer in layers if layer)
+
+
+def _layers_key(layers: tuple[Overrides, ...]) -> tuple:
+    return tuple((o.use, tuple(sorted(o.flow.items()))) for o in layers)
+
+
 class _Analysis:
-    """Holds both revisions, their graphs per setting, and the changes found so far."""
+    """Holds both revisions, their graphs per setting, and the path comparisons done so far."""
 
     def __init__(self, old: Model, new: Model, structural: list[Change]):
         self.old, self.new = old, new
         self.structural = structural
         self.renames = Renames.of(structural)
-        self._graphs: dict[tuple, object] = {}
+        self._graphs: dict[tuple, Any] = {}
+        self._renamed: dict[int, Any] = {}
         self._pairs: dict[tuple, dict] = {}
 
-    # graphs per setting, cached by the setting's flows
     def graph(self, model: Model, layers: tuple[Overrides, ...] = ()):
+        """The flow graph of `model` in the setting of `layers`, shared by every computation with that setting."""
         from modeldiff import graph
 
-        setting = graph.resolve_setting(model, *layers)
-        key = (id(model), frozenset(setting.flows.items()))
-        if key not in self._graphs:
-            self._graphs[key] = graph.flow_graph(model, setting)
-        return self._graphs[key]
+        layers_key = (id(model), _layers_key(layers))
+        found = self._graphs.get(layers_key)
+        if found is None:
+            setting = graph.resolve_setting(model, *layers)
+            key = (id(model), frozenset(setting.flows.items()))
+            found = self._graphs.get(key)
+            if found is None:
+                found = self._graphs[key] = graph.flow_graph(model, setting)
+            self._graphs[layers_key] = found
+        return found
+
+    def old_graph(self, layers: tuple[Overrides, ...] = ()):
+        """The old revision's flow graph, in the new revision's names."""
+        g = self.graph(self.old, layers)
+        if id(g) not in self._renamed:
+            self._renamed[id(g)] = (g, in_new_names(g, self.renames))  # keep g alive: ids stay unique
+        return self._renamed[id(g)][1]
 
     def pairs(self, old_layers=(), new_layers=(), sources=None, targets=None) -> dict[tuple[str, str], PairChange]:
-        g_old, g_new = self.graph(self.old, old_layers), self.graph(self.new, new_layers)
-        key = (id(g_old), id(g_new), frozenset(sources) if sources is not None else None,
-               frozenset(targets) if targets is not None else None)
+        g_old, g_new = self.old_graph(old_layers), self.graph(self.new, new_layers)
+        everything = self._pairs.get((id(g_old), id(g_new), None, None))
+        if everything is not None:  # filter what is known rather than walk again
+            return {k: v for k, v in everything.items()
+                    if (sources is None or k[0] in sources) and (targets is None or k[1] in targets)}
+        key = (id(g_old), id(g_new), None if sources is None else frozenset(sources),
+               None if targets is None else frozenset(targets))
         if key not in self._pairs:
-            self._pairs[key] = changed_pairs(g_old, g_new, self.renames, sources, targets)
+            self._pairs[key] = changed_pairs(g_old, g_new, None, sources, targets)
         return self._pairs[key]
 
 
+def _path_text(paths: Iterable[Path]) -> str:
+    return "; ".join(" / ".join(p) for p in paths)
+
+
 def _derived_graph_changes(a: _Analysis) -> list[Change]:
-    """path.added / path.removed and ambiguity.* in the default setting."""
+    """path.added / path.removed and ambiguity.* in the default setting (the model's own links)."""
     changes: list[Change] = []
-    g_old, g_new = a.graph(a.old), a.graph(a.new)
-    back = {new: old for old, new in a.renames.tables.items()}
+    g_old, g_new = a.old_graph(), a.graph(a.new)
     for (source, target), pc in sorted(a.pairs().items()):
         subject = f"paths.{source}->{target}"
-        links = sorted(pc.links)
+        details = {"links": sorted(pc.links)} | ({} if pc.complete else {"complete": False})
         if pc.added:
             changes.append(Change(
                 "path.added", subject, "numbers",
                 f"A filter on {source} now reaches {target} along {_plural(len(pc.added), 'new path')} "
-                f"({'; '.join(' / '.join(p) for p in pc.added)}): numbers on {target} move when filtered or grouped by {source}.",
-                before=None, after=[list(p) for p in pc.added], details={"links": links}))
+                f"({_path_text(pc.added)}): numbers on {target} move when filtered or grouped by {source}.",
+                before=None, after=[list(p) for p in pc.added], details=details))
         if pc.removed:
             changes.append(Change(
                 "path.removed", subject, "numbers",
-                f"A filter on {source} no longer reaches {target} along "
-                f"{'; '.join(' / '.join(p) for p in pc.removed)}: numbers on {target} move when filtered or grouped by {source}.",
-                before=[list(p) for p in pc.removed], after=None, details={"links": links}))
-        os_, ot = back.get(source, source), back.get(target, target)
-        was = g_old.witness(os_, ot) if os_ in g_old.tables and ot in g_old.tables else None
-        now = g_new.witness(source, target) if source in g_new.tables and target in g_new.tables else None
+                f"A filter on {source} no longer reaches {target} along {_path_text(pc.removed)}: "
+                f"numbers on {target} move when filtered or grouped by {source}.",
+                before=[list(p) for p in pc.removed], after=None, details=details))
+        was, now = g_old.witness(source, target), g_new.witness(source, target)
         if now and not was:
             changes.append(Change(
                 "ambiguity.introduced", subject, "breaking",
                 f"{source} now reaches {target} along more than one route ({' / '.join(now[0])} and {' / '.join(now[1])}); "
                 f"what {target} shows under a filter on {source} then depends on the data along each route. "
                 f"Put one link on standby or make a flow one-way so a single route remains.",
-                before=None, after=[list(p) for p in now], details={"links": links}))
+                before=None, after=[list(p) for p in now], details=details))
         elif was and not now:
-            was = tuple(a.renames.path(p) for p in was)
             changes.append(Change(
                 "ambiguity.resolved", subject, "numbers",
                 f"{source} reaches {target} along a single route again (it had {' / '.join(was[0])} and {' / '.join(was[1])}).",
-                before=[list(p) for p in was], after=None, details={"links": links}))
+                before=[list(p) for p in was], after=None, details=details))
     return changes
 
 
+# --- security -------------------------------------------------------------------------------
+
+
+def _path_start(sec, filtered: Iterable[str], path: Path, table: str) -> str:
+    """The filtered table a role's restriction of `table` starts from (along `path`)."""
+    if not path:
+        return table
+    for source in sorted(filtered):
+        if sec.is_path(source, path, table):
+            return source
+    return table
+
+
 def _security_changes(a: _Analysis) -> list[Change]:
+    """security.exposed / tightened / rerouted, per role and table, over the default setting's security graph."""
     from modeldiff import graph
 
     changes: list[Change] = []
     old_roles = {a.renames.roles.get(name, name): role for name, role in a.old.roles.items()}
-    s_old, s_new = graph.security_graph(a.old), graph.security_graph(a.new)
-    same_edges = _edge_set(s_old, a.renames) == _edge_set(s_new, None)
-    back = {new: old for old, new in a.renames.tables.items()}
+    s_old, s_new = in_new_names(graph.security_graph(a.old), a.renames), graph.security_graph(a.new)
+    same_edges = set(s_old.edges) == set(s_new.edges)
     for name in sorted(set(old_roles) & set(a.new.roles)):
-        before_role, after_role = old_roles[name], a.new.roles[name]
-        if not all(t in a.old.tables for t in before_role.filters) or not all(t in a.new.tables for t in after_role.filters):
-            continue  # a broken reference says it
-        before = {a.renames.table(t): p for t, p in graph.role_restricted(a.old, before_role, s_old).items()}
-        after = graph.role_restricted(a.new, after_role, s_new)
+        old_filters = sorted(a.renames.table(t) for t in old_roles[name].filters)
+        new_filters = sorted(a.new.roles[name].filters)
+        # filters on tables that do not exist are ignored (a broken reference says it)
+        before = _restricted(s_old, old_filters)
+        after = _restricted(s_new, new_filters)
         for table in sorted(set(before) - set(after)):
+            if table not in a.new.tables:
+                continue  # the table itself is gone: nothing of it can be seen
+            start = _path_start(s_old, old_filters, before[table], table)
             changes.append(Change(
                 "security.exposed", f"roles.{name}.tables.{table}", "breaking",
-                f"SECURITY: role {name} no longer restricts {table}: rows of {table} that were hidden from its members become visible "
-                f"(it was restricted via {' / '.join(before[table]) or 'its own filter'}). This can expose data a role must never see; "
-                f"the organisation's own security review decides whether it is acceptable.",
-                before=list(before[table]), after=None))
+                f"SECURITY: role {name} no longer restricts {table}: rows of {table} that were hidden from its members "
+                f"become visible (it was restricted via {' / '.join(before[table]) or 'its own filter'} from {start}). "
+                f"This can expose data a role must never see; the organisation's own security review decides whether "
+                f"it is acceptable.",
+                before=list(before[table]), after=None, details={"source": start}))
         for table in sorted(set(after) - set(before)):
+            start = _path_start(s_new, new_filters, after[table], table)
             changes.append(Change(
                 "security.tightened", f"roles.{name}.tables.{table}", "numbers",
-                f"Role {name} now restricts {table} (via {' / '.join(after[table]) or 'its own filter'}): its members see fewer rows of {table}.",
-                before=None, after=list(after[table])))
-        same_filters = {a.renames.table(t) for t in before_role.filters} == set(after_role.filters)
-        if same_edges and same_filters:
+                f"Role {name} now restricts {table} (via {' / '.join(after[table]) or 'its own filter'} from {start}): "
+                f"its members see fewer rows of {table}.",
+                before=None, after=list(after[table]), details={"source": start}))
+        if same_edges and old_filters == new_filters:
             continue  # the same filtered tables over the same graph reach along the same paths
         for table in sorted(set(before) & set(after)):
-            old_paths = _role_paths(s_old, list(before_role.filters), back.get(table, table), a.renames)
-            new_paths = _role_paths(s_new, list(after_role.filters), table, None)
+            old_paths = _role_paths(s_old, old_filters, table)
+            new_paths = _role_paths(s_new, new_filters, table)
             if old_paths != new_paths:
+                start = _path_start(s_new, new_filters, after[table], table)
                 changes.append(Change(
                     "security.rerouted", f"roles.{name}.tables.{table}", "numbers",
                     f"Role {name} still restricts {table}, but along different paths "
-                    f"(before: {_paths_text(old_paths)}; after: {_paths_text(new_paths)}); which rows its members see may change.",
-                    before=[list(p) for p in sorted(old_paths)], after=[list(p) for p in sorted(new_paths)]))
+                    f"(before: {_role_paths_text(old_paths)}; after: {_role_paths_text(new_paths)}); "
+                    f"which rows its members see may change.",
+                    before=[list(p) for p in sorted(old_paths)], after=[list(p) for p in sorted(new_paths)],
+                    details={"source": start}))
     return changes
 
 
-def _role_paths(sec, filtered: list[str], table: str, renames: Renames | None) -> frozenset[Path]:
+def _restricted(sec, filtered: list[str]) -> dict[str, Path]:
+    from modeldiff import graph
+    from modeldiff.model import Role
+
+    return graph.role_restricted(Model("", {}), Role("", {t: "" for t in filtered}), sec)
+
+
+def _role_paths(sec, filtered: list[str], table: str) -> frozenset[Path]:
     out: set[Path] = set()
     for source in filtered:
         if source == table:
             out.add(())
         elif source in sec.tables and table in sec.tables:
             out.update(sec.paths(source, table, limit=PATH_LIMIT))
-    if renames is not None:
-        out = {renames.path(p) for p in out}
     return frozenset(out)
 
 
-def _paths_text(paths) -> str:
+def _role_paths_text(paths) -> str:
     return "; ".join(" / ".join(p) or "own filter" for p in sorted(paths)) or "none"
 
 
@@ -306,7 +424,29 @@ def _plural(n: int, word: str) -> str:
     return f"{n} {word}{'' if n == 1 else 's'}"
 
 
+def _mentions(value: Any, names: frozenset[str]) -> bool:
+    """Whether a JSON-ready before/after value names any of `names` (as a string or a key)."""
+    if isinstance(value, str):
+        return value in names
+    if isinstance(value, Mapping):
+        return any(k in names or _mentions(v, names) for k, v in value.items())
+    if isinstance(value, (list, tuple)):
+        return any(_mentions(v, names) for v in value)
+    return False
+
+
 # --- impacts ------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Computation:
+    """One evaluation of a measure: its old and new override layers and the changes to its setting."""
+
+    old_layers: tuple[Overrides, ...]
+    new_layers: tuple[Overrides, ...]
+    setting_changes: tuple[Change, ...]
+    old_wheres: Mapping[str, tuple[str, ...]]  # variant options' `where` in force, by table (new names)
+    new_wheres: Mapping[str, tuple[str, ...]]
 
 
 class _Impacts:
@@ -317,6 +457,7 @@ class _Impacts:
 
         self.a = a
         self.changes = changes
+        self.by_id = {c.id: c for c in changes}
         self.by_subject: dict[str, list[Change]] = {}
         for change in changes:
             self.by_subject.setdefault(change.subject, []).append(change)
@@ -328,61 +469,113 @@ class _Impacts:
                     self.measure_deps[m.name] = frozenset(sql.measure_refs(m.expr, names))
                 except sql.SqlError:
                     self.measure_deps[m.name] = frozenset()
+        self.back = {
+            "tables": {v: k for k, v in a.renames.tables.items()},
+            "measures": {v: k for k, v in a.renames.measures.items()},
+            "reports": {v: k for k, v in a.renames.reports.items()},
+            "roles": {v: k for k, v in a.renames.roles.items()},
+            "variants": {v: k for k, v in a.renames.variants.items()},
+        }
+        self._twins = self._twin_links()
+        self._cause_cache: dict[tuple, tuple[int, str] | None] = {}
+        self._security = None
+        self._own_cache: dict[str, list[Reason]] = {}
+        self.key_changes = [c for c in changes if c.kind in ("link.key_switched", "link.cardinality_changed")]
+        self._link_edges: dict[int, tuple[Any, dict[str, list]]] = {}
 
-    # helpers
-    def link_change_id(self, links: Iterable[str]) -> str | None:
-        for link in sorted(links):
-            for change in self.by_subject.get(f"links.{link}", ()):
-                return change.id
-            old = {v: k for k, v in self.a.renames.links.items()}.get(link)
-            if old:
-                for change in self.by_subject.get(f"links.{old}", ()):
-                    return change.id
-        return None
+    # -- helpers
+
+    def _edges_of(self, g, link: str) -> list:
+        if id(g) not in self._link_edges:
+            by_link: dict[str, list] = {}
+            for edge in g.edges:
+                by_link.setdefault(edge.link, []).append(edge)
+            self._link_edges[id(g)] = (g, by_link)
+        return self._link_edges[id(g)][1].get(link, [])
+
+    def old_name(self, section: str, name: str) -> str:
+        return self.back[section].get(name, name)
 
     def kinds(self, prefix: str) -> list[Change]:
         return [c for c in self.changes if c.kind.startswith(prefix)]
 
-    def homes(self, name: str, seen=None) -> set[str]:
-        """Home tables a measure reads, through derived measures."""
-        m = self.a.new.measures.get(name)
-        if m is None:
-            return set()
-        if m.table is not None:
-            return {m.table}
-        seen = seen or set()
+    def _twin_links(self) -> dict[str, frozenset[str]]:
+        """Each link (new names) -> the links joining the same two tables in either revision."""
+        by_tables: dict[frozenset[str], set[str]] = {}
+        ends: dict[str, set[frozenset[str]]] = {}
+        old = [(self.a.renames.link(n), frozenset(self.a.renames.table(t) for t in l.tables))
+               for n, l in self.a.old.links.items()]
+        for name, tables in old + [(n, l.tables) for n, l in self.a.new.links.items()]:
+            by_tables.setdefault(tables, set()).add(name)
+            ends.setdefault(name, set()).add(tables)
+        return {name: frozenset(t for key in keys for t in by_tables[key]) for name, keys in ends.items()}
+
+    def _link_ends(self, link: str) -> set[str]:
         out: set[str] = set()
-        for dep in self.measure_deps.get(name, ()):
-            if dep not in seen:
-                seen.add(dep)
-                out |= self.homes(dep, seen)
+        if link in self.a.new.links:
+            out |= self.a.new.links[link].tables
+        old = self.a.old.links.get(next((o for o, n in self.a.renames.links.items() if n == link), link))
+        if old is not None:
+            out |= {self.a.renames.table(t) for t in old.tables}
         return out
 
-    def base_measures(self, name: str) -> list[str]:
-        out, todo, seen = [], [name], set()
-        while todo:
-            current = todo.pop()
-            if current in seen or current not in self.a.new.measures:
-                continue
-            seen.add(current)
-            if self.a.new.measures[current].table is not None:
-                out.append(current)
-            else:
-                todo.extend(sorted(self.measure_deps.get(current, ())))
-        return sorted(out)
+    def link_cause(self, link: str, setting_changes: tuple[Change, ...]) -> tuple[int, str] | None:
+        """(rank, change id) of the change that moved `link`'s edges in one setting; lower rank is more telling."""
+        key = (link, tuple(c.id for c in setting_changes))
+        if key in self._cause_cache:
+            return self._cause_cache[key]
+        found = self._link_cause(link, setting_changes)
+        self._cause_cache[key] = found
+        return found
 
-    def old_measure(self, name: str):
-        back = {v: k for k, v in self.a.renames.measures.items()}
-        return self.a.old.measures.get(back.get(name, name))
+    def _link_cause(self, link: str, setting_changes: tuple[Change, ...]) -> tuple[int, str] | None:
+        own = self.by_subject.get(f"links.{link}", [])
+        for change in sorted((c for c in own if c.kind in EDGE_KINDS), key=lambda c: EDGE_KINDS.index(c.kind)):
+            return 0, change.id
+        twins = self._twins.get(link, frozenset({link}))
+        for change in setting_changes:
+            if _mentions(change.before, twins) or _mentions(change.after, twins):
+                return 1, change.id
+        for twin in sorted(twins - {link}):
+            for change in self.by_subject.get(f"links.{twin}", []):
+                if change.kind in EDGE_KINDS:
+                    return 2, change.id
+        for table in sorted(self._link_ends(link)):
+            for change in self.by_subject.get(f"tables.{table}", []) + self.by_subject.get(
+                    f"tables.{self.old_name('tables', table)}", []):
+                if change.kind in ("table.added", "table.removed"):
+                    return 3, change.id
+        for change in own:
+            if change.severity != "safe":
+                return 4, change.id
+        if setting_changes:
+            return 5, setting_changes[0].id
+        return None
 
-    # reasons that do not depend on the setting: definition, columns and tables read, role rows
+    def cause(self, links: Iterable[str], setting_changes: tuple[Change, ...], pair: tuple[str, str]) -> str:
+        """The change id to blame for paths whose changed links are `links`."""
+        found = [c for c in (self.link_cause(link, setting_changes) for link in sorted(links)) if c is not None]
+        if found:
+            return min(found)[1]
+        for change in self.by_subject.get(f"paths.{pair[0]}->{pair[1]}", ()):
+            return change.id
+        return next((c.id for c in self.changes if c.severity != "safe"), self.changes[0].id if self.changes else "")
+
+    # -- reasons that do not depend on the setting: definition, columns and tables read, role rows
+
     def own_reasons(self, name: str) -> list[Reason]:
+        if name not in self._own_cache:
+            self._own_cache[name] = self._own_reasons(name)
+        return self._own_cache[name]
+
+    def _own_reasons(self, name: str) -> list[Reason]:
         from modeldiff import sql
 
         m = self.a.new.measures[name]
         reasons = []
         for change in self.by_subject.get(f"measures.{name}", ()):
-            if change.kind in ("measure.logic_changed", "measure.overrides_changed"):
+            # `use`/`flow` act only through the paths they open or close: see path_reasons
+            if change.kind in ("measure.logic_changed", "reference.broken"):
                 reasons.append(Reason(change.id, change.message))
         if m.table is None:
             return reasons
@@ -392,101 +585,166 @@ class _Impacts:
                 read |= {c.lower() for _, c in sql.column_refs(m.where)}
         except sql.SqlError:
             read = set()
-        old_home = {v: k for k, v in self.a.renames.tables.items()}.get(m.table, m.table)
+        homes = {m.table, self.old_name("tables", m.table)}
         for change in self.changes:
             parts = change.subject.split(".")
             if change.kind.startswith("column.") and change.severity != "safe" and len(parts) == 4 \
-                    and parts[1] in (m.table, old_home) and (parts[3].lower() in read
-                                                             or str(change.after).lower() in read):
+                    and parts[1] in homes and (parts[3].lower() in read or str(change.after).lower() in read
+                                               or str(change.before).lower() in read):
                 reasons.append(Reason(change.id, change.message))
             elif change.kind in ("table.key_changed", "table.history_changed", "table.kind_changed") \
-                    and change.subject in (f"tables.{m.table}", f"tables.{old_home}"):
+                    and parts[0] == "tables" and len(parts) == 2 and parts[1] in homes:
                 reasons.append(Reason(change.id, change.message))
         for change in self.kinds("security."):
             if change.subject.endswith(f".tables.{m.table}"):
                 role = change.subject.split(".")[1]
                 reasons.append(Reason(change.id, f"The rows role {role} may see of {m.table} changed: {change.message}",
-                                      source=self._first_filter(role)))
+                                      source=change.details.get("source")))
         for change in self.kinds("role.filter_changed"):
             role = change.subject.split(".")[1]
-            if role in self.a.new.roles and m.table in self._restricted(role):
-                reasons.append(Reason(change.id, f"Role {role}'s filter changed, so the rows its members see of {m.table} may change.",
-                                      source=self._first_filter(role)))
+            tables = self._filter_reach(role, change)
+            if m.table in tables:
+                reasons.append(Reason(change.id, f"Role {role}'s filter on {', '.join(tables[m.table])} changed, so the "
+                                                 f"rows its members see of {m.table} may change.",
+                                      source=tables[m.table][0]))
         return reasons
 
-    def _first_filter(self, role: str) -> str | None:
-        r = self.a.new.roles.get(role)
-        return sorted(r.filters)[0] if r and r.filters else None
-
-    def _restricted(self, role: str) -> set[str]:
+    def _filter_reach(self, role: str, change: Change) -> dict[str, list[str]]:
+        """Tables (new names) that the changed filters of a role restrict in either revision -> those filters."""
         from modeldiff import graph
 
-        if not hasattr(self, "_restricted_cache"):
-            self._restricted_cache = {}
-            self._security = graph.security_graph(self.a.new)
-        if role not in self._restricted_cache:
-            r = self.a.new.roles[role]
-            ok = all(t in self.a.new.tables for t in r.filters)
-            self._restricted_cache[role] = set(graph.role_restricted(self.a.new, r, self._security)) if ok else set()
-        return self._restricted_cache[role]
+        if self._security is None:
+            self._security = (in_new_names(graph.security_graph(self.a.old), self.a.renames),
+                              graph.security_graph(self.a.new))
+        changed = sorted(change.details.get("tables") or set(change.before or {}) | set(change.after or {}))
+        out: dict[str, list[str]] = {}
+        for table in changed:
+            for sec in self._security:
+                for reached in sec.reach(self.a.renames.table(table)):
+                    if table not in out.setdefault(reached, []):
+                        out[reached].append(table)
+        return out
 
-    def path_reasons(self, home: str, old_layers, new_layers, sources=None) -> list[Reason]:
-        """Reasons from paths into `home` that changed in one setting, and from key/cardinality changes on them."""
+    # -- reasons that depend on the setting: paths into the home table, keys on them, options' `where`
+
+    def path_reasons(self, home: str, comp: _Computation, sources: set[str] | None = None) -> list[Reason]:
         a = self.a
         reasons = []
-        pairs = a.pairs(old_layers, new_layers, sources=sources)
+        targets = None if not comp.new_layers and not comp.old_layers else {home}
+        pairs = a.pairs(comp.old_layers, comp.new_layers, sources=sources, targets=targets)
         for (source, target), pc in sorted(pairs.items()):
             if target != home:
                 continue
-            change_id = self.link_change_id(pc.links) or self._setting_change_id() or self._path_change_id(source, target)
-            reasons.append(Reason(change_id, f"Paths from {source} into {home} changed: numbers move when filtered or grouped by {source}.",
-                                  source=source, paths_added=pc.added, paths_removed=pc.removed))
-        g_new = a.graph(a.new, new_layers)
-        for change in self.changes:
-            if change.kind not in ("link.key_switched", "link.cardinality_changed"):
-                continue
+            groups: dict[str, tuple[list[Path], list[Path]]] = {}
+            for p in pc.added:
+                groups.setdefault(self.cause(pc.added_by.get(p, pc.links), comp.setting_changes, (source, target)),
+                                  ([], []))[0].append(p)
+            for p in pc.removed:
+                groups.setdefault(self.cause(pc.removed_by.get(p, pc.links), comp.setting_changes, (source, target)),
+                                  ([], []))[1].append(p)
+            if not groups:  # the listing was cut short before a difference showed
+                groups[self.cause(pc.links, comp.setting_changes, (source, target))] = ([], [])
+            for change_id, (added, removed) in sorted(groups.items(), key=lambda kv: _id_order(kv[0])):
+                reasons.append(Reason(change_id, f"Paths from {source} into {home} changed: numbers move when "
+                                                 f"filtered or grouped by {source}.",
+                                      source=source, paths_added=tuple(added), paths_removed=tuple(removed)))
+        g_new = a.graph(a.new, comp.new_layers)
+        for change in self.key_changes:
             link = change.subject.split(".", 1)[1]
-            for edge in (e for e in g_new.edges if e.link == link):
-                if home in g_new.reach(edge.dst) and (sources is None or any(edge.src in g_new.reach(s) for s in sources if s in g_new.tables)):
-                    reasons.append(Reason(change.id, f"Link {link} lies on a path from {edge.src} into {home} and {change.message[0].lower()}{change.message[1:]}",
-                                          source=edge.src, paths_added=(), paths_removed=()))
+            for edge in self._edges_of(g_new, link):
+                if home not in g_new.reach(edge.dst):
+                    continue
+                starts = [edge.src] if sources is None else sorted(s for s in sources if edge.src in g_new.reach(s))
+                if starts:
+                    reasons.append(Reason(change.id, f"Link {link} lies on a path from {starts[0]} into {home} and "
+                                                     f"{change.message[0].lower()}{change.message[1:]}",
+                                          source=starts[0]))
                     break
+        reasons += self.where_reasons(home, comp)
         return reasons
 
-    def _setting_change_id(self) -> str | None:
-        for change in self.changes:
-            if change.kind in ("measure.overrides_changed", "variant.changed", "report.changed"):
-                return change.id
-        return None
+    def where_reasons(self, home: str, comp: _Computation) -> list[Reason]:
+        """A variant option's `where` in force changed on a table whose filter reaches `home`."""
+        from modeldiff import sql
 
-    def _path_change_id(self, source: str, target: str) -> str:
-        for change in self.by_subject.get(f"paths.{source}->{target}", ()):
-            return change.id
-        return self.changes[0].id if self.changes else ""
+        reasons = []
+        g_old, g_new = self.a.old_graph(comp.old_layers), self.a.graph(self.a.new, comp.new_layers)
+        for table in sorted(set(comp.old_wheres) | set(comp.new_wheres)):
+            before, after = comp.old_wheres.get(table, ()), comp.new_wheres.get(table, ())
+            if len(before) == len(after) and all(sql.same_logic(x, y, table) if x != y else True
+                                                 for x, y in zip(before, after)):
+                continue
+            if home not in g_new.reach(table) and home not in g_old.reach(table):
+                continue
+            change_id = next((c.id for c in comp.setting_changes if c.kind != "measure.overrides_changed"),
+                             comp.setting_changes[0].id if comp.setting_changes else self.cause((), (), (table, home)))
+            reasons.append(Reason(change_id, f"The variant option's `where` on {table} in force changed: numbers on "
+                                             f"{home} move.", source=table))
+        return reasons
 
-    # the three lists
+    def computation(self, measure: Measure, report: Report | None = None) -> _Computation | None:
+        """The old and new settings of a measure (inside `report` when given), or None when it is new."""
+        a = self.a
+        old_measure = a.old.measures.get(self.old_name("measures", measure.name))
+        old_report = None
+        if report is not None:
+            old_report = a.old.reports.get(self.old_name("reports", report.name))
+            if old_report is None:
+                return None
+        if old_measure is None:
+            return None
+        changes: list[Change] = [c for c in self.by_subject.get(f"measures.{measure.name}", ())
+                                 if c.kind == "measure.overrides_changed"]
+        if report is not None:
+            changes += [c for c in self.by_subject.get(f"reports.{report.name}", ()) if c.kind == "report.changed"]
+        old_options = self._options(a.old, old_report, old=True)
+        new_options = self._options(a.new, report, old=False)
+        chosen = set(report.variant) if report is not None else set()
+        if old_report is not None:
+            chosen |= {a.renames.variants.get(v, v) for v in old_report.variant}
+        old_variants = {a.renames.variants.get(v, v) for v in a.old.variants}
+        for variant in sorted(old_variants | set(a.new.variants)):
+            in_force = {old_options.get(variant, ("",))[0], new_options.get(variant, ("",))[0]} - {""}
+            # the variant itself (default, added, removed) matters where no option is chosen
+            subjects = [] if variant in chosen else [f"variants.{variant}"]
+            subjects += [f"variants.{variant}.options.{o}" for o in sorted(in_force)]
+            for subject in subjects:
+                changes += [c for c in self.by_subject.get(subject, ()) if c.kind in SETTING_KINDS and c.severity != "safe"]
+        return _Computation(setting_layers(a.old, old_measure, old_report), setting_layers(a.new, measure, report),
+                            tuple(sorted({c.id: c for c in changes}.values(), key=lambda c: _id_order(c.id))),
+                            _wheres(old_options, a.renames), _wheres(new_options, None))
+
+    def _options(self, model: Model, report: Report | None, old: bool) -> dict[str, tuple[str, VariantOption]]:
+        """Variant (new name) -> (option name, option) in force."""
+        out = {}
+        for name in model.variants:
+            found = _option_in_force(model, name, report)
+            if found is not None:
+                out[self.a.renames.variants.get(name, name) if old else name] = found
+        return out
+
+    # -- the three lists
+
     def measures(self) -> list[Impact]:
-        from modeldiff import graph
-
         a = self.a
         direct: dict[str, list[Reason]] = {}
         for name, m in a.new.measures.items():
-            reasons = self.own_reasons(name)
+            comp = self.computation(m)
+            if comp is None:
+                continue  # a new measure had no numbers to move
+            reasons = list(self.own_reasons(name))
             if m.table is not None:
-                old = self.old_measure(name)
-                old_layers = graph.setting_layers(a.old, measure=old) if old is not None else ()
-                new_layers = graph.setting_layers(a.new, measure=m)
-                reasons += self.path_reasons(m.table, old_layers, new_layers)
+                reasons += self.path_reasons(m.table, comp)
             if reasons:
                 direct[name] = reasons
         # derived measures inherit the reasons of the measures they use
         result: dict[str, list[Reason]] = {k: list(v) for k, v in direct.items()}
-        for name in a.new.measures:
-            if a.new.measures[name].table is not None:
+        for name, m in a.new.measures.items():
+            if m.table is not None or self.computation(m) is None:
                 continue
-            for base in self.dependencies(name):
-                for reason in direct.get(base, ()):
-                    result.setdefault(name, []).append(_via(reason, base))
+            for dep in self.dependencies(name):
+                for reason in direct.get(dep, ()):
+                    result.setdefault(name, []).append(_via(reason, dep))
         return [self._impact(name, reasons) for name, reasons in sorted(result.items())]
 
     def dependencies(self, name: str) -> list[str]:
@@ -505,7 +763,7 @@ class _Impacts:
         for name in sorted(set(self.a.new.roles) | {self.a.renames.roles.get(n, n) for n in self.a.old.roles}):
             reasons, exposed, tightened, rerouted = [], [], [], []
             for change in self.by_subject.get(f"roles.{name}", ()):
-                if change.kind not in ("role.metadata_changed", "role.added"):
+                if change.severity != "safe" and change.kind != "role.added":
                     reasons.append(Reason(change.id, change.message))
             for change in self.kinds("security."):
                 parts = change.subject.split(".")
@@ -513,102 +771,101 @@ class _Impacts:
                     continue
                 table = parts[3]
                 {"security.exposed": exposed, "security.tightened": tightened, "security.rerouted": rerouted}[change.kind].append(table)
-                reasons.append(Reason(change.id, change.message))
+                reasons.append(Reason(change.id, change.message, source=change.details.get("source")))
             if reasons:
-                severity = worst(self._change(r.change).severity for r in reasons)
+                severity = worst(self.by_id[r.change].severity for r in reasons)
                 out.append(Impact(name, severity, tuple(reasons), tuple(exposed), tuple(tightened), tuple(rerouted)))
         return out
 
     def reports(self) -> list[Impact]:
-        from modeldiff import graph
-
         a = self.a
-        back = {v: k for k, v in a.renames.reports.items()}
         out = []
         for name, report in sorted(a.new.reports.items()):
+            old_report = a.old.reports.get(self.old_name("reports", name))
+            if old_report is None:
+                continue  # a new report had no numbers to move
             reasons: list[Reason] = []
-            old_report = a.old.reports.get(back.get(name, name))
             for change in self.by_subject.get(f"reports.{name}", ()):
-                if change.kind not in ("report.metadata_changed", "report.added", "report.renamed"):
+                if change.severity == "safe" or change.kind in ("report.added", "report.renamed"):
+                    continue
+                if change.kind == "report.changed" and set(change.before or {}) <= _SETTING_FIELDS:
+                    continue  # only its setting changed: see the paths below
+                reasons.append(Reason(change.id, change.message))
+            for change in self.kinds("measure."):  # a measure it shows was removed or renamed
+                shown = change.subject.split(".", 1)[1]
+                if change.kind == "measure.removed" and shown in report.measures:
                     reasons.append(Reason(change.id, change.message))
-            for change in self.changes:  # a measure it shows was removed or renamed away
-                if change.kind in ("measure.removed", "measure.renamed") and (change.before in report.measures or change.subject.split(".")[-1] in report.measures) \
-                        and change.after not in report.measures:
+                elif change.kind == "measure.renamed" and change.severity != "safe" and shown in report.measures:
                     reasons.append(Reason(change.id, change.message))
             sources = self.report_sources(report)
             for measure_name in report.measures:
-                m = a.new.measures.get(measure_name)
-                if m is None:
+                if measure_name not in a.new.measures:
                     continue
                 for base in [measure_name] + self.dependencies(measure_name):
                     bm = a.new.measures.get(base)
                     if bm is None:
                         continue
                     for reason in self.own_reasons(base):
-                        if reason.source is not None and report.role is None:
+                        role = self._reason_role(reason)
+                        if role is not None and role != report.role:
                             continue  # role rows matter only to a report seen as that role
-                        if reason.source is not None and self.a.new.roles.get(report.role) is not None \
-                                and not self._reason_is_role(reason, report.role):
-                            continue
                         reasons.append(_via(reason, base))
-                    if bm.table is None or not sources:
+                    comp = self.computation(bm, report)
+                    if bm.table is None or comp is None:
                         continue
-                    old_bm = self.old_measure(base)
-                    old_layers = graph.setting_layers(a.old, measure=old_bm, report=old_report) if old_report is not None else \
-                        (graph.setting_layers(a.old, measure=old_bm) if old_bm is not None else ())
-                    new_layers = graph.setting_layers(a.new, measure=bm, report=report)
-                    old_sources = sources
-                    for reason in self.path_reasons(bm.table, old_layers, new_layers, sources=old_sources):
-                        reasons.append(_via(reason, base))
+                    if sources:
+                        reasons += [_via(r, base) for r in self.path_reasons(bm.table, comp, sources)]
+                    else:
+                        reasons += [_via(r, base) for r in self.where_reasons(bm.table, comp)]
             for item in report.by + tuple(report.where):
                 table, _, column = item.partition(".")
                 for change in self.changes:
                     if change.kind.startswith(("column.", "table.")) and change.severity != "safe" and \
-                            (change.subject == f"tables.{table}.columns.{column}" or change.subject == f"tables.{table}" and change.kind != "table.metadata_changed"):
+                            (change.subject == f"tables.{table}.columns.{column}" or change.subject == f"tables.{table}"):
                         reasons.append(Reason(change.id, change.message))
-            for variant, option in _chosen_options(a.new, report).items():
-                for change in self.by_subject.get(f"variants.{variant}", []) + self.by_subject.get(f"variants.{variant}.options.{option}", []):
-                    if change.severity != "safe":
+            for variant, (option, _) in self._options(a.new, report, old=False).items():
+                for change in self.by_subject.get(f"variants.{variant}", []) + \
+                        self.by_subject.get(f"variants.{variant}.options.{option}", []):
+                    if change.severity == "breaking":
                         reasons.append(Reason(change.id, change.message))
             if reasons:
-                out.append(self._impact(name, _dedupe(reasons)))
+                out.append(self._impact(name, reasons))
         return out
 
-    def _reason_is_role(self, reason: Reason, role: str) -> bool:
-        change = self._change(reason.change)
-        return change.subject.startswith(f"roles.{role}.") or change.subject == f"roles.{role}"
+    def _reason_role(self, reason: Reason) -> str | None:
+        change = self.by_id.get(reason.change)
+        if change is None or not (change.kind.startswith("security.") or change.kind == "role.filter_changed"):
+            return None
+        return change.subject.split(".")[1]
 
-    def report_sources(self, report) -> set[str]:
+    def report_sources(self, report: Report) -> set[str]:
         tables = {item.partition(".")[0] for item in report.by} | set(report.where)
-        for variant, option in _chosen_options(self.a.new, report).items():
-            tables |= set(self.a.new.variants[variant].options[option].where)
+        for _, (_, option) in self._options(self.a.new, report, old=False).items():
+            tables |= set(option.where)
         return {t for t in tables if t in self.a.new.tables}
 
-    def _change(self, change_id: str) -> Change:
-        for change in self.changes:
-            if change.id == change_id:
-                return change
-        raise KeyError(change_id)
-
     def _impact(self, name: str, reasons: list[Reason]) -> Impact:
-        reasons = _dedupe(reasons)
-        severity = worst(self._change(r.change).severity for r in reasons if r.change) if reasons else "numbers"
+        reasons = sorted(_dedupe(reasons), key=lambda r: (_id_order(r.change), r.source or "", r.paths_added,
+                                                          r.paths_removed))
+        severity = worst(self.by_id[r.change].severity for r in reasons if r.change in self.by_id)
         return Impact(name, "numbers" if severity == "safe" else severity, tuple(reasons))
 
 
-def _chosen_options(model: Model, report) -> dict[str, str]:
-    """Each variant's option in force for a report: the one it picks, else the default."""
-    out = {}
-    for name, variant in model.variants.items():
-        option = report.variant.get(name, variant.default)
-        if option in variant.options:
-            out[name] = option
-    return out
+def _wheres(options: Mapping[str, tuple[str, VariantOption]], renames: Renames | None) -> dict[str, tuple[str, ...]]:
+    out: dict[str, list[str]] = {}
+    for variant in sorted(options):
+        for table, predicate in sorted(options[variant][1].where.items()):
+            out.setdefault(renames.table(table) if renames else table, []).append(predicate)
+    return {t: tuple(p) for t, p in out.items()}
+
+
+def _id_order(change_id: str) -> tuple[int, str]:
+    digits = change_id[1:]
+    return (int(digits), change_id) if digits.isdigit() else (0, change_id)
 
 
 def _via(reason: Reason, measure: str) -> Reason:
-    return reason if reason.via is not None else Reason(reason.change, reason.message, reason.source,
-                                                        reason.paths_added, reason.paths_removed, via=measure)
+    return reason if reason.via is not None else replace(reason, via=measure)
 
 
 def _dedupe(reasons: list[Reason]) -> list[Reason]:
@@ -634,14 +891,8 @@ def analyse(old: Model, new: Model, old_findings: Iterable[Finding] = (), new_fi
     new_checked = check.check_model(new, new_findings, graph_rules=False)
     derived = _derived_graph_changes(a) + _security_changes(a) + _reference_changes(old_checked, new_checked)
     changes = sorted(structural + derived, key=Change.sort_key)
-    changes = [_with_id(c, f"c{i}") for i, c in enumerate(changes, 1)]
+    changes = [replace(c, id=f"c{i}") for i, c in enumerate(changes, 1)]
     impacts = _Impacts(a, changes)
     new_errors = tuple(f for f in new_checked if f.severity == "error")
     return DiffResult(old, new, tuple(changes), tuple(impacts.measures()), tuple(impacts.roles()),
                       tuple(impacts.reports()), new_errors)
-
-
-def _with_id(change: Change, change_id: str) -> Change:
-    from dataclasses import replace
-
-    return replace(change, id=change_id)
