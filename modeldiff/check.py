@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from functools import cached_property
 from typing import TYPE_CHECKING, Callable, Iterable, Iterator
 
-from modeldiff.model import Finding, Link, Model, Overrides, Table
+from modeldiff.model import Finding, Measure, Model, Overrides, Table
 
 if TYPE_CHECKING:  # pragma: no cover
     from modeldiff.graph import Setting
@@ -190,7 +190,7 @@ def rule_measure_references(ctx: _Context) -> Iterator[Finding]:
         yield from _base_measure(ctx, measure, table, subject)
 
 
-def _base_measure(ctx: _Context, measure, table: Table, subject: str) -> Iterator[Finding]:
+def _base_measure(ctx: _Context, measure: Measure, table: Table, subject: str) -> Iterator[Finding]:
     advice = "make it a derived measure over a measure of that table."
     for field_name, text in (("expr", measure.expr), ("where", measure.where)):
         if text is None:
@@ -215,7 +215,7 @@ def _base_measure(ctx: _Context, measure, table: Table, subject: str) -> Iterato
         yield from _column_problems(ctx, subject, found, table, what, at, advice)
 
 
-def _derived_measure(ctx: _Context, measure, subject: str) -> Iterator[Finding]:
+def _derived_measure(ctx: _Context, measure: Measure, subject: str) -> Iterator[Finding]:
     at, what = f"{subject}.expr", f"Derived measure {measure.name}"
     if measure.where is not None:
         yield ctx.finding("invalid-model", subject,
