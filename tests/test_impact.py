@@ -94,3 +94,403 @@ def test_scenario(name: str):
     if UPDATE:
         expected_file.write_text(golden_text(got))
     assert got == json.loads(expected_file.read_text())
+
+
+# --- paths, ambiguity and who is blamed ------------------------------------------------------
+
+STATION_STOCK_FROM_CALENDAR = ("trips_start_day", "trips_start_station", "stock_levels_station")
+
+
+def test_flow_widened_blames_the_link_with_source_and_new_path():
+    r = scenario("flow_widened")
+    widened = change(r, "link.flow_widened", "links.trips_start_station")
+    stock = impact_of(r.measures, "stock_value")
+    by_source = {x.source: x for x in stock.reasons}
+    assert set(by_source) == {"bikes", "calendar", "riders", "trips"}
+    assert all(x.change == widened.id for x in stock.reasons)
+    assert by_source["calendar"].paths_added == (STATION_STOCK_FROM_CALENDAR,)
+    assert by_source["calendar"].paths_removed == ()
+
+
+def test_flow_widened_leaves_measures_off_the_new_paths_alone():
+    r = scenario("flow_widened")
+    assert names(r.measures) == ["avg_unit_cost", "stock_on_hand", "stock_value"]
+    # station_stock moves only through calendar: stations -> stock_levels kept its single path
+    report = impact_of(r.reports, "station_stock")
+    assert {x.source for x in report.reasons} == {"calendar"}
+    assert "weekly_fares" not in names(r.reports)
+
+
+def test_ambiguity_introduced_names_two_witness_paths():
+    r = scenario("flow_widened")
+    found = change(r, "ambiguity.introduced", "paths.calendar->stock_levels")
+    assert found.severity == "breaking"
+    assert sorted(map(tuple, found.after)) == sorted([("stock_levels_day",), STATION_STOCK_FROM_CALENDAR])
+
+
+def test_ambiguity_resolved_when_the_flip_is_undone():
+    r = scenario("flow_narrowed")
+    found = change(r, "ambiguity.resolved", "paths.calendar->stock_levels")
+    assert found.severity == "numbers" and found.after is None
+    assert not [c for c in r.changes if c.kind == "ambiguity.introduced"]
+    assert r.exit_code == 1
+
+
+def test_no_ambiguity_reported_when_paths_only_grow_without_a_second_route():
+    r = scenario("standby_cleared")
+    assert not [c for c in r.changes if c.kind.startswith("ambiguity.")]
+
+
+def test_derived_measure_inherits_through_the_measures_it_uses():
+    r = scenario("flow_widened")
+    derived = impact_of(r.measures, "avg_unit_cost")
+    assert {x.via for x in derived.reasons} <= {"stock_on_hand", "stock_value"}
+    assert {x.source for x in derived.reasons} == {"bikes", "calendar", "riders", "trips"}
+    # revenue_per_trip uses only trip measures, which did not move
+    assert "revenue_per_trip" not in names(r.measures)
+
+
+def test_derived_measure_of_a_derived_measure_inherits_transitively():
+    base = (SCENARIOS / "flow_widened" / "old.model.yaml").read_text()
+    extra = '  cost_share: {expr: "avg_unit_cost * 2"}\n'
+    old = base.replace("  repair_cost:", extra + "  repair_cost:", 1)
+    new = (SCENARIOS / "flow_widened" / "new.model.yaml").read_text().replace("  repair_cost:", extra + "  repair_cost:", 1)
+    r = analyse_texts(old, new)
+    assert "cost_share" in names(r.measures)
+    same = analyse_texts(old, old)
+    assert names(same.measures) == []
+
+
+def test_standby_swap_splits_the_blame_between_the_two_links():
+    r = scenario("standby_cleared")
+    cleared = change(r, "link.standby_cleared", "links.trips_end_day")
+    went = change(r, "link.standby_set", "links.trips_start_day")
+    reasons = {x.change: x for x in impact_of(r.measures, "trip_count").reasons}
+    assert set(reasons) == {cleared.id, went.id}
+    assert reasons[cleared.id].paths_added == (("trips_end_day",),) and reasons[cleared.id].paths_removed == ()
+    assert reasons[went.id].paths_removed == (("trips_start_day",),) and reasons[went.id].paths_added == ()
+
+
+def test_standby_swap_spares_the_measure_that_followed_the_end_day_already():
+    r = scenario("standby_cleared")
+    assert "trips_by_end_day" not in names(r.measures)
+    assert "daily_returns" not in names(r.reports)
+
+
+def test_use_added_blames_the_measure_overrides_and_names_the_source():
+    r = scenario("use_added")
+    overrides = change(r, "measure.overrides_changed", "measures.ride_minutes")
+    reasons = impact_of(r.measures, "ride_minutes").reasons
+    assert [(x.change, x.source, x.paths_added, x.paths_removed) for x in reasons] == [
+        (overrides.id, "calendar", (("trips_end_day",),), (("trips_start_day",),))]
+
+
+def test_use_added_impacts_only_reports_filtering_along_the_changed_paths():
+    # rider_trips shows ride_minutes by riders: riders -> trips did not change
+    assert names(scenario("use_added").reports) == []
+
+
+def test_use_added_on_a_link_off_the_measure_paths_impacts_nothing():
+    r = scenario("use_added_elsewhere")
+    assert [c.kind for c in r.changes] == ["measure.overrides_changed"]
+    assert (names(r.measures), names(r.reports)) == ([], [])
+
+
+def test_paths_in_reasons_name_links_of_the_new_revision():
+    r = scenario("link_removed_still_used")
+    reasons = [x for i in r.measures for x in i.reasons]
+    added = [link for x in reasons for p in x.paths_added for link in p]
+    removed = [link for x in reasons for p in x.paths_removed for link in p]
+    assert added == ["trips_start_day"] and all(link in r.new.links for link in added)
+    assert removed == ["trips_end_day"] and "trips_end_day" not in r.new.links
+
+
+# --- settings: variants and reports ------------------------------------------------------------
+
+
+def test_variant_option_change_impacts_only_the_report_choosing_it():
+    r = scenario("variant_option_changed")
+    option = change(r, "variant.changed", "variants.attribution.options.current")
+    assert names(r.measures) == []  # outside reports the default option (historical) applies
+    assert names(r.reports) == ["repair_costs_current"]
+    reasons = impact_of(r.reports, "repair_costs_current").reasons
+    assert {x.change for x in reasons} == {option.id}
+    assert {x.source for x in reasons} == {"districts"}
+    assert (("stations_district", "trips_start_station", "trips_bike", "repairs_bike")) in reasons[0].paths_added
+
+
+def test_variant_option_change_that_opens_no_path_impacts_no_report():
+    r = scenario("variant_option_changed_no_path")
+    assert [c.kind for c in r.changes] == ["variant.changed"]
+    assert (names(r.measures), names(r.reports)) == ([], [])
+
+
+def test_variant_default_change_moves_what_uses_the_default_only():
+    r = scenario("variant_default_changed")
+    default = change(r, "variant.changed", "variants.attribution")
+    assert names(r.measures) == ["cost_per_repair", "repair_cost", "repair_cost_per_trip", "repair_count"]
+    assert names(r.reports) == ["east_overview", "repair_costs_by_depot"]
+    assert "repair_costs_current" not in names(r.reports)  # it chose `current` already
+    assert all(x.change == default.id for i in r.measures + r.reports for x in i.reasons)
+
+
+def test_variant_option_where_change_impacts_the_report_through_its_table():
+    base = (SCENARIOS / "identical" / "old.model.yaml").read_text()
+    old = base.replace("current: {use: [repairs_current_mechanic]}",
+                       "current: {use: [repairs_current_mechanic], where: {calendar: \"month > 0\"}}")
+    new = base.replace("current: {use: [repairs_current_mechanic]}",
+                       "current: {use: [repairs_current_mechanic], where: {calendar: \"month > 6\"}}")
+    r = analyse_texts(old, new)
+    option = change(r, "variant.changed", "variants.attribution.options.current")
+    assert names(r.reports) == ["repair_costs_current"]
+    assert {(x.change, x.source) for x in impact_of(r.reports, "repair_costs_current").reasons} == {(option.id, "calendar")}
+    assert names(r.measures) == []
+    respelled = analyse_texts(old, old.replace("month > 0", "MONTH > 0"))
+    assert names(respelled.reports) == []
+
+
+# --- row security ------------------------------------------------------------------------------
+
+
+def test_security_flow_back_to_one_way_exposes_every_table_below():
+    r = scenario("security_flow_one_way")
+    role = impact_of(r.roles, "depot_staff")
+    assert role.severity == "breaking"
+    assert role.exposed == ("districts", "mechanics", "repairs", "station_parts", "stations", "stock_levels", "trips")
+    assert role.tightened == () and role.rerouted == ()
+    exposed = change(r, "security.exposed", "roles.depot_staff.tables.trips")
+    assert exposed.message.startswith("SECURITY:")
+    assert "security review" in exposed.message
+    assert exposed.details["source"] == "district_access"
+    assert r.exit_code == 3
+
+
+def test_security_flow_change_on_a_one_way_link_exposes_nothing():
+    r = scenario("security_flow_one_way_no_effect")
+    assert [c.kind for c in r.changes] == ["link.security_flow_changed"]
+    assert names(r.roles) == []
+
+
+def test_security_flow_two_way_tightens():
+    r = scenario("security_flow_two_way")
+    role = impact_of(r.roles, "student_analyst")
+    assert role.tightened == ("station_parts", "stations", "stock_levels")
+    assert role.exposed == () and role.severity == "numbers"
+    assert not [c for c in r.changes if c.kind == "security.exposed"]
+    assert r.exit_code == 1
+
+
+def test_role_filter_moved_exposes_what_fed_off_the_old_filter():
+    r = scenario("role_filter_moved")
+    role = impact_of(r.roles, "east_district_lead")
+    assert role.exposed == ("district_access", "districts", "mechanics", "repairs")
+    assert role.rerouted == ("station_parts", "stations", "stock_levels", "trips")
+    assert change(r, "security.exposed", "roles.east_district_lead.tables.repairs").details["source"] == "districts"
+    # the report seen as that role moves; reports seen without a role do not
+    assert names(r.reports) == ["east_overview"]
+
+
+def test_role_filter_dropped_where_another_filter_covers_it_exposes_nothing():
+    r = scenario("role_filter_dropped_covered")
+    assert not [c for c in r.changes if c.kind == "security.exposed"]
+    assert impact_of(r.roles, "east_district_lead").exposed == ()
+    assert r.exit_code == 1
+
+
+def test_role_filter_change_impacts_the_role_its_tables_and_its_reports():
+    r = scenario("role_filter_changed")
+    assert names(r.roles) == ["east_district_lead"]
+    assert names(r.reports) == ["east_overview"]
+    assert {x.source for i in r.measures for x in i.reasons} == {"districts"}
+    assert "weekly_fares" not in names(r.reports)  # it shows the same measures, but seen by no role
+
+
+def test_respelled_role_filter_impacts_nothing():
+    r = scenario("role_filter_respelled")
+    assert [(c.kind, c.severity) for c in r.changes] == [("role.cosmetic_changed", "safe")]
+    assert (names(r.measures), names(r.roles), names(r.reports), r.exit_code) == ([], [], [], 0)
+
+
+def test_removed_link_exposes_rows_and_removes_paths():
+    r = scenario("link_removed")
+    assert impact_of(r.roles, "student_analyst").exposed == ("trips",)
+    removed = change(r, "link.removed", "links.trips_rider")
+    reasons = impact_of(r.measures, "trip_count").reasons
+    assert (removed.id, "riders", (), (("trips_rider",),)) in [(x.change, x.source, x.paths_added, x.paths_removed)
+                                                               for x in reasons]
+
+
+def test_removed_leaf_link_exposes_nothing_and_impacts_nothing():
+    r = scenario("link_removed_leaf")
+    assert [c.kind for c in r.changes] == ["link.removed", "path.removed"]
+    assert (names(r.measures), names(r.roles), names(r.reports)) == ([], [], [])
+
+
+# --- keys, cardinality, history ------------------------------------------------------------------
+
+
+def test_key_switch_to_the_natural_key_explains_history():
+    r = scenario("key_switched_surrogate_to_natural")
+    to_side = [c for c in r.changes if c.kind == "link.key_switched" and c.details.get("side") == "to"]
+    assert len(to_side) == 1
+    assert to_side[0].details["history"] == "surrogate->natural"
+    assert "every version" in to_side[0].message and "history" in to_side[0].message
+    # repairs move when filtered or grouped by mechanics (directly) or districts (through them)
+    assert {x.source for x in impact_of(r.measures, "repair_cost").reasons} == {"mechanics"}
+    assert {x.source for x in impact_of(r.reports, "repair_costs_by_depot").reasons} == {"districts"}
+
+
+def test_key_switch_on_a_standby_link_impacts_only_its_users():
+    r = scenario("key_switched_standby_link")
+    assert names(r.measures) == []
+    assert names(r.reports) == ["repair_costs_current"]
+
+
+def test_cardinality_change_impacts_measures_below_the_link_only():
+    r = scenario("cardinality_changed")
+    card = change(r, "link.cardinality_changed", "links.trips_bike")
+    assert {x.change for i in r.measures for x in i.reasons} == {card.id}
+    assert {x.source for i in r.measures for x in i.reasons} == {"bikes"}
+    assert "repair_cost" not in names(r.measures)  # repairs meet bikes through their own link
+    assert names(scenario("cardinality_changed_leaf").measures) == []
+
+
+# --- references, removals, renames ---------------------------------------------------------------
+
+
+def test_measure_removed_while_a_report_shows_it_is_breaking():
+    r = scenario("measure_removed_used")
+    removed = change(r, "measure.removed", "measures.ride_minutes")
+    assert removed.severity == "breaking"
+    report = impact_of(r.reports, "rider_trips")
+    assert report.severity == "breaking"
+    assert removed.id in {x.change for x in report.reasons}
+    assert r.exit_code == 3
+
+
+def test_measure_removed_that_nothing_uses_breaks_nothing():
+    r = scenario("measure_removed_unused")
+    assert [(c.kind, c.severity) for c in r.changes] == [("measure.removed", "numbers")]
+    assert names(r.reports) == [] and r.exit_code == 1
+
+
+def test_reference_broken_when_the_new_revision_names_a_removed_link():
+    r = scenario("link_removed_still_used")
+    broken = change(r, "reference.broken", "measures.trips_by_end_day")
+    assert broken.severity == "breaking"
+    assert broken.id in {x.change for x in impact_of(r.measures, "trips_by_end_day").reasons}
+    assert r.exit_code == 3
+
+
+def test_reference_already_broken_in_the_old_revision_is_not_new():
+    text = (SCENARIOS / "identical" / "old.model.yaml").read_text()
+    broken = text.replace("use: [trips_end_day]", "use: [trips_finish_day]")
+    r = analyse_texts(broken, broken)
+    assert not [c for c in r.changes if c.kind == "reference.broken"]
+    assert r.exit_code == 3  # the new revision still has an error finding
+
+
+@pytest.mark.parametrize("name", ["link_renamed", "link_renamed_used", "table_renamed"])
+def test_renames_produce_one_change_and_no_path_or_security_change(name):
+    r = scenario(name)
+    assert [c.kind for c in r.changes] == [name.replace("_used", "").replace("_", ".", 1)]
+    assert (names(r.measures), names(r.roles), names(r.reports), r.exit_code) == ([], [], [], 0)
+
+
+def test_description_only_is_safe():
+    r = scenario("description_only")
+    assert [c.severity for c in r.changes] == ["safe"]
+    assert (names(r.measures), names(r.roles), names(r.reports), r.exit_code) == ([], [], [], 0)
+
+
+@pytest.mark.parametrize("path", ["examples/bikeshare.model.yaml", "tests/fixtures/tpcds.model.yaml",
+                                  "tests/fixtures/tpch.model.yaml"])
+def test_a_model_compared_with_itself_reports_nothing(path):
+    r = analyse_files(Path(__file__).parent.parent / path, Path(__file__).parent.parent / path)
+    assert (r.changes, r.measures, r.roles, r.reports, r.exit_code) == ((), (), (), (), 0)
+
+
+def test_example_revision_two():
+    root = Path(__file__).parent.parent / "examples"
+    r = analyse_files(root / "bikeshare.model.yaml", root / "revision-2" / "bikeshare.model.yaml")
+    widened = change(r, "link.flow_widened", "links.trips_start_station")
+    change(r, "ambiguity.introduced", "paths.calendar->stock_levels")
+    assert names(r.measures) == ["avg_unit_cost", "stock_on_hand", "stock_value"]
+    assert names(r.reports) == ["station_stock"]
+    assert {x.change for i in r.measures + r.reports for x in i.reasons} == {widened.id}
+    assert names(r.roles) == []
+
+
+# --- TPC-DS -------------------------------------------------------------------------------------
+# The key graph is the TPC-DS specification's (clause 2), written from memory in the fixture; the link
+# choices (one active link per dimension, the rest on standby) are the fixture's, common practice.
+
+
+def tpcds_item_two_way() -> DiffResult:
+    text = TPCDS.read_text()
+    link = "  store_sales_item:\n    from: store_sales.ss_item_sk\n    to: item.i_item_sk\n"
+    assert text.count(link) == 1
+    return analyse_texts(text, text.replace(link, link + "    flow: two-way\n"))
+
+
+def test_tpcds_store_sales_item_two_way_reaches_the_other_item_facts():
+    r = tpcds_item_two_way()
+    model = r.new
+    homes = {i.name: model.measures[i.name].table for i in r.measures}
+    assert {"inventory_on_hand", "catalog_sales_amount", "store_return_amount"} <= set(homes)
+    assert set(homes.values()) == {"inventory", "catalog_sales", "store_returns", "promotion", None}
+    assert "store_sales" not in homes.values()
+    # derived measures reach store_sales measures, but only through a moved one (returns)
+    assert "store_return_rate" in homes
+    inventory = impact_of(r.measures, "inventory_on_hand")
+    assert "date_dim" in {x.source for x in inventory.reasons}
+    date_reason = next(x for x in inventory.reasons if x.source == "date_dim")
+    assert ("store_sales_sold_date", "store_sales_item", "inventory_item") in date_reason.paths_added
+
+
+def test_tpcds_date_dim_to_inventory_becomes_ambiguous():
+    r = tpcds_item_two_way()
+    found = change(r, "ambiguity.introduced", "paths.date_dim->inventory")
+    assert ["inventory_date"] in found.after
+    assert r.exit_code == 3
+
+
+def test_tpcds_store_sales_measures_stay_untouched():
+    r = tpcds_item_two_way()
+    store_sales = {n for n, m in r.new.measures.items() if m.table == "store_sales"}
+    assert store_sales and not store_sales & set(names(r.measures))
+
+
+# --- the graph comparison itself ------------------------------------------------------------------
+
+
+def _graph(tables, edges):
+    from modeldiff import graph
+
+    return graph.FilterGraph(tables, [graph.Edge(*e) for e in edges])
+
+
+def test_changed_pairs_reads_the_old_graph_in_new_names():
+    old = _graph({"a", "b", "c"}, [("ab", "a", "b"), ("bc", "b", "c")])
+    new = _graph({"a", "b2", "c"}, [("ab", "a", "b2"), ("b2c", "b2", "c")])
+    renames = impact.Renames(tables={"b": "b2"}, links={"bc": "b2c"})
+    assert impact.changed_pairs(old, new, renames) == {}
+    assert impact.changed_pairs(old, new, impact.Renames()) != {}
+
+
+def test_changed_pairs_lists_what_each_path_owes_to_the_changed_edges():
+    old = _graph({"a", "b", "c"}, [("ab", "a", "b")])
+    new = _graph({"a", "b", "c"}, [("ab", "a", "b"), ("bc", "b", "c")])
+    pairs = impact.changed_pairs(old, new)
+    assert sorted(pairs) == [("a", "c"), ("b", "c")]
+    pc = pairs[("a", "c")]
+    assert (pc.added, pc.removed, pc.links) == ((("ab", "bc"),), (), frozenset({"bc"}))
+    assert pc.added_by[("ab", "bc")] == ("bc",)
+    # filters
+    assert sorted(impact.changed_pairs(old, new, sources={"b"})) == [("b", "c")]
+    assert sorted(impact.changed_pairs(old, new, targets={"b"})) == []
+
+
+def test_changed_pairs_of_equal_graphs_is_empty():
+    g = _graph({"a", "b"}, [("ab", "a", "b")])
+    assert impact.changed_pairs(g, _graph({"a", "b"}, [("ab", "a", "b")])) == {}

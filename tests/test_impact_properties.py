@@ -1,0 +1,225 @@
+"""Property tests of modeldiff.impact against a brute-force reference.
+
+Reference: networkx all_simple_edge_paths as brute-force reference, run over
+every pair of tables of both revisions' flow graphs, which are rebuilt here
+straight from semantics.md section 2 (edge T -> F for every non-standby link,
+F -> T as well when it is two-way or one-to-one), and networkx descendants
+over the security graph of section 3. Models are small and random: a few
+tables, random links, and random flow / standby flips, removals, additions
+and renames between the old and the new revision.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import networkx as nx
+from hypothesis import given, settings, strategies as st
+
+from modeldiff import impact
+from modeldiff.model import Column, Link, Measure, Model, Role, Table
+
+TABLES = ["calendar", "districts", "stations", "bikes", "trips"]
+
+settings.register_profile("impact", max_examples=150, deadline=None)
+settings.load_profile("impact")
+
+
+@dataclass(frozen=True)
+class LinkSpec:
+    index: int
+    src: str
+    dst: str
+    cardinality: str
+    old: tuple[bool, str, bool, str] | None  # (present, flow, standby, security_flow) or None when absent
+    new: tuple[bool, str, bool, str] | None
+    renamed: bool = False
+
+
+@st.composite
+def revisions(draw, max_tables=5, max_links=6):
+    """Two revisions of one small model, and the role each filters by (table or None)."""
+    tables = TABLES[:draw(st.integers(2, max_tables))]
+    specs = []
+    for i in range(draw(st.integers(1, max_links))):
+        src = draw(st.sampled_from(tables))
+        dst = draw(st.sampled_from([t for t in tables if t != src]))
+        cardinality = draw(st.sampled_from(["many-to-one", "many-to-one", "one-to-one", "many-to-many"]))
+
+        def side():
+            if draw(st.integers(0, 5)) == 0:
+                return None
+            return (True, draw(st.sampled_from(["one-way", "two-way"])), draw(st.booleans()),
+                    draw(st.sampled_from(["one-way", "two-way"])))
+
+        old = side()
+        new = old if old is not None and draw(st.booleans()) else side()
+        renamed = old is not None and new == old and draw(st.integers(0, 4)) == 0
+        specs.append(LinkSpec(i, src, dst, cardinality, old, new, renamed))
+    role_table = draw(st.one_of(st.none(), st.sampled_from(tables)))
+    return tables, specs, role_table
+
+
+def build(tables, specs, role_table, side: str) -> Model:
+    columns = {t: {"k": Column("k", "integer")} for t in tables}
+    links = {}
+    for spec in specs:
+        state = getattr(spec, side)
+        columns[spec.src][f"fk{spec.index}"] = Column(f"fk{spec.index}", "integer")
+        if state is None:
+            continue
+        _, flow, standby, security = state
+        name = f"l{spec.index}" + ("_r" if spec.renamed and side == "new" else "")
+        links[name] = Link(name, spec.src, (f"fk{spec.index}",), spec.dst, ("k",), spec.cardinality, flow,
+                           security, standby)
+    model_tables = {t: Table(t, "fact", ("k",), columns[t]) for t in tables}
+    measures = {f"m_{t}": Measure(f"m_{t}", "count(*)", t) for t in tables}
+    roles = {"viewer": Role("viewer", {role_table: "k = 1"})} if role_table else {}
+    return Model("random", model_tables, links, measures, {}, roles)
+
+
+def old_to_new(specs) -> dict[str, str]:
+    return {f"l{s.index}": f"l{s.index}_r" for s in specs if s.renamed}
+
+
+def flow_reference(model: Model, rename: dict[str, str]) -> nx.MultiDiGraph:
+    """semantics.md section 2, written again here; link names read in the new revision's names."""
+    g = nx.MultiDiGraph()
+    g.add_nodes_from(model.tables)
+    for link in model.links.values():
+        if link.standby:
+            continue
+        name = rename.get(link.name, link.name)
+        g.add_edge(link.to_table, link.from_table, key=name)
+        if link.flow == "two-way" or link.cardinality == "one-to-one":
+            g.add_edge(link.from_table, link.to_table, key=name)
+    return g
+
+
+def security_reference(model: Model) -> nx.MultiDiGraph:
+    """semantics.md section 3: T -> F always, F -> T for one-to-one or two-way with two-way security."""
+    g = nx.MultiDiGraph()
+    g.add_nodes_from(model.tables)
+    for link in model.links.values():
+        if link.standby:
+            continue
+        g.add_edge(link.to_table, link.from_table, key=link.name)
+        if link.cardinality == "one-to-one" or (link.flow == "two-way" and link.security_flow == "two-way"):
+            g.add_edge(link.from_table, link.to_table, key=link.name)
+    return g
+
+
+def all_paths(g: nx.MultiDiGraph) -> dict[tuple[str, str], set[tuple[str, ...]]]:
+    out = {}
+    for s in g.nodes:
+        for x in g.nodes:
+            if s != x:
+                out[(s, x)] = {tuple(key for _, _, key in path) for path in nx.all_simple_edge_paths(g, s, x)}
+    return out
+
+
+def analyse(tables, specs, role_table):
+    old, new = build(tables, specs, role_table, "old"), build(tables, specs, role_table, "new")
+    return old, new, impact.analyse(old, new)
+
+
+def subjects(result, kind: str) -> dict[str, object]:
+    return {c.subject: c for c in result.changes if c.kind == kind}
+
+
+@given(revisions())
+def test_path_changes_are_exactly_the_pairs_whose_path_sets_differ(case):
+    old, new, result = analyse(*case)
+    before = all_paths(flow_reference(old, old_to_new(case[1])))
+    after = all_paths(flow_reference(new, {}))
+    expected_added = {f"paths.{s}->{x}": sorted(after[(s, x)] - before[(s, x)])
+                      for (s, x) in after if after[(s, x)] - before[(s, x)]}
+    expected_removed = {f"paths.{s}->{x}": sorted(before[(s, x)] - after[(s, x)])
+                        for (s, x) in after if before[(s, x)] - after[(s, x)]}
+    added, removed = subjects(result, "path.added"), subjects(result, "path.removed")
+    assert {k: sorted(map(tuple, c.after)) for k, c in added.items()} == expected_added
+    assert {k: sorted(map(tuple, c.before)) for k, c in removed.items()} == expected_removed
+
+
+@given(revisions())
+def test_ambiguity_changes_are_exactly_the_count_transitions(case):
+    old, new, result = analyse(*case)
+    before = all_paths(flow_reference(old, old_to_new(case[1])))
+    after = all_paths(flow_reference(new, {}))
+    introduced = {f"paths.{s}->{x}" for (s, x) in after if len(after[(s, x)]) >= 2 > len(before[(s, x)])}
+    resolved = {f"paths.{s}->{x}" for (s, x) in after if len(before[(s, x)]) >= 2 > len(after[(s, x)])}
+    assert set(subjects(result, "ambiguity.introduced")) == introduced
+    assert set(subjects(result, "ambiguity.resolved")) == resolved
+    for c in subjects(result, "ambiguity.introduced").values():  # two witnesses, both real new paths
+        s, x = c.subject[len("paths."):].split("->")
+        assert len({tuple(p) for p in c.after}) == 2 and {tuple(p) for p in c.after} <= after[(s, x)]
+
+
+@given(revisions())
+def test_impacted_measures_are_the_homes_of_changed_pairs(case):
+    old, new, result = analyse(*case)
+    before = all_paths(flow_reference(old, old_to_new(case[1])))
+    after = all_paths(flow_reference(new, {}))
+    changed = {(s, x) for (s, x) in after if before[(s, x)] != after[(s, x)]}
+    # path reasons only: no role here moves rows, and cardinality never changes between the revisions
+    if case[2] is None:
+        assert {i.name for i in result.measures} == {f"m_{x}" for _, x in changed}
+    for i in result.measures:
+        home = i.name[2:]
+        path_sources = {r.source for r in i.reasons if r.paths_added or r.paths_removed}
+        assert path_sources == {s for s, x in changed if x == home}
+        for r in i.reasons:
+            if r.paths_added or r.paths_removed:
+                assert set(r.paths_added) <= after[(r.source, home)] - before[(r.source, home)]
+                assert set(r.paths_removed) <= before[(r.source, home)] - after[(r.source, home)]
+
+
+@given(revisions())
+def test_every_path_reason_blames_a_change_of_a_link_on_its_paths(case):
+    _, _, result = analyse(*case)
+    by_id = {c.id: c for c in result.changes}
+    for i in result.measures:
+        for r in i.reasons:
+            if not (r.paths_added or r.paths_removed):
+                continue
+            blamed = by_id[r.change]
+            assert blamed.kind.startswith("link.")
+            link = blamed.subject.split(".", 1)[1]
+            assert all(link in p for p in r.paths_added + r.paths_removed)
+
+
+@given(revisions())
+def test_security_changes_match_reach_in_the_security_graphs(case):
+    old, new, result = analyse(*case)
+    role_table = case[2]
+    exposed = {c.subject for c in result.changes if c.kind == "security.exposed"}
+    tightened = {c.subject for c in result.changes if c.kind == "security.tightened"}
+    if role_table is None:
+        assert not exposed and not tightened
+        return
+    before = nx.descendants(security_reference(old), role_table) | {role_table}
+    after = nx.descendants(security_reference(new), role_table) | {role_table}
+    assert exposed == {f"roles.viewer.tables.{t}" for t in before - after}
+    assert tightened == {f"roles.viewer.tables.{t}" for t in after - before}
+    role = [i for i in result.roles if i.name == "viewer"]
+    assert bool(role) == bool(before != after or any(c.kind == "security.rerouted" for c in result.changes))
+
+
+@given(revisions())
+def test_changed_pairs_filtered_by_source_or_target_is_the_unfiltered_answer_restricted(case):
+    from modeldiff import graph
+
+    old, new = build(*case, "old"), build(*case, "new")
+    renames = impact.Renames(links=old_to_new(case[1]))
+    g_old, g_new = graph.flow_graph(old), graph.flow_graph(new)
+    everything = impact.changed_pairs(g_old, g_new, renames)
+    some = set(case[0][::2])
+    assert impact.changed_pairs(g_old, g_new, renames, sources=some) == {k: v for k, v in everything.items() if k[0] in some}
+    assert impact.changed_pairs(g_old, g_new, renames, targets=some) == {k: v for k, v in everything.items() if k[1] in some}
+
+
+@given(revisions())
+def test_comparing_a_revision_with_itself_reports_nothing(case):
+    old = build(*case, "old")
+    result = impact.analyse(old, old)
+    assert (result.changes, result.measures, result.roles, result.reports) == ((), (), (), ())
