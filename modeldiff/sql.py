@@ -82,30 +82,140 @@ class _Failure:
 
 @functools.lru_cache(maxsize=4096)
 def _parse_outcome(text: str) -> "exp.Expression | _Failure":
+    if not text.strip():
+        return _Failure(f"{_describe(text)} is empty; write an SQL expression")
+    protected = _protect_parameters(text)
+    outcome = _read(protected, text)
+    if isinstance(outcome, _Failure):
+        if protected != text:
+            as_written = _read(text, text)  # explain the error in the text the person wrote
+            if isinstance(as_written, _Failure):
+                return as_written
+            return _Failure(_PARAMETER_NAME.sub(r":\1", outcome.message))
+        return outcome
+    return _restore_parameters(outcome)
+
+
+def _read(text: str, original: str) -> "exp.Expression | _Failure":
+    """sqlglot's tree of `text`, or a failure that quotes `original`."""
     import sqlglot
     from sqlglot import exp
     from sqlglot.errors import ParseError, TokenError
 
-    if not text.strip():
-        return _Failure(f"{_describe(text)} is empty; write an SQL expression")
     try:
         with _quiet_sqlglot():
             tree = sqlglot.parse_one(text, read=DIALECT, into=exp.Condition)
     except ParseError as error:
-        return _Failure(_parse_error_message(text, error))
+        return _Failure(_parse_error_message(original, error))
     except TokenError:
-        return _Failure(f"{_describe(text)} cannot be read: {_token_problem(text)}")
+        return _Failure(f"{_describe(original)} cannot be read: {_token_problem(original)}")
     except RecursionError:
-        return _Failure(f"{_describe(text)} is nested too deeply to read")
+        return _Failure(f"{_describe(original)} is nested too deeply to read")
     except Exception as error:  # noqa: BLE001 - sqlglot must never leak a traceback
         first = str(error).splitlines()[0] if str(error) else type(error).__name__
-        return _Failure(f"{_describe(text)} cannot be read: {_strip_ansi(first)}")
+        return _Failure(f"{_describe(original)} cannot be read: {_strip_ansi(first)}")
     if tree is None:
-        return _Failure(f"{_describe(text)} is empty; write an SQL expression")
+        return _Failure(f"{_describe(original)} is empty; write an SQL expression")
     if isinstance(tree, exp.Block):
-        return _Failure(f"{_describe(text)} holds several statements; write one expression without ';'")
+        return _Failure(f"{_describe(original)} holds several statements; write one expression without ';'")
     if isinstance(tree, exp.Command) or tree.find(exp.Command) is not None:
-        return _Failure(f"{_describe(text)} cannot be read as an expression")
+        return _Failure(f"{_describe(original)} cannot be read as an expression")
+    return tree
+
+
+# `:name` parameters. sqlglot reads `:user` as a placeholder, but not the same
+# way in every position (`(- :user)` comes back as an alias), so each one is
+# read as a plain name and turned back into a placeholder in the tree.
+_PARAMETER_PREFIX = "__modeldiff_parameter__"
+_PARAMETER_NAME = re.compile(_PARAMETER_PREFIX + r"([A-Za-z_][A-Za-z0-9_]*)")
+_SKIPPED = re.compile(r"--|/\*|'|\"|\$(?:[A-Za-z_][A-Za-z0-9_]*)?\$|:[A-Za-z_][A-Za-z0-9_]*")
+_NO_OPERAND_BEFORE = frozenset(":_\"')]}") | frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789")
+
+
+def _protect_parameters(text: str) -> str:
+    """`text` with each `:name` that starts an operand written as a plain name.
+
+    Strings, quoted names, comments and dollar-quoted strings are left alone,
+    and so are `::type` casts and a `:name` right after a name or a value.
+    """
+    if ":" not in text:
+        return text
+    out: list[str] = []
+    pos = 0
+    while True:
+        match = _SKIPPED.search(text, pos)
+        if match is None:
+            out.append(text[pos:])
+            return "".join(out)
+        start, token = match.start(), match.group()
+        if token.startswith(":"):
+            if start > 0 and text[start - 1] in _NO_OPERAND_BEFORE:
+                out.append(text[pos : match.end()])
+            else:
+                out.append(text[pos:start] + _PARAMETER_PREFIX + token[1:])
+            pos = match.end()
+            continue
+        end = _skip_from(text, start, token)
+        out.append(text[pos:end])
+        pos = end
+        if pos >= len(text):
+            return "".join(out)
+
+
+def _skip_from(text: str, start: int, token: str) -> int:
+    """Where a comment, string or quoted name that begins at `start` ends (or the text ends)."""
+    if token == "--":
+        newline = text.find("\n", start)
+        return len(text) if newline < 0 else newline + 1
+    if token == "/*":
+        depth, pos = 0, start
+        while pos < len(text):
+            if text.startswith("/*", pos):
+                depth, pos = depth + 1, pos + 2
+            elif text.startswith("*/", pos):
+                depth, pos = depth - 1, pos + 2
+                if depth == 0:
+                    return pos
+            else:
+                pos += 1
+        return len(text)
+    if token.startswith("$"):
+        close = text.find(token, start + len(token))
+        return len(text) if close < 0 else close + len(token)
+    escaped = token == "'" and start > 0 and text[start - 1] in "eE" and (start < 2 or not _is_name_char(text[start - 2]))
+    pos = start + 1
+    while pos < len(text):
+        char = text[pos]
+        if escaped and char == "\\":
+            pos += 2
+            continue
+        if char == token:
+            if text.startswith(token * 2, pos):
+                pos += 2
+                continue
+            return pos + 1
+        pos += 1
+    return len(text)
+
+
+def _is_name_char(char: str) -> bool:
+    return char.isalnum() or char == "_"
+
+
+def _restore_parameters(tree: "exp.Expression") -> "exp.Expression":
+    """Turn the plain names `_protect_parameters` wrote back into placeholders."""
+    from sqlglot import exp
+
+    for column in list(tree.find_all(exp.Column)):
+        if column.args.get("table") or not isinstance(column.this, exp.Identifier):
+            continue
+        match = _PARAMETER_NAME.fullmatch(column.this.this)
+        if match is None:
+            continue
+        placeholder = exp.Placeholder(this=match.group(1))
+        if column is tree:
+            return placeholder
+        column.replace(placeholder)
     return tree
 
 
@@ -347,16 +457,35 @@ class Facts:
 
 
 def facts(text: str) -> Facts:
-    """Everything the checks need about one expression; raises SqlError."""
-    parse(text)
-    return _facts(text)
+    """Everything the checks need about one expression; raises SqlError.
+
+    Common shapes (`sum(fare)`, `count(*)`, `region = 'East'`, `a / nullif(b, 0)`)
+    are read by a small exact parser of our own; anything else by sqlglot.
+    The tests hold both to the same answer.
+    """
+    if not isinstance(text, str):
+        parse(text)  # raises
+    found = _facts(text)
+    if isinstance(found, _Failure):
+        raise SqlError(found.message, text)
+    return found
 
 
 @functools.lru_cache(maxsize=1 << 16)
-def _facts(text: str) -> Facts:
+def _facts(text: str) -> Facts | _Failure:
+    quick = _fast_facts(text)
+    if quick is not None:
+        return quick
+    outcome = _parse_outcome(text)
+    if isinstance(outcome, _Failure):
+        return outcome
+    return _tree_facts(outcome)
+
+
+def _tree_facts(tree: "exp.Expression") -> Facts:
+    """Facts from sqlglot's tree: one iterative walk."""
     from sqlglot import exp
 
-    tree = parse(text)
     columns: set[tuple[str | None, str]] = set()
     outside: set[tuple[str | None, str]] = set()
     aggregates: set[str] = set()
@@ -706,7 +835,7 @@ def derived_refs_fast(expr: str, measure_names: Iterable[str]) -> frozenset[str]
 
 @dataclass(frozen=True)
 class _Scan:
-    tokens: tuple[tuple[str, str], ...]  # (kind, text); kinds: word quoted number string op ( ) , .
+    tokens: tuple[tuple[str, str], ...]  # (kind, text); kinds: word quoted param number string op ( ) , .
     unsure: bool = False  # something outside the scanner's small grammar
 
 
@@ -717,6 +846,7 @@ _TOKEN = re.compile(
   | (?P<block_comment>/\*)
   | (?P<string>')
   | (?P<quoted>")
+  | (?P<param>:[A-Za-z_][A-Za-z0-9_]*)
   | (?P<number>\d+(?:\.\d*)?(?:[eE][+-]?\d+)?)
   | (?P<word>[A-Za-z_][A-Za-z0-9_]*)
   | (?P<op>[-+*/%=<>!]+)
@@ -771,7 +901,7 @@ def _scan(text: str) -> _Scan:
                 return _Scan(tuple(tokens), unsure=True)
             if kind == "punct":
                 kind = value
-            if kind == "word" and pos < end and not (text[pos].isspace() or text[pos] in "()+-*/%=<>!,."):
+            if kind in ("word", "param") and pos < end and not (text[pos].isspace() or text[pos] in "()+-*/%=<>!,."):
                 return _Scan(tuple(tokens), unsure=True)  # e'..', x'..', a$b, café ...
             tokens.append((kind, value))
     return _Scan(tuple(tokens))
@@ -808,6 +938,8 @@ def _fast_names(text: str) -> tuple[frozenset[str], frozenset[str]] | None:
         after = tokens[index + 1][0] if index + 1 < len(tokens) else None
         if kind == "." and (after not in ("word", "quoted") or index == 0 or not _names_something(tokens[index - 1])):
             return None  # `.5`, `t.*`, `null.x`
+        if kind == "param" and (after in ("(", ".") or (index > 0 and _ends_a_value(tokens[index - 1]))):
+            return None  # `:user(`, `:user.x`, `x :user`
         if kind not in ("word", "quoted"):
             continue
         before = tokens[index - 1][0] if index > 0 else None
@@ -828,6 +960,12 @@ def _fast_names(text: str) -> tuple[frozenset[str], frozenset[str]] | None:
             continue  # a qualifier
         found.add(value)
     return frozenset(found), frozenset(keywords)
+
+
+def _ends_a_value(token: tuple[str, str]) -> bool:
+    """Whether a token can end an operand (so a parameter right after it is no operand)."""
+    kind, value = token
+    return kind in ("quoted", "param", "number", "string", ")") or _names_something(token)
 
 
 def _names_something(token: tuple[str, str]) -> bool:
@@ -855,3 +993,308 @@ def _known_functions() -> frozenset[str]:
 
     parser = DuckDB.parser_class
     return frozenset(parser.FUNCTIONS) | frozenset(parser.FUNCTION_PARSERS)
+
+
+# ---------------------------------------------------------------- fast facts for common shapes
+
+_AGGREGATES = frozenset({"sum", "count", "avg", "min", "max"})
+# Plain functions whose arguments sqlglot parses as ordinary expressions, with
+# the number of arguments it accepts.
+_PLAIN_ARITY = {"nullif": (2, 2), "coalesce": (1, None), "round": (1, 2), "abs": (1, 1), "lower": (1, 1), "upper": (1, 1)}
+_COMPARISONS = frozenset({"=", "<>", "!=", "<", ">", "<=", ">="})
+_NUMBER = re.compile(r"\d+(?:\.\d+)?(?:[eE][+-]?\d+)?\Z")
+_MAX_DEPTH = 64
+
+
+class _Unsure(Exception):
+    """The text leaves the small grammar: let sqlglot read it."""
+
+
+def _fast_facts(text: str) -> Facts | None:
+    """Facts of a text in a small grammar, or None to let sqlglot decide.
+
+    Accepts only shapes that sqlglot reads the same way (tested), so a text
+    it accepts is never one sqlglot would refuse.
+    """
+    scan = _scan(text)
+    if scan.unsure or not scan.tokens:
+        return None
+    reader = _FastReader(scan.tokens)
+    try:
+        kind = reader.expression(False)
+        if reader.pos != len(scan.tokens):
+            return None
+    except _Unsure:
+        return None
+    return Facts(
+        columns=frozenset(reader.columns),
+        outside_aggregate=frozenset(reader.outside),
+        aggregates=tuple(sorted(reader.aggregates)),
+        parameters=frozenset(reader.parameters),
+        subquery=False,
+        condition_like=kind != "value",
+    )
+
+
+class _FastReader:
+    """Recursive descent over `_scan` tokens; each method returns "value" or "other".
+
+    "value" marks a literal or arithmetic at the top (not a condition), as
+    `_plainly_a_value` does for sqlglot's tree; parentheses are transparent.
+    """
+
+    def __init__(self, tokens: tuple[tuple[str, str], ...]) -> None:
+        self.tokens = tokens
+        self.pos = 0
+        self.depth = 0
+        self.columns: set[tuple[str | None, str]] = set()
+        self.outside: set[tuple[str | None, str]] = set()
+        self.aggregates: set[str] = set()
+        self.parameters: set[str] = set()
+
+    # -- tokens
+    def peek(self, offset: int = 0) -> tuple[str, str] | None:
+        index = self.pos + offset
+        return self.tokens[index] if index < len(self.tokens) else None
+
+    def keyword(self, offset: int = 0) -> str | None:
+        token = self.peek(offset)
+        if token is not None and token[0] == "word" and token[1].lower() in _SIMPLE_KEYWORDS:
+            return token[1].lower()
+        return None
+
+    def take_keyword(self, word: str) -> bool:
+        if self.keyword() == word:
+            self.pos += 1
+            return True
+        return False
+
+    def take(self, kind: str, value: str | None = None) -> bool:
+        token = self.peek()
+        if token is not None and token[0] == kind and (value is None or token[1] == value):
+            self.pos += 1
+            return True
+        return False
+
+    def expect(self, kind: str, value: str | None = None) -> None:
+        if not self.take(kind, value):
+            raise _Unsure
+
+    def expect_keyword(self, word: str) -> None:
+        if not self.take_keyword(word):
+            raise _Unsure
+
+    # -- grammar, loosest binding first
+    def expression(self, inside: bool) -> str:
+        self.depth += 1
+        if self.depth > _MAX_DEPTH:
+            raise _Unsure
+        kind = self.disjunction(inside)
+        self.depth -= 1
+        return kind
+
+    def disjunction(self, inside: bool) -> str:
+        kind = self.conjunction(inside)
+        while self.take_keyword("or"):
+            self.conjunction(inside)
+            kind = "other"
+        return kind
+
+    def conjunction(self, inside: bool) -> str:
+        kind = self.negation(inside)
+        while self.take_keyword("and"):
+            self.negation(inside)
+            kind = "other"
+        return kind
+
+    def negation(self, inside: bool) -> str:
+        if self.take_keyword("not"):
+            self.depth += 1
+            if self.depth > _MAX_DEPTH:
+                raise _Unsure
+            self.negation(inside)
+            self.depth -= 1
+            return "other"
+        return self.comparison(inside)
+
+    def comparison(self, inside: bool) -> str:
+        kind = self.sum(inside)
+        token = self.peek()
+        if token is not None and token[0] == "op" and token[1] in _COMPARISONS:
+            self.pos += 1
+            self.sum(inside)
+            return "other"
+        word = self.keyword()
+        if word == "is":
+            self.pos += 1
+            self.take_keyword("not")
+            if self.keyword() not in ("null", "true", "false"):
+                raise _Unsure
+            self.pos += 1
+            return "other"
+        negated = word == "not" and self.keyword(1) in ("in", "between", "like", "ilike")
+        if negated:
+            self.pos += 1
+            word = self.keyword()
+        if word == "in":
+            self.pos += 1
+            self.expect("(")
+            self.sum(inside)
+            while self.take(","):
+                self.sum(inside)
+            self.expect(")")
+            return "other"
+        if word == "between":
+            self.pos += 1
+            self.sum(inside)
+            self.expect_keyword("and")
+            self.sum(inside)
+            return "other"
+        if word in ("like", "ilike"):
+            self.pos += 1
+            self.sum(inside)
+            return "other"
+        if negated:
+            raise _Unsure
+        return kind
+
+    def sum(self, inside: bool) -> str:
+        kind = self.product(inside)
+        while self.take("op", "+") or self.take("op", "-"):
+            self.product(inside)
+            kind = "value"
+        return kind
+
+    def product(self, inside: bool) -> str:
+        kind = self.unary(inside)
+        while self.take("op", "*") or self.take("op", "/") or self.take("op", "%"):
+            self.unary(inside)
+            kind = "value"
+        return kind
+
+    def unary(self, inside: bool) -> str:
+        if self.take("op", "-"):
+            self.depth += 1
+            if self.depth > _MAX_DEPTH:
+                raise _Unsure
+            self.unary(inside)
+            self.depth -= 1
+            return "value"
+        return self.primary(inside)
+
+    def primary(self, inside: bool) -> str:
+        token = self.peek()
+        if token is None:
+            raise _Unsure
+        kind, value = token
+        if kind == "number":
+            if not _NUMBER.match(value):
+                raise _Unsure
+            self.pos += 1
+            return "value"
+        if kind == "string":
+            self.pos += 1
+            return "value"
+        if kind == "param":
+            self.pos += 1
+            self.parameters.add(value[1:].lower())
+            return "other"
+        if kind == "(":
+            self.pos += 1
+            inner = self.expression(inside)
+            self.expect(")")
+            return inner
+        if kind == "quoted":
+            return self.column(inside)
+        if kind != "word":
+            raise _Unsure
+        word = value.lower()
+        if word in ("null", "true", "false"):
+            self.pos += 1
+            return "other"
+        if word == "case":
+            self.pos += 1
+            self.case(inside)
+            return "other"
+        if word in _SIMPLE_KEYWORDS:
+            raise _Unsure
+        following = self.peek(1)
+        if following is not None and following[0] == "(":
+            return self.function(inside)
+        if word in _reserved_words():
+            raise _Unsure
+        return self.column(inside)
+
+    def column(self, inside: bool) -> str:
+        parts = [self.name()]
+        while self.take("."):
+            parts.append(self.name())
+        if len(parts) > 3 or self.take("("):
+            raise _Unsure
+        ref = (".".join(parts[:-1]) or None, parts[-1])
+        self.columns.add(ref)
+        if not inside:
+            self.outside.add(ref)
+        return "other"
+
+    def name(self) -> str:
+        token = self.peek()
+        if token is None or not _names_something(token):
+            raise _Unsure
+        if token[0] == "word" and token[1].lower() in _reserved_words():
+            raise _Unsure
+        self.pos += 1
+        return token[1]
+
+    def function(self, inside: bool) -> str:
+        name = self.peek()[1]
+        word = name.lower()
+        self.pos += 2  # the name and "("
+        if word in _AGGREGATES:
+            if word == "count" and self.take("op", "*"):
+                pass
+            else:
+                if word == "count" and self.peek() is not None and self.peek()[0] == "word" and self.peek()[1].lower() == "distinct":
+                    self.pos += 1
+                self.expression(True)
+            self.expect(")")
+            self.aggregates.add(word)
+            return "other"
+        if word in _PLAIN_ARITY:
+            low, high = _PLAIN_ARITY[word]
+            count = self.arguments(inside)
+            if count < low or (high is not None and count > high):
+                raise _Unsure
+            return "other"
+        if word in _reserved_words() or name.upper() in _known_functions():
+            raise _Unsure
+        aggregate = word in EXTRA_AGGREGATES
+        self.arguments(inside or aggregate)
+        if aggregate:
+            self.aggregates.add(word)
+        return "other"
+
+    def arguments(self, inside: bool) -> int:
+        """Comma-separated expressions up to the closing parenthesis; their number."""
+        if self.take(")"):
+            return 0
+        count = 1
+        self.expression(inside)
+        while self.take(","):
+            self.expression(inside)
+            count += 1
+        self.expect(")")
+        return count
+
+    def case(self, inside: bool) -> None:
+        if self.keyword() != "when":
+            self.expression(inside)
+        if self.keyword() != "when":
+            raise _Unsure
+        while self.take_keyword("when"):
+            self.expression(inside)
+            self.expect_keyword("then")
+            self.expression(inside)
+        if self.take_keyword("else"):
+            self.expression(inside)
+        self.expect_keyword("end")

@@ -387,6 +387,62 @@ def test_derived_refs_fast_equals_measure_refs_on_generated_text(text):
     assert sql.derived_refs_fast(text, TRICKY_MEASURES) == expected
 
 
+# ---------------------------------------------------------------- fast facts
+
+
+def test_common_shapes_are_read_without_sqlglot():
+    # Guards the fast reader itself: the equality tests below would also pass if it never answered.
+    for text in ["sum(amount)", "count(*)", "count(distinct rider_key)", "region = 'East'",
+                 "staff_email = :user", "m1 / nullif(m2, 0)", "status = 'completed' and tip > 0"]:  # fmt: skip
+        assert sql._fast_facts(text) is not None, text
+    assert sql._fast_facts("sum(fare) over ()") is None
+    assert sql._fast_facts("sum(") is None  # unreadable text is left to sqlglot, which explains it
+
+
+_FACT_WORDS = ["fare", "Fare", "tip", "status", "end", "user", "date", "key", "x", "sum", "mean", "region", "round"]
+_FACT_FUNCTIONS = ["sum", "SUM", "count", "avg", "min", "max", "nullif", "coalesce", "round", "abs", "lower",
+                   "mean", "fsum", "my_udf", "date_part", "if", "left", "list", "median", "trim"]  # fmt: skip
+
+
+@st.composite
+def _fact_atoms(draw):
+    word = draw(st.sampled_from(_FACT_WORDS))
+    return draw(
+        st.sampled_from([word, word.upper(), f'"{word}"', f"t.{word}", f"a.t.{word}", f"'{word}'", "'it''s'",
+                         "1", "2.5", "1e3", "1.", "007", ":user", ":region", "*", "null", "true", "-1"])  # fmt: skip
+    )
+
+
+def _fact_compose(children):
+    operators = ["+", "-", "*", "/", "%", "=", "<>", "<", ">=", " and ", " or ", " like ", " is ", " in "]
+    return st.one_of(
+        st.builds(lambda a, o, b, s: f"{a}{s}{o}{s}{b}", children, st.sampled_from(operators), children, st.sampled_from(_SEPARATORS)),
+        st.builds(lambda a: f"({a})", children),
+        st.builds(lambda a: f"not {a}", children),
+        st.builds(lambda a: f"- {a}", children),
+        st.builds(lambda a, n: f"{a} is {n}", children, st.sampled_from(["null", "not null", "true", "x"])),
+        st.builds(lambda f, args: f"{f}({', '.join(args)})", st.sampled_from(_FACT_FUNCTIONS), st.lists(children, max_size=3)),
+        st.builds(lambda f, a: f"{f}(distinct {a})", st.sampled_from(["count", "sum"]), children),
+        st.builds(lambda a, b, c: f"case when {a} then {b} else {c} end", children, children, children),
+        st.builds(lambda o, a, b: f"case {o} when {a} then {b} end", children, children, children),
+        st.builds(lambda a, b, c, n: f"{a}{n} between {b} and {c}", children, children, children, st.sampled_from(["", " not"])),
+        st.builds(lambda a, items, n: f"{a}{n} in ({', '.join(items)})", children, st.lists(children, max_size=3), st.sampled_from(["", " not"])),
+    )  # fmt: skip
+
+
+@settings(max_examples=800, deadline=None, suppress_health_check=list(HealthCheck))
+@given(st.recursive(_fact_atoms(), _fact_compose, max_leaves=8))
+def test_fast_facts_equal_sqlglot_facts(text):
+    quick = sql._fast_facts(text)
+    try:
+        expected = sql._tree_facts(sql.parse(text))
+    except SqlError:
+        assert quick is None, "the fast reader accepted text that sqlglot refuses"
+        return
+    if quick is not None:
+        assert quick == expected
+
+
 # ---------------------------------------------------------------- base measures
 
 TRIPS = ["trip_key", "fare", "tip", "status", "bike_key", "started_at"]
