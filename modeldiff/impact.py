@@ -296,6 +296,8 @@ def _derived_graph_changes(a: _Analysis) -> list[Change]:
     """path.added / path.removed and ambiguity.* in the default setting (the model's own links)."""
     changes: list[Change] = []
     g_old, g_new = a.old_graph(), a.graph(a.new)
+    if not a.old.tables or not a.new.tables:
+        return _whole_model_ambiguities(g_new)
     for (source, target), pc in sorted(a.pairs().items()):
         subject = f"paths.{source}->{target}"
         details = {"links": sorted(pc.links)} | ({} if pc.complete else {"complete": False})
@@ -324,6 +326,22 @@ def _derived_graph_changes(a: _Analysis) -> list[Change]:
                 "ambiguity.resolved", subject, "numbers",
                 f"{source} reaches {target} along a single route again (it had {' / '.join(was[0])} and {' / '.join(was[1])}).",
                 before=[list(p) for p in was], after=None, details=details))
+    return changes
+
+
+def _whole_model_ambiguities(g_new) -> list[Change]:
+    """A model added (or removed) whole: every path is new (or gone), so listing them tells nothing.
+
+    Only the new model's ambiguous pairs are reported, found without listing paths.
+    """
+    changes = []
+    for source, target, first, second in g_new.ambiguous_pairs():
+        changes.append(Change(
+            "ambiguity.introduced", f"paths.{source}->{target}", "breaking",
+            f"{source} reaches {target} along more than one route ({' / '.join(first)} and {' / '.join(second)}) in "
+            f"this new model; what {target} shows under a filter on {source} then depends on the data along each "
+            f"route. Put one link on standby or make a flow one-way so a single route remains.",
+            before=None, after=[list(first), list(second)], details={"whole_model": True}))
     return changes
 
 
@@ -361,7 +379,7 @@ def _security_changes(a: _Analysis) -> list[Change]:
             changes.append(Change(
                 "security.exposed", f"roles.{name}.tables.{table}", "breaking",
                 f"SECURITY: role {name} no longer restricts {table}: rows of {table} that were hidden from its members "
-                f"become visible (it was restricted via {' / '.join(before[table]) or 'its own filter'} from {start}). "
+                f"become visible (it was restricted {_restriction_text(before[table], start)}). "
                 f"This can expose data a role must never see; the organisation's own security review decides whether "
                 f"it is acceptable.",
                 before=list(before[table]), after=None, details={"source": start}))
@@ -369,7 +387,7 @@ def _security_changes(a: _Analysis) -> list[Change]:
             start = _path_start(s_new, new_filters, after[table], table)
             changes.append(Change(
                 "security.tightened", f"roles.{name}.tables.{table}", "numbers",
-                f"Role {name} now restricts {table} (via {' / '.join(after[table]) or 'its own filter'} from {start}): "
+                f"Role {name} now restricts {table} ({_restriction_text(after[table], start)}): "
                 f"its members see fewer rows of {table}.",
                 before=None, after=list(after[table]), details={"source": start}))
         if same_edges and old_filters == new_filters:
@@ -387,6 +405,10 @@ def _security_changes(a: _Analysis) -> list[Change]:
                     before=[list(p) for p in sorted(old_paths)], after=[list(p) for p in sorted(new_paths)],
                     details={"source": start}))
     return changes
+
+
+def _restriction_text(path: Path, start: str) -> str:
+    return f"via {' / '.join(path)} from its filter on {start}" if path else "by its own filter on it"
 
 
 def _restricted(sec, filtered: list[str]) -> dict[str, Path]:

@@ -106,6 +106,28 @@ def _path_text(path) -> str:
     return " / ".join(path)
 
 
+def _role_kind(kind: str) -> bool:
+    return kind.startswith("security.") or kind.startswith("role.")
+
+
+def reason_words(reason: Reason, kinds: dict[str, str]) -> str:
+    """`c3 link.flow_widened, when filtered or grouped by calendar, via stock_value` (no paths)."""
+    kind = kinds.get(reason.change, "")
+    bits = [f"{reason.change} {kind}".strip()]
+    if reason.source:
+        bits.append(f"through the role's filter on {reason.source}" if _role_kind(kind)
+                    else f"when filtered or grouped by {reason.source}")
+    if reason.via:
+        bits.append(f"via {reason.via}")
+    return ", ".join(bits)
+
+
+def _role_extras(i: Impact) -> str:
+    parts = [f"{label}: {', '.join(tables)}" for label, tables in
+             (("exposed", i.exposed), ("tightened", i.tightened), ("rerouted", i.rerouted)) if tables]
+    return "; ".join(parts)
+
+
 def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
     from rich.markup import escape
 
@@ -115,6 +137,7 @@ def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
     for md in diffs:
         r = md.result
         counts = r.counts()
+        kinds = {c.id: c.kind for c in r.changes}
         out.print(f"[bold]{escape(r.new.name or r.old.name)}[/]: {escape(_side(md.old))} -> {escape(_side(md.new))}")
         if not r.changes and not r.new_errors:
             out.print("  [green]no changes[/]")
@@ -144,17 +167,11 @@ def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
             out.print()
             out.print(f"  [bold]impacted {title}[/] ({len(impacts)})")
             for i in impacts:
-                extra = ""
-                if i.exposed:
-                    extra = f"  exposed: {', '.join(i.exposed)}"
-                out.print(f"    [{_STYLE[i.severity]}]{escape(i.name)}[/] ({i.severity}){escape(extra)}")
+                extra = _role_extras(i)
+                out.print(f"    [{_STYLE[i.severity]}]{escape(i.name)}[/] ({i.severity})"
+                          + (f"  {escape(extra)}" if extra else ""))
                 for reason in i.reasons:
-                    bits = [reason.change]
-                    if reason.source:
-                        bits.append(f"when filtered or grouped by {reason.source}")
-                    if reason.via:
-                        bits.append(f"via {reason.via}")
-                    out.print(f"       {escape(', '.join(bits))}")
+                    out.print(f"       {escape(reason_words(reason, kinds))}")
                     for p in reason.paths_added:
                         out.print(f"         + {escape(_path_text(p))}")
                     for p in reason.paths_removed:
@@ -169,11 +186,23 @@ def _md(text: str) -> str:
     return text.replace("|", "\\|").replace("\n", " ")
 
 
-def _fold(title: str, rows: list[str]) -> list[str]:
+def _fold(title: str, rows: list[str], header: Sequence[str] = ()) -> list[str]:
+    """The first rows shown, the rest folded into <details> (a table's header is repeated inside it)."""
     if len(rows) <= MARKDOWN_LIST_LIMIT:
-        return rows
-    return rows[:MARKDOWN_LIST_LIMIT] + ["", f"<details><summary>{len(rows) - MARKDOWN_LIST_LIMIT} more {title}</summary>", ""] \
-        + rows[MARKDOWN_LIST_LIMIT:] + ["", "</details>"]
+        return list(header) + rows
+    shown, rest = rows[:MARKDOWN_LIST_LIMIT], rows[MARKDOWN_LIST_LIMIT:]
+    return (list(header) + shown + ["", f"<details><summary>{len(rest)} more {title}</summary>", ""]
+            + list(header) + rest + ["", "</details>"])
+
+
+def _md_reason(x: Reason, kinds: dict[str, str]) -> str:
+    kind = kinds.get(x.change, "")
+    text = f"{x.change}" + (f" `{kind}`" if kind else "") + (f" via {x.via}" if x.via else "")
+    if x.source:
+        text += f", role filter on `{x.source}`" if _role_kind(kind) else f", by `{x.source}`"
+    text += "".join(f", + {_path_text(p)}" for p in x.paths_added)
+    text += "".join(f", − {_path_text(p)}" for p in x.paths_removed)
+    return text
 
 
 def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
@@ -185,15 +214,16 @@ def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
                      f"{len(r.measures)} | {len(r.roles)} | {len(r.reports)} |")
     for md in diffs:
         r = md.result
+        kinds = {c.id: c.kind for c in r.changes}
         lines += ["", f"### `{r.new.name or r.old.name}`: `{_side(md.old)}` → `{_side(md.new)}`", ""]
         if any(c.kind == "security.exposed" for c in r.changes):
-            lines += [f"> **Security:** {SECURITY_CAUTION}", ""]
-        if not r.changes:
+            lines += [f"> **SECURITY:** {SECURITY_CAUTION}", ""]
+        if not r.changes and not r.new_errors:
             lines.append("No changes.")
             continue
-        rows = ["| id | severity | kind | subject | what it means |", "|---|---|---|---|---|"]
+        header = ["| id | severity | kind | subject | what it means |", "|---|---|---|---|---|"]
         body = [f"| {c.id} | {c.severity} | `{c.kind}` | `{c.subject}` | {_md(c.message)} |" for c in r.changes]
-        lines += rows + _fold("changes", body)
+        lines += _fold("changes", body, header)
         if r.new_errors:
             lines += ["", "**Errors in the new revision:**", ""] + [f"- `{f.rule}` `{f.subject}`: {_md(f.message)}" for f in r.new_errors]
         for title, impacts in (("measures", r.measures), ("roles", r.roles), ("reports", r.reports)):
@@ -202,11 +232,9 @@ def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
             lines += ["", f"#### Impacted {title} ({len(impacts)})", ""]
             items = []
             for i in impacts:
-                why = "; ".join(
-                    f"{x.change}" + (f" via {x.via}" if x.via else "") + (f", by `{x.source}`" if x.source else "")
-                    + "".join(f", + {_path_text(p)}" for p in x.paths_added) + "".join(f", − {_path_text(p)}" for p in x.paths_removed)
-                    for x in i.reasons)
-                exposed = f" — **exposed:** {', '.join(i.exposed)}" if i.exposed else ""
-                items.append(f"- **{i.name}** ({i.severity}){exposed}: {_md(why)}")
+                why = "; ".join(_md_reason(x, kinds) for x in i.reasons)
+                extra = _role_extras(i)
+                extra = f" — **{extra}**" if extra else ""
+                items.append(f"- **{i.name}** ({i.severity}){_md(extra)}: {_md(why)}")
             lines += _fold(title, items)
     stream.write("\n".join(lines) + "\n")
