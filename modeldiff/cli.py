@@ -141,7 +141,7 @@ def build_parser() -> argparse.ArgumentParser:
     from modeldiff.render import FORMATS
 
     parser = _Parser(prog="modeldiff", description="What a change to an analytical model does to its numbers and its row security.")
-    parser.add_argument("--version", action="version", version=f"modeldiff {__version__}")
+    parser.add_argument("--version", action="store_true", help="print the version and exit")
     sub = parser.add_subparsers(dest="command", metavar="COMMAND", parser_class=_Parser)
 
     p = sub.add_parser("check", help="check one revision of a model against the rules")
@@ -168,9 +168,12 @@ def main(argv: Sequence[str] | None = None, stdout: TextIO | None = None, stderr
     try:
         parser = build_parser()
         args = parser.parse_args(argv)
+        if args.version:
+            print(f"modeldiff {__version__}", file=stdout)
+            return 0
         if not args.command:
-            parser.print_help(stdout)
-            return 2
+            parser.print_help(stderr)
+            raise UsageError("no command given; try 'modeldiff check MODEL' or 'modeldiff diff OLD NEW'")
         return args.run(args, stdout)
     except ModeldiffError as exc:
         print(f"modeldiff: {exc}", file=stderr)

@@ -9,10 +9,17 @@ FORMATS = ("text", "json", "markdown")
 
 
 def console(stream: TextIO):
-    """A rich console for `stream`: colour only on a terminal, honouring NO_COLOR/FORCE_COLOR/TERM."""
+    """A rich console for `stream`: styles only on a terminal, none at all (not even bold) under NO_COLOR.
+
+    Off a terminal (CI logs, files, pipes) the width is COLUMNS or 100.
+    """
     from rich.console import Console
 
     width = None
     if not (hasattr(stream, "isatty") and stream.isatty()):
-        width = int(os.environ.get("COLUMNS", "100") or 100)
-    return Console(file=stream, width=width, highlight=False, emoji=False)
+        try:
+            width = int(os.environ.get("COLUMNS") or 100)
+        except ValueError:
+            width = 100
+    options = {"color_system": None} if os.environ.get("NO_COLOR") else {}
+    return Console(file=stream, width=width, highlight=False, emoji=False, **options)

@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import json
-import os
 from typing import Sequence, TextIO
 
 from modeldiff.model import Finding
@@ -29,22 +28,12 @@ def _counts(findings: Sequence[Finding]) -> tuple[int, int]:
     return sum(f.severity == "error" for f in findings), sum(f.severity == "warning" for f in findings)
 
 
-def _console(stream: TextIO):
-    """The shared console, but with no escape codes at all (not even bold) when NO_COLOR is set."""
-    from modeldiff.render import console
-
-    out = console(stream)
-    if os.environ.get("NO_COLOR"):
-        from rich.console import Console
-
-        out = Console(file=stream, width=out.width, color_system=None, highlight=False, emoji=False)
-    return out
-
-
 def as_text(model_name: str, source: str, findings: Sequence[Finding], stream: TextIO) -> None:
     from rich.markup import escape
 
-    out = _console(stream)
+    from modeldiff.render import console
+
+    out = console(stream)
     errors, warnings = _counts(findings)
     if not findings:
         out.print(f"[bold green]ok[/] model {escape(model_name)} ({escape(source)}): no findings")
