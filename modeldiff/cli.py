@@ -111,17 +111,57 @@ def cmd_diff(args, stdout: TextIO) -> int:
         if not paths:
             raise ModeldiffError(f"no model files (*.model.yaml or *.model/) found at {args.base} or "
                                  f"{args.head or 'the working tree'}; name them after --base")
-        for path in paths:
-            old_source = git.read_at(root, args.base, path)
-            new_source = git.read_at(root, args.head, path)
-            if old_source is None and new_source is None:
-                raise ModeldiffError(f"{path}: not found at {args.base} nor at {args.head or 'the working tree'}; check the path")
-            result = _diff_pair(None, None, (None, old_source), (None, new_source))
-            diffs.append(ModelDiff(Side(args.base, path), Side(args.head, path), result))
+        diffs.extend(_diff_revisions(root, args.base, args.head, paths))
     {"json": diff_out.as_json, "markdown": diff_out.as_markdown}.get(args.format, diff_out.as_text)(diffs, stdout)
     from modeldiff.changes import EXIT_CODES
 
     return EXIT_CODES[diff_out.verdict_of(diffs)]
+
+
+def _diff_revisions(root: str, base: str, head: str | None, paths: list[str]):
+    """ModelDiffs for `paths` between two revisions; a model moved to another path is paired by its name."""
+    from modeldiff import git, impact, load
+    from modeldiff.render.diff_out import ModelDiff, Side
+
+    pairs: list[tuple[str | None, str | None]] = []
+    old_only: dict[str, object] = {}
+    new_only: dict[str, object] = {}
+    loaded: dict[tuple[str, str | None], object] = {}
+    for path in paths:
+        old_source, new_source = git.read_at(root, base, path), git.read_at(root, head, path)
+        if old_source is None and new_source is None:
+            raise ModeldiffError(f"{path}: not found at {base} nor at {head or 'the working tree'}; check the path")
+        for side, source in (("old", old_source), ("new", new_source)):
+            if source is not None:
+                loaded[(side, path)] = load.load_files(source.files)
+        if old_source is not None and new_source is not None:
+            pairs.append((path, path))
+        elif old_source is not None:
+            old_only[path] = loaded[("old", path)]
+        else:
+            new_only[path] = loaded[("new", path)]
+    # a model present only at an old path and only at a new path, under the same name, was moved
+    by_name_new: dict[str, list[str]] = {}
+    for path, result in new_only.items():
+        by_name_new.setdefault(result.model.name, []).append(path)
+    for path, result in sorted(old_only.items()):
+        candidates = by_name_new.get(result.model.name, [])
+        if len(candidates) == 1:
+            pairs.append((path, candidates.pop()))
+        else:
+            pairs.append((path, None))
+    pairs += [(None, path) for paths_left in by_name_new.values() for path in paths_left]
+
+    out = []
+    for old_path, new_path in sorted(pairs, key=lambda p: (p[1] or p[0], p[0] or "")):
+        old_result = loaded.get(("old", old_path)) if old_path else None
+        new_result = loaded.get(("new", new_path)) if new_path else None
+        name = (new_result or old_result).model.name
+        result = impact.analyse(old_result.model if old_result else _empty_model(name),
+                                new_result.model if new_result else _empty_model(name),
+                                old_result.findings if old_result else (), new_result.findings if new_result else ())
+        out.append(ModelDiff(Side(base, old_path or new_path), Side(head, new_path or old_path), result))
+    return out
 
 
 def _repo_relative(root: str, path: str) -> str:
