@@ -16,6 +16,19 @@ own overrides; inside a report, the variant options the report chooses (the
 default for the others), the report's overrides, then the measure's. A
 report's numbers move through path changes only from the tables it places
 filters on (`by`, `where`, and its variant options' `where`).
+
+Further decisions:
+- `use` and `flow` (of a measure, a report or a variant option) act only
+  through the filter paths they open or close, so their changes impact a
+  measure or report only where its paths changed; a variant option's `where`
+  in force that changed impacts what its table's filter reaches.
+- A path that appeared or disappeared is blamed on the change that moved one
+  of its edges: the link's own change, else the setting change naming it (or
+  a link joining the same tables), else a change of a link joining the same
+  tables, else the removal or addition of one of its tables.
+- A measure or report that did not exist before has no impact: no number of
+  it moved. A model added or removed whole lists its ambiguities, not every
+  path.
 """
 
 from __future__ import annotations

@@ -136,7 +136,7 @@ def test_ambiguity_resolved_when_the_flip_is_undone():
     assert r.exit_code == 1
 
 
-def test_no_ambiguity_reported_when_paths_only_grow_without_a_second_route():
+def test_no_ambiguity_reported_when_one_route_replaces_another():
     r = scenario("standby_cleared")
     assert not [c for c in r.changes if c.kind.startswith("ambiguity.")]
 
