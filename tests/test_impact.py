@@ -390,6 +390,21 @@ def test_reference_already_broken_in_the_old_revision_is_not_new():
     assert r.exit_code == 3  # the new revision still has an error finding
 
 
+def test_measure_renamed_while_a_report_shows_it_breaks_that_report_only():
+    r = scenario("measure_renamed_shown")
+    renamed = change(r, "measure.renamed", "measures.riding_minutes")
+    assert (renamed.before, renamed.after, renamed.severity) == ("ride_minutes", "riding_minutes", "breaking")
+    assert names(r.measures) == []  # no number of it moves
+    report = impact_of(r.reports, "rider_trips")
+    assert report.severity == "breaking" and {x.change for x in report.reasons} == {renamed.id}
+
+
+def test_measure_renamed_that_no_report_shows_is_safe():
+    r = scenario("measure_renamed_unshown")
+    assert [(c.kind, c.severity) for c in r.changes] == [("measure.renamed", "safe")]
+    assert (names(r.measures), names(r.reports), r.exit_code) == ([], [], 0)
+
+
 @pytest.mark.parametrize("name", ["link_renamed", "link_renamed_used", "table_renamed"])
 def test_renames_produce_one_change_and_no_path_or_security_change(name):
     r = scenario(name)
