@@ -516,6 +516,18 @@ class _Impacts:
         self._security = None
         self._own_cache: dict[str, list[Reason]] = {}
         self.key_changes = [c for c in changes if c.kind in ("link.key_switched", "link.cardinality_changed")]
+        self.filter_changes = [c for c in changes if c.kind == "role.filter_changed"]
+        self._reach_cache: dict[str, dict[str, list[str]]] = {}
+        # changes of a table itself or of its columns that can move a measure living on it, by table
+        self.table_changes: dict[str, list[Change]] = {}
+        self.security_by_table: dict[str, list[Change]] = {}
+        for change in changes:
+            parts = change.subject.split(".")
+            if (change.kind.startswith("column.") and change.severity != "safe" and len(parts) == 4) or \
+                    (change.kind in ("table.key_changed", "table.history_changed", "table.kind_changed") and len(parts) == 2):
+                self.table_changes.setdefault(parts[1], []).append(change)
+            elif change.kind.startswith("security."):
+                self.security_by_table.setdefault(parts[3], []).append(change)
         self._link_edges: dict[int, tuple[Any, dict[str, list]]] = {}
 
     # -- helpers
@@ -604,8 +616,6 @@ class _Impacts:
         return self._own_cache[name]
 
     def _own_reasons(self, name: str) -> list[Reason]:
-        from modeldiff import sql
-
         m = self.a.new.measures[name]
         reasons = []
         for change in self.by_subject.get(f"measures.{name}", ()):
@@ -614,40 +624,47 @@ class _Impacts:
                 reasons.append(Reason(change.id, change.message))
         if m.table is None:
             return reasons
-        try:
-            read = {c.lower() for _, c in sql.column_refs(m.expr)}
-            if m.where:
-                read |= {c.lower() for _, c in sql.column_refs(m.where)}
-        except sql.SqlError:
-            read = set()
         homes = {m.table, self.old_name("tables", m.table)}
-        for change in self.changes:
+        nearby = [c for home in sorted(homes) for c in self.table_changes.get(home, ())]
+        read = self._columns_read(m) if nearby else set()
+        for change in nearby:
             parts = change.subject.split(".")
-            if change.kind.startswith("column.") and change.severity != "safe" and len(parts) == 4 \
-                    and parts[1] in homes and (parts[3].lower() in read or str(change.after).lower() in read
-                                               or str(change.before).lower() in read):
+            if change.kind.startswith("column."):
+                if {parts[3].lower(), str(change.after).lower(), str(change.before).lower()} & read:
+                    reasons.append(Reason(change.id, change.message))
+            else:
                 reasons.append(Reason(change.id, change.message))
-            elif change.kind in ("table.key_changed", "table.history_changed", "table.kind_changed") \
-                    and parts[0] == "tables" and len(parts) == 2 and parts[1] in homes:
-                reasons.append(Reason(change.id, change.message))
-        for change in self.kinds("security."):
-            if change.subject.endswith(f".tables.{m.table}"):
-                role = change.subject.split(".")[1]
-                reasons.append(Reason(change.id, f"The rows role {role} may see of {m.table} changed: {change.message}",
-                                      source=change.details.get("source")))
-        for change in self.kinds("role.filter_changed"):
+        for change in self.security_by_table.get(m.table, ()):
             role = change.subject.split(".")[1]
-            tables = self._filter_reach(role, change)
+            reasons.append(Reason(change.id, f"The rows role {role} may see of {m.table} changed: {change.message}",
+                                  source=change.details.get("source")))
+        for change in self.filter_changes:
+            role = change.subject.split(".")[1]
+            tables = self._filter_reach(change)
             if m.table in tables:
                 reasons.append(Reason(change.id, f"Role {role}'s filter on {', '.join(tables[m.table])} changed, so the "
                                                  f"rows its members see of {m.table} may change.",
                                       source=tables[m.table][0]))
         return reasons
 
-    def _filter_reach(self, role: str, change: Change) -> dict[str, list[str]]:
+    @staticmethod
+    def _columns_read(m: Measure) -> set[str]:
+        from modeldiff import sql
+
+        try:
+            read = {c.lower() for _, c in sql.column_refs(m.expr)}
+            if m.where:
+                read |= {c.lower() for _, c in sql.column_refs(m.where)}
+        except sql.SqlError:
+            return set()
+        return read
+
+    def _filter_reach(self, change: Change) -> dict[str, list[str]]:
         """Tables (new names) that the changed filters of a role restrict in either revision -> those filters."""
         from modeldiff import graph
 
+        if change.id in self._reach_cache:
+            return self._reach_cache[change.id]
         if self._security is None:
             self._security = (in_new_names(graph.security_graph(self.a.old), self.a.renames),
                               graph.security_graph(self.a.new))
@@ -658,6 +675,7 @@ class _Impacts:
                 for reached in sec.reach(self.a.renames.table(table)):
                     if table not in out.setdefault(reached, []):
                         out[reached].append(table)
+        self._reach_cache[change.id] = out
         return out
 
     # -- reasons that depend on the setting: paths into the home table, keys on them, options' `where`
