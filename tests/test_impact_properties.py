@@ -223,3 +223,78 @@ def test_comparing_a_revision_with_itself_reports_nothing(case):
     old = build(*case, "old")
     result = impact.analyse(old, old)
     assert (result.changes, result.measures, result.roles, result.reports) == ((), (), (), ())
+
+
+# --- measures with their own settings ---------------------------------------------------------------
+
+
+def setting_reference(model: Model, use: tuple[str, ...], flow: dict[str, str]) -> nx.MultiDiGraph:
+    """semantics.md sections 1-2 written again: `use` carries a link and benches its twins, `flow` sets or removes."""
+    standby = {n: link.standby for n, link in model.links.items()}
+    flows = {n: link.flow for n, link in model.links.items()}
+    for name in use:
+        standby[name] = False
+    for name in use:
+        for twin, link in model.links.items():
+            if twin not in use and link.tables == model.links[name].tables:
+                standby[twin] = True
+    flows.update(flow)
+    g = nx.MultiDiGraph()
+    g.add_nodes_from(model.tables)
+    for name, link in model.links.items():
+        if standby[name] or flows[name] == "off":
+            continue
+        g.add_edge(link.to_table, link.from_table, key=name)
+        if flows[name] == "two-way" or link.cardinality == "one-to-one":
+            g.add_edge(link.from_table, link.to_table, key=name)
+    return g
+
+
+@st.composite
+def revisions_with_overrides(draw):
+    tables, specs, _ = draw(revisions())
+    specs = [s for s in specs if s.old is not None and s.new is not None and not s.renamed]  # overrides name them
+    names = [f"l{s.index}" for s in specs]
+
+    def overrides():
+        use = tuple(draw(st.lists(st.sampled_from(names), max_size=1))) if names else ()
+        flow = dict(draw(st.lists(st.tuples(st.sampled_from(names), st.sampled_from(["one-way", "two-way", "off"])),
+                                  max_size=1))) if names else {}
+        return use, flow
+
+    chosen = {t: (overrides(), overrides()) for t in tables}
+    return tables, specs, chosen
+
+
+def with_overrides(model: Model, chosen, side: int) -> Model:
+    from dataclasses import replace
+
+    from modeldiff.model import Overrides
+
+    measures = {}
+    for t, m in ((n[2:], m) for n, m in model.measures.items()):
+        use, flow = chosen[t][side]
+        measures[m.name] = replace(m, overrides=Overrides(use, flow))
+    return replace(model, measures=measures)
+
+
+@given(revisions_with_overrides())
+def test_a_measure_with_overrides_is_impacted_exactly_when_paths_into_its_home_differ_in_its_setting(case):
+    tables, specs, chosen = case
+    old = with_overrides(build(tables, specs, None, "old"), chosen, 0)
+    new = with_overrides(build(tables, specs, None, "new"), chosen, 1)
+    result = impact.analyse(old, new)
+    expected = {}
+    for t in tables:
+        before = all_paths(setting_reference(old, *chosen[t][0]))
+        after = all_paths(setting_reference(new, *chosen[t][1]))
+        sources = {s for (s, x) in after if x == t and before[(s, x)] != after[(s, x)]}
+        if sources:
+            expected[f"m_{t}"] = sources
+    got = {i.name: {r.source for r in i.reasons} for i in result.measures}
+    assert got == expected
+    by_id = {c.id: c for c in result.changes}
+    for i in result.measures:  # the blame is a change of a link on the path, or this measure's own overrides
+        for r in i.reasons:
+            blamed = by_id[r.change]
+            assert blamed.kind.startswith("link.") or blamed.subject == f"measures.{i.name}"
