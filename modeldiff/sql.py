@@ -4,7 +4,9 @@ A model holds SQL in four places: a measure's `expr` and `where`, a role's
 filters, a report's `where` and a variant option's `where`. Each is one plain
 SQL expression, read in DuckDB's dialect (the engine that data verification
 runs on). `:user` is a parameter, the person viewing; DuckDB also spells it
-`$user`, and both mean the same.
+`$user`, and both mean the same. sqlglot reads `:user` differently in some
+positions, so each `:name` is read as a plain name and put back as a
+placeholder in the tree.
 
 Names are compared the way DuckDB compares them: case-insensitively, quoted or
 not. Functions here return names as they were written; compare them with
@@ -22,8 +24,8 @@ import functools
 import json
 import logging
 import re
-from dataclasses import dataclass
 from collections.abc import Iterable, Iterator, Mapping, Set
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -182,7 +184,8 @@ def _skip_from(text: str, start: int, token: str) -> int:
     if token.startswith("$"):
         close = text.find(token, start + len(token))
         return len(text) if close < 0 else close + len(token)
-    escaped = token == "'" and start > 0 and text[start - 1] in "eE" and (start < 2 or not _is_name_char(text[start - 2]))
+    e_string = start > 0 and text[start - 1] in "eE" and (start < 2 or not _is_name_char(text[start - 2]))
+    escaped = token == "'" and e_string  # e'...' strings take backslash escapes
     pos = start + 1
     while pos < len(text):
         char = text[pos]
@@ -374,8 +377,7 @@ def _canonical(root: "exp.Expression", table: str | None) -> str:
         key = id(node)
         if key in bound:
             form[key] = form[id(node.this)]  # a lambda's variable, written in another case
-        elif isinstance(node, exp.Paren) or (isinstance(node, exp.Alias) and not node.args.get("alias")):
-            # sqlglot reads `((:user))` as an alias without a name: a plain wrapper too
+        elif _is_wrapper(node, exp):
             form[key] = form[id(node.this)]
             if id(node.this) in chain:
                 chain[key] = chain[id(node.this)]
@@ -392,6 +394,17 @@ def _canonical(root: "exp.Expression", table: str | None) -> str:
         else:
             form[key] = _node_form(node, form, table, exp)
     return form[id(root)]
+
+
+def _is_wrapper(node: "exp.Expression", exp) -> bool:  # noqa: ANN001
+    """Parentheses, and the nodes sqlglot makes of redundant ones."""
+    if isinstance(node, exp.Paren):
+        return True
+    if isinstance(node, exp.Alias):
+        return not node.args.get("alias")  # `((x))` in some positions
+    if isinstance(node, exp.Subquery) and isinstance(node.this, exp.Subquery):
+        return not any(value for key, value in node.args.items() if key != "this")  # `((select ...))`
+    return False
 
 
 def _node_form(node: "exp.Expression", form: dict[int, str], table: str | None, exp) -> str:  # noqa: ANN001
@@ -778,7 +791,9 @@ def _column_problems(
                 f"columns of `{table}`, and filters reach other tables through links"
             )
         elif columns is not None and name.lower() not in columns:
-            problems.append(f"{prefix} reads `{name}`, which is not a column of `{table}`; fix the name or add the column")
+            problems.append(
+                f"{prefix} reads `{name}`, which is not a column of `{table}`; fix the name or add the column"
+            )
     return problems
 
 
@@ -897,6 +912,8 @@ def _scan(text: str) -> _Scan:
             pos = match.end()
             if kind == "number" and pos < end and (text[pos].isalnum() or text[pos] in "_."):
                 return _Scan(tuple(tokens), unsure=True)
+            if kind == "number" and pos < end and text[pos] in "+-" and value[-1:].isdigit() and "e" in value.lower():
+                return _Scan(tuple(tokens), unsure=True)  # sqlglot reads `1e3+1` as one number
             if kind == "op" and value not in _SIMPLE_OPS:
                 return _Scan(tuple(tokens), unsure=True)
             if kind == "punct":
@@ -951,7 +968,8 @@ def _fast_names(text: str) -> tuple[frozenset[str], frozenset[str]] | None:
             if lowered in reserved:
                 return None
         if after == "(":
-            if kind == "word" and before != "." and (value.lower() in _SIMPLE_FUNCTIONS or value.upper() not in _known_functions()):
+            plain = value.lower() in _SIMPLE_FUNCTIONS or value.upper() not in _known_functions()
+            if kind == "word" and before != "." and plain:
                 continue  # a function's name is not a column
             return None
         if after in ("string", "word", "quoted", "number"):
@@ -1000,7 +1018,9 @@ def _known_functions() -> frozenset[str]:
 _AGGREGATES = frozenset({"sum", "count", "avg", "min", "max"})
 # Plain functions whose arguments sqlglot parses as ordinary expressions, with
 # the number of arguments it accepts.
-_PLAIN_ARITY = {"nullif": (2, 2), "coalesce": (1, None), "round": (1, 2), "abs": (1, 1), "lower": (1, 1), "upper": (1, 1)}
+_PLAIN_ARITY: dict[str, tuple[int, int | None]] = {
+    "nullif": (2, 2), "coalesce": (1, None), "round": (1, 2), "abs": (1, 1), "lower": (1, 1), "upper": (1, 1),
+}  # fmt: skip
 _COMPARISONS = frozenset({"=", "<>", "!=", "<", ">", "<=", ">="})
 _NUMBER = re.compile(r"\d+(?:\.\d+)?(?:[eE][+-]?\d+)?\Z")
 _MAX_DEPTH = 64
@@ -1251,10 +1271,9 @@ class _FastReader:
         word = name.lower()
         self.pos += 2  # the name and "("
         if word in _AGGREGATES:
-            if word == "count" and self.take("op", "*"):
-                pass
-            else:
-                if word == "count" and self.peek() is not None and self.peek()[0] == "word" and self.peek()[1].lower() == "distinct":
+            if not (word == "count" and self.take("op", "*")):
+                following = self.peek() or ("", "")
+                if word == "count" and following[0] == "word" and following[1].lower() == "distinct":
                     self.pos += 1
                 self.expression(True)
             self.expect(")")
