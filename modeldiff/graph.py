@@ -10,15 +10,17 @@ This module is semantics.md sections 1-4 and nothing else:
   ambiguity questions without ever handing out graph-library objects.
 
 Ambiguity is decided per source in roughly linear time, never by listing
-paths (see `_SourceAnalysis`). networkx is imported only when dominators are
-needed, so importing this module stays cheap.
+paths (see `_SourceAnalysis`). The algorithms run on a small integer-numbered
+adjacency of their own (breadth-first trees, dominator trees, bounded
+depth-first listing): importing this module loads no graph library, and the
+property tests hold every answer against networkx as the reference.
 """
 
 from __future__ import annotations
 
-from collections import OrderedDict, deque
+from collections import OrderedDict
 from dataclasses import dataclass
-from typing import Iterable, Iterator, Mapping
+from typing import Iterable, Mapping
 
 from modeldiff.errors import ModeldiffError
 from modeldiff.model import Link, Measure, Model, Overrides, Report, Role
@@ -32,7 +34,8 @@ Path = tuple[str, ...]  # link names, in the order a filter crosses them
 
 DEFAULT_PATH_LIMIT = 50  # paths listed per pair when two revisions are compared
 DEFAULT_STEP_BUDGET = 200_000  # search steps allowed to one bounded path listing
-_CACHE_SIZE = 64  # per-source results kept by one graph
+_CACHE_SIZE = 64  # per-source analyses kept by one graph
+_CACHE_CELLS = 2_000_000  # reach sets and dominator trees kept by one graph, in table slots
 
 
 # --- records ----------------------------------------------------------------------------
@@ -237,9 +240,13 @@ def security_graph(model: Model) -> FilterGraph:
 
 
 class _Lru(OrderedDict):
+    def __init__(self, size: int = _CACHE_SIZE) -> None:
+        super().__init__()
+        self.size = size
+
     def remember(self, key, value):
         self[key] = value
-        if len(self) > _CACHE_SIZE:
+        if len(self) > self.size:
             self.popitem(last=False)
         return value
 
@@ -275,10 +282,11 @@ class FilterGraph:
         for i, (u, v) in enumerate(zip(self._src, self._dst)):
             self._out[u].append((v, i))
             self._in[v].append((u, i))
-        self._reach = _Lru()
-        self._reaching = _Lru()
+        wide = max(_CACHE_SIZE, _CACHE_CELLS // max(1, len(self._names)))
+        self._reach = _Lru(wide)
+        self._reaching = _Lru(wide)
         self._analyses = _Lru()
-        self._dominators = _Lru()
+        self._dominators = _Lru(wide // 2)
 
     def __eq__(self, other: object) -> bool:
         if not isinstance(other, FilterGraph):
@@ -417,20 +425,35 @@ class FilterGraph:
             return None
         return self._ordered(self._analysis(self._index[s]).witness(self._index[x]))
 
-    def ambiguous_pairs(self, sources: Iterable[str] | None = None,
-                        targets: Iterable[str] | None = None) -> list[tuple[str, str, Path, Path]]:
-        """Every ambiguous pair as (source, target, path1, path2), sorted."""
+    def ambiguous_pairs(self, sources: Iterable[str] | None = None, targets: Iterable[str] | None = None,
+                        limit: int | None = None) -> list[tuple[str, str, Path, Path]]:
+        """Ambiguous pairs as (source, target, path1, path2), sorted; the first `limit` when given.
+
+        A densely linked model can have a great many ambiguous pairs: count them
+        with `ambiguous_count` and list a few, rather than build every witness.
+        """
+        result: list[tuple[str, str, Path, Path]] = []
+        for s, analysis, found in self._ambiguous_by_source(sources, targets):
+            for x in found:
+                if limit is not None and len(result) >= limit:
+                    return result
+                first, second = self._ordered(analysis.witness(x))
+                result.append((self._names[s], self._names[x], first, second))
+        return result
+
+    def ambiguous_count(self, sources: Iterable[str] | None = None, targets: Iterable[str] | None = None) -> int:
+        """How many pairs `ambiguous_pairs` would list, without building witnesses."""
+        return sum(len(found) for _, _, found in self._ambiguous_by_source(sources, targets))
+
+    def _ambiguous_by_source(self, sources, targets):
         wanted = None if targets is None else {self._index[t] for t in targets if t in self._index}
         chosen = range(len(self._names)) if sources is None else sorted(
             self._index[s] for s in set(sources) if s in self._index)
-        result: list[tuple[str, str, Path, Path]] = []
         for s in chosen:
             analysis = self._analysis(s, keep=sources is not None)
-            for x in analysis.targets():
-                if wanted is None or x in wanted:
-                    first, second = self._ordered(analysis.witness(x))
-                    result.append((self._names[s], self._names[x], first, second))
-        return result
+            found = [x for x in analysis.targets() if wanted is None or x in wanted]
+            if found:
+                yield s, analysis, found
 
     # -- internals
 

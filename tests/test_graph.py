@@ -398,6 +398,8 @@ def test_ambiguous_pairs_can_be_narrowed_to_sources_and_targets():
     assert [(s, x) for s, x, _, _ in everything] == [("a0", "a2"), ("a0", "b2"), ("b0", "a2"), ("b0", "b2")]
     assert fg.ambiguous_pairs(sources=["a0"], targets=["b2"]) == [everything[1]]
     assert fg.ambiguous_pairs(sources=["a1", "ghost"]) == []
+    assert fg.ambiguous_pairs(limit=3) == everything[:3]
+    assert fg.ambiguous_count() == 4 and fg.ambiguous_count(targets=["a2"]) == 2
 
 
 # --- comparing two revisions -------------------------------------------------------------

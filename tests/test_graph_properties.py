@@ -101,6 +101,7 @@ def test_ambiguity_and_paths_match_brute_force(fg):
         if len(every) >= 2:
             expected_pairs.append((s, x))
     assert [(s, x) for s, x, _, _ in fg.ambiguous_pairs()] == expected_pairs
+    assert fg.ambiguous_count() == len(expected_pairs)
 
 
 @given(graphs())
