@@ -152,9 +152,9 @@ class PairChange:
     removed: tuple[Path, ...]
     links: frozenset[str]  # links with a changed edge on an added or removed path
     complete: bool = True
-    # per added/removed path: the links whose edge on that path is new/gone (what made the path appear/vanish)
-    added_by: Mapping[Path, tuple[str, ...]] = field(default_factory=dict, compare=False, repr=False)
-    removed_by: Mapping[Path, tuple[str, ...]] = field(default_factory=dict, compare=False, repr=False)
+    # per added/removed path: its edges that are new/gone (graph.Edge records: what made the path appear/vanish)
+    added_by: Mapping[Path, tuple[Any, ...]] = field(default_factory=dict, compare=False, repr=False)
+    removed_by: Mapping[Path, tuple[Any, ...]] = field(default_factory=dict, compare=False, repr=False)
 
 
 def in_new_names(g, renames: Renames):
@@ -210,7 +210,7 @@ def changed_pairs(g_old, g_new, renames: Renames | None = None, sources: Iterabl
             continue
         added_by = {p: _culprits(g_new, source, p, came) for p in delta.added}
         removed_by = {p: _culprits(old, source, p, gone) for p in delta.removed}
-        on_paths = frozenset(link for links in (*added_by.values(), *removed_by.values()) for link in links)
+        on_paths = frozenset(e.link for edges in (*added_by.values(), *removed_by.values()) for e in edges)
         if not on_paths:  # listing cut short: every changed link near the pair may be the cause
             on_paths = frozenset(e.link for e in gone | came
                                  if source in (old if e in gone else g_new).reaching(e.src))
@@ -219,9 +219,9 @@ def changed_pairs(g_old, g_new, renames: Renames | None = None, sources: Iterabl
     return result
 
 
-def _culprits(g, source: str, path: Path, changed_edges: set) -> tuple[str, ...]:
+def _culprits(g, source: str, path: Path, changed_edges: set) -> tuple[Any, ...]:
     edges = _walk(g, source, path) or []
-    return tuple(sorted({e.link for e in edges if e in changed_edges}))
+    return tuple(sorted({e for e in edges if e in changed_edges}))
 
 
 # --- the analysis ------------------------------------------------------------------------
@@ -566,19 +566,30 @@ class _Impacts:
             out |= {self.a.renames.table(t) for t in old.tables}
         return out
 
-    def link_cause(self, link: str, setting_changes: tuple[Change, ...]) -> tuple[int, str] | None:
-        """(rank, change id) of the change that moved `link`'s edges in one setting; lower rank is more telling."""
-        key = (link, tuple(c.id for c in setting_changes))
-        if key in self._cause_cache:
-            return self._cause_cache[key]
-        found = self._link_cause(link, setting_changes)
-        self._cause_cache[key] = found
-        return found
+    def edge_cause(self, edge, came: bool, comp: "_Computation | None") -> tuple[int, str] | None:
+        """(rank, change id) of the change that made `edge` appear (`came`) or vanish in one setting.
 
-    def _link_cause(self, link: str, setting_changes: tuple[Change, ...]) -> tuple[int, str] | None:
+        A lower rank is more telling.
+        """
+        setting_changes = comp.setting_changes if comp is not None else ()
+        key = (edge, came, tuple(c.id for c in setting_changes), _layers_key(comp.old_layers) if setting_changes else ())
+        if key not in self._cause_cache:
+            self._cause_cache[key] = self._edge_cause(edge, came, comp)
+        return self._cause_cache[key]
+
+    def _moved_by_model(self, edge, came: bool, comp: _Computation) -> bool:
+        """Whether the new model alone, read in the old setting, adds (`came`) or drops the edge."""
+        a = self.a
+        present = edge in set(self._edges_of(a.graph(a.new, comp.old_layers), edge.link))
+        return present if came else not present
+
+    def _edge_cause(self, edge, came: bool, comp: "_Computation | None") -> tuple[int, str] | None:
+        link = edge.link
+        setting_changes = comp.setting_changes if comp is not None else ()
         own = self.by_subject.get(f"links.{link}", [])
-        for change in sorted((c for c in own if c.kind in EDGE_KINDS), key=lambda c: EDGE_KINDS.index(c.kind)):
-            return 0, change.id
+        edge_changes = sorted((c for c in own if c.kind in EDGE_KINDS), key=lambda c: EDGE_KINDS.index(c.kind))
+        if edge_changes and (not setting_changes or self._moved_by_model(edge, came, comp)):
+            return 0, edge_changes[0].id
         twins = self._twins.get(link, frozenset({link}))
         for change in setting_changes:
             if _mentions(change.before, twins) or _mentions(change.after, twins):
@@ -599,9 +610,9 @@ class _Impacts:
             return 5, setting_changes[0].id
         return None
 
-    def cause(self, links: Iterable[str], setting_changes: tuple[Change, ...], pair: tuple[str, str]) -> str:
-        """The change id to blame for paths whose changed links are `links`."""
-        found = [c for c in (self.link_cause(link, setting_changes) for link in sorted(links)) if c is not None]
+    def cause(self, edges: Iterable, came: bool, comp: "_Computation | None", pair: tuple[str, str]) -> str:
+        """The change id to blame for paths whose new (`came`) or gone edges are `edges`, in the setting of `comp`."""
+        found = [c for c in (self.edge_cause(e, came, comp) for e in sorted(edges)) if c is not None]
         if found:
             return min(found)[1]
         for change in self.by_subject.get(f"paths.{pair[0]}->{pair[1]}", ()):
@@ -690,13 +701,14 @@ class _Impacts:
                 continue
             groups: dict[str, tuple[list[Path], list[Path]]] = {}
             for p in pc.added:
-                groups.setdefault(self.cause(pc.added_by.get(p, pc.links), comp.setting_changes, (source, target)),
+                groups.setdefault(self.cause(pc.added_by.get(p, ()), True, comp, (source, target)),
                                   ([], []))[0].append(p)
             for p in pc.removed:
-                groups.setdefault(self.cause(pc.removed_by.get(p, pc.links), comp.setting_changes, (source, target)),
+                groups.setdefault(self.cause(pc.removed_by.get(p, ()), False, comp, (source, target)),
                                   ([], []))[1].append(p)
             if not groups:  # the listing was cut short before a difference showed
-                groups[self.cause(pc.links, comp.setting_changes, (source, target))] = ([], [])
+                near = [e for link in sorted(pc.links) for e in self._edges_of(a.graph(a.new, comp.new_layers), link)]
+                groups[self.cause(near, True, comp, (source, target))] = ([], [])
             for change_id, (added, removed) in sorted(groups.items(), key=lambda kv: _id_order(kv[0])):
                 reasons.append(Reason(change_id, f"Paths from {source} into {home} changed: numbers move when "
                                                  f"filtered or grouped by {source}.",
@@ -730,7 +742,7 @@ class _Impacts:
             if home not in g_new.reach(table) and home not in g_old.reach(table):
                 continue
             change_id = next((c.id for c in comp.setting_changes if c.kind != "measure.overrides_changed"),
-                             comp.setting_changes[0].id if comp.setting_changes else self.cause((), (), (table, home)))
+                             comp.setting_changes[0].id if comp.setting_changes else self.cause((), True, None, (table, home)))
             reasons.append(Reason(change_id, f"The variant option's `where` on {table} in force changed: numbers on "
                                              f"{home} move.", source=table))
         return reasons

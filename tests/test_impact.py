@@ -205,6 +205,22 @@ def test_paths_in_reasons_name_links_of_the_new_revision():
     assert removed == ["trips_end_day"] and "trips_end_day" not in r.new.links
 
 
+def test_a_path_closed_by_a_measure_override_is_blamed_on_the_override_not_the_link():
+    # trips_start_station turns two-way, and ride_minutes switches the link off for itself in the same revision:
+    # for ride_minutes, the path stations -> trips disappears because of its own `flow`, not because of the flip
+    old = (SCENARIOS / "flow_widened" / "old.model.yaml").read_text()
+    new = (SCENARIOS / "flow_widened" / "new.model.yaml").read_text().replace(
+        "ride_minutes: {table: trips, expr: sum(minutes)}",
+        "ride_minutes: {table: trips, expr: sum(minutes), flow: {trips_start_station: off}}")
+    r = analyse_texts(old, new)
+    overrides = change(r, "measure.overrides_changed", "measures.ride_minutes")
+    reasons = impact_of(r.measures, "ride_minutes").reasons
+    assert {x.change for x in reasons} == {overrides.id}
+    assert ("stations", (("trips_start_station",),)) in [(x.source, x.paths_removed) for x in reasons]
+    # the other trip measures keep the link and did not move
+    assert "trip_count" not in names(r.measures)
+
+
 # --- settings: variants and reports ------------------------------------------------------------
 
 
@@ -500,7 +516,7 @@ def test_changed_pairs_lists_what_each_path_owes_to_the_changed_edges():
     assert sorted(pairs) == [("a", "c"), ("b", "c")]
     pc = pairs[("a", "c")]
     assert (pc.added, pc.removed, pc.links) == ((("ab", "bc"),), (), frozenset({"bc"}))
-    assert pc.added_by[("ab", "bc")] == ("bc",)
+    assert [(e.link, e.src, e.dst) for e in pc.added_by[("ab", "bc")]] == [("bc", "b", "c")]
     # filters
     assert sorted(impact.changed_pairs(old, new, sources={"b"})) == [("b", "c")]
     assert sorted(impact.changed_pairs(old, new, targets={"b"})) == []

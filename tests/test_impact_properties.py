@@ -294,7 +294,30 @@ def test_a_measure_with_overrides_is_impacted_exactly_when_paths_into_its_home_d
     got = {i.name: {r.source for r in i.reasons} for i in result.measures}
     assert got == expected
     by_id = {c.id: c for c in result.changes}
-    for i in result.measures:  # the blame is a change of a link on the path, or this measure's own overrides
+    for i in result.measures:
+        t = i.name[2:]
+        old_setting = setting_reference(old, *chosen[t][0])
+        new_setting = setting_reference(new, *chosen[t][1])
+        model_alone = setting_reference(new, *chosen[t][0])  # the new links read with the old overrides
         for r in i.reasons:
             blamed = by_id[r.change]
-            assert blamed.kind.startswith("link.") or blamed.subject == f"measures.{i.name}"
+            # a path is blamed on a link's change when the new model alone moved one of its changed edges,
+            # otherwise on the measure's own overrides
+            for path, here, there, came in [(p, new_setting, old_setting, True) for p in r.paths_added] + \
+                                           [(p, old_setting, new_setting, False) for p in r.paths_removed]:
+                changed = [e for e in walk(here, r.source, path) if not there.has_edge(*e)]
+                by_model = [e for e in changed if model_alone.has_edge(*e) == came]
+                if by_model:
+                    assert blamed.kind.startswith("link.") and blamed.subject[len("links."):] in {e[2] for e in by_model}
+                else:
+                    assert (blamed.kind, blamed.subject) == ("measure.overrides_changed", f"measures.{i.name}")
+
+
+def walk(g: nx.MultiDiGraph, source: str, path: tuple[str, ...]) -> list[tuple[str, str, str]]:
+    """The (u, v, link) edges a path of link names crosses from `source`."""
+    edges, here = [], source
+    for link in path:
+        step = next((u, v, k) for u, v, k in g.out_edges(here, keys=True) if k == link and v != here)
+        edges.append(step)
+        here = step[1]
+    return edges
