@@ -23,9 +23,10 @@ Further decisions:
   measure or report only where its paths changed; a variant option's `where`
   in force that changed impacts what its table's filter reaches.
 - A path that appeared or disappeared is blamed on the change that moved one
-  of its edges: the link's own change, else the setting change naming it (or
-  a link joining the same tables), else a change of a link joining the same
-  tables, else the removal or addition of one of its tables.
+  of its new or gone edges: the link's own change when the new model alone,
+  read in the old setting, moves that edge; else the setting change naming
+  the link (or a link joining the same tables); else a change of a link
+  joining the same tables; else the removal or addition of one of its tables.
 - A measure or report that did not exist before has no impact: no number of
   it moved. A model added or removed whole lists its ambiguities, not every
   path.

@@ -265,6 +265,20 @@ def test_variant_option_where_change_impacts_the_report_through_its_table():
     assert names(respelled.reports) == []
 
 
+def test_report_overrides_move_the_report_only_along_its_own_filters():
+    base = (SCENARIOS / "identical" / "old.model.yaml").read_text()
+    weekly = "weekly_fares: {measures: [fare_revenue, trip_count, revenue_per_trip], by: [calendar.week_start, districts.name]"
+    riders = "rider_trips: {measures: [trip_count, ride_minutes], by: [riders.plan]"
+    r = analyse_texts(base, base.replace(weekly, weekly + ", use: [trips_end_day]")
+                      .replace(riders, riders + ", use: [trips_end_day]"))
+    assert sorted(c.subject for c in r.changes if c.kind == "report.changed") == ["reports.rider_trips", "reports.weekly_fares"]
+    # weekly_fares groups by calendar, whose path into trips moved; rider_trips groups by riders, whose did not
+    assert names(r.reports) == ["weekly_fares"]
+    weekly_change = change(r, "report.changed", "reports.weekly_fares")
+    assert {(x.change, x.source) for x in impact_of(r.reports, "weekly_fares").reasons} == {(weekly_change.id, "calendar")}
+    assert names(r.measures) == []  # outside the report nothing moved
+
+
 # --- row security ------------------------------------------------------------------------------
 
 
