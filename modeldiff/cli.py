@@ -8,12 +8,25 @@ on stderr and exit 2.
 from __future__ import annotations
 
 import argparse
-import os
+import importlib
 import sys
 from typing import Sequence, TextIO
 
 from modeldiff import __version__
 from modeldiff.errors import ModeldiffError, UsageError
+
+
+# Commands that live in modules of their own. Each module defines HELP (one
+# line), configure(parser) and run(args, stdout) -> exit code, and imports its
+# heavy libraries inside run(), so building the parser stays cheap.
+EXTRA_COMMANDS = (
+    ("graph", "modeldiff.picture"),
+    ("plan", "modeldiff.plan"),
+    ("notes", "modeldiff.notes"),
+    ("hook", "modeldiff.hook"),
+    ("eval", "modeldiff.evaluate"),
+    ("verify", "modeldiff.verify"),
+)
 
 
 class _Parser(argparse.ArgumentParser):
@@ -22,26 +35,14 @@ class _Parser(argparse.ArgumentParser):
                          else f"{message} (see 'modeldiff --help')")
 
 
-def read_model(spec: str):
-    """(label, LoadResult) for a path on disk or a `REV:PATH` spec."""
-    from modeldiff import load
-
-    if os.path.exists(spec):
-        return spec, load.load_path(spec)
-    if ":" in spec:
-        from modeldiff import git
-
-        source = git.read_spec(spec)
-        return spec, load.load_files(source.files)
-    raise ModeldiffError(f"{spec}: no such file or folder; give a model file, a NAME.model/ folder, or REV:PATH")
-
-
 # --- commands ------------------------------------------------------------------------
 
 
 def cmd_check(args, stdout: TextIO) -> int:
     from modeldiff import check
     from modeldiff.render import check_out
+
+    from modeldiff.compare import read_model
 
     label, result = read_model(args.model)
     findings = check.check_model(result.model, result.findings)
@@ -54,120 +55,34 @@ def cmd_check(args, stdout: TextIO) -> int:
     return check.exit_code(findings, strict=args.strict)
 
 
-def _empty_model(name: str):
-    from modeldiff.model import Model
-
-    return Model(name=name, tables={})
-
-
-def _diff_pair(old_spec: str | None, new_spec: str | None, old_side, new_side):
-    """One ModelDiff; a side that is None is a model absent there (whole-model addition or removal)."""
-    from modeldiff import impact, load
-    from modeldiff.render.diff_out import ModelDiff
-
-    def side(spec, source):
-        if source is not None:
-            return load.load_files(source.files)
-        if spec is not None:
-            return read_model(spec)[1]
-        return None
-
-    old_result, new_result = side(*old_side), side(*new_side)
-    name = (new_result or old_result).model.name
-    old_model = old_result.model if old_result else _empty_model(name)
-    new_model = new_result.model if new_result else _empty_model(name)
-    return impact.analyse(old_model, new_model, old_result.findings if old_result else (),
-                          new_result.findings if new_result else ())
-
-
-def _split_side(spec: str) -> tuple[str | None, str]:
-    if not os.path.exists(spec) and ":" in spec:
-        rev, _, path = spec.partition(":")
-        return rev, path
-    return None, spec
-
-
 def cmd_diff(args, stdout: TextIO) -> int:
+    from modeldiff import compare
     from modeldiff.render import diff_out
-    from modeldiff.render.diff_out import ModelDiff, Side
 
-    diffs: list[ModelDiff] = []
+    diffs: list[compare.ModelDiff] = []
     if args.base is None:
         if len(args.models) != 2:
             raise UsageError("diff takes OLD and NEW (paths or REV:PATH), or --base REV [--head REV] [MODEL ...]")
         if args.head is not None:
             raise UsageError("--head goes with --base")
         old_spec, new_spec = args.models
-        result = _diff_pair(old_spec, new_spec, (old_spec, None), (new_spec, None))
-        diffs.append(ModelDiff(Side(*_split_side(old_spec)), Side(*_split_side(new_spec)), result))
+        diffs.append(compare.compare_specs(old_spec, new_spec))
     else:
         from modeldiff import git
 
         root = git.repo_root(".")
         if args.models:
-            paths = [git.model_path_of(_repo_relative(root, m)) or _repo_relative(root, m) for m in args.models]
+            paths = [git.model_path_of(compare.repo_relative(root, m)) or compare.repo_relative(root, m) for m in args.models]
         else:
             paths = sorted(set(git.list_models(root, args.base)) | set(git.list_models(root, args.head)))
         if not paths:
             raise ModeldiffError(f"no model files (*.model.yaml or *.model/) found at {args.base} or "
                                  f"{args.head or 'the working tree'}; name them after --base")
-        diffs.extend(_diff_revisions(root, args.base, args.head, paths))
+        diffs.extend(compare.compare_revisions(root, args.base, args.head, paths))
     {"json": diff_out.as_json, "markdown": diff_out.as_markdown}.get(args.format, diff_out.as_text)(diffs, stdout)
     from modeldiff.changes import EXIT_CODES
 
     return EXIT_CODES[diff_out.verdict_of(diffs)]
-
-
-def _diff_revisions(root: str, base: str, head: str | None, paths: list[str]):
-    """ModelDiffs for `paths` between two revisions; a model moved to another path is paired by its name."""
-    from modeldiff import git, impact, load
-    from modeldiff.render.diff_out import ModelDiff, Side
-
-    pairs: list[tuple[str | None, str | None]] = []
-    old_only: dict[str, object] = {}
-    new_only: dict[str, object] = {}
-    loaded: dict[tuple[str, str | None], object] = {}
-    for path in paths:
-        old_source, new_source = git.read_at(root, base, path), git.read_at(root, head, path)
-        if old_source is None and new_source is None:
-            raise ModeldiffError(f"{path}: not found at {base} nor at {head or 'the working tree'}; check the path")
-        for side, source in (("old", old_source), ("new", new_source)):
-            if source is not None:
-                loaded[(side, path)] = load.load_files(source.files)
-        if old_source is not None and new_source is not None:
-            pairs.append((path, path))
-        elif old_source is not None:
-            old_only[path] = loaded[("old", path)]
-        else:
-            new_only[path] = loaded[("new", path)]
-    # a model present only at an old path and only at a new path, under the same name, was moved
-    by_name_new: dict[str, list[str]] = {}
-    for path, result in new_only.items():
-        by_name_new.setdefault(result.model.name, []).append(path)
-    for path, result in sorted(old_only.items()):
-        candidates = by_name_new.get(result.model.name, [])
-        if len(candidates) == 1:
-            pairs.append((path, candidates.pop()))
-        else:
-            pairs.append((path, None))
-    pairs += [(None, path) for paths_left in by_name_new.values() for path in paths_left]
-
-    out = []
-    for old_path, new_path in sorted(pairs, key=lambda p: (p[1] or p[0], p[0] or "")):
-        old_result = loaded.get(("old", old_path)) if old_path else None
-        new_result = loaded.get(("new", new_path)) if new_path else None
-        name = (new_result or old_result).model.name
-        result = impact.analyse(old_result.model if old_result else _empty_model(name),
-                                new_result.model if new_result else _empty_model(name),
-                                old_result.findings if old_result else (), new_result.findings if new_result else ())
-        out.append(ModelDiff(Side(base, old_path or new_path), Side(head, new_path or old_path), result))
-    return out
-
-
-def _repo_relative(root: str, path: str) -> str:
-    absolute = os.path.abspath(path)
-    rel = os.path.relpath(absolute, root)
-    return rel.replace(os.sep, "/") if not rel.startswith("..") else path
 
 
 def cmd_schema(args, stdout: TextIO) -> int:
@@ -199,12 +114,27 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("schema", help="print the JSON Schema of the model file format")
     p.set_defaults(run=cmd_schema)
+
+    for name, module_name in EXTRA_COMMANDS:
+        try:
+            module = importlib.import_module(module_name)
+        except ModuleNotFoundError as exc:
+            if exc.name != module_name:
+                raise
+            continue  # a command not built yet
+        p = sub.add_parser(name, help=module.HELP, description=module.__doc__.strip().splitlines()[0] if module.__doc__ else None)
+        module.configure(p)
+        p.set_defaults(run=module.run)
     return parser
 
 
 def main(argv: Sequence[str] | None = None, stdout: TextIO | None = None, stderr: TextIO | None = None) -> int:
     stdout = stdout or sys.stdout
     stderr = stderr or sys.stderr
+    argv = list(sys.argv[1:] if argv is None else argv)
+    if argv == ["--version"]:  # the fast path: no parser, no command modules
+        print(f"modeldiff {__version__}", file=stdout)
+        return 0
     try:
         parser = build_parser()
         args = parser.parse_args(argv)

@@ -10,26 +10,13 @@ from dataclasses import dataclass
 from typing import Sequence, TextIO
 
 from modeldiff.changes import EXIT_CODES, SEVERITIES, worst
+from modeldiff.compare import ModelDiff, Side  # noqa: F401 (Side re-exported)
 from modeldiff.impact import DiffResult, Impact, Reason
 
 SECURITY_CAUTION = ("Row security changed in a way that can expose rows. modeldiff reads only the model's definition; "
                     "the organisation's own security review decides whether this is acceptable.")
 MARKDOWN_LIST_LIMIT = 15  # rows shown before a list is folded into <details>
 
-
-@dataclass(frozen=True)
-class Side:
-    rev: str | None
-    path: str
-
-
-@dataclass(frozen=True)
-class ModelDiff:
-    """One model's comparison, with where each side came from."""
-
-    old: Side
-    new: Side
-    result: DiffResult
 
 
 # --- JSON -----------------------------------------------------------------------------
