@@ -423,19 +423,10 @@ def rule_history_incomplete(ctx: _Context) -> Iterator[Finding]:
 
 
 def _default_options(model: Model) -> tuple[Overrides, ...]:
-    """The overrides of each variant's default option, in variant-name order.
+    """The overrides of each variant's default option, in variant-name order."""
+    from modeldiff import graph
 
-    A variant's default option applies wherever no option is chosen: to a
-    measure outside any report and in a report that does not name the variant
-    (DEVELOPERS.md, "Decisions where the spec is silent").
-    """
-    layers = []
-    for name in sorted(model.variants):
-        variant = model.variants[name]
-        option = variant.options.get(variant.default)
-        if option is not None and option.overrides:
-            layers.append(option.overrides)
-    return tuple(layers)
+    return graph.setting_layers(model, variant_defaults=True)
 
 
 def _settings(model: Model):

@@ -168,22 +168,23 @@ def setting_layers(model: Model, measure: Measure | None = None, report: Report 
                    *, variant_defaults: bool = False) -> tuple[Overrides, ...]:
     """The override layers of one computation, in the spec's order.
 
-    Variant options chosen by the report (by variant name), then the report's
-    own overrides, then the measure's. Variants the report does not choose add
-    nothing unless `variant_defaults` is true, which adds their default option.
-    Without a report only the measure's overrides apply. Empty layers and names
-    that do not exist are left out.
+    Variant options (by variant name), then the report's own overrides, then
+    the measure's. Without `variant_defaults` only the options a report chooses
+    apply; with it, every variant contributes its option in force: the one the
+    report chooses, else its default, also for a measure outside any report
+    (DEVELOPERS.md, "Decisions where the spec is silent"). Empty layers and
+    names that do not exist are left out.
     """
     layers: list[Overrides] = []
+    chosen = report.variant if report is not None else {}
+    for variant_name in sorted(model.variants) if variant_defaults else sorted(chosen):
+        variant = model.variants.get(variant_name)
+        if variant is None:
+            continue
+        option = variant.options.get(chosen.get(variant_name, variant.default))
+        if option is not None:
+            layers.append(option.overrides)
     if report is not None:
-        chosen = sorted(model.variants) if variant_defaults else sorted(report.variant)
-        for variant_name in chosen:
-            variant = model.variants.get(variant_name)
-            if variant is None:
-                continue
-            option = variant.options.get(report.variant.get(variant_name, variant.default))
-            if option is not None:
-                layers.append(option.overrides)
         layers.append(report.overrides)
     if measure is not None:
         layers.append(measure.overrides)

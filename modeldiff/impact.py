@@ -240,16 +240,9 @@ def _option_in_force(model: Model, variant: str, report: Report | None) -> tuple
 
 def setting_layers(model: Model, measure: Measure | None = None, report: Report | None = None) -> tuple[Overrides, ...]:
     """Override layers of one computation: each variant's option in force, the report's, the measure's."""
-    layers: list[Overrides] = []
-    for name in sorted(model.variants):
-        found = _option_in_force(model, name, report)
-        if found is not None:
-            layers.append(found[1].overrides)
-    if report is not None:
-        layers.append(report.overrides)
-    if measure is not None:
-        layers.append(measure.overrides)
-    return tuple(layer for layer in layers if layer)
+    from modeldiff import graph
+
+    return graph.setting_layers(model, measure, report, variant_defaults=True)
 
 
 def _layers_key(layers: tuple[Overrides, ...]) -> tuple:
