@@ -304,6 +304,14 @@ def repo_root(path: str | os.PathLike[str] = ".") -> str:
         return _location(repo)
 
 
+def hooks_dir(repo_dir=".") -> str:
+    """Absolute path of the folder git runs hooks from: `core.hooksPath` when set (a relative value is
+    taken from the work tree's root, `~` expanded, as git does), else the common git folder's `hooks`."""
+    with _open(repo_dir) as repo:
+        out = _run(repo, "rev-parse", "--git-path", "hooks").strip()
+        return os.path.normpath(os.path.join(_location(repo), out))
+
+
 def resolve_rev(repo_dir, rev: str) -> str:
     """Full sha of the commit `rev` names; tags are peeled. Raises GitError when it cannot be found."""
     with _open(repo_dir) as repo:
