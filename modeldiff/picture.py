@@ -1,0 +1,338 @@
+"""Draw a model's filter graph: `modeldiff graph MODEL [--format mermaid|dot|svg|text] [--setting ...]`.
+
+One node per table, one arrow per link, pointing the way a filter travels
+(from the link's `to` table to its `from` table; both ways for a two-way or
+one-to-one link; dotted for a link that carries no filter in the setting
+drawn). The pure functions here build a `Picture` record and turn it into
+Mermaid, Graphviz dot or plain text; render/svg.py draws the same record as
+inline SVG, and the diff reports (Markdown, HTML) call `diff_picture`.
+
+In a diff, changed links are drawn red (Mermaid `linkStyle <index>`, where
+the index is the arrow's 0-based definition order, counted here as the arrows
+are emitted), tables on new filter paths get the `newpath` class, and removed
+links are drawn red and dotted. A model of more than `NEIGHBOURHOOD_LIMIT`
+tables is cut down to the tables within one link of what changed, and the
+caption says so.
+"""
+
+from __future__ import annotations
+
+import re
+from dataclasses import dataclass
+from typing import Iterable, Sequence
+
+HELP = "draw a model's filter graph (Mermaid, Graphviz dot, SVG or text), optionally in one measure's or report's setting"
+
+FORMATS = ("mermaid", "dot", "svg", "text")
+NEIGHBOURHOOD_LIMIT = 60  # tables; above it a diff's picture shows only what is near the change
+HIGHLIGHT = "stroke:#d33,stroke-width:3px"
+
+ONE_WAY, TWO_WAY, STANDBY, REMOVED = "one-way", "two-way", "standby", "removed"
+KIND_ORDER = ("fact", "dimension", "bridge", "access", "missing")
+
+# Mermaid shape brackets by table kind.
+_SHAPES = {"fact": ("[", "]"), "dimension": ("(", ")"), "bridge": ("{{", "}}"), "access": ("[/", "/]"),
+           "missing": ("[", "]")}
+_CLASS_DEFS = {
+    "fact": "fill:#fff4e0,stroke:#b7791f,color:#222",
+    "dimension": "fill:#e8f1fb,stroke:#3b6ea5,color:#222",
+    "bridge": "fill:#eaf6ea,stroke:#3f8f3f,color:#222",
+    "access": "fill:#f5ecfa,stroke:#7d4a9e,color:#222",
+    "missing": "fill:#ffffff,stroke:#999999,stroke-dasharray:4 4,color:#666",
+    "newpath": "stroke:#d33,stroke-width:3px",
+}
+_ARROWS = {ONE_WAY: "-->", TWO_WAY: "<-->", STANDBY: "-.->", REMOVED: "-.->"}
+
+
+# --- records ----------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Node:
+    id: str  # sanitised, safe as a Mermaid or dot identifier
+    table: str
+    kind: str  # fact | dimension | bridge | access | missing (named by a link, not defined)
+    on_new_path: bool = False
+    description: str | None = None
+
+
+@dataclass(frozen=True)
+class Arrow:
+    """One link as drawn: a filter on `src` (the link's `to` table) restricts `dst` (its `from` table)."""
+
+    index: int  # 0-based definition order: Mermaid's linkStyle index
+    link: str
+    src: str
+    dst: str
+    style: str  # one-way | two-way | standby | removed
+    changed: bool = False
+
+    @property
+    def red(self) -> bool:
+        return self.changed or self.style == REMOVED
+
+
+@dataclass(frozen=True)
+class Picture:
+    model: str
+    nodes: tuple[Node, ...]
+    arrows: tuple[Arrow, ...]
+    caption: str | None = None  # says when the picture leaves tables out
+    setting: str = "default setting"
+
+    @property
+    def highlighted(self) -> tuple[int, ...]:
+        return tuple(a.index for a in self.arrows if a.red)
+
+    def node(self, table: str) -> Node:
+        return next(n for n in self.nodes if n.table == table)
+
+
+# --- building the picture ---------------------------------------------------------------------
+
+
+def node_ids(tables: Iterable[str]) -> dict[str, str]:
+    """Table -> an identifier of letters, digits and `_` only, prefixed so no keyword (`end`) can clash."""
+    out: dict[str, str] = {}
+    taken: set[str] = set()
+    for table in sorted(tables):
+        base = "t_" + re.sub(r"[^A-Za-z0-9_]", "_", table)
+        candidate, n = base, 2
+        while candidate in taken:
+            candidate, n = f"{base}_{n}", n + 1
+        taken.add(candidate)
+        out[table] = candidate
+    return out
+
+
+def _paths(new_paths) -> list[tuple[str, ...]]:
+    """Accepts paths (sequences of link names); a lone string counts as a one-link path."""
+    return [(p,) if isinstance(p, str) else tuple(p) for p in new_paths]
+
+
+def _link_style(link, setting) -> str:
+    flow = setting.flows.get(link.name)
+    if flow is None:
+        return STANDBY
+    return TWO_WAY if flow == TWO_WAY or link.cardinality == "one-to-one" else ONE_WAY
+
+
+def _neighbourhood(model, focus: set[str], removed: Sequence) -> set[str]:
+    keep = set(focus)
+    for link in list(model.links.values()) + list(removed):
+        if link.from_table in focus or link.to_table in focus:
+            keep |= {link.from_table, link.to_table}
+    return keep
+
+
+def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequence[str]] = (),
+            removed_links: Iterable = (), setting=None, setting_label: str = "default setting",
+            focus_tables: Iterable[str] = (), limit: int = NEIGHBOURHOOD_LIMIT) -> Picture:
+    """The picture of `model` (in `setting`, default: the model's own links).
+
+    `highlight_links`: names of links drawn red. `new_paths`: filter paths (link
+    names) whose tables get the `newpath` class. `removed_links`: Link records
+    of the old revision, drawn red and dotted (names are ignored: their tables
+    are unknown). When the model has more than `limit` tables and something is
+    highlighted, only the tables within one link of it are kept.
+    """
+    from modeldiff import graph
+
+    if setting is None:
+        setting = graph.default_setting(model)
+    highlight = {name for name in highlight_links if name in model.links}
+    removed = sorted((l for l in removed_links if not isinstance(l, str) and l.name not in model.links),
+                     key=lambda l: l.name)
+    marked = {t for path in _paths(new_paths) for name in path if name in model.links
+              for t in (model.links[name].from_table, model.links[name].to_table)}
+
+    tables = set(model.tables)
+    for link in list(model.links.values()) + removed:
+        tables |= {link.from_table, link.to_table}
+    focus = {t for name in highlight for t in model.links[name].tables} | marked \
+        | {t for l in removed for t in l.tables} | {t for t in focus_tables if t in tables}
+    caption = None
+    if len(model.tables) > limit and focus:
+        kept = _neighbourhood(model, focus, removed)
+        caption = (f"{model.name} has {len(model.tables)} tables: showing the {len(kept)} within one link "
+                   f"of what changed.")
+        tables = kept
+
+    ids = node_ids(tables)
+    nodes = tuple(Node(ids[t], t, model.tables[t].kind if t in model.tables else "missing", t in marked,
+                       model.tables[t].description if t in model.tables else None) for t in sorted(tables))
+    arrows: list[Arrow] = []
+    for name in sorted(model.links):
+        link = model.links[name]
+        if link.from_table in tables and link.to_table in tables:
+            arrows.append(Arrow(len(arrows), name, link.to_table, link.from_table, _link_style(link, setting),
+                                name in highlight))
+    for link in removed:
+        if link.from_table in tables and link.to_table in tables:
+            arrows.append(Arrow(len(arrows), link.name, link.to_table, link.from_table, REMOVED, True))
+    return Picture(model.name, nodes, tuple(arrows), caption, setting_label)
+
+
+def diff_picture(result, limit: int = NEIGHBOURHOOD_LIMIT) -> Picture | None:
+    """The new revision of a `DiffResult`, with what changed marked; None when no link or path changed."""
+    highlight, removed_names, new_paths, focus = set(), set(), [], set()
+    for change in result.changes:
+        section, _, rest = change.subject.partition(".")
+        name = rest.split(".")[0]
+        if change.kind == "link.removed":
+            removed_names.add(name)
+        elif change.kind.startswith("link."):
+            highlight.add(name)
+        elif change.kind == "path.added" and isinstance(change.after, (list, tuple)):
+            new_paths += [p for p in change.after if isinstance(p, (list, tuple))]
+        elif section == "tables" and change.kind.startswith("table."):
+            focus.add(name)
+    removed = [result.old.links[n] for n in sorted(removed_names) if n in result.old.links]
+    if not (highlight or removed or new_paths):
+        return None
+    return picture(result.new, highlight, new_paths, removed, focus_tables=focus, limit=limit)
+
+
+# --- Mermaid ------------------------------------------------------------------------------------
+
+
+def mermaid_label(text: str) -> str:
+    """Text for a quoted Mermaid label: anything but letters, digits, spaces and `_ .-(),:/` as an entity code."""
+    return "".join(ch if ch.isascii() and (ch.isalnum() or ch in "_ .-(),:/") else f"#{ord(ch)};" for ch in text)
+
+
+def mermaid_of(pic: Picture) -> str:
+    lines = ["graph LR"]
+    if pic.caption:
+        lines.append(f"  %% {pic.caption}")
+    for n in pic.nodes:
+        left, right = _SHAPES.get(n.kind, ("[", "]"))
+        lines.append(f'  {n.id}{left}"{mermaid_label(n.table)}"{right}')
+    ids = {n.table: n.id for n in pic.nodes}
+    for a in pic.arrows:
+        label = a.link + (" (removed)" if a.style == REMOVED else "")
+        lines.append(f'  {ids[a.src]} {_ARROWS[a.style]}|"{mermaid_label(label)}"| {ids[a.dst]}')
+    used = [k for k in KIND_ORDER if any(n.kind == k for n in pic.nodes)]
+    marked = [n.id for n in pic.nodes if n.on_new_path]
+    for kind in used + (["newpath"] if marked else []):
+        lines.append(f"  classDef {kind} {_CLASS_DEFS[kind]}")
+    for kind in used:
+        lines.append(f"  class {','.join(n.id for n in pic.nodes if n.kind == kind)} {kind}")
+    if marked:
+        lines.append(f"  class {','.join(marked)} newpath")
+    for index in pic.highlighted:
+        lines.append(f"  linkStyle {index} {HIGHLIGHT}")
+    return "\n".join(lines) + "\n"
+
+
+def mermaid(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequence[str]] = (),
+            removed_links: Iterable = (), setting=None) -> str:
+    """Mermaid `graph LR` source of `model`'s filter graph (see `picture` for the arguments)."""
+    return mermaid_of(picture(model, highlight_links, new_paths, removed_links, setting))
+
+
+# --- Graphviz dot and text ---------------------------------------------------------------------------
+
+_DOT_NODE = {"fact": 'shape=box, style=filled, fillcolor="#fff4e0"',
+             "dimension": 'shape=box, style="rounded,filled", fillcolor="#e8f1fb"',
+             "bridge": 'shape=hexagon, style=filled, fillcolor="#eaf6ea"',
+             "access": 'shape=parallelogram, style=filled, fillcolor="#f5ecfa"',
+             "missing": 'shape=box, style=dashed'}
+
+
+def _dot_string(text: str) -> str:
+    return '"' + text.replace("\\", "\\\\").replace('"', '\\"').replace("\n", "\\n") + '"'
+
+
+def dot_of(pic: Picture) -> str:
+    lines = [f"digraph {_dot_string(pic.model)} {{", "  rankdir=LR;", '  node [fontname="Helvetica"];',
+             '  edge [fontname="Helvetica", fontsize=10];']
+    if pic.caption:
+        lines.append(f"  label={_dot_string(pic.caption)};")
+    for n in pic.nodes:
+        extra = ', color="#d33", penwidth=3' if n.on_new_path else ""
+        lines.append(f"  {n.id} [label={_dot_string(n.table)}, {_DOT_NODE.get(n.kind, _DOT_NODE['missing'])}{extra}];")
+    ids = {n.table: n.id for n in pic.nodes}
+    for a in pic.arrows:
+        attrs = [f"label={_dot_string(a.link + (' (removed)' if a.style == REMOVED else ''))}"]
+        if a.style == TWO_WAY:
+            attrs.append("dir=both")
+        if a.style in (STANDBY, REMOVED):
+            attrs.append("style=dashed")
+        if a.red:
+            attrs.append('color="#d33", penwidth=3')
+        lines.append(f"  {ids[a.src]} -> {ids[a.dst]} [{', '.join(attrs)}];")
+    lines.append("}")
+    return "\n".join(lines) + "\n"
+
+
+_TEXT_ARROWS = {ONE_WAY: "-->", TWO_WAY: "<->", STANDBY: "..>", REMOVED: "xx>"}
+
+
+def text_of(pic: Picture) -> str:
+    lines = [f"{pic.model}: {len(pic.nodes)} tables, {len(pic.arrows)} links ({pic.setting})"]
+    if pic.caption:
+        lines.append(pic.caption)
+    lines += ["", "tables"]
+    for kind in KIND_ORDER:
+        names = [n.table for n in pic.nodes if n.kind == kind]
+        if names:
+            lines.append(f"  {kind + ':':<11}{', '.join(names)}")
+    lines += ["", "links (a filter on the left table restricts the right one; <-> both ways, ..> carries no filter here)"]
+    width = max((len(a.src) for a in pic.arrows), default=0)
+    width_dst = max((len(a.dst) for a in pic.arrows), default=0)
+    for a in pic.arrows:
+        mark = "  * changed" if a.changed else ""
+        lines.append(f"  {a.src:<{width}} {_TEXT_ARROWS[a.style]} {a.dst:<{width_dst}}  {a.link}{mark}")
+    return "\n".join(lines) + "\n"
+
+
+# --- the command ------------------------------------------------------------------------------
+
+
+def configure(parser) -> None:
+    parser.add_argument("model", metavar="MODEL", help="model file, NAME.model/ folder, or REV:PATH")
+    parser.add_argument("--format", choices=FORMATS, default="mermaid")
+    parser.add_argument("--setting", metavar="measure:NAME|report:NAME",
+                        help="draw the links as they carry filters for one measure or report (default: the model's own links)")
+
+
+def resolve(model, spec: str | None):
+    """(Setting, label) for `measure:NAME` or `report:NAME`; the default setting for None."""
+    from modeldiff import graph
+    from modeldiff.errors import ModeldiffError
+
+    if spec is None:
+        return graph.default_setting(model), "default setting"
+    what, _, name = spec.partition(":")
+    if what not in ("measure", "report") or not name:
+        raise ModeldiffError(f"--setting {spec!r}: expected measure:NAME or report:NAME")
+    items = model.measures if what == "measure" else model.reports
+    if name not in items:
+        known = ", ".join(sorted(items)[:8]) or "none"
+        raise ModeldiffError(f"--setting {spec}: model {model.name} has no {what} {name!r} (its {what}s: {known})")
+    if what == "measure":
+        setting = graph.measure_setting(model, items[name], variant_defaults=True)
+    else:
+        setting = graph.measure_setting(model, None, items[name], variant_defaults=True)
+    return setting, f"setting of {what} {name}"
+
+
+def run(args, stdout) -> int:
+    from modeldiff.compare import read_model
+
+    _, result = read_model(args.model)
+    model = result.model
+    setting, label = resolve(model, args.setting)
+    pic = picture(model, setting=setting, setting_label=label)
+    if args.format == "dot":
+        stdout.write(dot_of(pic))
+    elif args.format == "svg":
+        from modeldiff.render.svg import svg_of
+
+        stdout.write(svg_of(pic, standalone=True) + "\n")
+    elif args.format == "text":
+        stdout.write(text_of(pic))
+    else:
+        stdout.write(mermaid_of(pic))
+    return 0

@@ -1,0 +1,313 @@
+"""A `Picture` (modeldiff.picture) drawn as SVG with a simple layered layout, computed here.
+
+No browser script and no layout library: tables go in columns by depth along
+the arrows (a filter's direction; cycles broken where a depth-first search
+meets them), each column is ordered by a few barycentre sweeps to cut
+crossings, and arrows are cubic curves with arrowheads. Every text is escaped.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Iterable
+from html import escape
+
+NODE_H = 34
+ROW_GAP = 22
+DUMMY_H = 12  # the slot an arrow takes in a column it crosses
+MARGIN = 24
+CHAR_W = 7.4  # px per character at the node font size: a width estimate, not a measurement
+SWEEPS = 4
+GAP_PER_ARROW = 14  # extra px between two columns for each arrow crossing it beyond four
+MAX_GAP = 520
+LABEL_TRIES = (0.5, 0.38, 0.62, 0.28, 0.72, 0.2, 0.8)  # where along a curve a label may go, first choice first
+LABEL_H = 13
+LABEL_CHAR_W = 6.2
+
+_FILL = {"fact": "#fff4e0", "dimension": "#e8f1fb", "bridge": "#eaf6ea", "access": "#f5ecfa", "missing": "#ffffff"}
+_STROKE = {"fact": "#b7791f", "dimension": "#3b6ea5", "bridge": "#3f8f3f", "access": "#7d4a9e", "missing": "#999999"}
+RED = "#d33"
+GREY = "#555"
+
+
+@dataclass(frozen=True)
+class Box:
+    table: str
+    layer: int
+    x: float
+    y: float
+    w: float
+    h: float
+
+    @property
+    def cy(self) -> float:
+        return self.y + self.h / 2
+
+
+# --- layout -----------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Layout:
+    boxes: dict  # table -> Box
+    bends: dict  # arrow index -> the Boxes (dummy slots) it passes through in the columns it crosses
+    width: float
+    height: float
+
+
+def layers(tables: list[str], edges: list[tuple[str, str]]) -> dict[str, int]:
+    """Depth of each table along `edges`, after dropping the edges that close a cycle.
+
+    Longest-path layering; then a table nothing points into moves right, next
+    to the nearest table it points at, so that few arrows skip a column.
+    """
+    succ: dict[str, list[str]] = {t: [] for t in tables}
+    for src, dst in sorted(set(edges)):
+        if src != dst and src in succ and dst in succ:
+            succ[src].append(dst)
+    state: dict[str, int] = {}  # 1 on the stack, 2 done
+    finished: list[str] = []
+    dag: dict[str, list[str]] = {t: [] for t in tables}
+    for root in sorted(tables):
+        if root in state:
+            continue
+        state[root] = 1
+        stack = [(root, iter(succ[root]))]
+        while stack:
+            node, rest = stack[-1]
+            for nxt in rest:
+                if state.get(nxt) == 1:
+                    continue  # closes a cycle: left out of the layering
+                dag[node].append(nxt)
+                if nxt not in state:
+                    state[nxt] = 1
+                    stack.append((nxt, iter(succ[nxt])))
+                    break
+            else:
+                state[node] = 2
+                finished.append(node)
+                stack.pop()
+    depth = {t: 0 for t in tables}
+    has_in: set[str] = set()
+    for node in reversed(finished):  # a topological order of the acyclic part
+        for nxt in dag[node]:
+            depth[nxt] = max(depth[nxt], depth[node] + 1)
+            has_in.add(nxt)
+    for t in tables:
+        if t not in has_in and dag[t]:
+            depth[t] = min(depth[d] for d in dag[t]) - 1
+    return depth
+
+
+def _order(cols: list[list[str]], near: dict[str, set[str]]) -> list[list[str]]:
+    """Barycentre sweeps, left to right then back, ties by name."""
+    for sweep in range(SWEEPS):
+        forward = sweep % 2 == 0
+        for i in (range(1, len(cols)) if forward else range(len(cols) - 2, -1, -1)):
+            ref = cols[i - 1] if forward else cols[i + 1]
+            where = {t: n for n, t in enumerate(ref)}
+            current = {t: n for n, t in enumerate(cols[i])}
+
+            def centre(t: str) -> float:
+                seen = [where[u] for u in near[t] if u in where]
+                return sum(seen) / len(seen) if seen else current[t]
+
+            cols[i] = sorted(cols[i], key=lambda t: (centre(t), t))
+    return cols
+
+
+def layout(pic) -> Layout:
+    """Tables in columns by depth; an arrow that crosses columns gets a slot in each, so it passes between tables."""
+    tables = [n.table for n in pic.nodes]
+    depth = layers(tables, [(a.src, a.dst) for a in pic.arrows])
+    chains: dict[int, list[str]] = {}
+    for a in pic.arrows:
+        lo, hi = depth[a.src], depth[a.dst]
+        step = 1 if hi > lo else -1
+        chains[a.index] = [f"\0{a.index}:{layer}" for layer in range(lo + step, hi, step)]  # "\0": no table name
+        for key in chains[a.index]:
+            depth[key] = int(key.rsplit(":", 1)[1])
+    cols: list[list[str]] = [[] for _ in range(max(depth.values(), default=-1) + 1)]
+    for key in sorted(depth):
+        cols[depth[key]].append(key)
+    near: dict[str, set[str]] = {key: set() for key in depth}
+    for a in pic.arrows:
+        chain = [a.src, *chains[a.index], a.dst]
+        for u, v in zip(chain, chain[1:]):
+            if u != v:
+                near[u].add(v)
+                near[v].add(u)
+    cols = _order(cols, near)
+
+    node_w = max((len(t) for t in tables), default=4) * CHAR_W + 28
+    base = min(max(max((len(a.link) for a in pic.arrows), default=0) * LABEL_CHAR_W + 48, 96), 240)
+    crossing = [0] * len(cols)  # arrows crossing the gap after each column: a crowded gap is made wider
+    for a in pic.arrows:
+        lo, hi = sorted((depth[a.src], depth[a.dst]))
+        for i in range(lo, hi):
+            crossing[i] += 1
+    gaps = [min(base + GAP_PER_ARROW * max(n - 4, 0), MAX_GAP) for n in crossing]
+    xs = [MARGIN + i * node_w + sum(gaps[:i]) for i in range(len(cols))]
+
+    def height_of(key: str) -> float:
+        return DUMMY_H if key.startswith("\0") else NODE_H
+
+    col_h = [sum(height_of(k) for k in col) + max(len(col) - 1, 0) * ROW_GAP for col in cols]
+    tallest = max(col_h, default=0)
+    slots: dict[str, Box] = {}
+    for i, col in enumerate(cols):
+        y = MARGIN + (tallest - col_h[i]) / 2
+        for key in col:
+            slots[key] = Box(key, i, xs[i], y, node_w, height_of(key))
+            y += height_of(key) + ROW_GAP
+    width = 2 * MARGIN + len(cols) * node_w + sum(gaps[:-1])
+    bends = {index: tuple(slots[k] for k in chain) for index, chain in chains.items()}
+    return Layout({t: slots[t] for t in tables}, bends, max(width, 2 * MARGIN), max(2 * MARGIN + tallest, 2 * MARGIN))
+
+
+def _segment(x0: float, y0: float, x3: float, y3: float, offset: float = 0.0) -> tuple[tuple[float, float], ...]:
+    dx = (x3 - x0) / 2
+    return (x0, y0), (x0 + dx, y0 + offset), (x3 - dx, y3 + offset), (x3, y3)
+
+
+def route(a: Box, b: Box, bends: tuple[Box, ...], offset: float) -> list[tuple[tuple[float, float], ...]]:
+    """Cubic segments from box `a` to box `b` through `bends`; `offset` separates links joining the same tables."""
+    if b.layer == a.layer:
+        bulge = 48 + abs(offset) + abs(b.cy - a.cy) / 6
+        x0, x3 = a.x + a.w, b.x + b.w
+        return [((x0, a.cy), (x0 + bulge, a.cy + offset), (x3 + bulge, b.cy + offset), (x3, b.cy))]
+    forward = b.layer > a.layer
+    points = [(a.x + a.w if forward else a.x, a.cy)]
+    for bend in bends:  # enter and leave each crossed column at the slot's height
+        points += [(bend.x if forward else bend.x + bend.w, bend.cy), (bend.x + bend.w if forward else bend.x, bend.cy)]
+    points.append((b.x if forward else b.x + b.w, b.cy))
+    segments = []
+    for n in range(0, len(points) - 1):
+        (x0, y0), (x3, y3) = points[n], points[n + 1]
+        crossing = n % 2 == 1  # a straight run through a crossed column
+        segments.append(((x0, y0), (x0, y0), (x3, y3), (x3, y3)) if crossing else _segment(x0, y0, x3, y3, offset))
+    return segments
+
+
+def _at(points, t: float) -> tuple[float, float]:
+    """The point of a cubic curve at parameter t."""
+    (x0, y0), (x1, y1), (x2, y2), (x3, y3) = points
+    u = 1 - t
+    a, b, c, d = u * u * u, 3 * u * u * t, 3 * u * t * t, t * t * t
+    return a * x0 + b * x1 + c * x2 + d * x3, a * y0 + b * y1 + c * y2 + d * y3
+
+
+def _label_box(x: float, y: float, text: str) -> tuple[float, float, float, float]:
+    w = len(text) * LABEL_CHAR_W + 4
+    return x - w / 2, y - LABEL_H, x + w / 2, y + 2
+
+
+def _overlap(box, others) -> float:
+    """The area `box` shares with `others`."""
+    x0, y0, x1, y1 = box
+    return sum(max(0.0, min(x1, b[2]) - max(x0, b[0])) * max(0.0, min(y1, b[3]) - max(y0, b[1])) for b in others)
+
+
+def place_labels(items: list[tuple[str, list]], boxes: Iterable[Box]) -> list[tuple[float, float]]:
+    """Where each (text, segments) label goes: the first spot along its curve that overlaps no table and no
+    label placed before it, else the one that overlaps them least. Labels are placed in the order given."""
+    taken = [(b.x, b.y, b.x + b.w, b.y + b.h) for b in boxes]
+    spots = []
+    for text, segments in items:
+        segment = segments[1] if len(segments) > 1 else segments[0]  # a crossed column's straight run, if any
+        candidates = [_at(segment, t) for t in LABEL_TRIES]
+        if len(segments) > 1:
+            candidates += [_at(segments[0], t) for t in LABEL_TRIES[1:]]
+        spot = min(candidates, key=lambda c: _overlap(_label_box(c[0], c[1] - 4, text), taken))  # first of the least
+        taken.append(_label_box(spot[0], spot[1] - 4, text))
+        spots.append(spot)
+    return spots
+
+
+def _f(v: float) -> str:
+    return f"{v:.1f}".rstrip("0").rstrip(".")
+
+
+# --- drawing ------------------------------------------------------------------------------------
+
+
+def _markers(prefix: str) -> str:
+    out = []
+    for name, colour in (("grey", GREY), ("red", RED)):
+        out.append(f'<marker id="{prefix}-{name}" viewBox="0 0 10 10" refX="9" refY="5" markerWidth="9" '
+                   f'markerHeight="9" markerUnits="userSpaceOnUse" orient="auto-start-reverse"><path d="M0,0 L10,5 L0,10 z" fill="{colour}"/></marker>')
+    return "<defs>" + "".join(out) + "</defs>"
+
+
+def _offsets(pic) -> dict[int, float]:
+    groups: dict[frozenset, list[int]] = {}
+    for a in pic.arrows:
+        groups.setdefault(frozenset((a.src, a.dst)), []).append(a.index)
+    out = {}
+    for members in groups.values():
+        for k, index in enumerate(members):
+            out[index] = (k - (len(members) - 1) / 2) * 26
+    return out
+
+
+def _path_d(segments) -> str:
+    return f"M{_f(segments[0][0][0])},{_f(segments[0][0][1])}" + "".join(
+        " C" + " ".join(f"{_f(x)},{_f(y)}" for x, y in seg[1:]) for seg in segments)
+
+
+def _label(a) -> str:
+    return a.link + (" (removed)" if a.style == "removed" else "")
+
+
+def _arrow(a, segments, spot: tuple[float, float], prefix: str) -> str:
+    colour = RED if a.red else GREY
+    marker = f"url(#{prefix}-{'red' if a.red else 'grey'})"
+    attrs = [f'd="{_path_d(segments)}"', 'fill="none"', f'stroke="{colour}"', f'stroke-width="{3 if a.red else 1.4}"',
+             f'marker-end="{marker}"']
+    if a.style == "two-way":
+        attrs.append(f'marker-start="{marker}"')
+    if a.style in ("standby", "removed"):
+        attrs.append('stroke-dasharray="5 4"')
+    what = {"one-way": "one-way", "two-way": "two-way", "standby": "carries no filter here",
+            "removed": "removed"}[a.style]
+    cls = "edge changed" if a.red else "edge"
+    return (f'<g class="{cls}" data-link="{escape(a.link)}" data-index="{a.index}">'
+            f"<title>{escape(a.link)}: a filter on {escape(a.src)} restricts {escape(a.dst)} ({what})</title>"
+            f'<path {" ".join(attrs)}/>'
+            f'<text x="{_f(spot[0])}" y="{_f(spot[1] - 4)}" text-anchor="middle" font-size="11" fill="{colour}" '
+            f'stroke="#ffffff" stroke-width="3" paint-order="stroke">{escape(_label(a))}</text></g>')
+
+
+def _node(n, box: Box) -> str:
+    rx = 12 if n.kind == "dimension" else 3
+    stroke, width = (RED, 3) if n.on_new_path else (_STROKE.get(n.kind, GREY), 1.5)
+    dash = ' stroke-dasharray="4 4"' if n.kind == "missing" else ""
+    title = f"{n.table} ({n.kind})" + (f": {n.description}" if n.description else "")
+    cls = "node newpath" if n.on_new_path else "node"
+    return (f'<g class="{cls}" data-table="{escape(n.table)}"><title>{escape(title)}</title>'
+            f'<rect x="{_f(box.x)}" y="{_f(box.y)}" width="{_f(box.w)}" height="{_f(box.h)}" rx="{rx}" '
+            f'fill="{_FILL.get(n.kind, "#fff")}" stroke="{stroke}" stroke-width="{width}"{dash}/>'
+            f'<text x="{_f(box.x + box.w / 2)}" y="{_f(box.cy + 4.5)}" text-anchor="middle" font-size="13" '
+            f'fill="#222">{escape(n.table)}</text></g>')
+
+
+def svg_of(pic, prefix: str = "mdg", standalone: bool = False) -> str:
+    """The picture as one <svg> element (with an XML namespace, so it also stands alone as a file)."""
+    lay = layout(pic)
+    width, height = lay.width, lay.height
+    offsets = _offsets(pic)
+    parts = [f'<svg xmlns="http://www.w3.org/2000/svg" class="modeldiff-graph" width="{_f(width)}" '
+             f'height="{_f(height)}" viewBox="0 0 {_f(width)} {_f(height)}" role="img" '
+             f'font-family="system-ui, -apple-system, Segoe UI, Helvetica, Arial, sans-serif">',
+             f"<title>Filter graph of {escape(pic.model)} ({escape(pic.setting)})</title>", _markers(prefix)]
+    routes = {a.index: route(lay.boxes[a.src], lay.boxes[a.dst], lay.bends[a.index], offsets[a.index])
+              for a in pic.arrows}
+    # red labels first, so the changed links keep the best spots
+    order = sorted(pic.arrows, key=lambda a: (not a.red, a.index))
+    spots = dict(zip((a.index for a in order),
+                     place_labels([(_label(a), routes[a.index]) for a in order], lay.boxes.values())))
+    parts += [_arrow(a, routes[a.index], spots[a.index], prefix) for a in pic.arrows]
+    parts += [_node(n, lay.boxes[n.table]) for n in pic.nodes]
+    parts.append("</svg>")
+    svg = "\n".join(parts)
+    return ('<?xml version="1.0" encoding="UTF-8"?>\n' + svg) if standalone else svg
