@@ -366,3 +366,15 @@ def test_a_missing_argument_exits_2_with_one_line():
 
 def test_an_unknown_format_exits_2_with_one_line():
     assert_one_line_error(*run("plan", str(EXAMPLE_OLD), str(EXAMPLE_NEW), "--format", "yaml"))
+
+
+def test_errors_in_the_new_revision_are_blockers_before_any_step():
+    name = SCENARIOS / "measure_removed_used"
+    code, out, _ = run("plan", str(name / "old.model.yaml"), str(name / "new.model.yaml"), "--format", "json")
+    blockers = json.loads(out)["blockers"]
+    assert code == 0 and len(blockers) == 1 and blockers[0].startswith("broken-reference reports.rider_trips: ")
+
+
+def test_no_blockers_when_the_new_revision_is_clean():
+    code, out, _ = run("plan", str(EXAMPLE_OLD), str(EXAMPLE_NEW), "--format", "json")
+    assert json.loads(out)["blockers"] == []

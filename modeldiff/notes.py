@@ -1,0 +1,328 @@
+"""Release notes for a range of commits: what changed in each model, in plain words, grouped by severity.
+
+`modeldiff notes A..B` (git's range notation; `A..` means `A..HEAD`, `A...B`
+is accepted too) reads the commits of the range and compares the models they
+touched with the same service as `modeldiff diff` (`compare.compare_revisions`);
+every sentence comes from the `Change` records and impacts it returns.
+
+- `--squash` (default): one section per model, comparing the merge base of A
+  and B with B (as `git diff A...B` does), so changes made only on A's side
+  never show up as their reverse.
+- `--per-commit`: each commit (oldest first) with its short sha, subject line
+  and the model changes it made against its first parent. A merge commit shows
+  only the models it changed against every parent (a conflict resolved by
+  hand); what it merged is listed under the merged commits. A commit without
+  a parent compares its models with nothing (each is added whole).
+
+Commits that changed no model are listed on one line at the end. A picture of
+what changed (Mermaid, from `modeldiff.picture`) follows each model whose links
+or filter paths changed. A security exposure is said plainly, with the caution
+that the organisation's own review decides. The command exits 0: the notes
+are a document; `modeldiff diff` and the hook are the gates.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass
+from typing import Sequence, TextIO
+
+from modeldiff.errors import UsageError
+
+HELP = "release notes for a range of commits (A..B): what changed in each model, by severity, with a diagram"
+FORMATS = ("markdown", "json")
+SEVERITY_TITLES = {"breaking": "Breaking", "numbers": "Can move numbers", "safe": "Safe"}
+SHORT = 7  # characters of a commit id shown
+
+
+@dataclass(frozen=True)
+class Commit:
+    sha: str
+    subject: str
+    parents: tuple[str, ...]
+    paths: tuple[str, ...]  # model paths the commit changed (see the module docstring for merges)
+    diffs: tuple = ()  # compare.ModelDiff records, per-commit mode only
+
+    @property
+    def short(self) -> str:
+        return self.sha[:SHORT]
+
+    @property
+    def changed_models(self) -> bool:
+        """True when a model's meaning changed (a file touched without any change does not count)."""
+        if self.diffs:
+            return any(d.result.changes or d.result.new_errors for d in self.diffs)
+        return bool(self.paths)
+
+
+@dataclass(frozen=True)
+class Notes:
+    range: str
+    mode: str  # squash | per-commit
+    start: str  # what the squashed comparison starts from, as shown
+    end: str
+    commits: tuple[Commit, ...]
+    models: tuple  # compare.ModelDiff records: the range as a whole
+
+
+# --- reading the range -------------------------------------------------------------------------
+
+
+def split_range(text: str) -> tuple[str, str, str]:
+    """(left, operator, right) of `A..B` or `A...B`; an empty side is HEAD, as in git."""
+    for operator in ("...", ".."):
+        if operator in text:
+            left, right = text.split(operator, 1)
+            if operator in right:
+                break
+            return left or "HEAD", operator, right or "HEAD"
+    raise UsageError(f"'{text}' is not a range; write A..B (for everything since a tag: TAG..HEAD)")
+
+
+def _commit_facts(root: str, shas: Sequence[str]) -> dict[str, tuple[tuple[str, ...], str]]:
+    """sha -> (parents, subject line).
+
+    Goes through git.py's own repository handling (its environment and error
+    translation); git.py has no public reader for commit subjects yet.
+    """
+    from modeldiff import git
+
+    facts: dict[str, tuple[tuple[str, ...], str]] = {}
+    with git._open(root) as repo:
+        for start in range(0, len(shas), 200):
+            out = git._run(repo, "show", "-s", "--no-color", "--format=%H%x00%P%x00%s", *shas[start:start + 200])
+            for line in out.splitlines():
+                sha, parents, subject = (line.split("\0") + ["", ""])[:3]
+                facts[sha] = (tuple(parents.split()), subject)
+    return facts
+
+
+def _touched(root: str, sha: str, parents: tuple[str, ...]) -> tuple[str, ...]:
+    from modeldiff import git
+
+    if not parents:
+        return tuple(git.list_models(root, sha))
+    found = set(git.changed_models(root, parents[0], sha))
+    for parent in parents[1:]:
+        found &= set(git.changed_models(root, parent, sha))
+    return tuple(sorted(found))
+
+
+def _whole(root: str, sha: str, paths: Sequence[str]) -> list:
+    """ModelDiffs of a commit without a parent: each model compared with nothing."""
+    from modeldiff import git, impact, load
+    from modeldiff.compare import ModelDiff, Side
+    from modeldiff.model import Model
+
+    out = []
+    for path in paths:
+        source = git.read_at(root, sha, path)
+        if source is None:
+            continue
+        loaded = load.load_files(source.files)
+        result = impact.analyse(Model(loaded.model.name, {}), loaded.model, (), loaded.findings)
+        out.append(ModelDiff(Side(None, path), Side(sha, path), result))
+    return out
+
+
+def _commit_diffs(root: str, commit: Commit) -> tuple:
+    from modeldiff import compare
+
+    if not commit.paths:
+        return ()
+    if not commit.parents:
+        return tuple(_whole(root, commit.sha, commit.paths))
+    return tuple(compare.compare_revisions(root, commit.parents[0], commit.sha, list(commit.paths)))
+
+
+def read_notes(root: str, range_text: str, mode: str = "squash") -> Notes:
+    """Everything the notes say, read from the repository at `root`."""
+    from modeldiff import compare, git
+
+    left, operator, right = split_range(range_text)
+    shas = git.commits_in_range(root, f"{left}{operator}{right}")
+    facts = _commit_facts(root, shas)
+    commits = []
+    for sha in shas:
+        parents, subject = facts.get(sha, ((), ""))
+        commit = Commit(sha, subject, parents, _touched(root, sha, parents))
+        if mode == "per-commit":
+            commit = Commit(sha, subject, parents, commit.paths, _commit_diffs(root, commit))
+        commits.append(commit)
+
+    left_sha, right_sha = git.resolve_rev(root, left), git.resolve_rev(root, right)
+    base = git.merge_base(root, left_sha, right_sha) or left_sha
+    start = left if base == left_sha else base[:SHORT]
+    paths = git.changed_models(root, base, right_sha)
+    models = tuple(compare.compare_revisions(root, start if base == left_sha else base, right, paths)) if paths else ()
+    return Notes(range_text, mode, start, right, tuple(commits), models)
+
+
+# --- words --------------------------------------------------------------------------------------
+
+
+def _diagram(md) -> str | None:
+    """Mermaid source of what changed in one model (modeldiff.picture), or None when no link or path changed."""
+    from modeldiff.picture import diff_picture, mermaid_of
+
+    pic = diff_picture(md.result, limit=0)
+    return None if pic is None else mermaid_of(pic).rstrip("\n")
+
+
+def _md(text: str) -> str:
+    return text.replace("|", "\\|").replace("\n", " ")
+
+
+def _names(impacts, owners: dict[str, str] | None = None) -> str:
+    parts = []
+    for i in impacts:
+        extra = [i.severity]
+        if i.exposed:
+            extra.append(f"now sees rows of {', '.join(i.exposed)} it did not")
+        if owners is not None and owners.get(i.name):
+            extra.append(f"owner {owners[i.name]}")
+        parts.append(f"{i.name} ({'; '.join(extra)})")
+    return ", ".join(parts)
+
+
+def _path_line(kind: str, group) -> str:
+    pairs = [c.subject.split(".", 1)[1].replace("->", " → ") for c in group]
+    ids = ", ".join(c.id for c in group)
+    what = "New filter paths" if kind == "path.added" else "Filter paths that no longer exist"
+    return f"- {what} ({len(group)}): {', '.join(pairs)} ({ids})"
+
+
+def severity_lines(result) -> list[str]:
+    """The changes of one model, breaking first, one plain sentence each (filter paths summed up per severity)."""
+    lines: list[str] = []
+    for severity in ("breaking", "numbers", "safe"):
+        group = [c for c in result.changes if c.severity == severity]
+        errors = result.new_errors if severity == "breaking" else ()
+        if not group and not errors:
+            continue
+        lines += ["", f"**{SEVERITY_TITLES[severity]}**", ""]
+        lines += [f"- {_md(c.message)} ({c.id})" for c in group if not c.kind.startswith("path.")]
+        for kind in ("path.added", "path.removed"):
+            paths = [c for c in group if c.kind == kind]
+            if paths:
+                lines.append(_path_line(kind, paths))
+        lines += [f"- The new revision has an error: {_md(f.message)} (`{f.rule}` on `{f.subject}`)" for f in errors]
+    return lines
+
+
+def model_section(md, level: int) -> list[str]:
+    """One model's part of the notes, its title at Markdown heading `level`."""
+    from modeldiff.render.diff_out import SECURITY_CAUTION
+
+    r = md.result
+    name = r.new.name or r.old.name
+    lines = [f"{'#' * level} `{name}` (`{md.new.path}`): {r.verdict}"]
+    exposed = [c for c in r.changes if c.kind == "security.exposed"]
+    if exposed:
+        who = "; ".join(f"role {c.subject.split('.')[1]} can now see rows of {c.subject.split('.')[-1]} that were "
+                        f"hidden from it" for c in exposed)
+        lines += ["", f"> **SECURITY:** {_md(who)}. {SECURITY_CAUTION}"]
+    if not r.changes and not r.new_errors:
+        return lines + ["", "No change to what the model means (only layout or comments)."]
+    lines += severity_lines(r)
+    owners = {name: (rep.owner or "") for name, rep in {**r.old.reports, **r.new.reports}.items()}
+    impacted = [("measures", r.measures, None), ("roles", r.roles, None), ("reports", r.reports, owners)]
+    rows = [f"- Impacted {title} ({len(items)}): {_md(_names(items, own))}" for title, items, own in impacted if items]
+    if rows:
+        lines += ["", *rows]
+    diagram = _diagram(md)
+    if diagram is not None:
+        lines += ["", "What changed (arrows point the way a filter travels; changed links in red):", "",
+                  "```mermaid", diagram, "```"]
+    return lines
+
+
+def _commit_line(c: Commit) -> str:
+    return f"`{c.short}` {_md(c.subject)}"
+
+
+def _quiet_line(quiet: Sequence[Commit]) -> list[str]:
+    if not quiet:
+        return []
+    return ["", f"{len(quiet)} commit{'s' if len(quiet) != 1 else ''} changed no model: "
+            + "; ".join(_commit_line(c) for c in quiet) + "."]
+
+
+def as_markdown(notes: Notes, stream: TextIO) -> None:
+    from modeldiff.changes import worst
+
+    changed = [c for c in notes.commits if c.changed_models]
+    quiet = [c for c in notes.commits if not c.changed_models]
+    verdict = worst(d.result.verdict for d in notes.models)
+    title = f"# Release notes: `{notes.range}`" + (", commit by commit" if notes.mode == "per-commit" else "")
+    lines = [title, "", f"{len(notes.commits)} commit{'s' if len(notes.commits) != 1 else ''}, "
+             f"{len(changed)} changing a model. Overall: **{verdict}**."]
+    if not notes.commits:
+        lines = [title, "", f"No commits in `{notes.range}`."]
+    if notes.mode == "per-commit":
+        for c in changed:
+            lines += ["", f"## {_commit_line(c)}"]
+            for md in c.diffs:
+                lines += ["", *model_section(md, 3)]
+    else:
+        if notes.commits and not notes.models:
+            lines += ["", "No model changed between the start and the end of the range."]
+        for md in notes.models:
+            lines += ["", *model_section(md, 2)]
+        if changed:
+            lines += ["", "## Commits", ""]
+            lines += [f"- {_commit_line(c)}: {', '.join(c.paths)}" for c in changed]
+    lines += _quiet_line(quiet)
+    stream.write("\n".join(lines) + "\n")
+
+
+def _model_doc(md) -> dict:
+    from modeldiff.render.diff_out import model_json
+
+    return {**model_json(md), "diagram": _diagram(md)}
+
+
+def notes_json(notes: Notes) -> dict:
+    from modeldiff.changes import worst
+
+    commits = []
+    for c in notes.commits:
+        doc = {"sha": c.sha, "short": c.short, "subject": c.subject, "parents": list(c.parents),
+               "paths": list(c.paths), "changed_models": c.changed_models}
+        if notes.mode == "per-commit":
+            doc["models"] = [_model_doc(md) for md in c.diffs]
+        commits.append(doc)
+    return {"format": 1, "range": notes.range, "mode": notes.mode, "start": notes.start, "end": notes.end,
+            "commits": commits, "models": [_model_doc(md) for md in notes.models],
+            "summary": {"commits": len(notes.commits), "changing_models": sum(c.changed_models for c in notes.commits),
+                        "verdict": worst(d.result.verdict for d in notes.models)}}
+
+
+# --- the command ----------------------------------------------------------------------------------
+
+
+def configure(parser) -> None:
+    parser.add_argument("range", metavar="REV_RANGE", help="A..B or A...B, git's notation (A.. means A..HEAD)")
+    parser.add_argument("--format", choices=FORMATS, default="markdown")
+    mode = parser.add_mutually_exclusive_group()
+    mode.add_argument("--per-commit", dest="mode", action="store_const", const="per-commit",
+                      help="one section per commit, with its subject line")
+    mode.add_argument("--squash", dest="mode", action="store_const", const="squash",
+                      help="one section per model, the range as a whole (the default)")
+    parser.set_defaults(mode="squash")
+    parser.add_argument("--repo", metavar="DIR", default=".", help="the repository (default: the current folder)")
+
+
+def run(args, stdout: TextIO) -> int:
+    from modeldiff import git
+
+    split_range(args.range)  # a bad range is a usage error before git is touched
+    root = git.repo_root(args.repo)
+    notes = read_notes(root, args.range, args.mode)
+    if args.format == "json":
+        json.dump(notes_json(notes), stdout, indent=2)
+        stdout.write("\n")
+    else:
+        as_markdown(notes, stdout)
+    return 0
+
