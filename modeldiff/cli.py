@@ -48,6 +48,10 @@ def cmd_check(args, stdout: TextIO) -> int:
     findings = check.check_model(result.model, result.findings)
     if args.format == "json":
         check_out.as_json(result.model.name, findings, stdout)
+    elif args.format == "github":
+        from modeldiff.render import github
+
+        github.check_annotations(result.model.name, findings, stdout)
     elif args.format == "markdown":
         check_out.as_markdown(result.model.name, label, findings, stdout)
     else:
@@ -79,7 +83,16 @@ def cmd_diff(args, stdout: TextIO) -> int:
             raise ModeldiffError(f"no model files (*.model.yaml or *.model/) found at {args.base} or "
                                  f"{args.head or 'the working tree'}; name them after --base")
         diffs.extend(compare.compare_revisions(root, args.base, args.head, paths))
-    {"json": diff_out.as_json, "markdown": diff_out.as_markdown}.get(args.format, diff_out.as_text)(diffs, stdout)
+    if args.format == "html":
+        from modeldiff.render import html
+
+        html.as_html(diffs, stdout)
+    elif args.format == "github":
+        from modeldiff.render import github
+
+        github.as_github(diffs, stdout)
+    else:
+        {"json": diff_out.as_json, "markdown": diff_out.as_markdown}.get(args.format, diff_out.as_text)(diffs, stdout)
     from modeldiff.changes import EXIT_CODES
 
     return EXIT_CODES[diff_out.verdict_of(diffs)]
@@ -101,7 +114,7 @@ def build_parser() -> argparse.ArgumentParser:
 
     p = sub.add_parser("check", help="check one revision of a model against the rules")
     p.add_argument("model", metavar="MODEL", help="model file, NAME.model/ folder, or REV:PATH")
-    p.add_argument("--format", choices=FORMATS, default="text")
+    p.add_argument("--format", choices=FORMATS + ("github",), default="text")
     p.add_argument("--strict", action="store_true", help="exit 1 when there are warnings")
     p.set_defaults(run=cmd_check)
 
@@ -109,7 +122,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("models", nargs="*", metavar="MODEL", help="OLD NEW (paths or REV:PATH); with --base, the models to compare (default: all)")
     p.add_argument("--base", metavar="REV", help="compare every model file at REV with the working tree (or --head)")
     p.add_argument("--head", metavar="REV", help="with --base: compare with this revision instead of the working tree")
-    p.add_argument("--format", choices=FORMATS, default="text")
+    p.add_argument("--format", choices=FORMATS + ("html", "github"), default="text")
     p.set_defaults(run=cmd_diff)
 
     p = sub.add_parser("schema", help="print the JSON Schema of the model file format")

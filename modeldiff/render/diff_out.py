@@ -192,6 +192,24 @@ def _md_reason(x: Reason, kinds: dict[str, str]) -> str:
     return text
 
 
+def _md_diagrams(diffs: Sequence[ModelDiff]) -> list[str]:
+    """A Mermaid picture of each model whose links or filter paths changed (GitHub renders the fence)."""
+    from modeldiff.picture import diff_picture, mermaid_of
+
+    lines: list[str] = []
+    for md in diffs:
+        pic = diff_picture(md.result)
+        if pic is None:
+            continue
+        name = md.result.new.name or md.result.old.name
+        lines += ["", f"**Filter graph of `{name}`**: arrows point the way a filter travels; changed links are red, "
+                  "tables on new filter paths are outlined in red, dotted links carry no filter.", "",
+                  "```mermaid", mermaid_of(pic).rstrip("\n"), "```"]
+        if pic.caption:
+            lines += ["", f"_{_md(pic.caption)}_"]
+    return lines
+
+
 def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
     lines = ["## modeldiff", "", "| model | verdict | breaking | can move numbers | safe | impacted measures | roles | reports |",
              "|---|---|---|---|---|---|---|---|"]
@@ -199,6 +217,7 @@ def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
         r, c = md.result, md.result.counts()
         lines.append(f"| `{r.new.name or r.old.name}` | **{r.verdict}** | {c['breaking']} | {c['numbers']} | {c['safe']} | "
                      f"{len(r.measures)} | {len(r.roles)} | {len(r.reports)} |")
+    lines += _md_diagrams(diffs)
     for md in diffs:
         r = md.result
         kinds = {c.id: c.kind for c in r.changes}

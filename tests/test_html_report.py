@@ -1,0 +1,149 @@
+"""`modeldiff diff --format html`: one self-contained, well-formed, escaped page; rendered in headless Chromium when installed."""
+
+from __future__ import annotations
+
+import io
+import re
+import shutil
+import struct
+import subprocess
+from html.parser import HTMLParser
+from pathlib import Path
+
+import pytest
+
+from modeldiff import cli, impact
+from modeldiff.compare import ModelDiff, Side
+from modeldiff.render.html import document
+from modelkit import bikeshare, edit, link, table
+
+ROOT = Path(__file__).parent.parent
+EXAMPLE = ROOT / "examples" / "bikeshare.model.yaml"
+REVISION_2 = ROOT / "examples" / "revision-2" / "bikeshare.model.yaml"
+SCENARIOS = Path(__file__).parent / "impact_scenarios"
+VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
+
+
+def html_of(*argv: str) -> str:
+    out, err = io.StringIO(), io.StringIO()
+    code = cli.main(["diff", *argv, "--format", "html"], stdout=out, stderr=err)
+    assert err.getvalue() == "" and code in (0, 1, 3)
+    return out.getvalue()
+
+
+class Nesting(HTMLParser):
+    """Every element closed, in order (void elements and `<x/>` excepted); records the tags seen."""
+
+    def __init__(self) -> None:
+        super().__init__(convert_charrefs=True)
+        self.stack: list[str] = []
+        self.errors: list[str] = []
+        self.seen: list[tuple[str, dict]] = []
+        self.text: list[str] = []
+
+    def handle_starttag(self, tag, attrs):
+        self.seen.append((tag, dict(attrs)))
+        if tag not in VOID:
+            self.stack.append(tag)
+
+    def handle_startendtag(self, tag, attrs):
+        self.seen.append((tag, dict(attrs)))
+
+    def handle_endtag(self, tag):
+        if not self.stack or self.stack[-1] != tag:
+            self.errors.append(f"</{tag}> closes {self.stack[-1:] or 'nothing'}")
+        else:
+            self.stack.pop()
+
+    def handle_data(self, data):
+        self.text.append(data)
+
+
+def parsed(page: str) -> Nesting:
+    p = Nesting()
+    p.feed(page)
+    p.close()
+    assert p.errors == [] and p.stack == [], (p.errors, p.stack)
+    return p
+
+
+def test_report_is_well_formed_with_summary_changes_impacts_and_graph():
+    page = html_of(str(EXAMPLE), str(REVISION_2))
+    assert page.startswith("<!DOCTYPE html>")
+    p = parsed(page)
+    tags = [t for t, _ in p.seen]
+    assert tags.count("svg") == 1
+    tables = [a.get("class") for t, a in p.seen if t == "table"]
+    assert tables == ["summary", "changes"]
+    text = "".join(p.text)
+    assert "Impacted measures (3)" in text and "stock_value" in text and "station_stock" in text
+    changed = [a["data-link"] for t, a in p.seen if t == "g" and a.get("class") == "edge changed"]
+    assert changed == ["trips_start_station"]
+    assert "graph LR" in text  # the Mermaid source, folded in <details>
+    assert tags.index("details") > tags.index("svg")
+
+
+def test_report_loads_nothing_from_the_network():
+    page = html_of(str(EXAMPLE), str(REVISION_2))
+    assert "<script" not in page and "<link" not in page and "@import" not in page
+    assert not re.search(r"\bsrc=", page)
+    # the only URL is the SVG namespace, a name that is never fetched
+    assert set(re.findall(r"https?://[^\s\"'<>]+", page)) == {"http://www.w3.org/2000/svg"}
+
+
+def test_model_text_is_escaped():
+    evil = "<script>alert(1)</script> & \"quotes\""
+    old = bikeshare()
+    trips = old.tables["trips"]
+    old = edit(old, table("trips", "fact", columns={c: t.type for c, t in trips.columns.items()}, description=evil))
+    new = edit(old, link("trips_bike", "trips.bike_key", "bikes.bike_key", flow="two-way"))
+    page = document([ModelDiff(Side("main<b>", "m.model.yaml"), Side(None, "m.model.yaml"),
+                               impact.analyse(old, new, (), ()))])
+    parsed(page)
+    assert "<script" not in page and "<b>" not in page
+    assert "&lt;script&gt;alert(1)&lt;/script&gt; &amp; &quot;quotes&quot;" in page  # the table's tooltip in the SVG
+    assert "main&lt;b&gt;:m.model.yaml" in page
+
+
+def test_security_caution_only_with_an_exposure():
+    exposed = html_of(*(str(SCENARIOS / "security_flow_one_way" / f) for f in ("old.model.yaml", "new.model.yaml")))
+    twin = html_of(*(str(SCENARIOS / "security_flow_two_way" / f) for f in ("old.model.yaml", "new.model.yaml")))
+    assert 'class="security"' in exposed and "SECURITY:" in exposed
+    assert "SECURITY" not in twin and 'class="security"' not in twin
+
+
+def test_no_changes_says_so_and_draws_nothing():
+    page = html_of(str(EXAMPLE), str(EXAMPLE))
+    parsed(page)
+    assert "No changes." in page and "<svg" not in page
+
+
+# --- in a browser -------------------------------------------------------------------------------------
+
+CHROMIUM = shutil.which("chromium")
+CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
+                  "--disable-background-networking", "--disable-component-update", "--disable-sync"]
+
+
+def png_size(data: bytes) -> tuple[int, int]:
+    """Width and height from a PNG's IHDR chunk (PNG specification: 8-byte signature, then IHDR)."""
+    assert data[:8] == b"\x89PNG\r\n\x1a\n" and data[12:16] == b"IHDR"
+    return struct.unpack(">II", data[16:24])
+
+
+@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed (apt-get install -y chromium): "
+                                             "the HTML report is not rendered in a browser here")
+def test_report_renders_in_headless_chromium(tmp_path):
+    page = tmp_path / "report.html"
+    page.write_text(html_of(str(EXAMPLE), str(REVISION_2)), encoding="utf-8")
+    shot = tmp_path / "report.png"
+    base = [CHROMIUM, *CHROMIUM_FLAGS, f"--user-data-dir={tmp_path / 'profile'}"]
+    subprocess.run([*base, f"--screenshot={shot}", "--window-size=1280,2000", page.as_uri()],
+                   capture_output=True, timeout=120, check=False)
+    assert shot.exists(), "chromium wrote no screenshot"
+    data = shot.read_bytes()
+    assert png_size(data) == (1280, 2000)
+    assert len(data) > 60_000  # a blank 1280x2000 page compresses to a few KB
+    dom = subprocess.run([*base, "--dump-dom", page.as_uri()], capture_output=True, text=True, timeout=120,
+                         check=False).stdout
+    assert "<svg" in dom and 'class="changes"' in dom and 'data-link="trips_start_station"' in dom
