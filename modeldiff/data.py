@@ -2,43 +2,63 @@
 
 The only module that imports duckdb (lazily, inside functions).
 
-Where each table's rows come from, first match wins:
+Where each table's rows come from:
 
-1. `db_file`: a DuckDB database file holding a table (or view) per model table;
-2. `data_dir`: a folder holding `<table>.parquet` or `<table>.csv`;
-3. the table's `source:` in the model, a path relative to the model file.
+1. `db_file`, when given: a DuckDB database file holding a table (or view)
+   named like each model table (opened read-only);
+2. else `data_dir`, when given: a folder holding `<table>.parquet` or
+   `<table>.csv` (Parquet first);
+3. else the table's `source:` in the model (`.parquet` or `.csv`), a path
+   relative to the folder of the model file (for a `NAME.model/` folder, to
+   that folder).
 
 Loading copies each table into an in-memory database, with the model's
 columns in the model's order and `_row`, a row number the engine relies on.
-Bad data stops with one clear line (ModeldiffError): a missing file or
-column, a value that is not of the column's declared type, or data breaking
-a declared key (a duplicate or NULL in a table's `key`, a duplicate in a
-column marked `unique`).
+CSV files are read as text with a header row (an empty field is NULL) and
+each column is converted to its declared type. Bad data stops with one clear
+line (ModeldiffError, exit 2): a missing file or column, a value that is not
+of the column's declared type, or data breaking a declared key (a NULL or a
+duplicate in a table's `key`, a duplicate in a column marked `unique`).
 """
 
 from __future__ import annotations
 
+import os
+import re
 from dataclasses import dataclass
 from typing import Any
 
-from modeldiff.engine import Query
-from modeldiff.model import Model
+from modeldiff.engine import NO_MATCH_COLUMN, Loop, Query, q, report_notes, report_query
+from modeldiff.errors import ModeldiffError
+from modeldiff.model import Model, Table
+
+INTEGER_TYPES = frozenset({"TINYINT", "SMALLINT", "INTEGER", "BIGINT", "HUGEINT",
+                           "UTINYINT", "USMALLINT", "UINTEGER", "UBIGINT", "UHUGEINT"})
+FLOAT_TYPES = frozenset({"FLOAT", "DOUBLE", "REAL"})
+
+# DuckDB type a CSV column is converted to, by model column type
+CSV_TYPES = {"integer": "BIGINT", "float": "DOUBLE", "text": "VARCHAR", "date": "DATE",
+             "timestamp": "TIMESTAMP", "boolean": "BOOLEAN"}  # decimal: DECIMAL(38, scale found)
 
 
 @dataclass(frozen=True)
 class Result:
     """A report's numbers: column names and rows of Python values.
 
-    On the `(no match)` row every grouping value is `NO_MATCH`.
+    Grouping columns come first ("table.column"), then one per measure. On the
+    `(no match)` row every grouping value is `NO_MATCH`.
     """
 
     columns: tuple[str, ...]
     rows: tuple[tuple[Any, ...], ...]
     report: str = ""
     notes: tuple[str, ...] = ()
+    groups: int = 0  # how many leading columns are grouping columns
 
 
 class _NoMatch:
+    """The grouping value of the row gathering home rows that fall in no group."""
+
     def __repr__(self) -> str:
         return "NO_MATCH"
 
@@ -49,18 +69,46 @@ class _NoMatch:
 NO_MATCH = _NoMatch()
 
 
+@dataclass(frozen=True)
+class _Origin:
+    """Where one table's rows are read from, and how to name that place in a message."""
+
+    kind: str  # parquet | csv | db
+    place: str  # a path, or the database file
+    shown: str  # for messages
+
+
 class Database:
     """An in-memory DuckDB database holding one model's tables; use it as a context manager."""
 
-    def __init__(self, connection, model: Model) -> None:
+    def __init__(self, connection, model: Model, origins: dict[str, _Origin] | None = None) -> None:
         self.connection = connection
         self.model = model
+        self.origins = origins or {}
 
     @classmethod
     def open(cls, model: Model, model_path: str | None = None, data_dir: str | None = None,
              db_file: str | None = None) -> "Database":
         """Load every table of `model`; raises ModeldiffError on missing or bad data."""
-        raise NotImplementedError
+        import duckdb
+
+        origins = {name: _origin(model, name, model_path, data_dir, db_file) for name in sorted(model.tables)}
+        connection = duckdb.connect(":memory:")
+        db = cls(connection, model, origins)
+        try:
+            if db_file is not None:
+                connection.execute(f"ATTACH {_literal(os.fspath(db_file))} AS _src (READ_ONLY)")
+            for name in sorted(model.tables):
+                _load(connection, model.tables[name], origins[name])
+            for name in sorted(model.tables):
+                _check_keys(connection, model.tables[name], origins[name])
+        except duckdb.Error as error:
+            connection.close()
+            raise ModeldiffError(f"cannot read the data: {_first_line(error)}") from None
+        except BaseException:
+            connection.close()
+            raise
+        return db
 
     def __enter__(self) -> "Database":
         return self
@@ -71,15 +119,239 @@ class Database:
     def close(self) -> None:
         self.connection.close()
 
-    def run(self, query: Query) -> list[tuple]:
+    def run(self, query: Query, what: str = "the query") -> list[tuple]:
         """Run a query from modeldiff.engine (its steps, loops and cleanup too); its rows."""
-        raise NotImplementedError
+        import duckdb
+
+        params = dict(query.params)
+        try:
+            try:
+                for step in query.steps:
+                    if isinstance(step, Loop):
+                        self._loop(step, params)
+                    else:
+                        self._execute(step, params)
+                return self._execute(query.sql, params).fetchall()
+            finally:
+                for statement in query.cleanup:
+                    self._execute(statement, params)
+        except duckdb.Error as error:
+            raise ModeldiffError(f"cannot evaluate {what} on the data: {_first_line(error)}") from None
+
+    def _loop(self, loop: Loop, params: dict) -> None:
+        before = self._execute(loop.progress, params).fetchone()[0]
+        while True:
+            for statement in loop.statements:
+                self._execute(statement, params)
+            after = self._execute(loop.progress, params).fetchone()[0]
+            if after == before:
+                return
+            before = after
+
+    def _execute(self, sql: str, params: dict):
+        if not params:
+            return self.connection.execute(sql)
+        used = _parameters_of(self.connection, sql)
+        return self.connection.execute(sql, {k: v for k, v in params.items() if k in used})
 
     def table_counts(self) -> dict[str, int]:
         """Rows per table, by table name."""
-        raise NotImplementedError
+        return {name: self.connection.execute(f"SELECT count(*) FROM {q(name)}").fetchone()[0]
+                for name in sorted(self.model.tables)}
 
 
 def evaluate_report(model: Model, report_name: str, db: Database, user: str | None = None) -> Result:
-    """Run one report's query and return its rows (grouping values then measures)."""
-    raise NotImplementedError
+    """Run one report's query and return its rows (grouping values, then measures)."""
+    query = report_query(model, report_name, user=user)
+    rows = db.run(query, f"report {report_name}")
+    report = model.reports[report_name]
+    groups = len(report.by)
+    columns = query.columns
+    if columns and columns[-1] == NO_MATCH_COLUMN:
+        columns = columns[:-1]
+        rows = [((NO_MATCH,) * groups + tuple(row[groups:-1])) if row[-1] else tuple(row[:-1]) for row in rows]
+    notes = list(report_notes(model, report_name))
+    if report.role is not None:
+        viewer = f" (user {user})" if user is not None else ""
+        notes.insert(0, f"As role {report.role} sees it{viewer}.")
+    return Result(tuple(columns), tuple(tuple(r) for r in rows), report_name, tuple(notes), groups)
+
+
+# --- finding the data -------------------------------------------------------------------
+
+
+def _origin(model: Model, name: str, model_path: str | None, data_dir: str | None, db_file: str | None) -> _Origin:
+    if db_file is not None:
+        if not os.path.isfile(db_file):
+            raise ModeldiffError(f"{db_file}: no such database file; give an existing DuckDB file")
+        return _Origin("db", os.fspath(db_file), f"{db_file}: table {name}")
+    if data_dir is not None:
+        if not os.path.isdir(data_dir):
+            raise ModeldiffError(f"{data_dir}: no such folder; give the folder holding <table>.parquet or <table>.csv")
+        for suffix in ("parquet", "csv"):
+            path = os.path.join(data_dir, f"{name}.{suffix}")
+            if os.path.isfile(path):
+                return _Origin(suffix, path, path)
+        raise ModeldiffError(f"{data_dir} has no {name}.parquet or {name}.csv; add the data of table {name}")
+    table = model.tables[name]
+    if table.source is None:
+        raise ModeldiffError(f"table {name} has no source: in the model; give --data DIR holding {name}.parquet "
+                             f"or {name}.csv, or set its source")
+    folder = "."
+    if model_path is not None:
+        model_path = os.fspath(model_path)
+        folder = model_path if os.path.isdir(model_path) else os.path.dirname(model_path) or "."
+    path = os.path.normpath(os.path.join(folder, table.source))
+    suffix = os.path.splitext(path)[1].lower().lstrip(".")
+    if suffix not in ("parquet", "csv"):
+        raise ModeldiffError(f"{path} (source of table {name}): not a .parquet or .csv file; convert it to one")
+    if not os.path.isfile(path):
+        raise ModeldiffError(f"{path} (source of table {name}): no such file; fix the source or give --data DIR")
+    return _Origin(suffix, path, path)
+
+
+# --- loading ----------------------------------------------------------------------------
+
+
+def _literal(text: str) -> str:
+    return "'" + text.replace("'", "''") + "'"
+
+
+def _first_line(error: Exception) -> str:
+    text = str(error).strip()
+    return text.splitlines()[0] if text else type(error).__name__
+
+
+def _parameters_of(connection, sql: str) -> set[str]:
+    try:
+        return set(connection.extract_statements(sql)[0].named_parameters)
+    except AttributeError:  # an older DuckDB without named_parameters
+        return set(re.findall(r"\$([A-Za-z_][A-Za-z0-9_]*)", sql))
+
+
+def _relation(origin: _Origin, table: str, varchar: bool = False) -> str:
+    if origin.kind == "parquet":
+        return f"read_parquet({_literal(origin.place)})"
+    if origin.kind == "csv":
+        return f"read_csv({_literal(origin.place)}, header = true, all_varchar = true)"
+    return f"_src.main.{q(table)}"
+
+
+def _describe(connection, relation: str, origin: _Origin) -> dict[str, str]:
+    """Column name (lower case) -> (name as stored, DuckDB type)."""
+    import duckdb
+
+    try:
+        rows = connection.execute(f"DESCRIBE SELECT * FROM {relation}").fetchall()
+    except duckdb.Error as error:
+        if origin.kind == "db":
+            raise ModeldiffError(f"{origin.shown}: not found or unreadable ({_first_line(error)}); "
+                                 "add the table or give another database") from None
+        raise ModeldiffError(f"{origin.shown}: cannot read it as {origin.kind.upper()} ({_first_line(error)}); "
+                             "fix or replace the file") from None
+    return {row[0].lower(): (row[0], row[1]) for row in rows}
+
+
+def _load(connection, table: Table, origin: _Origin) -> None:
+    relation = _relation(origin, table.name)
+    found = _describe(connection, relation, origin)
+    missing = [c for c in table.columns if c.lower() not in found]
+    if missing:
+        raise ModeldiffError(f"{origin.shown}: no column {missing[0]} (table {table.name}); "
+                             "add it to the data or remove it from the model")
+    if origin.kind == "csv":
+        staged = q(f"_csv_{table.name}")
+        connection.execute(f"CREATE OR REPLACE TEMP TABLE {staged} AS SELECT * FROM {relation}")
+        selects = [_csv_column(connection, staged, table, name, found[name.lower()][0], origin)
+                   for name in table.columns]
+        source = staged
+    else:
+        selects = []
+        for name, column in table.columns.items():
+            stored, duck_type = found[name.lower()]
+            if not _compatible(column.type, duck_type):
+                raise ModeldiffError(f"{origin.shown}: column {name} holds {duck_type} values but the model "
+                                     f"says {column.type}; fix the data or the column's type")
+            selects.append(f"{q(stored)} AS {q(name)}")
+        source = relation
+    connection.execute(f"CREATE TABLE {q(table.name)} AS SELECT row_number() OVER () AS _row, "
+                       f"{', '.join(selects)} FROM {source}")
+    if origin.kind == "csv":
+        connection.execute(f"DROP TABLE {staged}")
+
+
+def _compatible(model_type: str, duck_type: str) -> bool:
+    base = duck_type.upper().split("(")[0].strip()
+    if model_type == "integer":
+        return base in INTEGER_TYPES
+    if model_type == "decimal":
+        return base == "DECIMAL" or base in INTEGER_TYPES or base in FLOAT_TYPES
+    if model_type == "float":
+        return base in FLOAT_TYPES or base == "DECIMAL" or base in INTEGER_TYPES
+    if model_type == "text":
+        return base in ("VARCHAR", "ENUM") or base.startswith("ENUM")
+    if model_type == "date":
+        return base == "DATE"
+    if model_type == "timestamp":
+        return base.startswith("TIMESTAMP") or base == "DATE"
+    if model_type == "boolean":
+        return base == "BOOLEAN"
+    return False
+
+
+def _csv_column(connection, staged: str, table: Table, name: str, stored: str, origin: _Origin) -> str:
+    """The SELECT item converting one text column of a CSV file; raises on the first bad value."""
+    model_type = table.columns[name].type
+    value = q(stored)
+    if model_type == "decimal":
+        scale = connection.execute(
+            f"SELECT coalesce(max(length(regexp_extract(trim({value}), '\\.([0-9]+)$', 1))), 0) FROM {staged}"
+        ).fetchone()[0]
+        target = f"DECIMAL(38, {min(int(scale), 18)})"
+    else:
+        target = CSV_TYPES[model_type]
+    cast = f"TRY_CAST(trim({value}) AS {target})" if model_type != "text" else value
+    if model_type != "text":
+        bad = connection.execute(
+            f"SELECT _n, _v FROM (SELECT row_number() OVER () AS _n, {value} AS _v FROM {staged}) "
+            f"WHERE _v IS NOT NULL AND trim(_v) <> '' AND TRY_CAST(trim(_v) AS {target}) IS NULL ORDER BY _n LIMIT 1"
+        ).fetchone()
+        if bad is not None:
+            raise ModeldiffError(f"{origin.shown}: row {bad[0]} has {bad[1]!r} in column {name}, which is not "
+                                 f"{_a(model_type)}; fix the value or the column's type")
+        cast = f"CASE WHEN trim({value}) = '' THEN NULL ELSE {cast} END"
+    return f"{cast} AS {q(name)}"
+
+
+def _a(model_type: str) -> str:
+    return ("an " if model_type[0] in "aeiou" else "a ") + model_type
+
+
+def _check_keys(connection, table: Table, origin: _Origin) -> None:
+    """A table's key: no NULL, no duplicate; a `unique` column: no duplicate."""
+    name = q(table.name)
+    if table.key:
+        missing = " OR ".join(f"{q(c)} IS NULL" for c in table.key)
+        count = connection.execute(f"SELECT count(*) FROM {name} WHERE {missing}").fetchone()[0]
+        if count:
+            raise ModeldiffError(f"{origin.shown}: {count} row(s) have no value in {_names(table.key)}, the key of "
+                                 f"table {table.name}; fill the key or change the model's key")
+        _no_duplicates(connection, table, table.key, origin, "the key")
+    for column_name, column in table.columns.items():
+        if column.unique:
+            _no_duplicates(connection, table, (column_name,), origin, "declared unique")
+
+
+def _no_duplicates(connection, table: Table, columns, origin: _Origin, what: str) -> None:
+    cols = ", ".join(q(c) for c in columns)
+    found = connection.execute(
+        f"SELECT {cols}, count(*) FROM {q(table.name)} WHERE " + " AND ".join(f"{q(c)} IS NOT NULL" for c in columns)
+        + f" GROUP BY {cols} HAVING count(*) > 1 ORDER BY {cols} LIMIT 1").fetchone()
+    if found is not None:
+        value = ", ".join(f"{c} = {v!r}" for c, v in zip(columns, found[:-1]))
+        raise ModeldiffError(f"{origin.shown}: {value} appears on {found[-1]} rows, but {_names(columns)} is {what} "
+                             f"of table {table.name}; remove the duplicates or change the model")
+
+
+def _names(columns) -> str:
+    return columns[0] if len(columns) == 1 else "(" + ", ".join(columns) + ")"

@@ -1,38 +1,81 @@
 """SQL that evaluates a model's measures on data (semantics.md section 5).
 
-Pure SQL generation: this module builds text and never runs it (modeldiff.data
-runs it on DuckDB). Every table is read from a relation named like the model
-table that holds the model's columns plus `_row`, a unique row number
-(modeldiff.data provides them). Names starting with `_` never clash with a
-model's names, which start with a letter.
+Pure SQL generation: this module builds text and never runs it
+(modeldiff.data runs it on DuckDB). Every model table is read from a relation
+of the same name holding the model's columns plus `_row`, a unique row number
+(modeldiff.data provides them). Names the engine makes up start with `_`, so
+they never clash with a model's names, which start with a letter.
 
 Public API (kept stable: `modeldiff verify` builds on it):
 
 - `Query`: the SQL of one evaluation, its parameters and its output columns;
-  a query over a flow graph with a cycle also carries the statements that
-  compute the visible rows by repeated semi-joins (`steps`).
-- `report_query(model, report_name, user=None)`
-- `measure_query(model, measure_name, by=(), where={}, role=None, layers=(), user=None)`
-- `visible_rows_query(model, table, role=None, where={}, user=None)`
+- `report_query(model, report_name, user=None)`;
+- `measure_query(model, measure_name, by=(), where={}, role=None, layers=(), user=None)`;
+- `visible_rows_query(model, table, role=None, where={}, user=None)`;
+- `report_notes(model, report_name)`: sentences to show beside a report.
+
+How the visible rows are computed
+---------------------------------
+Given direct filters, a table is constrained when it has one or a constrained
+table has a flow-graph edge into it; the others keep their rows and restrict
+nothing. The constrained tables are taken one strongly connected component at
+a time, in topological order. A component without a cycle needs one pass: a
+table's visible rows are its rows that pass its own filters and semi-join
+every constrained table with an edge into it, all final already. A component
+with a cycle is materialised as temporary tables (a superset of the answer,
+built the same way from what is known), then each table is cut again by
+semi-joins against the others (`DELETE ... WHERE NOT EXISTS`) until a whole
+pass removes nothing. Every pass keeps a superset of the largest solution and
+stops at a solution, so it stops at the largest one; it stops because the sets
+only shrink. (No bound on the passes holds in general: a chain of rows around
+a cycle of links can lose one row per pass.)
+
+Groups are carried as columns: the filter `S.c = g` of a group becomes a tag
+column `_gI` holding g on every row of S (each row in its own group), and the
+tags travel along the semi-joins, which match tags as well as link columns
+(`IS NOT DISTINCT FROM`: NULL is a group like any other). So one query
+evaluates every group at once, with rows of a table visible in several groups
+present once per group. Link columns match with `=`: a NULL link value
+matches nothing.
+
+Role cuts are the same computation over the security graph with the role's
+filters; its visible rows become the starting rows of every later step.
+
+Settings: a base measure used by a report is evaluated in the setting made of
+the variant options in force (each variant's choice in the report, else its
+default), the report's overrides, the overrides of each derived measure on the
+way to it (outermost first) and its own. The `where` of the options in force
+joins the report's `where` as direct filters.
+
+Choices where section 5 is silent (written down in docs/evaluation.md):
+- a grouping column's values are those of the rows of its table visible in
+  the total (the report's filters and role, no group filter); this only
+  matters for a measure whose home table the grouping column does not reach,
+  which repeats its total on every value;
+- a measure "sees a row" of its home table when the group's visible rows of
+  that table are not empty, before the measure's own `where`;
+- a base measure with no visible row in a group takes its aggregate over no
+  rows (count 0, sum NULL).
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-from typing import Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Callable, Iterable, Mapping, Sequence
 
 from modeldiff.errors import ModeldiffError
-from modeldiff.model import Model, Overrides
+from modeldiff.model import Link, Measure, Model, Overrides, Report, Role
 
 NO_MATCH_COLUMN = "_no_match"  # last column of a grouped query: true on the (no match) row
 ROWS_COLUMN = "rows"
+USER = "user"
 
 
 @dataclass(frozen=True)
 class Loop:
     """Statements run again and again, in order, until a whole pass changes nothing.
 
-    `progress` is a query returning one number (the rows left in the relations
+    `progress` is a query returning one number (the rows left in the tables
     the statements shrink); the loop stops when a pass leaves it unchanged.
     """
 
@@ -48,8 +91,8 @@ class Query:
     role filters becomes `$user`); pass each statement only the names it uses.
     `columns` names the columns `sql` returns, in order. `steps` is empty
     unless a flow graph has a cycle among constrained tables: then the steps
-    create temporary tables (`CREATE TEMP TABLE`) and shrink them in a `Loop`,
-    and `cleanup` drops them.
+    create temporary tables (`CREATE OR REPLACE TEMP TABLE`) and shrink them
+    in a `Loop`, and `cleanup` drops them.
     """
 
     sql: str
@@ -57,6 +100,9 @@ class Query:
     columns: tuple[str, ...] = ()
     steps: tuple[str | Loop, ...] = ()
     cleanup: tuple[str, ...] = ()
+
+
+# --- public entry points ----------------------------------------------------------------
 
 
 def report_query(model: Model, report_name: str, *, user: str | None = None) -> Query:
@@ -68,7 +114,14 @@ def report_query(model: Model, report_name: str, *, user: str | None = None) -> 
     columns are NULL). Rows are sorted by the grouping columns (NULLs last),
     the `(no match)` row last. `user` binds `:user` in the report's role.
     """
-    raise NotImplementedError
+    report = model.reports.get(report_name)
+    if report is None:
+        raise _unknown("report", report_name, model, model.reports)
+    from modeldiff import graph
+
+    layers = graph.setting_layers(model, None, report, variant_defaults=True)
+    return _Compiler(model, user).grouped(report.measures, report.by, _report_filters(model, report),
+                                          report.role, layers, f"report {report.name}")
 
 
 def measure_query(model: Model, measure_name: str, by: Sequence[str] = (), where: Mapping[str, str] | None = None,
@@ -77,11 +130,19 @@ def measure_query(model: Model, measure_name: str, by: Sequence[str] = (), where
 
     `by`: "table.column" names; `where`: {table: SQL predicate}; `role`: a role
     name whose filters cut each table's rows first. The setting is the model's
-    links, then each variant's default option (its `use`/`flow` and `where`),
-    then `layers` in order, then the measure's own overrides. Columns as in
+    links, then each variant's default option (its `use`/`flow`; its `where`
+    joins `where`), then `layers` in order, then the measure's own overrides
+    (and those of the measures a derived measure names). Columns as in
     `report_query`.
     """
-    raise NotImplementedError
+    if measure_name not in model.measures:
+        raise _unknown("measure", measure_name, model, model.measures)
+    from modeldiff import graph
+
+    report = Report(name="_query", measures=(measure_name,), by=tuple(by), where=dict(where or {}), role=role)
+    base = graph.setting_layers(model, None, report, variant_defaults=True) + tuple(layers)
+    return _Compiler(model, user).grouped(report.measures, report.by, _report_filters(model, report),
+                                          role, base, f"measure {measure_name}")
 
 
 def visible_rows_query(model: Model, table: str, role: str | None = None, where: Mapping[str, str] | None = None,
@@ -92,8 +153,641 @@ def visible_rows_query(model: Model, table: str, role: str | None = None, where:
     cutting each table's rows first (over the security graph), then `where`
     as direct filters over the flow graph.
     """
-    raise NotImplementedError
+    if table not in model.tables:
+        raise _unknown("table", table, model, model.tables)
+    filters = _filters_of(model, [("where", where or {})])
+    compiler = _Compiler(model, user)
+    return compiler.visible_rows(table, filters, role)
 
 
-def _unknown(what: str, name: str, model: Model) -> ModeldiffError:
-    return ModeldiffError(f"model {model.name} has no {what} {name}; check the name")
+def report_notes(model: Model, report_name: str) -> tuple[str, ...]:
+    """Sentences to print beside a report's numbers (section 5: groups need not add up)."""
+    from modeldiff import graph
+
+    report = model.reports.get(report_name)
+    if report is None:
+        raise _unknown("report", report_name, model, model.reports)
+    sources = [_by_column(model, text, f"report {report.name}") for text in report.by]
+    if not sources:
+        return ()
+    report_layers = graph.setting_layers(model, None, report, variant_defaults=True)
+    for term in _base_terms(model, report.measures, report_layers):
+        arcs = _flow_arcs(model, graph.resolve_setting(model, *term.layers))
+        home = model.measures[term.measure].table
+        if any(_fans_out_between(arcs, table, home) for table, _ in sources):
+            return ("A row can count in several groups here (a many-to-many link, or a two-way link against its "
+                    "many-to-one direction, lies between a grouping column and a measure's table), so the groups "
+                    "need not add up to the total.",)
+    return ()
+
+
+def _fans_out_between(arcs: Sequence[_Arc], source: str, home: str) -> bool:
+    """Whether an arc where one value meets several rows can lie on a simple path from `source` to `home`.
+
+    Tested arc by arc (u -> v): `source` reaches u without v, and v reaches
+    `home` without `source` or u. A cheap test that may say yes for a path
+    that would need to cross itself; it never says no when such a path exists
+    with the two halves apart.
+    """
+    for arc in arcs:
+        if not arc.fans_out or arc.dst == source or arc.src == arc.dst:
+            continue
+        before = [a for a in arcs if arc.dst not in (a.src, a.dst)]
+        if arc.src not in _reach(before, [source]):
+            continue
+        after = [a for a in arcs if not {source, arc.src} & {a.src, a.dst}]
+        if home in _reach(after, [arc.dst]):
+            return True
+    return False
+
+
+# --- arcs: flow-graph edges with the columns they match ---------------------------------
+
+
+@dataclass(frozen=True)
+class _Arc:
+    """A filter crossing `link` from `src` to `dst`: dst's `dst_columns` must appear among src's `src_columns`."""
+
+    link: str
+    src: str
+    dst: str
+    src_columns: tuple[str, ...]
+    dst_columns: tuple[str, ...]
+    fans_out: bool  # a src value can match several src rows (many-to-many, or against a many-to-one)
+
+
+def _link_arcs(link: Link, both_ways: bool) -> list[_Arc]:
+    arcs = [_Arc(link.name, link.to_table, link.from_table, link.to_columns, link.from_columns,
+                 link.cardinality == "many-to-many")]
+    if both_ways:
+        arcs.append(_Arc(link.name, link.from_table, link.to_table, link.from_columns, link.to_columns,
+                         link.cardinality != "one-to-one"))
+    return arcs
+
+
+def _flow_arcs(model: Model, setting) -> list[_Arc]:
+    """semantics.md section 2, edge by edge (a link to its own table keeps both directions apart)."""
+    arcs = []
+    for name, flow in setting.flows.items():
+        link = model.links.get(name)
+        if link is not None and link.tables <= set(model.tables):
+            arcs += _link_arcs(link, flow == "two-way" or link.cardinality == "one-to-one")
+    return arcs
+
+
+def _security_arcs(model: Model) -> list[_Arc]:
+    """semantics.md section 3: the default setting's links, reversed only when security flows two-way."""
+    arcs = []
+    for name in sorted(model.links):
+        link = model.links[name]
+        if not link.standby and link.tables <= set(model.tables):
+            arcs += _link_arcs(link, link.cardinality == "one-to-one"
+                               or (link.flow == "two-way" and link.security_flow == "two-way"))
+    return arcs
+
+
+def _reach(arcs: Sequence[_Arc], starts: Iterable[str], backwards: bool = False) -> set[str]:
+    nxt: dict[str, list[str]] = {}
+    for a in arcs:
+        u, v = (a.dst, a.src) if backwards else (a.src, a.dst)
+        nxt.setdefault(u, []).append(v)
+    seen = set(starts)
+    todo = list(seen)
+    while todo:
+        for v in nxt.get(todo.pop(), ()):
+            if v not in seen:
+                seen.add(v)
+                todo.append(v)
+    return seen
+
+
+def _components(nodes: Sequence[str], arcs: Sequence[_Arc]) -> list[list[str]]:
+    """Strongly connected components in topological order (Tarjan's algorithm, iterative)."""
+    out: dict[str, list[str]] = {n: [] for n in nodes}
+    for a in arcs:
+        if a.src in out and a.dst in out:
+            out[a.src].append(a.dst)
+    index: dict[str, int] = {}
+    low: dict[str, int] = {}
+    stack: list[str] = []
+    on_stack: set[str] = set()
+    found: list[list[str]] = []
+    for root in nodes:
+        if root in index:
+            continue
+        work = [(root, iter(out[root]))]
+        index[root] = low[root] = len(index)
+        stack.append(root)
+        on_stack.add(root)
+        while work:
+            node, children = work[-1]
+            child = next(children, None)
+            if child is not None:
+                if child not in index:
+                    index[child] = low[child] = len(index)
+                    stack.append(child)
+                    on_stack.add(child)
+                    work.append((child, iter(out[child])))
+                elif child in on_stack:
+                    low[node] = min(low[node], index[child])
+                continue
+            work.pop()
+            if work:
+                parent = work[-1][0]
+                low[parent] = min(low[parent], low[node])
+            if low[node] == index[node]:
+                component = []
+                while True:
+                    member = stack.pop()
+                    on_stack.discard(member)
+                    component.append(member)
+                    if member == node:
+                        break
+                found.append(sorted(component))
+    found.reverse()
+    return found
+
+
+# --- SQL text helpers -------------------------------------------------------------------
+
+
+def q(name: str) -> str:
+    """A quoted SQL identifier."""
+    return '"' + name.replace('"', '""') + '"'
+
+
+def _tag(i: int) -> str:
+    return q(f"_g{i}")
+
+
+def _and(parts: Sequence[str]) -> str:
+    return " AND ".join(parts)
+
+
+# --- the plan: named relations and loops, in order --------------------------------------
+
+
+@dataclass
+class _Plan:
+    items: list = field(default_factory=list)  # ("rel", name, sql) | ("loop", Loop)
+    names: set = field(default_factory=set)
+
+    def relation(self, name: str, sql: str) -> str:
+        base, n = name, 1
+        while name in self.names:
+            n += 1
+            name = f"{base}_{n}"
+        self.names.add(name)
+        self.items.append(("rel", name, sql))
+        return name
+
+    def loop(self, statements: Sequence[str], progress: str) -> None:
+        self.items.append(("loop", Loop(tuple(statements), progress)))
+
+    def query(self, final: str, columns: Sequence[str], params: tuple) -> Query:
+        if not any(kind == "loop" for kind, *_ in self.items):
+            ctes = ",\n".join(f"{q(name)} AS (\n{sql}\n)" for _, name, sql in self.items)
+            return Query((f"WITH {ctes}\n" if ctes else "") + final, params, tuple(columns))
+        steps: list = []
+        created: list[str] = []
+        for kind, *rest in self.items:
+            if kind == "loop":
+                steps.append(rest[0])
+            else:
+                name, sql = rest
+                steps.append(f"CREATE OR REPLACE TEMP TABLE {q(name)} AS\n{sql}")
+                created.append(name)
+        cleanup = tuple(f"DROP TABLE IF EXISTS {q(name)}" for name in reversed(created))
+        return Query(final, params, tuple(columns), tuple(steps), cleanup)
+
+
+@dataclass(frozen=True)
+class _Rel:
+    """A relation of visible rows: a table's columns, `_row`, and one `_gI` column per tag."""
+
+    name: str
+    tags: tuple[int, ...] = ()
+
+
+@dataclass(frozen=True)
+class _Source:
+    """The I-th grouping column: a table and one of its columns."""
+
+    index: int
+    table: str
+    column: str
+
+
+class _Visibility:
+    """Visible rows of every table for one set of direct filters over one graph."""
+
+    def __init__(self, plan: _Plan, prefix: str, arcs: Sequence[_Arc], filters: Mapping[str, tuple[str, ...]],
+                 base: Mapping[str, str], sources: Sequence[_Source] = (),
+                 domain: Callable[[int], str] | None = None, reuse: Mapping[str, _Rel] | None = None) -> None:
+        self.plan, self.prefix, self.filters, self.base = plan, prefix, filters, base
+        self.sources, self.domain, self.reuse = tuple(sources), domain, reuse or {}
+        filtered = {t for t, preds in filters.items() if preds} | {s.table for s in self.sources}
+        self.constrained = _reach(arcs, filtered)
+        self.arcs = [a for a in arcs if a.src in self.constrained]
+        self.tags: dict[str, tuple[int, ...]] = {t: () for t in self.constrained}
+        for s in self.sources:
+            for t in _reach(arcs, [s.table]):
+                self.tags[t] += (s.index,)
+        self.rels: dict[str, _Rel] = {}
+        for component in _components(sorted(self.constrained), self.arcs):
+            self._component(component)
+
+    def rel(self, table: str) -> _Rel:
+        """Visible rows of `table` (its starting rows when it is not constrained)."""
+        return self.rels.get(table) or _Rel(self.base.get(table, table))
+
+    def _into(self, table: str) -> list[_Arc]:
+        return [a for a in self.arcs if a.dst == table]
+
+    def _component(self, members: list[str]) -> None:
+        if all(not self.tags[m] and m in self.reuse for m in members):
+            for m in members:
+                self.rels[m] = self.reuse[m]
+            return
+        inside = set(members)
+        cyclic = len(members) > 1 or any(a.src == members[0] for a in self._into(members[0]))
+        if not cyclic:
+            table = members[0]
+            self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}", self._select(table, self._into(table))),
+                                    self.tags[table])
+            return
+        for table in self._order(members):
+            ready = [a for a in self._into(table) if a.src in self.rels]
+            self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}", self._select(table, ready)),
+                                    self.tags[table])
+        deletes = []
+        for table in members:
+            name = q(self.rels[table].name)
+            for arc in self._into(table):
+                if arc.src in inside:
+                    deletes.append(f"DELETE FROM {name} WHERE NOT {self._exists(arc, name)}")
+        progress = "SELECT " + " + ".join(f"(SELECT count(*) FROM {q(self.rels[m].name)})" for m in members)
+        self.plan.loop(deletes, progress)
+
+    def _order(self, members: list[str]) -> list[str]:
+        """Members in an order where each finds most of its tags among those already built."""
+        order: list[str] = []
+        left = list(members)
+        while left:
+            def missing(table: str) -> int:
+                known = {s.index for s in self.sources if s.table == table}
+                for a in self._into(table):
+                    if a.src in self.rels or a.src in order:
+                        known.update(self.tags[a.src])
+                return len(set(self.tags[table]) - known)
+            best = min(left, key=lambda t: (missing(t), t))
+            order.append(best)
+            left.remove(best)
+        return order
+
+    def _exists(self, arc: _Arc, outer: str) -> str:
+        """`EXISTS (...)`: the row of `outer` matches a visible row of arc.src on the link (and its tags)."""
+        src = self.rel(arc.src)
+        conds = [f"_u.{q(s)} = {outer}.{q(d)}" for s, d in zip(arc.src_columns, arc.dst_columns)]
+        conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {outer}.{_tag(i)}" for i in src.tags]
+        return f"EXISTS (SELECT 1 FROM {q(src.name)} AS _u WHERE {_and(conds)})"
+
+    def _select(self, table: str, arcs: Sequence[_Arc]) -> str:
+        """Rows of `table` passing its filters, tagged, semi-joined with the visible rows of `arcs`' sources."""
+        preds = self.filters.get(table, ())
+        inner = f"SELECT * FROM {q(self.base.get(table, table))} AS {q(table)}"
+        if preds:
+            inner += " WHERE " + _and([f"({p})" for p in preds])
+        provided: dict[int, str] = {s.index: f"_x.{q(s.column)}" for s in self.sources if s.table == table}
+        joins: list[str] = []
+        semi: list[_Arc] = []
+        for n, arc in enumerate(arcs):
+            src = self.rel(arc.src)
+            if not set(src.tags) - set(provided):
+                semi.append(arc)
+                continue
+            alias = f"_j{n}"
+            keys = [f"{q(c)} AS {q(f'_k{m}')}" for m, c in enumerate(arc.src_columns)]
+            conds = [f"_x.{q(d)} = {alias}.{q(f'_k{m}')}" for m, d in enumerate(arc.dst_columns)]
+            conds += [f"{alias}.{_tag(i)} IS NOT DISTINCT FROM {provided[i]}" for i in src.tags if i in provided]
+            columns = ", ".join([_tag(i) for i in src.tags] + keys)
+            joins.append(f"JOIN (SELECT DISTINCT {columns} FROM {q(src.name)}) AS {alias} ON {_and(conds)}")
+            for i in src.tags:
+                provided.setdefault(i, f"{alias}.{_tag(i)}")
+        for i in self.tags[table]:
+            if i not in provided:  # only in a cycle: every value of the grouping column, a superset
+                joins.append(f"CROSS JOIN {q(self.domain(i))} AS _d{i}")
+                provided[i] = f"_d{i}.{_tag(i)}"
+        if not self.tags[table] and not semi:
+            return inner
+        tags = "".join(f", {provided[i]} AS {_tag(i)}" for i in self.tags[table])
+        sql = f"SELECT _x.*{tags} FROM ({inner}) AS _x" + "".join(f"\n  {j}" for j in joins)
+        if semi:
+            sql = f"SELECT * FROM ({sql}) AS _c WHERE " + _and([self._exists(a, "_c") for a in semi])
+        return sql
+
+
+# --- measures ---------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Term:
+    """A base measure in the setting it is evaluated in within one computation."""
+
+    measure: str
+    layers: tuple[Overrides, ...]
+
+
+def _layers_key(layers: Sequence[Overrides]) -> tuple:
+    return tuple((o.use, tuple(sorted(o.flow.items()))) for o in layers)
+
+
+def _measure_refs(model: Model, measure: Measure) -> list[str]:
+    from modeldiff import sql
+
+    return sorted(sql.measure_refs(measure.expr, model.measures))
+
+
+def _base_terms(model: Model, names: Sequence[str], base_layers: tuple[Overrides, ...]) -> list[_Term]:
+    """Every base measure the named measures need, each in its setting, in first-use order."""
+    out: dict[tuple, _Term] = {}
+
+    def visit(name: str, layers: tuple[Overrides, ...], path: tuple[str, ...]) -> None:
+        if name in path:
+            raise ModeldiffError(f"measure {name} refers to itself through {' -> '.join(path + (name,))}; "
+                                 "break the cycle (modeldiff check shows it)")
+        measure = model.measures.get(name)
+        if measure is None:
+            raise _unknown("measure", name, model, model.measures)
+        own = layers + ((measure.overrides,) if measure.overrides else ())
+        if measure.is_base:
+            out.setdefault((name, _layers_key(own)), _Term(name, own))
+            return
+        for ref in _measure_refs(model, measure):
+            visit(ref, own, path + (name,))
+
+    for name in names:
+        visit(name, tuple(base_layers), ())
+    return list(out.values())
+
+
+# --- the compiler -----------------------------------------------------------------------
+
+
+class _Compiler:
+    def __init__(self, model: Model, user: str | None) -> None:
+        self.model = model
+        self.user = user
+        self.plan = _Plan()
+        self.uses_user = False
+
+    # -- parameters and filters
+
+    def bind(self, text: str, where: str) -> str:
+        """SQL text with `:user` written as DuckDB's `$user`; other parameters are refused."""
+        from modeldiff import sql
+
+        try:
+            parameters = sql.facts(text).parameters
+        except sql.SqlError as error:
+            raise ModeldiffError(f"{where}: {error}") from None
+        if not parameters:
+            return text
+        unknown = sorted(parameters - {USER})
+        if unknown:
+            raise ModeldiffError(f"{where} uses the parameter :{unknown[0]}; only :user can be given (--user)")
+        if self.user is None:
+            raise ModeldiffError(f"{where} uses :user; give the viewer's e-mail with --user")
+        self.uses_user = True
+        return sql._protect_parameters(text).replace(sql._PARAMETER_PREFIX, "$")
+
+    def bound_filters(self, filters: Mapping[str, Sequence[tuple[str, str]]]) -> dict[str, tuple[str, ...]]:
+        return {t: tuple(self.bind(text, where) for where, text in preds) for t, preds in filters.items()}
+
+    @property
+    def params(self) -> tuple:
+        return ((USER, self.user),) if self.uses_user else ()
+
+    # -- role cut
+
+    def role_base(self, role_name: str | None) -> dict[str, str]:
+        """Table -> relation holding the rows the role may see (tables it does not cut are left out)."""
+        if role_name is None:
+            return {}
+        role = self.model.roles.get(role_name)
+        if role is None:
+            raise _unknown("role", role_name, self.model, self.model.roles)
+        for table in role.filters:
+            if table not in self.model.tables:
+                raise ModeldiffError(f"role {role.name} filters table {table}, which model {self.model.name} "
+                                     "does not have; fix the role")
+        filters = self.bound_filters({t: [(f"role {role.name}'s filter on {t}", p)] for t, p in role.filters.items()})
+        cut = _Visibility(self.plan, "_r", _security_arcs(self.model), filters, {})
+        return {t: cut.rel(t).name for t in cut.constrained}
+
+    # -- queries
+
+    def visible_rows(self, table: str, filters: Mapping[str, Sequence[tuple[str, str]]], role: str | None) -> Query:
+        from modeldiff import graph
+
+        base = self.role_base(role)
+        seen = _Visibility(self.plan, "_t", _flow_arcs(self.model, graph.default_setting(self.model)),
+                           self.bound_filters(filters), base)
+        final = f"SELECT count(*) AS {q(ROWS_COLUMN)} FROM {q(seen.rel(table).name)}"
+        return self.plan.query(final, (ROWS_COLUMN,), self.params)
+
+    def grouped(self, measure_names: Sequence[str], by: Sequence[str], filters, role: str | None,
+                report_layers: tuple[Overrides, ...], label: str) -> Query:
+        from modeldiff import graph
+
+        model = self.model
+        sources = [_Source(i, *_by_column(model, text, label)) for i, text in enumerate(by)]
+        terms = _base_terms(model, measure_names, report_layers)
+        bound = self.bound_filters(filters)
+        base = self.role_base(role)
+        settings: dict = {}
+        for term in terms:
+            settings.setdefault(graph.resolve_setting(model, *term.layers), []).append(term)
+        values: dict[int, _Value] = {}
+        for s, (setting, members) in enumerate(settings.items()):
+            group = _SettingGroups(self.plan, f"_s{s}", _flow_arcs(model, setting), bound, base, sources)
+            for term in members:
+                values[terms.index(term)] = group.measure(model.measures[term.measure], self, terms.index(term))
+        return self._final(measure_names, by, sources, terms, values, report_layers)
+
+    def _final(self, measure_names, by, sources, terms, values, report_layers) -> Query:
+        columns = list(by) + list(measure_names)
+        tag_cols = [_tag(s.index) for s in sources]
+        outputs = [f"{t} AS {q(name)}" for t, name in zip(tag_cols, by)]
+        outputs += [f"{self._measure_sql(name, report_layers, terms)} AS {q(name)}" for name in measure_names]
+        if not sources:
+            row = ", ".join(f"(SELECT {q('_value')} FROM {q(values[k].value)}) AS {q(f'_m{k}')}"
+                            for k in range(len(terms)))
+            final = f"SELECT {', '.join(outputs)}\nFROM (SELECT {row}) AS _v"
+            return self.plan.query(final, columns, self.params)
+        combos = self.plan.relation("_combos", "\nUNION\n".join(values[k].combos for k in range(len(terms))))
+        picks, joins = [], []
+        for k in range(len(terms)):
+            v = values[k]
+            conds = [f"_m{k}.{_tag(i)} IS NOT DISTINCT FROM _c.{_tag(i)}" for i in v.tags] or ["true"]
+            joins.append(f"LEFT JOIN {q(v.value)} AS _m{k} ON {_and(conds)}")
+            picks.append(f"CASE WHEN _m{k}._seen THEN _m{k}._value ELSE (SELECT _value FROM {q(v.empty)}) END "
+                         f"AS {q(f'_m{k}')}")
+        groups = ", ".join(f"_c.{t}" for t in tag_cols)
+        grouped_rows = (f"SELECT {groups}, {', '.join(picks)}, false AS {q(NO_MATCH_COLUMN)}\nFROM {q(combos)} AS _c"
+                        + "".join(f"\n  {j}" for j in joins))
+        nulls = ", ".join(f"NULL AS {t}" for t in tag_cols)
+        leftovers = ", ".join(f"(SELECT _value FROM {q(values[k].no_match)}) AS {q(f'_m{k}')}" for k in range(len(terms)))
+        any_left = " OR ".join(f"(SELECT _rows FROM {q(values[k].no_match)}) > 0" for k in range(len(terms)))
+        no_match_row = f"SELECT {nulls}, {leftovers}, true AS {q(NO_MATCH_COLUMN)} WHERE {any_left}"
+        order = ", ".join([q(NO_MATCH_COLUMN)] + [f"{n} ASC NULLS LAST" for n in range(1, len(sources) + 1)])
+        final = (f"SELECT {', '.join(outputs)}, {q(NO_MATCH_COLUMN)}\nFROM (\n{grouped_rows}\nUNION ALL\n"
+                 f"{no_match_row}\n) AS _v\nORDER BY {order}")
+        return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
+
+    def _measure_sql(self, name: str, layers: tuple[Overrides, ...], terms: list[_Term]) -> str:
+        """A measure's value from the `_mK` columns: a base one is its column, a derived one its expression."""
+        measure = self.model.measures[name]
+        own = layers + ((measure.overrides,) if measure.overrides else ())
+        if measure.is_base:
+            key = (name, _layers_key(own))
+            k = next(i for i, t in enumerate(terms) if (t.measure, _layers_key(t.layers)) == key)
+            return q(f"_m{k}")
+        from sqlglot import exp
+
+        from modeldiff import sql
+
+        refs = {r.lower(): r for r in _measure_refs(self.model, measure)}
+        tree = sql.parse(measure.expr).copy()
+        for column in list(tree.find_all(exp.Column)):
+            if column.args.get("table") or not isinstance(column.this, exp.Identifier):
+                continue
+            written = column.this.this
+            ref = written if written in self.model.measures else refs.get(written.lower())
+            if ref is None:
+                continue
+            replacement = sql.parse(self._measure_sql(ref, own, terms)).copy()
+            replacement = exp.Paren(this=replacement)
+            if column is tree:
+                tree = replacement
+            else:
+                column.replace(replacement)
+        return tree.sql(dialect="duckdb")
+
+
+@dataclass(frozen=True)
+class _Value:
+    """Relations of one base measure in one computation."""
+
+    tags: tuple[int, ...]  # grouping columns that reach its home table
+    value: str  # tags..., _value, _seen: one row per group with visible home rows passing its where
+    empty: str  # _value: the aggregate over no rows
+    combos: str  # SELECT of every group (all tag columns) in which it sees a home row
+    no_match: str  # _rows, _value: home rows visible in the total but in no group
+
+
+class _SettingGroups:
+    """The total and the per-group visible rows of one setting, and the measures evaluated in it."""
+
+    def __init__(self, plan: _Plan, prefix: str, arcs: list[_Arc], filters: Mapping[str, tuple[str, ...]],
+                 base: Mapping[str, str], sources: Sequence[_Source]) -> None:
+        self.plan, self.prefix, self.base, self.sources = plan, prefix, base, tuple(sources)
+        self.total = _Visibility(plan, f"{prefix}t", arcs, filters, base)
+        self._domains: dict[int, str] = {}
+        if sources:
+            reuse = {t: self.total.rel(t) for t in self.total.constrained}
+            self.grouped = _Visibility(plan, f"{prefix}v", arcs, filters, base, sources, self.domain, reuse)
+        else:
+            self.grouped = self.total
+
+    def domain(self, i: int) -> str:
+        """`_gI`: the distinct values of the I-th grouping column among its table's rows visible in the total."""
+        if i not in self._domains:
+            s = self.sources[i]
+            sql = f"SELECT DISTINCT {q(s.column)} AS {_tag(i)} FROM {q(self.total.rel(s.table).name)}"
+            self._domains[i] = self.plan.relation(f"{self.prefix}d{i}", sql)
+        return self._domains[i]
+
+    def measure(self, measure: Measure, compiler: _Compiler, k: int) -> _Value:
+        home = measure.table
+        if home not in compiler.model.tables:
+            raise ModeldiffError(f"measure {measure.name} is on table {home}, which model {compiler.model.name} "
+                                 "does not have; fix the measure")
+        where = f"measure {measure.name}'s where"
+        cond = f" WHERE ({compiler.bind(measure.where, where)})" if measure.where else ""
+        expr = compiler.bind(measure.expr, f"measure {measure.name}")
+        seen = self.grouped.rel(home)
+        tags = tuple(i for i in seen.tags)
+        tag_list = ", ".join(_tag(i) for i in tags)
+        rows = f"(SELECT * FROM {q(seen.name)} AS {q(home)}{cond}) AS {q(home)}"
+        if tags:
+            value_sql = f"SELECT {tag_list}, {expr} AS _value, true AS _seen FROM {rows} GROUP BY {tag_list}"
+        else:
+            value_sql = f"SELECT {expr} AS _value, true AS _seen FROM {rows}"
+        value = self.plan.relation(f"_m{k}", value_sql)
+        empty = self.plan.relation(f"_e{k}", f"SELECT {expr} AS _value FROM (SELECT * FROM {q(home)} "
+                                             f"WHERE false) AS {q(home)}")
+        if not self.sources:
+            return _Value(tags, value, empty, "", "")
+        unreached = [s.index for s in self.sources if s.index not in tags]
+        seen_groups = f"SELECT DISTINCT {tag_list} FROM {q(seen.name)}" if tags else \
+            f"SELECT 1 AS _one WHERE EXISTS (SELECT 1 FROM {q(seen.name)})"
+        present = self.plan.relation(f"_p{k}", seen_groups)
+        picks = [f"_p.{_tag(i)}" if i in tags else f"_d{i}.{_tag(i)}" for i in range(len(self.sources))]
+        combos = f"SELECT {', '.join(picks)} FROM {q(present)} AS _p" + "".join(
+            f" CROSS JOIN {q(self.domain(i))} AS _d{i}" for i in unreached)
+        total = self.total.rel(home)
+        lost = []
+        if tags:
+            lost.append(f"NOT EXISTS (SELECT 1 FROM {q(seen.name)} AS _s WHERE _s._row = {q(home)}._row)")
+        lost += [f"NOT EXISTS (SELECT 1 FROM {q(self.domain(i))})" for i in unreached]
+        left = f"SELECT * FROM {q(total.name)} AS {q(home)} WHERE " + (" OR ".join(lost) if lost else "false")
+        leftover = self.plan.relation(f"_x{k}", left)
+        no_match = self.plan.relation(
+            f"_n{k}", f"SELECT (SELECT count(*) FROM {q(leftover)}) AS _rows, "
+                      f"(SELECT {expr} FROM (SELECT * FROM {q(leftover)} AS {q(home)}{cond}) AS {q(home)}) AS _value")
+        return _Value(tags, value, empty, combos, no_match)
+
+
+# --- reading a report's parts -----------------------------------------------------------
+
+
+def _by_column(model: Model, text: str, label: str) -> tuple[str, str]:
+    table, dot, column = text.partition(".")
+    if not dot or table not in model.tables or column not in model.tables[table].columns:
+        raise ModeldiffError(f"{label} groups by {text}, which is not a column of the model (write table.column)")
+    return table, column
+
+
+def _filters_of(model: Model, groups: Iterable[tuple[str, Mapping[str, str]]]) -> dict[str, list[tuple[str, str]]]:
+    """{table: [(where it was written, predicate)]}, checking every table exists."""
+    out: dict[str, list[tuple[str, str]]] = {}
+    for label, filters in groups:
+        for table, predicate in sorted(filters.items()):
+            if table not in model.tables:
+                raise ModeldiffError(f"{label} filters table {table}, which model {model.name} does not have; "
+                                     "fix the name")
+            out.setdefault(table, []).append((f"{label} on {table}", predicate))
+    return out
+
+
+def _report_filters(model: Model, report: Report) -> dict[str, list[tuple[str, str]]]:
+    """The report's `where` and the `where` of each variant option in force."""
+    groups = []
+    label = "report" if report.name != "_query" else "the query"
+    for variant_name in sorted(model.variants):
+        variant = model.variants[variant_name]
+        option_name = report.variant.get(variant_name, variant.default)
+        option = variant.options.get(option_name)
+        if option is not None and option.where:
+            groups.append((f"option {option_name} of variant {variant_name}", option.where))
+    groups.append((f"{label} {report.name}'s where" if report.name != "_query" else "the query's where", report.where))
+    for variant_name in sorted(report.variant):
+        if variant_name not in model.variants:
+            raise _unknown("variant", variant_name, model, model.variants)
+    return _filters_of(model, groups)
+
+
+def _unknown(what: str, name: str, model: Model, known: Mapping) -> ModeldiffError:
+    names = ", ".join(sorted(known)) or "none"
+    return ModeldiffError(f"model {model.name} has no {what} {name}; its {what}s: {names}")
