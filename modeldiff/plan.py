@@ -415,13 +415,11 @@ class _Planner:
             guarded = self.edits_of(f"links.{link.name}")
             if kind == "link.key_switched":
                 self.carry(change, link, guarded)
-            if link.cardinality in ("many-to-one", "one-to-one") and (
-                    kind != "link.key_switched" or change.details.get("side") == "to"):
-                self.unique(change, link.to_table, link.to_columns, guarded,
-                            f"link {link.name} becomes {link.cardinality}")
-                if link.cardinality == "one-to-one":
-                    self.unique(change, link.from_table, link.from_columns, guarded,
-                                f"link {link.name} becomes one-to-one")
+            to_side, from_side = unique_sides(change, link)
+            if to_side:
+                self.unique(change, link.to_table, link.to_columns, guarded, f"link {link.name} becomes {link.cardinality}")
+            if from_side:
+                self.unique(change, link.from_table, link.from_columns, guarded, f"link {link.name} becomes one-to-one")
         elif kind == "table.key_changed" and change.after:
             self.unique(change, _name(change.subject), tuple(change.after), self.edits_of(change.subject),
                         f"{_name(change.subject)} gets a new key")
@@ -584,6 +582,23 @@ class _Planner:
                     any(c.kind == "security.exposed" for c in r.changes))
 
 
+def unique_sides(change, link) -> tuple[bool, bool]:
+    """Whether a link change newly needs its `to` columns and its `from` columns to be unique.
+
+    A many-to-one or one-to-one link needs a unique target; one-to-one needs a
+    unique source too. Only what the change newly requires is checked: a target
+    that a many-to-one link already pointed at was already required unique.
+    """
+    strict = link.cardinality in ("many-to-one", "one-to-one")
+    one_to_one = link.cardinality == "one-to-one"
+    if change.kind == "link.added":
+        return strict, one_to_one
+    if change.kind == "link.cardinality_changed":
+        return strict and change.before == "many-to-many", one_to_one
+    side = change.details.get("side")  # link.key_switched
+    return strict and side == "to", one_to_one and side == "from"
+
+
 def _path_links(change) -> set[str]:
     """Link names on the paths of a security change's before/after values."""
     out: set[str] = set()
@@ -731,18 +746,19 @@ def _md(text: str) -> str:
 
 
 def as_markdown(plan: Plan, changes: dict, stream: TextIO) -> None:
-    lines = [f"## Migration plan: `{plan.model}`", "", f"`{_side(plan.old)}` → `{_side(plan.new)}`", ""]
-    lines += [f"> **{line.split(': ', 1)[0]}:** {line.split(': ', 1)[1]}" for line in _caution_lines(plan)]
+    lines = [f"## Migration plan: `{plan.model}`", "", f"`{_side(plan.old)}` → `{_side(plan.new)}`"]
+    lines += [f"\n> **SECURITY:** {_caution()}" for _ in _caution_lines(plan)]
     if plan.blockers:
         lines += ["", "**Fix before any step** (errors in the new revision):", ""] + [f"- {_md(b)}" for b in plan.blockers]
     if not plan.steps:
-        lines.append("No changes: nothing to migrate.")
+        lines += ["", "No changes: nothing to migrate."]
     for s in plan.steps:
         lines += ["", f"### {s.id}. {_md(s.title)}", "",
                   f"`{s.kind}` `{s.subject}`; covers {', '.join(s.changes) or 'nothing'}"
-                  + (f"; after {', '.join(s.after)}" if s.after else ""), ""]
-        lines += [f"- {cid} `{changes[cid].kind}`: {_md(changes[cid].message)}" for cid in s.changes
-                  if s.kind != "tell-owners" and cid in changes]
+                  + (f"; after {', '.join(s.after)}" if s.after else "")]
+        covered = [f"- {cid} `{changes[cid].kind}`: {_md(changes[cid].message)}" for cid in s.changes
+                   if s.kind != "tell-owners" and cid in changes]
+        lines += [""] + covered if covered else []
         if s.preconditions:
             lines += ["", "**Preconditions**", ""] + [f"- {_md(p)}" for p in s.preconditions]
         lines += ["", "**Check**", ""]

@@ -17,7 +17,7 @@ import pytest
 from modeldiff import cli, impact, plan
 from modeldiff.compare import ModelDiff, Side
 from modeldiff.model import History
-from modelkit import bikeshare, drop, edit, link, measure, report, table
+from modelkit import bikeshare, drop, edit, link, measure, table
 
 ROOT = Path(__file__).parent.parent
 EXAMPLE_OLD = ROOT / "examples" / "bikeshare.model.yaml"
@@ -89,9 +89,16 @@ def test_no_uniqueness_step_when_the_cardinality_does_not_change():
 
 def test_a_link_becoming_one_to_one_needs_both_sides_unique():
     base = bikeshare()
-    p = plan_of(base, with_link(base, "trips_bike", cardinality="one-to-one"))
+    p = plan_of(with_link(base, "trips_bike", cardinality="many-to-many"),
+                with_link(base, "trips_bike", cardinality="one-to-one"))
     assert {k for k in kinds(p) if k[0] == "check-data"} == {("check-data", "tables.bikes.unique.bike_key"),
                                                              ("check-data", "tables.trips.unique.bike_key")}
+
+
+def test_many_to_one_becoming_one_to_one_checks_only_the_source_its_target_was_unique_already():
+    base = bikeshare()
+    p = plan_of(base, with_link(base, "trips_bike", cardinality="one-to-one"))
+    assert [k for k in kinds(p) if k[0] == "check-data"] == [("check-data", "tables.trips.unique.bike_key")]
 
 
 def test_no_uniqueness_step_when_a_link_becomes_many_to_many():
