@@ -74,7 +74,7 @@ def _where(name: str, data: Any, key: Any, index: int | None = None) -> str:
         line, col = at[key][2], at[key][3]
         value = data[key]
         item_at = getattr(value, "at", None)
-        if index is not None and item_at is not None and index in item_at:
+        if index is not None and isinstance(item_at, list) and index < len(item_at):
             line, col = item_at[index]
         return f"{name}:{line}:{col}"
     return name
@@ -85,7 +85,7 @@ def _key_where(name: str, data: Any, key: Any) -> str:
     return f"{name}:{at[key][0]}:{at[key][1]}" if key in at else name
 
 
-def _string_list(name: str, data: Any, key: str, what: str) -> tuple[str, ...]:
+def _string_list(name: str, data: Any, key: str, what: str, one: str) -> tuple[str, ...]:
     value = data[key]
     if value is None:
         return ()
@@ -95,14 +95,14 @@ def _string_list(name: str, data: Any, key: str, what: str) -> tuple[str, ...]:
     out = []
     for index, item in enumerate(value):
         if not isinstance(item, str) or not item.strip():
-            raise PolicyError(f"{_where(name, data, key, index)}: item {index + 1} of '{key}' must be "
-                              f"{what[:-1] if what.endswith('s') else what}, not {item!r}")
+            raise PolicyError(f"{_where(name, data, key, index)}: item {index + 1} of '{key}' must be {one}, "
+                              f"not {item!r}")
         out.append(item.strip())
     return tuple(out)
 
 
 def _block(name: str, data: Any) -> tuple[str, ...]:
-    values = _string_list(name, data, "block", "severities")
+    values = _string_list(name, data, "block", "severities", "a severity")
     for index, value in enumerate(values):
         if value not in SEVERITIES:
             raise PolicyError(f"{_where(name, data, 'block', index)}: unknown severity '{value}' under block; "
@@ -134,7 +134,12 @@ def parse_policy(content: bytes | str, name: str = POLICY_FILE) -> Policy:
     """A Policy from the file's text; PolicyError (with file:line:col) for anything it does not know."""
     from modeldiff import load
 
-    data = load.read_yaml(name, content)  # encoding, syntax and duplicate keys, with positions
+    try:
+        data = load.read_yaml(name, content)  # encoding, syntax and duplicate keys, with positions
+    except PolicyError:
+        raise
+    except ModeldiffError as exc:
+        raise PolicyError(str(exc)) from None
     if data is None or type(data) is object:  # an empty file (or only comments): the defaults
         return Policy(source=name)
     if not isinstance(data, dict):
@@ -147,7 +152,7 @@ def parse_policy(content: bytes | str, name: str = POLICY_FILE) -> Policy:
                               "push that changes a model)")
     return Policy(
         block=_block(name, data) if "block" in data else DEFAULT.block,
-        accept=_string_list(name, data, "accept", "subjects or patterns") if "accept" in data else (),
+        accept=_string_list(name, data, "accept", "subjects or patterns", "a subject or pattern") if "accept" in data else (),
         owners=_owners(name, data) if "owners" in data else (),
         source=name,
     )
