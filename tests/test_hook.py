@@ -404,6 +404,21 @@ def test_from_env_without_refs_at_the_default_branch_has_nothing_to_say(world):
     assert (code, out, err) == (0, "", "")
 
 
+def test_colour_only_when_forced(world, monkeypatch):
+    base = sha(world.work, "HEAD")
+    head = commit(world.work, "count by id", {MODEL: NUMBERS})
+    assert "\x1b[" not in in_process(world.work, line(head, base))[1]
+    monkeypatch.setenv("FORCE_COLOR", "1")
+    assert "\x1b[" in in_process(world.work, line(head, base))[1]
+
+
+def test_a_pushed_model_that_cannot_be_read_blocks_with_where(world):
+    base = sha(world.work, "HEAD")
+    head = commit(world.work, "oops", {MODEL: "model: [not, valid\n"})
+    code, _, err = in_process(world.work, line(head, base))
+    assert code == hook.EXIT_UNDECIDED and f"push blocked: {head}:{MODEL}:2:1: malformed YAML" in err
+
+
 # --- input git would never write -------------------------------------------------------------------------
 
 
