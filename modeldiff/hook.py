@@ -203,9 +203,22 @@ def install(repo: str, stdout: TextIO, python: str | None = None) -> int:
             os.rename(kept, path)
         raise ModeldiffError(f"cannot install the hook in {state.folder}: {exc.strerror or exc}") from None
     stdout.write(f"installed {path}\n")
+    if _outside_repository(repo, state.folder):
+        stdout.write(f"note: core.hooksPath points outside this repository: every repository using "
+                     f"{state.folder} now runs this hook\n")
     if state.exists:
         stdout.write(f"kept the hook that was there as {kept}; it runs first, and its failure stops the push\n")
     return 0
+
+
+def _outside_repository(repo: str, folder: str) -> bool:
+    from modeldiff import git
+
+    root = os.path.realpath(git.repo_root(repo))
+    real = os.path.realpath(folder)
+    parent = os.path.dirname(real)
+    in_git_dir = os.path.isfile(os.path.join(parent, "HEAD")) and os.path.isdir(os.path.join(parent, "objects"))
+    return os.path.commonpath([root, real]) != root and not in_git_dir
 
 
 def _write_script(path: str, text: str) -> None:
@@ -272,6 +285,10 @@ def read_all(stdin) -> str:
 def run_hook(remote: str | None, *, from_env: bool, stdin, stdout: TextIO, stderr: TextIO,
              env: Mapping[str, str], repo: str = ".") -> int:
     """The hook: 0 lets the push go, 1 blocks it for unacknowledged changes, 2 when it cannot decide."""
+    if not from_env and stdin is not None and hasattr(stdin, "isatty") and stdin.isatty():
+        stderr.write("modeldiff: 'hook run' reads the lines git writes to a pre-push hook on stdin, and git runs "
+                     "it; to look at a range by hand run 'modeldiff diff --base REV --head REV'\n")
+        return EXIT_UNDECIDED
     text = "" if from_env else read_all(stdin)  # first, whatever happens next
     try:
         if from_env:

@@ -505,6 +505,30 @@ def test_core_hooks_path_is_respected_relative_to_the_work_tree(world):
     assert world.push("origin", "main").code != 0  # git ran the hook from core.hooksPath
 
 
+def test_a_hooks_path_outside_the_repository_is_pointed_out(world, tmp_path):
+    shared = tmp_path / "shared-hooks"
+    git(world.work, "config", "core.hooksPath", str(shared))
+    out = io.StringIO()
+    hook.install(str(world.work), out, python=sys.executable)
+    assert (shared / "pre-push").is_file() and "every repository using" in out.getvalue()
+
+
+def test_the_usual_hooks_folder_is_not_pointed_out(world):
+    out = io.StringIO()
+    hook.install(str(world.work), out, python=sys.executable)
+    assert out.getvalue() == f"installed {world.work / '.git' / 'hooks' / 'pre-push'}\n"
+
+
+class Terminal(io.StringIO):
+    def isatty(self):
+        return True
+
+
+def test_run_by_hand_at_a_terminal_explains_instead_of_waiting(world):
+    code, _, err = in_process(world.work, "", stdin=Terminal())
+    assert code == hook.EXIT_UNDECIDED and "git runs it" in err
+
+
 def test_without_the_hook_in_core_hooks_path_the_same_push_goes_through(world):
     git(world.work, "config", "core.hooksPath", ".githooks")
     hook.install(str(world.work), io.StringIO(), python=sys.executable)
