@@ -123,6 +123,16 @@ def test_new_revision_errors_are_error_annotations(tmp_path):
     assert (level, props["line"], props["title"]) == ("error", "7", "modeldiff broken-reference (bikeshare)")
 
 
+def test_new_revision_errors_come_before_the_warnings():
+    from modeldiff.model import Finding
+
+    diff = synthetic(0, 2, 1)[0]
+    finding = Finding("broken-reference", "error", "measures.x", "measure x names table nope")
+    result = DiffResult(diff.result.old, diff.result.new, diff.result.changes, (), (), (), (finding,))
+    levels = [level for level, _, _ in commands(render([ModelDiff(diff.old, diff.new, result)]))]
+    assert levels == ["error", "warning", "warning", "notice"]
+
+
 def test_an_absolute_position_is_made_relative_to_the_workspace(tmp_path):
     assert github.workspace_path(str(tmp_path / "models" / "m.model.yaml"), {"GITHUB_WORKSPACE": str(tmp_path)}) \
         == "models/m.model.yaml"
@@ -203,3 +213,44 @@ def test_check_format_github_of_a_clean_model_prints_nothing(monkeypatch):
     out = io.StringIO()
     assert cli.main(["check", str(EXAMPLE), "--format", "github"], stdout=out, stderr=io.StringIO()) == 0
     assert out.getvalue() == ""
+
+
+# --- the sample workflow ------------------------------------------------------------------------------------
+
+WORKFLOW = ROOT / "docs" / "examples" / "modeldiff.yml"
+
+
+def _steps() -> list[dict]:
+    import yaml
+
+    return yaml.safe_load(WORKFLOW.read_text(encoding="utf-8"))["jobs"]["modeldiff"]["steps"]
+
+
+def test_sample_workflow_pastes_no_expression_into_a_script():
+    runs = [s["run"] for s in _steps() if "run" in s]
+    assert any("--format github" in r for r in runs) and any("--format html" in r for r in runs)
+    assert not any("${{" in r for r in runs)
+
+
+@pytest.mark.parametrize("modeldiff_exit, check_exit, report_fails", [(0, 0, False), (1, 0, False), (3, 3, False),
+                                                                       (2, 2, True)])
+def test_sample_workflow_scripts_map_exit_codes(tmp_path, modeldiff_exit, check_exit, report_fails):
+    """The steps' scripts under GitHub's default shell (bash -eo pipefail), with a stand-in modeldiff."""
+    import shutil
+    import subprocess
+
+    bash = shutil.which("bash")
+    if bash is None:
+        pytest.skip("bash is not installed")
+    fake = tmp_path / "bin" / "modeldiff"
+    fake.parent.mkdir()
+    fake.write_text(f"#!/bin/sh\necho report\nexit {modeldiff_exit}\n")
+    fake.chmod(0o755)
+    env = {"PATH": f"{fake.parent}{os.pathsep}{os.environ.get('PATH', '')}", "BASE_REF": "main"}
+    check, report = (next(s["run"] for s in _steps() if "run" in s and f"--format {fmt}" in s["run"])
+                     for fmt in ("github", "html"))
+    ran = subprocess.run([bash, "--noprofile", "--norc", "-eo", "pipefail", "-c", check], env=env, cwd=tmp_path)
+    assert ran.returncode == check_exit
+    ran = subprocess.run([bash, "--noprofile", "--norc", "-eo", "pipefail", "-c", report], env=env, cwd=tmp_path)
+    assert (ran.returncode != 0) == report_fails
+    assert (tmp_path / "modeldiff-report.html").read_text() == "report\n"

@@ -262,3 +262,31 @@ def test_graph_bad_setting_is_one_line(setting, words):
     assert code == 2 and out == "" and err.count("\n") == 1
     for word in words:
         assert word in err
+
+
+def test_svg_layout_survives_cycles_and_self_links():
+    from modeldiff.render.svg import layout, layers, svg_of
+
+    m = model(table("a", columns={"k": "integer", "b": "integer", "up": "integer"}),
+              table("b", columns={"k": "integer", "a": "integer"}),
+              link("a_b", "a.b", "b.k"), link("b_a", "b.a", "a.k"), link("a_up", "a.up", "a.k"))
+    pic = picture.picture(m)
+    assert set(layout(pic).boxes) == {"a", "b"}
+    assert sorted(layers(["a", "b"], [("a", "b"), ("b", "a")]).values()) == [0, 1]  # one edge of the cycle dropped
+    assert svg_of(pic).count('<g class="edge') == 3
+
+
+def test_svg_arrow_skipping_a_column_passes_through_a_slot():
+    from modeldiff.render.svg import layout
+
+    # region <- districts <- stations and region <- stations: the direct link skips the middle column
+    m = model(table("region", columns={"k": "integer"}), table("districts", columns={"k": "integer", "r": "integer"}),
+              table("stations", "fact", columns={"k": "integer", "d": "integer", "r": "integer"}),
+              link("d_r", "districts.r", "region.k"), link("s_d", "stations.d", "districts.k"),
+              link("s_r", "stations.r", "region.k"))
+    pic = picture.picture(m)
+    lay = layout(pic)
+    skip = next(a for a in pic.arrows if a.link == "s_r")
+    (bend,) = lay.bends[skip.index]
+    assert bend.x == lay.boxes["districts"].x and bend.y != lay.boxes["districts"].y
+    assert all(lay.bends[a.index] == () for a in pic.arrows if a.link != "s_r")

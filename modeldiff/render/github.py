@@ -113,7 +113,7 @@ def diff_annotations(diffs: Sequence, env: Mapping[str, str] | None = None) -> l
         new_file = md.new.path if md.new.rev is None else None  # a file at another revision is not in the checkout
         for f in r.new_errors:
             a = _located("error", f"modeldiff {f.rule} ({name})", f"{f.subject}: {f.message}", f.pos, new_file, env)
-            rows.append(((0, 0), a))
+            rows.append(((-rank("breaking"), 1), a))
         for c in r.changes:
             level = _LEVEL_OF[c.severity]
             a = _located(level, f"modeldiff {c.severity} {c.kind} ({name})", f"{c.id} {c.subject}: {c.message}",

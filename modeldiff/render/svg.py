@@ -202,25 +202,58 @@ def _label_box(x: float, y: float, text: str) -> tuple[float, float, float, floa
     return x - w / 2, y - LABEL_H, x + w / 2, y + 2
 
 
-def _overlap(box, others) -> float:
-    """The area `box` shares with `others`."""
-    x0, y0, x1, y1 = box
-    return sum(max(0.0, min(x1, b[2]) - max(x0, b[0])) * max(0.0, min(y1, b[3]) - max(y0, b[1])) for b in others)
+class _Taken:
+    """Rectangles already placed, bucketed in a grid so a query looks only at its neighbours."""
+
+    CELL = 64.0
+
+    def __init__(self) -> None:
+        self.boxes: list[tuple[float, float, float, float]] = []
+        self.cells: dict[tuple[int, int], list[int]] = {}
+
+    def _cells(self, box):
+        x0, y0, x1, y1 = box
+        for cx in range(int(x0 // self.CELL), int(x1 // self.CELL) + 1):
+            for cy in range(int(y0 // self.CELL), int(y1 // self.CELL) + 1):
+                yield cx, cy
+
+    def add(self, box) -> None:
+        self.boxes.append(box)
+        for cell in self._cells(box):
+            self.cells.setdefault(cell, []).append(len(self.boxes) - 1)
+
+    def overlap(self, box) -> float:
+        """The area `box` shares with the rectangles placed."""
+        x0, y0, x1, y1 = box
+        near = {i for cell in self._cells(box) for i in self.cells.get(cell, ())}
+        total = 0.0
+        for i in near:
+            b = self.boxes[i]
+            total += max(0.0, min(x1, b[2]) - max(x0, b[0])) * max(0.0, min(y1, b[3]) - max(y0, b[1]))
+        return total
 
 
 def place_labels(items: list[tuple[str, list]], boxes: Iterable[Box]) -> list[tuple[float, float]]:
     """Where each (text, segments) label goes: the first spot along its curve that overlaps no table and no
     label placed before it, else the one that overlaps them least. Labels are placed in the order given."""
-    taken = [(b.x, b.y, b.x + b.w, b.y + b.h) for b in boxes]
+    taken = _Taken()
+    for b in boxes:
+        taken.add((b.x, b.y, b.x + b.w, b.y + b.h))
     spots = []
     for text, segments in items:
         segment = segments[1] if len(segments) > 1 else segments[0]  # a crossed column's straight run, if any
         candidates = [_at(segment, t) for t in LABEL_TRIES]
         if len(segments) > 1:
             candidates += [_at(segments[0], t) for t in LABEL_TRIES[1:]]
-        spot = min(candidates, key=lambda c: _overlap(_label_box(c[0], c[1] - 4, text), taken))  # first of the least
-        taken.append(_label_box(spot[0], spot[1] - 4, text))
-        spots.append(spot)
+        best, best_area = candidates[0], None
+        for c in candidates:
+            area = taken.overlap(_label_box(c[0], c[1] - 4, text))
+            if best_area is None or area < best_area:
+                best, best_area = c, area
+            if area == 0:
+                break
+        taken.add(_label_box(best[0], best[1] - 4, text))
+        spots.append(best)
     return spots
 
 
