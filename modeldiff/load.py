@@ -23,9 +23,11 @@ an entry of a table-keyed map ("roles.r.filters.trips", "reports.p.where.t",
 
 from __future__ import annotations
 
+import gc
 import math
 import os
 import re
+from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any, Iterable, Iterator, Mapping, Sequence
 
@@ -91,9 +93,33 @@ def load_files(files: Sequence[tuple[str, bytes | str]]) -> LoadResult:
     """Load (display name, content) pairs: one file, or several merged as a folder."""
     if not files:
         raise ModeldiffError("no model files were given; give a NAME.model.yaml file or a NAME.model/ folder")
+    with paused_gc():
+        return _fast_load(files) or _exact_load(files)
+
+
+def _exact_load(files: Sequence[tuple[str, bytes | str]]) -> LoadResult:
+    """The reference reader: parser events with positions, every problem reported where it was written."""
     docs = [_read_document(name, content) for name, content in files]
     name, fmt = _model_identity(docs)
     return _RecordBuilder().build(docs, name, fmt)
+
+
+@contextmanager
+def paused_gc() -> Iterator[None]:
+    """Hold the cyclic garbage collector while a model's many small records are made.
+
+    Building a model allocates hundreds of thousands of objects and no
+    reference cycles; the collector would walk them again and again (a third
+    of the loading time on a large model). Nested use is harmless.
+    """
+    if not gc.isenabled():
+        yield
+        return
+    gc.disable()
+    try:
+        yield
+    finally:
+        gc.enable()
 
 
 def schema_text() -> str:
@@ -496,6 +522,144 @@ def _apply_merges(container: YamlMap, sources: list[YamlMap]) -> None:
 
 
 # --------------------------------------------------------------------------
+# The fast reader: a compiled YAML 1.2 parser for the common case, positions on demand
+#
+# `yaml_rs` (docs/performance.md says why this one) builds plain values about
+# twice as fast as the event loop above, but keeps no positions and differs
+# from the YAML 1.2 core schema on a few plain scalars (`1_000`, `0b101`). So
+# it is used only when a cheap scan of the text finds none of the constructs
+# where the two readers could differ (tags, anchors, aliases, merge keys,
+# directives, document markers, complex keys, escapes, tabs, carriage returns,
+# plain numbers other than the usual decimal forms, very deep indentation),
+# and only when the records come out without a single finding. Anything else,
+# including every error, goes to the event reader, which reports it exactly.
+# Positions are then read by the event reader the first time one is asked for.
+
+FAST_READER_ENV = "MODELDIFF_FAST_YAML"  # "0": always use the event reader
+
+_NODE_INDICATORS = "-?:,[{"  # after these (and spaces) a new node starts
+_COMPACT_PAIR = re.compile(r"-[ ]+[-?][ ]")  # a compact collection right inside another (rare: checked further)
+_COMPACT_RUN = re.compile(r"(?:[-?][ ]+){16}")  # many compact collections on one line
+_COMPLEX_KEY = re.compile(r"^[ ]*\?(?:[ ]|$)", re.MULTILINE)
+# Only `format` and a history's `type` accept a number; the readers differ on some
+# spellings of numbers (`0b1`, `1_0`), so those two values must be plain digits.
+_NUMBER_FIELDS = tuple(re.compile(key + r"['\"]?[ ]*:\s*([^\s,\[\]{}#'\"]*)") for key in ("format", "type"))
+
+
+def _fast_unsure(text: str) -> bool:
+    """Whether the text uses a construct on which the fast reader might differ from the event reader.
+
+    Cheap and conservative: a false alarm only costs speed.
+    """
+    if "\t" in text or "\r" in text or "\\" in text or "<<" in text:  # tabs, escapes, merge keys
+        return True
+    if text.startswith(("%", "---", "...")) or "\n%" in text or "\n---" in text or "\n..." in text:
+        return True  # directives, document markers
+    if "\n" + " " * 200 in text or (_COMPACT_PAIR.search(text) and _COMPACT_RUN.search(text)):
+        return True  # nesting far deeper than a model's
+    if "?" in text and _COMPLEX_KEY.search(text):
+        return True
+    for match in re.finditer(r"[&*!]", text):  # anchors, aliases, tags where a node starts
+        before = match.start() - 1
+        while before >= 0 and text[before] == " ":
+            before -= 1
+        if before < 0 or text[before] in _NODE_INDICATORS or text[before] == "\n":
+            return True
+    for pattern in _NUMBER_FIELDS:
+        for match in pattern.finditer(text):
+            value = match.group(1)
+            if value and not (value.isdigit() or value.isalpha()):
+                return True
+    return False
+
+
+class _Fallback(Exception):
+    """The fast reader met something that only the event reader reports exactly."""
+
+
+def _fast_reader():
+    """yaml_rs's `loads`, or None when it is not installed or switched off."""
+    if os.environ.get(FAST_READER_ENV, "1") == "0":
+        return None
+    try:
+        import yaml_rs
+    except ImportError:
+        return None
+    policy = yaml_rs.DuplicateKeyPolicy.Error
+
+    def loads(text: str) -> Any:
+        return yaml_rs.loads(text, parse_datetime=False, duplicate_key_policy=policy)
+
+    return loads
+
+
+def _fast_values(loads, name: str, content: bytes | str) -> dict | None:
+    """The top-level mapping of one file by the fast reader, or None when the event reader must decide."""
+    try:
+        text = _decode(name, content)
+    except ModeldiffError:
+        return None
+    if _fast_unsure(text):
+        return None
+    try:
+        top = loads(text)
+    except Exception:  # noqa: BLE001 - any complaint of the fast reader: the event reader words it
+        return None
+    return top if type(top) is dict else None
+
+
+def _fast_load(files: Sequence[tuple[str, bytes | str]]) -> LoadResult | None:
+    """The model read by the fast reader, or None when the event reader must read it."""
+    loads = _fast_reader()
+    if loads is None:
+        return None
+    docs = []
+    for name, content in files:
+        top = _fast_values(loads, name, content)
+        if top is None:
+            return None
+        docs.append(_Document(name, top))
+    try:
+        name, fmt = _model_identity(docs)
+        return _FastBuilder(files).build(docs, name, fmt)
+    except (_Fallback, ModeldiffError, AttributeError):  # AttributeError: an error path asked for a position
+        return None
+
+
+class _LazyPositions(Mapping):
+    """Model.positions of a fast-read model: the event reader reads them on first use."""
+
+    __slots__ = ("_files", "_found")
+
+    def __init__(self, files: Sequence[tuple[str, bytes | str]]) -> None:
+        self._files = tuple(files)
+        self._found: Mapping[str, Pos] | None = None
+
+    def _positions(self) -> Mapping[str, Pos]:
+        if self._found is None:
+            with paused_gc():
+                self._found = _exact_load(self._files).model.positions
+            self._files = ()
+        return self._found
+
+    @property
+    def computed(self) -> bool:
+        return self._found is not None
+
+    def __getitem__(self, subject: str) -> Pos:
+        return self._positions()[subject]
+
+    def __iter__(self) -> Iterator[str]:
+        return iter(self._positions())
+
+    def __len__(self) -> int:
+        return len(self._positions())
+
+    def __repr__(self) -> str:
+        return "<positions, read on first use>" if self._found is None else repr(self._found)
+
+
+# --------------------------------------------------------------------------
 # Documents: the top level of each file
 
 
@@ -599,6 +763,7 @@ _SINGULAR = {
     "variants": "variant", "roles": "role", "reports": "report",
 }  # fmt: skip
 _COLUMN_TYPE_SET = frozenset(COLUMN_TYPES)
+_MEASURE_TEXT_KEYS = frozenset(("table", "expr", "where", "description", "unit", "owner", "folder"))
 _BAD = object()  # a field that was present but wrong (a finding was recorded)
 
 
@@ -651,11 +816,14 @@ class _RecordBuilder:
             "variants": self._variant, "roles": self._role, "reports": self._report,
         }  # fmt: skip
         sections = {section: self._section(docs, section, builders[section]) for section in SECTIONS}
-        model = Model(name=name, format=fmt, positions=_Positions(self.positions), **sections)
+        model = Model(name=name, format=fmt, positions=self._model_positions(), **sections)
         findings = sorted(
             self.findings, key=lambda f: (f.pos.file, f.pos.line, f.pos.column, f.subject, f.message)
         )
         return LoadResult(model, tuple(findings))
+
+    def _model_positions(self) -> Mapping[str, Pos]:
+        return _Positions(self.positions)
 
     def _section(self, docs: list[_Document], section: str, build_item) -> dict[str, Any]:
         """One section merged over the files; a name in two files cannot be read."""
@@ -671,12 +839,7 @@ class _RecordBuilder:
                 subject = f"{section}.{name}"
                 pos = self._pos_key(items, name)
                 if name in seen:
-                    first = seen[name]
-                    raise _fail(
-                        *pos,
-                        f"{_SINGULAR[section]} '{name}' is defined in both {first[0]}:{first[1]} and "
-                        f"{pos[0]}:{pos[1]}; keep one definition",
-                    )  # fmt: skip
+                    raise self._defined_twice(section, name, seen[name], pos)
                 seen[name] = pos
                 self.positions[subject] = pos
                 record = build_item(name, value, subject, items)
@@ -684,11 +847,18 @@ class _RecordBuilder:
                     records[name] = record
         return records
 
+    def _defined_twice(self, section: str, name: str, first: _At, pos: _At) -> ModeldiffError:
+        return _fail(
+            *pos,
+            f"{_SINGULAR[section]} '{name}' is defined in both {first[0]}:{first[1]} and "
+            f"{pos[0]}:{pos[1]}; keep one definition",
+        )  # fmt: skip
+
     # ---- sections
 
     def _item_map(self, name: str, value: Any, subject: str, parent: YamlMap, keys: tuple[str, ...]) -> YamlMap | None:
         what = f"{subject.split('.')[0][:-1]} '{name}'"
-        if not isinstance(value, YamlMap):
+        if not isinstance(value, dict):
             self._expected(subject, self._pos_value(parent, name), "a mapping of fields", value, f"{what} is ignored")
             return None
         self._check_keys(value, keys, subject, f"in {what}")
@@ -717,13 +887,15 @@ class _RecordBuilder:
             return {}
         records = {}
         prefix = f"{subject}.columns."
-        positions, at, file = self.positions, columns.at, columns.file
+        at = getattr(columns, "at", None)  # None from the fast reader, which records no positions
+        positions, file = self.positions, getattr(columns, "file", None)
         for name, value in columns.items():  # the model's most numerous item: keep it lean
             if not (name.__class__ is str and _NAME.match(name)):
                 self._check_name(columns, name, f"{subject}.columns")
                 continue
-            entry = at[name]
-            positions[prefix + name] = (file, entry[0], entry[1])
+            if at is not None:
+                entry = at[name]
+                positions[prefix + name] = (file, entry[0], entry[1])
             if value.__class__ is str and value in _COLUMN_TYPE_SET:
                 records[name] = Column(name, value)
             else:
@@ -735,7 +907,7 @@ class _RecordBuilder:
             if value in COLUMN_TYPES:
                 return Column(name, value)
             return self._bad_column_type(name, value, subject, self._pos_value(parent, name))
-        if not isinstance(value, YamlMap):
+        if not isinstance(value, dict):
             expected = "a column type or a mapping {type, description, unique}"
             self._expected(subject, self._pos_value(parent, name), expected, value, "read as text")
             return Column(name, "text")
@@ -832,7 +1004,7 @@ class _RecordBuilder:
             self._bad(field_subject, self.positions[subject], message)
             return _BAD
         value, pos = self._field(fields, end, subject)
-        refs = list(value) if isinstance(value, YamlList) else [value]
+        refs = list(value) if isinstance(value, list) else [value]
         expected = "\"table.column\" or a list of them, all of one table"
         parsed = [_COLREF.match(ref) if isinstance(ref, str) else None for ref in refs]
         if not refs or None in parsed:
@@ -897,7 +1069,7 @@ class _RecordBuilder:
                 continue
             option_subject = f"{subject}.options.{name}"
             self.positions[option_subject] = self._pos_key(options, name)
-            if not isinstance(value, YamlMap):
+            if not isinstance(value, dict):
                 pos = self._pos_value(options, name)
                 self._expected(option_subject, pos, "a mapping (write {} for no changes)", value, "read as {}")
                 records[name] = VariantOption(name)
@@ -996,7 +1168,7 @@ class _RecordBuilder:
         value, pos = self._field(fields, key, subject)
         if value is _NOTHING:
             return None, None
-        if not isinstance(value, YamlList) or (nonempty and not value):
+        if not isinstance(value, list) or (nonempty and not value):
             wanted = f"a non-empty list of {expected}" if nonempty else f"a list of {expected}"
             self._expected(f"{subject}.{key}", pos, wanted, value, "it is ignored")
             return None, None
@@ -1011,7 +1183,7 @@ class _RecordBuilder:
             if isinstance(item, str) and _NAME.match(item):
                 good.append(item)
             else:
-                item_pos = (items.file, *items.at[index])
+                item_pos = self._pos_item(items, index)
                 self._expected(f"{subject}.{key}", item_pos, f"a name matching {_NAME_PATTERN}", item, "it is ignored")
         return tuple(good)
 
@@ -1024,7 +1196,7 @@ class _RecordBuilder:
             if isinstance(item, str) and _COLREF.match(item):
                 good.append(item)
             else:
-                item_pos = (items.file, *items.at[index])
+                item_pos = self._pos_item(items, index)
                 self._expected(f"{subject}.{key}", item_pos, '"table.column"', item, "it is ignored")
         return tuple(good)
 
@@ -1035,7 +1207,7 @@ class _RecordBuilder:
             return ()
         if isinstance(value, str) and _NAME.match(value):
             return (value,)
-        if isinstance(value, YamlList) and value and all(isinstance(v, str) and _NAME.match(v) for v in value):
+        if isinstance(value, list) and value and all(isinstance(v, str) and _NAME.match(v) for v in value):
             return tuple(value)
         wanted = "a column name or a non-empty list of column names"
         self._expected(f"{subject}.{key}", pos, wanted, value, "it is ignored")
@@ -1092,7 +1264,7 @@ class _RecordBuilder:
         value = fields[key]
         pos = self._pos_value(fields, key)
         self.positions[subject] = pos
-        if isinstance(value, YamlMap):
+        if isinstance(value, dict):
             return value
         self._expected(subject, pos, "a mapping", value, "it is ignored")
         return None
@@ -1136,6 +1308,84 @@ class _RecordBuilder:
     @staticmethod
     def _pos_first(mapping: YamlMap) -> _At:
         return (mapping.file, mapping.line, mapping.column)
+
+    @staticmethod
+    def _pos_item(items: YamlList, index: int) -> _At:
+        return (items.file, *items.at[index])
+
+
+class _NoPositions(dict):
+    """The fast builder's positions: none are kept, and every one asked for is unknown."""
+
+    def __missing__(self, subject: str) -> None:
+        return None
+
+
+class _FastBuilder(_RecordBuilder):
+    """The record builder over the fast reader's plain values: no positions, and no findings.
+
+    Any finding, which would need a position, sends the whole model back to
+    the event reader (`_Fallback`); so a model it builds is exactly the one the
+    event reader would build, without findings.
+    """
+
+    def __init__(self, files: Sequence[tuple[str, bytes | str]]) -> None:
+        super().__init__()
+        self.files = files
+        self.positions = _NoPositions()
+
+    def _model_positions(self) -> Mapping[str, Pos]:
+        return _LazyPositions(self.files)
+
+    def _section(self, docs: list[_Document], section: str, build_item) -> dict[str, Any]:
+        records: dict[str, Any] = {}
+        for doc in docs:
+            items = self._get_map(doc.top, section, section)
+            if items is None:
+                continue
+            for name, value in items.items():
+                if not (name.__class__ is str and _NAME.match(name)) or name in records:
+                    raise _Fallback  # a bad name, or one defined in two files (or ignored in one: rare)
+                record = build_item(name, value, f"{section}.{name}", items)
+                if record is not None:
+                    records[name] = record
+        return records
+
+    def _measure(self, name: str, value: Any, subject: str, parent: YamlMap) -> Measure | None:
+        """The common measure (text fields only) without the general path's bookkeeping; the same record."""
+        if value.__class__ is dict and "expr" in value and value.keys() <= _MEASURE_TEXT_KEYS:
+            if all(v.__class__ is str for v in value.values()):
+                get = value.get
+                table, where = get("table"), get("where")
+                if value["expr"].strip() and (table is None or _NAME.match(table)) and (where is None or where.strip()):
+                    return Measure(name, value["expr"], table, where, NO_OVERRIDES, get("description"), get("unit"),
+                                   get("owner"), get("folder"))
+        return super()._measure(name, value, subject, parent)
+
+    def _field(self, fields: YamlMap, key: str, subject: str) -> tuple[Any, _At | None]:
+        return fields.get(key, _NOTHING), None
+
+    def _bad(self, subject: str, at: _At, message: str) -> None:
+        raise _Fallback
+
+    def _defined_twice(self, section: str, name: str, first: _At, pos: _At) -> ModeldiffError:
+        raise _Fallback
+
+    @staticmethod
+    def _pos_key(mapping: YamlMap, key: Any) -> _At:
+        return None
+
+    @staticmethod
+    def _pos_value(mapping: YamlMap, key: Any) -> _At:
+        return None
+
+    @staticmethod
+    def _pos_first(mapping: YamlMap) -> _At:
+        return None
+
+    @staticmethod
+    def _pos_item(items: YamlList, index: int) -> _At:
+        return None
 
 
 def _is_sql(value: Any) -> bool:
