@@ -24,7 +24,6 @@ from __future__ import annotations
 
 import os
 import shlex
-import stat
 import sys
 from dataclasses import dataclass, replace
 from typing import Mapping, Sequence, TextIO
@@ -403,7 +402,7 @@ def _check_range(root: str, r: prepush.PushRange, paths: list[str], stdout: Text
     diffs = _diffs(root, r, paths)
     stdout.write(_as_text(diffs))
     policy = pol.read_policy(root, r.head, head_label)
-    _say_policy_change(root, r, policy, stdout)
+    _say_policy_change(root, r, stdout)
     for line in pol.tell_lines(diffs, policy):
         stdout.write(line + "\n")
     items = pol.items_of(diffs)
@@ -475,7 +474,7 @@ def _as_text(diffs) -> str:
     return buffer.getvalue()
 
 
-def _say_policy_change(root: str, r: prepush.PushRange, policy, stdout: TextIO) -> None:
+def _say_policy_change(root: str, r: prepush.PushRange, stdout: TextIO) -> None:
     from modeldiff import git
     from modeldiff.policy import POLICY_FILE
 

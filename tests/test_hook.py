@@ -101,22 +101,13 @@ class Pushed:
     out: str
 
 
-def make_repo(path: Path) -> Path:
-    path.mkdir(parents=True)
-    git(path, "init", "-q", "-b", "main")
-    git(path, "config", "user.name", "Test Rider")
-    git(path, "config", "user.email", "rider@example.invalid")
-    git(path, "config", "commit.gpgsign", "false")
-    git(path, "config", "tag.gpgsign", "false")
-    return path
-
-
 @pytest.fixture(scope="module")
 def template(tmp_path_factory) -> Path:
     """Built once: a work repository whose main (V1 of the model) is on a bare remote at ../remote.git."""
     folder = tmp_path_factory.mktemp("template")
     env = {k: v for k, v in os.environ.items() if not k.startswith("GIT_")}
     env.update(GIT_CONFIG_NOSYSTEM="1", GIT_CONFIG_GLOBAL=str(folder / "no-global-gitconfig"), HOME=str(folder))
+
     def run(cwd, *args):
         subprocess.run(["git", *args], cwd=cwd, env=env, check=True, capture_output=True)
     run(folder, "init", "-q", "--bare", "remote.git")
