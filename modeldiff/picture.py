@@ -84,9 +84,6 @@ class Picture:
     def highlighted(self) -> tuple[int, ...]:
         return tuple(a.index for a in self.arrows if a.red)
 
-    def node(self, table: str) -> Node:
-        return next(n for n in self.nodes if n.table == table)
-
 
 # --- building the picture ---------------------------------------------------------------------
 

@@ -98,6 +98,14 @@ def test_most_severe_first_whatever_the_order_of_changes():
     assert levels == ["error", "error", "warning", "warning", "notice", "notice"]
 
 
+def test_an_exposure_comes_first_among_the_breaking():
+    diff = synthetic(2, 0, 0, interleave=False)[0]
+    exposed = Change("security.exposed", "roles.r.tables.trips", "breaking", "rows exposed", id="c9")
+    result = DiffResult(diff.result.old, diff.result.new, diff.result.changes + (exposed,), (), (), ())
+    found = commands(render([ModelDiff(diff.old, diff.new, result)]))
+    assert [m.split(" ")[0] for _, _, m in found] == ["c9", "c0", "c1"]
+
+
 def test_at_most_ten_errors_and_ten_warnings_then_a_notice_counting_the_rest():
     found = commands(render(synthetic(13, 12, 12)))
     levels = [level for level, _, _ in found]

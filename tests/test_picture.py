@@ -290,3 +290,26 @@ def test_svg_arrow_skipping_a_column_passes_through_a_slot():
     (bend,) = lay.bends[skip.index]
     assert bend.x == lay.boxes["districts"].x and bend.y != lay.boxes["districts"].y
     assert all(lay.bends[a.index] == () for a in pic.arrows if a.link != "s_r")
+
+
+# --- in the Markdown report -----------------------------------------------------------------------------
+
+
+def markdown_of(*argv: str) -> str:
+    out = io.StringIO()
+    cli.main(["diff", *argv, "--format", "markdown"], stdout=out, stderr=io.StringIO())
+    return out.getvalue()
+
+
+def test_markdown_carries_the_diagram_after_the_summary_table():
+    out = markdown_of(str(EXAMPLE), str(REVISION_2))
+    fence = out.index("```mermaid\ngraph LR\n")
+    assert out.index("| `bikeshare` |") < fence < out.index("### `bikeshare`")
+    source = out[fence + len("```mermaid\n"):out.index("```", fence + 3)]
+    assert styled_links(source) == ["trips_start_station"]
+
+
+def test_markdown_has_no_diagram_when_no_link_or_path_changed():
+    scenario = Path(__file__).parent / "impact_scenarios" / "description_only"
+    out = markdown_of(str(scenario / "old.model.yaml"), str(scenario / "new.model.yaml"))
+    assert "## modeldiff" in out and "mermaid" not in out
