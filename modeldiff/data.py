@@ -39,6 +39,7 @@ FLOAT_TYPES = frozenset({"FLOAT", "DOUBLE", "REAL"})
 # DuckDB type a CSV column is converted to, by model column type
 CSV_TYPES = {"integer": "BIGINT", "float": "DOUBLE", "text": "VARCHAR", "date": "DATE",
              "timestamp": "TIMESTAMP", "boolean": "BOOLEAN"}  # decimal: DECIMAL(38, scale found)
+_SQL_TYPES = dict(CSV_TYPES, decimal="DECIMAL(38, 10)")
 
 
 @dataclass(frozen=True)
@@ -109,6 +110,28 @@ class Database:
             connection.close()
             raise
         return db
+
+    @classmethod
+    def from_rows(cls, model: Model, rows: dict[str, list[tuple]], connection=None) -> "Database":
+        """A database holding the given rows (one tuple per row, the model's columns in order).
+
+        For tests and for callers that build data in Python; keys are not
+        checked. Given a DuckDB `connection`, its tables of the model's names
+        are replaced (and closing the database closes the connection).
+        """
+        import duckdb
+
+        connection = duckdb.connect(":memory:") if connection is None else connection
+        for name in sorted(model.tables):
+            table = model.tables[name]
+            columns = ", ".join(f"{q(c)} {_SQL_TYPES[col.type]}" for c, col in table.columns.items())
+            connection.execute(f"CREATE OR REPLACE TABLE {q(name)} (_row BIGINT, {columns})")
+            values = [(i,) + tuple(row) for i, row in enumerate(rows.get(name, ()))]
+            if values:
+                marks = "(" + ", ".join("?" for _ in values[0]) + ")"
+                connection.execute(f"INSERT INTO {q(name)} VALUES " + ", ".join(marks for _ in values),
+                                   [v for row in values for v in row])
+        return cls(connection, model)
 
     def __enter__(self) -> "Database":
         return self

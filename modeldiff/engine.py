@@ -329,7 +329,7 @@ def _and(parts: Sequence[str]) -> str:
 
 @dataclass
 class _Plan:
-    items: list = field(default_factory=list)  # ("rel", name, sql) | ("loop", Loop)
+    items: list = field(default_factory=list)  # ("rel", name, sql) | ("loop", Loop, member names)
     names: set = field(default_factory=set)
 
     def relation(self, name: str, sql: str) -> str:
@@ -341,24 +341,40 @@ class _Plan:
         self.items.append(("rel", name, sql))
         return name
 
-    def loop(self, statements: Sequence[str], progress: str) -> None:
-        self.items.append(("loop", Loop(tuple(statements), progress)))
+    def loop(self, members: Sequence[str], statements: Sequence[str], progress: str) -> None:
+        self.items.append(("loop", Loop(tuple(statements), progress), tuple(members)))
 
     def query(self, final: str, columns: Sequence[str], params: tuple) -> Query:
-        if not any(kind == "loop" for kind, *_ in self.items):
-            ctes = ",\n".join(f"{q(name)} AS (\n{sql}\n)" for _, name, sql in self.items)
-            return Query((f"WITH {ctes}\n" if ctes else "") + final, params, tuple(columns))
+        """One statement with CTEs when there is no loop; else temporary tables for what the loops need.
+
+        A loop's tables, and every relation their first version is built from,
+        become temporary tables; everything else stays a CTE of the final
+        statement.
+        """
+        rels = [(item[1], item[2]) for item in self.items if item[0] == "rel"]
+        tables = self._needed_by_loops(rels)
+        ctes = ",\n".join(f"{q(name)} AS (\n{sql}\n)" for name, sql in rels if name not in tables)
+        final = (f"WITH {ctes}\n" if ctes else "") + final
         steps: list = []
-        created: list[str] = []
-        for kind, *rest in self.items:
-            if kind == "loop":
-                steps.append(rest[0])
-            else:
-                name, sql = rest
-                steps.append(f"CREATE OR REPLACE TEMP TABLE {q(name)} AS\n{sql}")
-                created.append(name)
-        cleanup = tuple(f"DROP TABLE IF EXISTS {q(name)}" for name in reversed(created))
+        for item in self.items:
+            if item[0] == "loop":
+                steps.append(item[1])
+            elif item[1] in tables:
+                steps.append(f"CREATE OR REPLACE TEMP TABLE {q(item[1])} AS\n{item[2]}")
+        cleanup = tuple(f"DROP TABLE IF EXISTS {q(name)}" for name, _ in reversed(rels) if name in tables)
         return Query(final, params, tuple(columns), tuple(steps), cleanup)
+
+    def _needed_by_loops(self, rels: list[tuple[str, str]]) -> set[str]:
+        sql_of = dict(rels)
+        needed = {m for item in self.items if item[0] == "loop" for m in item[2]}
+        todo = list(needed)
+        while todo:
+            text = sql_of[todo.pop()]
+            for name in sql_of:
+                if name not in needed and q(name) in text:
+                    needed.add(name)
+                    todo.append(name)
+        return needed
 
 
 @dataclass(frozen=True)
@@ -427,7 +443,7 @@ class _Visibility:
                 if arc.src in inside:
                     deletes.append(f"DELETE FROM {name} WHERE NOT {self._exists(arc, name)}")
         progress = "SELECT " + " + ".join(f"(SELECT count(*) FROM {q(self.rels[m].name)})" for m in members)
-        self.plan.loop(deletes, progress)
+        self.plan.loop([self.rels[m].name for m in members], deletes, progress)
 
     def _order(self, members: list[str]) -> list[str]:
         """Members in an order where each finds most of its tags among those already built."""
