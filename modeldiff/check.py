@@ -7,10 +7,11 @@ a severity, a subject path and a message that says what to do.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from functools import cached_property
 from typing import TYPE_CHECKING, Callable, Iterable, Iterator
 
+from modeldiff import graph, sql  # both light: sqlglot is imported on first use
 from modeldiff.model import Finding, Measure, Model, Overrides, Table
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -38,6 +39,7 @@ RULES = {
 @dataclass
 class _Context:
     model: Model
+    _clean: dict = field(default_factory=dict, repr=False)
 
     def finding(self, rule: str, subject: str, message: str, paths=(), at: str | None = None) -> Finding:
         return Finding(rule, RULES[rule], subject, message, tuple(tuple(p) for p in paths),
@@ -50,6 +52,19 @@ class _Context:
     @cached_property
     def measure_names_lower(self) -> frozenset[str]:
         return frozenset(name.lower() for name in self.model.measures)
+
+    def clean_base_text(self, field_name: str, text: str, table: Table) -> bool:
+        """Whether a base measure's `expr` or `where` on `table` raises no finding (memoised by text and table).
+
+        Most measures of a large model share a handful of texts (`sum(amount)`,
+        `count(*)`): each text is judged once per table, and only texts with a
+        problem go through the rules that word the findings.
+        """
+        key = (field_name, text, table.name)
+        found = self._clean.get(key)
+        if found is None:
+            found = self._clean[key] = _is_clean_base_text(field_name, text, table)
+        return found
 
     def column_exists(self, table: str, column: str) -> bool:
         t = self.model.tables.get(table)
@@ -85,7 +100,6 @@ def _overrides_refs(ctx: _Context, subject: str, overrides: Overrides) -> Iterat
 
 def _sql_facts(ctx: _Context, subject: str, text: str, what: str, at: str):
     """(Facts, None) for readable SQL, else (None, an invalid-model finding)."""
-    from modeldiff import sql
 
     try:
         return sql.facts(text), None
@@ -193,7 +207,7 @@ def rule_measure_references(ctx: _Context) -> Iterator[Finding]:
 def _base_measure(ctx: _Context, measure: Measure, table: Table, subject: str) -> Iterator[Finding]:
     advice = "make it a derived measure over a measure of that table."
     for field_name, text in (("expr", measure.expr), ("where", measure.where)):
-        if text is None:
+        if text is None or ctx.clean_base_text(field_name, text, table):
             continue
         at, what = f"{subject}.{field_name}", f"Measure {measure.name}: `{field_name}`"
         found, bad = _sql_facts(ctx, subject, text, what, at)
@@ -213,6 +227,23 @@ def _base_measure(ctx: _Context, measure: Measure, table: Table, subject: str) -
                               f"{what} is a row condition and may not aggregate; move the aggregate into `expr`.", at=at)
         yield from _shape_problems(ctx, subject, found, what, at, allow_user=False)
         yield from _column_problems(ctx, subject, found, table, what, at, advice)
+
+
+def _is_clean_base_text(field_name: str, text: str, table: Table) -> bool:
+    """The conditions under which `_base_measure` words no finding for one field, checked on their own."""
+
+    try:
+        found = sql.facts(text)
+    except sql.SqlError:
+        return False
+    if field_name == "expr" and (not found.aggregates or found.outside_aggregate):
+        return False
+    if field_name == "where" and found.aggregates:
+        return False
+    if found.subquery or found.parameters:
+        return False
+    return all((qualifier is None or qualifier.lower() == table.name.lower()) and _column(table, column) is not None
+               for qualifier, column in found.columns)
 
 
 def _derived_measure(ctx: _Context, measure: Measure, subject: str) -> Iterator[Finding]:
@@ -360,7 +391,6 @@ def rule_type_mismatch(ctx: _Context) -> Iterator[Finding]:
 
 
 def rule_measure_cycle(ctx: _Context) -> Iterator[Finding]:
-    from modeldiff import sql
 
     deps: dict[str, list[str]] = {}
     for measure in ctx.model.measures.values():
@@ -424,7 +454,6 @@ def rule_history_incomplete(ctx: _Context) -> Iterator[Finding]:
 
 def _default_options(model: Model) -> tuple[Overrides, ...]:
     """The overrides of each variant's default option, in variant-name order."""
-    from modeldiff import graph
 
     return graph.setting_layers(model, variant_defaults=True)
 
@@ -437,7 +466,6 @@ def _settings(model: Model):
     own, skipping repeats. A measure is checked alone and after the variants'
     default options; a report with the options it picks or defaults to.
     """
-    from modeldiff import graph
 
     resolver = graph.SettingResolver(model)
     defaults = _default_options(model)
@@ -467,7 +495,6 @@ def _settings(model: Model):
 
 
 def rule_ambiguous_paths(ctx: _Context) -> Iterator[Finding]:
-    from modeldiff import graph
 
     reported: set[tuple[str, str]] = set()
     for label, setting in _settings(ctx.model):
@@ -485,7 +512,6 @@ def rule_ambiguous_paths(ctx: _Context) -> Iterator[Finding]:
 
 
 def rule_security(ctx: _Context) -> Iterator[Finding]:
-    from modeldiff import graph
 
     model = ctx.model
     security = None
@@ -493,13 +519,13 @@ def rule_security(ctx: _Context) -> Iterator[Finding]:
         subject = f"roles.{role.name}"
         if not all(t in model.tables for t in role.filters):
             continue  # broken-reference says it
-        for link, table in graph.security_stops(model, role):
+        if security is None:
+            security = graph.security_graph(model)  # one graph for every role
+        for link, table in graph.security_stops(model, role, security):
             yield ctx.finding("security-stops", subject,
                               f"Role {role.name}'s filter stops at two-way link {link}: filters cross it into {table}, but row security does not (its security_flow is one-way), "
                               f"so members of {role.name} see every row of {table} the link would otherwise restrict. Set `security_flow: two-way` on {link} if that was intended, "
                               f"and have the organisation's own security review decide.")
-        if security is None:
-            security = graph.security_graph(model)
         restricted = graph.role_restricted(model, role, security)
         if not any(model.tables[t].kind == "fact" for t in restricted if t in model.tables):
             yield ctx.finding("role-reaches-no-fact", subject,

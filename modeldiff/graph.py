@@ -258,6 +258,11 @@ class _Lru(OrderedDict):
         return value
 
 
+def _edge_order(edge: Edge) -> tuple[str, str, str]:
+    """Edge's own order (link, src, dst), as a key: sorting by it is many times faster than by comparisons."""
+    return (edge.link, edge.src, edge.dst)
+
+
 class FilterGraph:
     """Tables and the directed edges filters travel along; all answers are sorted.
 
@@ -270,8 +275,9 @@ class FilterGraph:
 
     def __init__(self, tables: Iterable[str], edges: Iterable[Edge]) -> None:
         self.tables: frozenset[str] = frozenset(tables)
+        tables = self.tables
         self.edges: tuple[Edge, ...] = tuple(sorted(
-            {e for e in edges if e.src in self.tables and e.dst in self.tables}))
+            {e for e in edges if e.src in tables and e.dst in tables}, key=_edge_order))
         self._names: list[str] = sorted(self.tables)
         self._index: dict[str, int] = {name: i for i, name in enumerate(self._names)}
         self._link: list[str] = [e.link for e in self.edges]

@@ -37,6 +37,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from typing import Any, Iterable, Mapping
 
+from modeldiff import graph, sql  # both light: sqlglot is imported on first use
 from modeldiff.changes import EXIT_CODES, Change, worst
 from modeldiff.model import Finding, Measure, Model, Overrides, Report, VariantOption
 
@@ -162,7 +163,6 @@ def in_new_names(g, renames: Renames):
     """`g` (a graph of the old revision) with its tables and links spelled by their new names."""
     if not renames:
         return g
-    from modeldiff import graph
 
     edges = [graph.Edge(renames.link(e.link), renames.table(e.src), renames.table(e.dst)) for e in g.edges]
     return graph.FilterGraph({renames.table(t) for t in g.tables}, edges)
@@ -189,7 +189,6 @@ def changed_pairs(g_old, g_new, renames: Renames | None = None, sources: Iterabl
     so only pairs upstream/downstream of such an edge are compared; each is
     settled by `graph.path_delta` (equal path signatures answer at once).
     """
-    from modeldiff import graph
 
     old = in_new_names(g_old, renames or Renames())
     gone, came = set(old.edges) - set(g_new.edges), set(g_new.edges) - set(old.edges)
@@ -240,7 +239,6 @@ def _option_in_force(model: Model, variant: str, report: Report | None) -> tuple
 
 def setting_layers(model: Model, measure: Measure | None = None, report: Report | None = None) -> tuple[Overrides, ...]:
     """Override layers of one computation: each variant's option in force, the report's, the measure's."""
-    from modeldiff import graph
 
     return graph.setting_layers(model, measure, report, variant_defaults=True)
 
@@ -262,7 +260,6 @@ class _Analysis:
 
     def graph(self, model: Model, layers: tuple[Overrides, ...] = ()):
         """The flow graph of `model` in the setting of `layers`, shared by every computation with that setting."""
-        from modeldiff import graph
 
         layers_key = (id(model), _layers_key(layers))
         found = self._graphs.get(layers_key)
@@ -367,7 +364,6 @@ def _path_start(sec, filtered: Iterable[str], path: Path, table: str) -> str:
 
 def _security_changes(a: _Analysis) -> list[Change]:
     """security.exposed / tightened / rerouted, per role and table, over the default setting's security graph."""
-    from modeldiff import graph
 
     changes: list[Change] = []
     old_roles = {a.renames.roles.get(name, name): role for name, role in a.old.roles.items()}
@@ -419,7 +415,6 @@ def _restriction_text(path: Path, start: str) -> str:
 
 
 def _restricted(sec, filtered: list[str]) -> dict[str, Path]:
-    from modeldiff import graph
     from modeldiff.model import Role
 
     return graph.role_restricted(Model("", {}), Role("", {t: "" for t in filtered}), sec)
@@ -482,7 +477,6 @@ class _Impacts:
     """Builds the impact lists once every change has its id."""
 
     def __init__(self, a: _Analysis, changes: list[Change]):
-        from modeldiff import sql
 
         self.a = a
         self.changes = changes
@@ -523,6 +517,8 @@ class _Impacts:
             elif change.kind.startswith("security."):
                 self.security_by_table.setdefault(parts[3], []).append(change)
         self._link_edges: dict[int, tuple[Any, dict[str, list]]] = {}
+        self._plain_computations: dict[str | None, _Computation] = {}
+        self._path_cache: dict[tuple, tuple[_Computation, list[Reason]]] = {}
 
     # -- helpers
 
@@ -654,7 +650,6 @@ class _Impacts:
 
     @staticmethod
     def _columns_read(m: Measure) -> set[str]:
-        from modeldiff import sql
 
         try:
             read = {c.lower() for _, c in sql.column_refs(m.expr)}
@@ -666,7 +661,6 @@ class _Impacts:
 
     def _filter_reach(self, change: Change) -> dict[str, list[str]]:
         """Tables (new names) that the changed filters of a role restrict in either revision -> those filters."""
-        from modeldiff import graph
 
         if change.id in self._reach_cache:
             return self._reach_cache[change.id]
@@ -686,6 +680,14 @@ class _Impacts:
     # -- reasons that depend on the setting: paths into the home table, keys on them, options' `where`
 
     def path_reasons(self, home: str, comp: _Computation, sources: set[str] | None = None) -> list[Reason]:
+        """Reasons from the paths into `home` in the setting of `comp` (shared by the measures with both)."""
+        key = (home, id(comp), None if sources is None else frozenset(sources))
+        found = self._path_cache.get(key)
+        if found is None:
+            found = self._path_cache[key] = (comp, self._path_reasons(home, comp, sources))  # comp kept: ids stay unique
+        return list(found[1])
+
+    def _path_reasons(self, home: str, comp: _Computation, sources: set[str] | None = None) -> list[Reason]:
         a = self.a
         reasons = []
         targets = None if not comp.new_layers and not comp.old_layers else {home}
@@ -724,7 +726,6 @@ class _Impacts:
 
     def where_reasons(self, home: str, comp: _Computation) -> list[Reason]:
         """A variant option's `where` in force changed on a table whose filter reaches `home`."""
-        from modeldiff import sql
 
         reasons = []
         g_old, g_new = self.a.old_graph(comp.old_layers), self.a.graph(self.a.new, comp.new_layers)
@@ -754,6 +755,18 @@ class _Impacts:
             return None
         changes: list[Change] = [c for c in self.by_subject.get(f"measures.{measure.name}", ())
                                  if c.kind == "measure.overrides_changed"]
+        plain = not changes and not measure.overrides and not old_measure.overrides
+        if plain:  # no overrides of its own: the setting of every such measure (in this report) is the same
+            key = None if report is None else report.name
+            found = self._plain_computations.get(key)
+            if found is None:
+                found = self._plain_computations[key] = self._computation(measure, report, old_measure, old_report, [])
+            return found
+        return self._computation(measure, report, old_measure, old_report, changes)
+
+    def _computation(self, measure: Measure, report: Report | None, old_measure: Measure, old_report: Report | None,
+                     changes: list[Change]) -> _Computation:
+        a = self.a
         if report is not None:
             changes += [c for c in self.by_subject.get(f"reports.{report.name}", ()) if c.kind == "report.changed"]
         old_options = self._options(a.old, old_report, old=True)
