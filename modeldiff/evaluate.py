@@ -177,7 +177,8 @@ def as_text(results: Sequence) -> str:
     for n, result in enumerate(results):
         if n:
             out.print()
-        table = Table(title=f"report {escape(result.report)}", title_justify="left")
+        out.print(f"[bold]report {escape(result.report)}[/]")
+        table = Table()
         for i, column in enumerate(result.columns):
             numeric = i >= result.groups and any(_is_number(row[i]) for row in result.rows)
             table.add_column(escape(column), justify="right" if numeric else "left")
