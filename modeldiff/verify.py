@@ -1,0 +1,775 @@
+"""Verify a change on data: which numbers really move, and whether the data meets the migration's preconditions.
+
+`modeldiff verify OLD NEW --data DIR` reads both revisions (as `modeldiff
+diff` does), loads the data once per revision (modeldiff.data) and, for what
+the diff says is impacted, evaluates both revisions on the same rows
+(modeldiff.engine, semantics.md section 5):
+
+- every impacted report: its groups, before and after;
+- every impacted measure, once per reason: grouped by the default attribute
+  of the reason's source table (`default_attribute`), or under the role whose
+  visible rows changed, or as a total when the reason names no table;
+- every impacted role: the rows it may see of each table it restricts in
+  either revision;
+- the data preconditions of the migration: the `check-data` steps that
+  `modeldiff plan` gives for the same change, run on the new revision's data.
+
+Exit codes: 0 no number moved and every precondition holds; 1 numbers moved
+(or the rows a role sees changed); 3 a precondition fails or a role now sees
+more rows of some table; 2 bad input (one line on stderr, nothing printed).
+docs/verify.md says more.
+"""
+
+from __future__ import annotations
+
+import math
+import sys
+from dataclasses import dataclass, field, replace
+from datetime import date, datetime
+from decimal import Decimal
+from typing import Any, Callable, Iterable, Mapping, Sequence, TextIO
+
+from modeldiff.errors import ModeldiffError
+
+HELP = "evaluate OLD and NEW on the same data: which numbers really move, and whether the data meets the change's preconditions"
+FORMATS = ("text", "json", "markdown")
+DEFAULT_LIMIT = 10  # differences listed per report or measure (0: all)
+VIEWER_CAP = 5  # viewers tried for a role filtering on :user when --user is not given
+EXAMPLES = 3  # offending rows shown per failed precondition
+FLOAT_TOLERANCE = 1e-9  # relative: two floating-point values this close are the same number
+TEXT_TYPES = ("text", "date")  # types a default grouping attribute may have
+
+
+# --- records ------------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Difference:
+    """One group's value of one measure that differs between the revisions.
+
+    `group` pairs each grouping column with its value; on the `(no match)`
+    group (rows in no group, semantics.md section 5) the values are
+    `data.NO_MATCH` and `no_match` is true. `present`: `both`, or the only
+    side (`before`, `after`) that has the group; the other side's value is None.
+    """
+
+    group: tuple[tuple[str, Any], ...]
+    measure: str
+    before: Any
+    after: Any
+    present: str = "both"
+    user: str | None = None
+    no_match: bool = False
+
+    @property
+    def delta(self) -> Any:
+        if not (_is_number(self.before) and _is_number(self.after)):
+            return None
+        if isinstance(self.before, float) or isinstance(self.after, float):
+            return float(self.after) - float(self.before)
+        return self.after - self.before
+
+    @property
+    def relative(self) -> float | None:
+        delta = self.delta
+        if delta is None or self.before == 0:
+            return None
+        return float(delta) / abs(float(self.before))
+
+
+@dataclass(frozen=True)
+class Comparison:
+    """One report, or one measure in one grouping, evaluated under both revisions.
+
+    `differences` holds every differing (group, measure), largest absolute
+    change first. A measure's `source` is the table it is grouped by (None for
+    a total); `role` the role it is evaluated under (security reasons).
+    """
+
+    kind: str  # report | measure
+    name: str
+    by: tuple[str, ...] = ()
+    source: str | None = None
+    role: str | None = None
+    differences: tuple[Difference, ...] = ()
+    groups_before: int = 0
+    groups_after: int = 0
+    notes: tuple[str, ...] = ()
+
+    @property
+    def moved(self) -> bool:
+        return bool(self.differences)
+
+
+@dataclass(frozen=True)
+class RoleRows:
+    """How many rows of `table` the role may see, before and after (None: not evaluated on that side)."""
+
+    table: str
+    before: int | None
+    after: int | None
+    user: str | None = None
+
+    @property
+    def changed(self) -> bool:
+        return self.before != self.after
+
+    @property
+    def exposed(self) -> bool:
+        return self.before is not None and self.after is not None and self.after > self.before
+
+
+@dataclass(frozen=True)
+class RoleCheck:
+    name: str
+    tables: tuple[RoleRows, ...]
+    notes: tuple[str, ...] = ()
+
+    @property
+    def changed(self) -> bool:
+        return any(t.changed for t in self.tables)
+
+    @property
+    def exposed(self) -> bool:
+        return any(t.exposed for t in self.tables)
+
+
+@dataclass(frozen=True)
+class Precondition:
+    """One data precondition of the migration, run on the new revision's data.
+
+    `offending` counts what breaks it: rows holding a duplicated value
+    (`unique`), rows without the key (`not-null`), rows whose key has no
+    target (`referential-integrity`), pairs of overlapping versions
+    (`no-overlapping-versions`), members without exactly one current version
+    (`one-current-row`). `examples`: a few of them, as column -> value.
+    """
+
+    check: str
+    subject: str
+    passed: bool
+    offending: int
+    examples: tuple[Mapping[str, Any], ...] = ()
+    why: str = ""
+    sql: str = ""
+
+
+@dataclass(frozen=True)
+class Verification:
+    diff: Any  # compare.ModelDiff
+    data: str  # where the rows came from, for people
+    reports: tuple[Comparison, ...] = ()
+    measures: tuple[Comparison, ...] = ()
+    roles: tuple[RoleCheck, ...] = ()
+    preconditions: tuple[Precondition, ...] = ()
+
+    @property
+    def exit_code(self) -> int:
+        if any(not p.passed for p in self.preconditions) or any(r.exposed for r in self.roles):
+            return 3
+        if any(c.moved for c in self.reports + self.measures) or any(r.changed for r in self.roles):
+            return 1
+        return 0
+
+
+# --- values -------------------------------------------------------------------------------------------
+
+
+def _is_number(value: Any) -> bool:
+    return isinstance(value, (int, float, Decimal)) and not isinstance(value, bool)
+
+
+def same_value(a: Any, b: Any) -> bool:
+    """Whether two evaluated values are the same number: exact, except floating point within FLOAT_TOLERANCE."""
+    if a is None or b is None:
+        return a is None and b is None
+    if _is_number(a) and _is_number(b) and (isinstance(a, float) or isinstance(b, float)):
+        a, b = float(a), float(b)
+        if math.isnan(a) or math.isnan(b):
+            return math.isnan(a) and math.isnan(b)
+        return math.isclose(a, b, rel_tol=FLOAT_TOLERANCE, abs_tol=1e-12)
+    return a == b
+
+
+def _order_value(value: Any) -> tuple:
+    """A sort key for any grouping value (NULL last, types kept apart)."""
+    from modeldiff.data import NO_MATCH
+
+    if value is NO_MATCH:
+        return (2, "", "")
+    if value is None:
+        return (1, "", "")
+    if _is_number(value):
+        return (0, "0", float(value))
+    return (0, type(value).__name__, str(value))
+
+
+def _magnitude(d: Difference) -> float | None:
+    """How much a difference moved: |delta|, or the size of the one value present; None if not a number."""
+    delta = d.delta
+    if delta is not None:
+        return abs(float(delta))
+    present = d.after if d.present == "after" else d.before if d.present == "before" else None
+    return abs(float(present)) if _is_number(present) else None
+
+
+def sort_differences(differences: Iterable[Difference]) -> tuple[Difference, ...]:
+    """Largest absolute change first (a group on one side only counts its value); then by group and measure."""
+    def key(d: Difference):
+        size = _magnitude(d)
+        return (size is None, -(size or 0.0), tuple(_order_value(v) for _, v in d.group), d.measure, d.user or "")
+    return tuple(sorted(differences, key=key))
+
+
+def json_value(value: Any) -> Any:
+    """A JSON-ready value: decimals as numbers, dates as ISO text."""
+    if isinstance(value, Decimal):
+        if not value.is_finite():
+            return str(value)
+        return int(value) if value == value.to_integral_value() and abs(value) < 2 ** 53 else float(value)
+    if isinstance(value, float) and not math.isfinite(value):
+        return str(value)
+    if isinstance(value, (date, datetime)):
+        return value.isoformat()
+    if value is None or isinstance(value, (bool, int, float, str)):
+        return value
+    return str(value)
+
+
+# --- comparing rows of two evaluations -----------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Rows:
+    """One evaluation: grouping column labels, and {group values: {measure: value}}."""
+
+    labels: tuple[str, ...]
+    groups: Mapping[tuple, Mapping[str, Any]]
+
+
+def _rows_of(columns: Sequence[str], rows: Iterable[Sequence[Any]], groups: int) -> _Rows:
+    out: dict[tuple, dict[str, Any]] = {}
+    measures = columns[groups:]
+    for row in rows:
+        out[tuple(row[:groups])] = dict(zip(measures, row[groups:]))
+    return _Rows(tuple(columns[:groups]), out)
+
+
+def compare_rows(before: _Rows, after: _Rows, measures: Sequence[tuple[str, str | None, str | None]],
+                 user: str | None = None) -> list[Difference]:
+    """Differences between two evaluations.
+
+    `measures`: (name shown, column in `before` or None, column in `after` or
+    None). Groups match by their values when both sides group by as many
+    columns; otherwise no group matches and each is shown on its side only.
+    """
+    from modeldiff.data import NO_MATCH
+
+    comparable = len(before.labels) == len(after.labels)
+    labels = after.labels if comparable else None
+
+    def keyed(rows: _Rows, side: str) -> dict[tuple, tuple[tuple, Mapping[str, Any]]]:
+        own = labels or rows.labels
+        return {(values if comparable else (side, values)): (tuple(zip(own, values)), by_measure)
+                for values, by_measure in rows.groups.items()}
+
+    old, new = keyed(before, "before"), keyed(after, "after")
+    out = []
+    for key in sorted(set(old) | set(new), key=lambda k: repr(k)):
+        group = (new.get(key) or old.get(key))[0]
+        no_match = any(v is NO_MATCH for _, v in group)
+        present = "both" if key in old and key in new else ("before" if key in old else "after")
+        for shown, old_col, new_col in measures:
+            b = old[key][1].get(old_col) if key in old and old_col is not None else None
+            a = new[key][1].get(new_col) if key in new and new_col is not None else None
+            if present == "both" and old_col is not None and new_col is not None and same_value(b, a):
+                continue
+            out.append(Difference(group, shown, b, a, present, user, no_match))
+    return out
+
+
+# --- what to evaluate ---------------------------------------------------------------------------------
+
+
+def default_attribute(table) -> tuple[str, ...]:
+    """The column(s) a measure is grouped by to show what a filter on `table` does.
+
+    The first column, in the model's order, that is not part of the table's
+    key and holds text or dates; else the key's columns.
+    """
+    for name, column in table.columns.items():
+        if name not in table.key and column.type in TEXT_TYPES:
+            return (name,)
+    return tuple(table.key) or tuple(table.columns)[:1]
+
+
+@dataclass(frozen=True)
+class _Item:
+    """One measure evaluation to make: grouped by `source`'s default attribute, under `role`, or a total."""
+
+    measure: str
+    source: str | None = None
+    role: str | None = None
+
+    def sort_key(self) -> tuple:
+        return (self.measure, self.role or "", self.source or "")
+
+
+def measure_items(result, impact) -> list[_Item]:
+    """The evaluations that show an impacted measure's reasons, one per distinct reason."""
+    changes = {c.id: c for c in result.changes}
+    items: set[_Item] = set()
+    for reason in impact.reasons:
+        change = changes.get(reason.change)
+        if change is not None and change.kind.startswith("security.") and change.subject.startswith("roles."):
+            items.add(_Item(impact.name, role=change.subject.split(".")[1]))
+        elif reason.source is not None:
+            items.add(_Item(impact.name, source=reason.source))
+        else:
+            items.add(_Item(impact.name))
+    return sorted(items, key=_Item.sort_key) or [_Item(impact.name)]
+
+
+@dataclass(frozen=True)
+class _Names:
+    """New names -> old names (renamed tables, measures, roles, reports)."""
+
+    tables: Mapping[str, str] = field(default_factory=dict)
+    measures: Mapping[str, str] = field(default_factory=dict)
+    roles: Mapping[str, str] = field(default_factory=dict)
+    reports: Mapping[str, str] = field(default_factory=dict)
+
+    @classmethod
+    def of(cls, result) -> "_Names":
+        from modeldiff.impact import Renames
+
+        r = Renames.of(result.changes)
+
+        def inverse(m: Mapping[str, str]) -> dict[str, str]:
+            return {new: old for old, new in m.items()}
+
+        return cls(inverse(r.tables), inverse(r.measures), inverse(r.roles), inverse(r.reports))
+
+    def column(self, text: str) -> str:
+        """`table.column` in the new names -> in the old names."""
+        table, _, column = text.partition(".")
+        return f"{self.tables.get(table, table)}.{column}"
+
+
+# --- the data -------------------------------------------------------------------------------------------
+
+
+@dataclass
+class _Data:
+    old: Any  # data.Database
+    new: Any
+    label: str
+
+    def close(self) -> None:
+        self.old.close()
+        if self.new is not self.old:
+            self.new.close()
+
+
+def loading_model(result):
+    """The new model as the data is loaded for it: keys and `unique` it newly declares are left to the preconditions.
+
+    Loading stops at data breaking a declared key (exit 2). What the change
+    itself newly declares is a precondition of the migration instead, so it
+    is checked there and reported with examples.
+    """
+    names = _Names.of(result)
+    tables = {}
+    for name, table in result.new.tables.items():
+        old = result.old.tables.get(names.tables.get(name, name))
+        if old is None:
+            tables[name] = table
+            continue
+        columns = {c: (replace(col, unique=False) if col.unique and not (c in old.columns and old.columns[c].unique)
+                       else col) for c, col in table.columns.items()}
+        key = table.key if tuple(table.key) == tuple(old.key) else ()
+        tables[name] = replace(table, columns=columns, key=key)
+    return replace(result.new, tables=tables)
+
+
+def open_data(md, data_dir: str | None, db_file: str | None) -> _Data:
+    """Both revisions' databases; one shared database when both read the same place with the same tables."""
+    from modeldiff.data import Database
+
+    result = md.result
+    if db_file is not None:
+        label = f"database {db_file}"
+    elif data_dir is not None:
+        label = f"folder {data_dir}"
+    else:
+        label = "the source: files named in the models"
+    for_new = loading_model(result)
+    shared = (data_dir is not None or db_file is not None) and result.old.tables == result.new.tables
+    new = Database.open(for_new, md.new.path, data_dir, db_file)
+    if shared:
+        return _Data(new, new, label)
+    try:
+        old = Database.open(result.old, md.old.path, data_dir, db_file)
+    except BaseException:
+        new.close()
+        raise
+    return _Data(old, new, label)
+
+
+# --- viewers of a role filtering on :user ---------------------------------------------------------------
+
+
+def _user_predicates(role) -> list[tuple[str, str]]:
+    from modeldiff import sql
+
+    out = []
+    for table, predicate in sorted(role.filters.items()):
+        try:
+            if sql.uses_user_parameter(predicate):
+                out.append((table, predicate))
+        except sql.SqlError:
+            continue
+    return out
+
+
+def viewers(roles: Sequence[Any], db, user: str | None) -> tuple[tuple[str | None, ...], str | None]:
+    """The values of :user to evaluate `roles` (the same role in each revision) for, and a note for people.
+
+    No role uses :user: (None,). --user given: that one. Otherwise the
+    distinct values of the column the filter compares with :user, in order,
+    at most VIEWER_CAP of them.
+    """
+    predicates = [p for role in roles if role is not None for p in _user_predicates(role)]
+    if not predicates:
+        return (None,), None
+    if user is not None:
+        return (user,), f"as seen by {user} (--user)"
+    from modeldiff import sql
+
+    table, predicate = predicates[-1]  # the new revision's, when it has one
+    columns = sorted({name for _, name in sql.column_refs(predicate)})
+    role_name = next(r.name for r in reversed(roles) if r is not None)
+    model_table = db.model.tables.get(table)
+    if len(columns) != 1 or model_table is None or columns[0] not in model_table.columns:
+        raise ModeldiffError(f"role {role_name} filters {table} on :user ({predicate}) in a way verify cannot list "
+                             "the viewers of; give one with --user EMAIL")
+    column = columns[0]
+    from modeldiff.engine import q
+
+    rows = db.connection.execute(f"SELECT DISTINCT {q(column)} FROM {q(table)} WHERE {q(column)} IS NOT NULL "
+                                 f"ORDER BY 1").fetchall()
+    values = tuple(str(r[0]) for r in rows)
+    shown = values[:VIEWER_CAP]
+    if not shown:
+        return (), (f"depends on the person viewing; {table}.{column} holds no value, so nobody sees anything "
+                    "(give --user EMAIL)")
+    extra = f" (the first {len(shown)} of {len(values)})" if len(values) > len(shown) else ""
+    return shown, (f"depends on the person viewing: evaluated for each value of {table}.{column}{extra}; "
+                   "give --user EMAIL for one person")
+
+
+# --- the evaluations ------------------------------------------------------------------------------------
+
+
+def compare_report(result, name: str, data: _Data, user: str | None) -> Comparison:
+    from modeldiff.data import evaluate_report
+
+    names = _Names.of(result)
+    old_name = names.reports.get(name, name)
+    new_report, old_report = result.new.reports.get(name), result.old.reports.get(old_name)
+    if new_report is None or old_report is None:
+        side = "new" if new_report is None else "old"
+        return Comparison("report", name, notes=(f"report {name} is not in the {side} revision: nothing to compare",))
+    old_role = result.old.roles.get(old_report.role) if old_report.role else None
+    new_role = result.new.roles.get(new_report.role) if new_report.role else None
+    who, note = viewers([old_role, new_role], data.new, user)
+    measures = [(m, names.measures.get(m, m) if names.measures.get(m, m) in old_report.measures else None, m)
+                for m in new_report.measures]
+    measures += [(m, m, None) for m in old_report.measures
+                 if m not in {names.measures.get(n, n) for n in new_report.measures}]
+    differences: list[Difference] = []
+    groups_before = groups_after = 0
+    for viewer in who:
+        before = evaluate_report(result.old, old_name, data.old, viewer)
+        after = evaluate_report(result.new, name, data.new, viewer)
+        groups_before += len(before.rows)
+        groups_after += len(after.rows)
+        differences += compare_rows(_rows_of(before.columns, before.rows, before.groups),
+                                    _rows_of(after.columns, after.rows, after.groups), measures,
+                                    viewer if viewer is not None and user is None else None)
+    return Comparison("report", name, tuple(new_report.by), differences=sort_differences(differences),
+                      groups_before=groups_before, groups_after=groups_after, notes=(note,) if note else ())
+
+
+def _measure_rows(model, measure: str, by: Sequence[str], role: str | None, db, user: str | None) -> _Rows:
+    from modeldiff.data import NO_MATCH
+    from modeldiff.engine import NO_MATCH_COLUMN, measure_query
+
+    query = measure_query(model, measure, by=tuple(by), role=role, user=user)
+    rows = db.run(query, f"measure {measure}")
+    columns = list(query.columns)
+    groups = len(by)
+    if columns and columns[-1] == NO_MATCH_COLUMN:
+        columns = columns[:-1]
+        rows = [((NO_MATCH,) * groups + tuple(r[groups:-1])) if r[-1] else tuple(r[:-1]) for r in rows]
+    return _rows_of(columns, rows, groups)
+
+
+def compare_measure(result, item: _Item, data: _Data, user: str | None) -> Comparison:
+    names = _Names.of(result)
+    name = item.measure
+    old_name = names.measures.get(name, name)
+    missing = [side for side, model, n in (("new", result.new, name), ("old", result.old, old_name))
+               if n not in model.measures]
+    base = Comparison("measure", name, source=item.source, role=item.role)
+    if missing:
+        return replace(base, notes=(f"measure {name} is not in the {missing[0]} revision: nothing to compare",))
+    by_new: tuple[str, ...] = ()
+    by_old: tuple[str, ...] = ()
+    if item.source is not None:
+        table = result.new.tables.get(item.source)
+        old_table = result.old.tables.get(names.tables.get(item.source, item.source))
+        if table is None or old_table is None:
+            return replace(base, notes=(f"table {item.source} is not in both revisions: measure {name} cannot be "
+                                        "grouped by it on both sides",))
+        attribute = default_attribute(table)
+        if not all(c in old_table.columns for c in attribute):
+            return replace(base, notes=(f"{item.source}.{'/'.join(attribute)} is not in the old revision: measure "
+                                        f"{name} cannot be grouped by it on both sides",))
+        by_new = tuple(f"{item.source}.{c}" for c in attribute)
+        by_old = tuple(f"{old_table.name}.{c}" for c in attribute)
+    who, note = ((None,), None)
+    old_role = names.roles.get(item.role, item.role) if item.role else None
+    if item.role is not None:
+        roles = [result.old.roles.get(old_role), result.new.roles.get(item.role)]
+        if None in roles:
+            return replace(base, notes=(f"role {item.role} is not in both revisions: measure {name} cannot be "
+                                        "compared under it",))
+        who, note = viewers(roles, data.new, user)
+    differences: list[Difference] = []
+    groups_before = groups_after = 0
+    for viewer in who:
+        before = _measure_rows(result.old, old_name, by_old, old_role, data.old, viewer or user)
+        after = _measure_rows(result.new, name, by_new, item.role, data.new, viewer or user)
+        groups_before += len(before.groups)
+        groups_after += len(after.groups)
+        differences += compare_rows(before, after, [(name, old_name, name)],
+                                    viewer if viewer is not None and user is None else None)
+    return replace(base, by=by_new, differences=sort_differences(differences), groups_before=groups_before,
+                   groups_after=groups_after, notes=(note,) if note else ())
+
+
+def role_tables(result, name: str) -> list[str]:
+    """Tables (new names) a role restricts in either revision, or that the diff names for it."""
+    from modeldiff import graph
+
+    names = _Names.of(result)
+    to_new = {old: new for new, old in names.tables.items()}
+    tables: set[str] = set()
+    new_role = result.new.roles.get(name)
+    old_role = result.old.roles.get(names.roles.get(name, name))
+    if new_role is not None:
+        tables |= set(graph.role_restricted(result.new, new_role))
+    if old_role is not None:
+        tables |= {to_new.get(t, t) for t in graph.role_restricted(result.old, old_role)}
+    impact = next((i for i in result.roles if i.name == name), None)
+    if impact is not None:
+        tables |= set(impact.exposed) | set(impact.tightened) | set(impact.rerouted)
+    return sorted(tables)
+
+
+def check_role(result, name: str, data: _Data, user: str | None) -> RoleCheck:
+    from modeldiff.engine import visible_rows_query
+
+    names = _Names.of(result)
+    old_name = names.roles.get(name, name)
+    new_role, old_role = result.new.roles.get(name), result.old.roles.get(old_name)
+    who, note = viewers([old_role, new_role], data.new, user)
+    notes = [note] if note else []
+    rows: list[RoleRows] = []
+    for table in role_tables(result, name):
+        old_table = names.tables.get(table, table)
+        for viewer in who:
+            before = after = None
+            if old_role is not None and old_table in result.old.tables:
+                before = data.old.run(visible_rows_query(result.old, old_table, old_name, user=viewer),
+                                      f"role {old_name} on {old_table}")[0][0]
+            if new_role is not None and table in result.new.tables:
+                after = data.new.run(visible_rows_query(result.new, table, name, user=viewer),
+                                     f"role {name} on {table}")[0][0]
+            rows.append(RoleRows(table, before, after, viewer if user is None else None))
+    if new_role is None or old_role is None:
+        notes.append(f"role {name} is not in the {'new' if new_role is None else 'old'} revision")
+    return RoleCheck(name, tuple(rows), tuple(notes))
+
+
+# --- preconditions (the check-data steps of modeldiff plan) --------------------------------------------
+
+
+@dataclass(frozen=True)
+class _Test:
+    check: str
+    subject: str
+    why: str
+    sql: str  # the builder's SQL, for people
+    count: str  # SQL returning the number of offending rows
+    examples: str | None  # SQL returning a few offending rows
+
+
+def _rows_test(check: str, subject: str, why: str, text: str, total: str | None = None) -> _Test:
+    """A test whose SQL returns the offending rows (or groups)."""
+    count = total or f"SELECT count(*) FROM ({text}) AS _q"
+    return _Test(check, subject, why, text, count, f"SELECT * FROM ({text}) AS _q ORDER BY ALL LIMIT {EXAMPLES}")
+
+
+def _count_test(check: str, subject: str, why: str, text: str, shown: Sequence[str]) -> _Test:
+    """A test whose SQL counts the offending rows; examples show `shown` columns of them."""
+    prefix = "select count(*) from "
+    examples = None
+    if text.startswith(prefix):
+        examples = f"SELECT DISTINCT {', '.join(shown)} FROM {text[len(prefix):]} ORDER BY ALL LIMIT {EXAMPLES}"
+    return _Test(check, subject, why, text, text, examples)
+
+
+def precondition_tests(md) -> list[_Test]:
+    """The data checks `modeldiff plan` lists for this change, as runnable tests."""
+    from modeldiff import plan
+
+    new = md.result.new
+    tests: list[_Test] = []
+    for step in plan.build_plan(md).steps:
+        if step.kind != "check-data":
+            continue
+        why = step.preconditions[-1] if step.preconditions else step.title
+        parts = step.subject.split(".")
+        if parts[0] == "tables" and len(parts) >= 4 and parts[2] == "unique" and parts[1] in new.tables:
+            table, columns = parts[1], parts[3:]
+            text = plan.sql_duplicates(table, columns)
+            alias = ", ".join([f'"{c}"' for c in columns] + ['"rows"'])
+            total = f'SELECT coalesce(sum("rows"), 0) FROM ({text}) AS _d({alias})'
+            test = _rows_test("unique", f"tables.{table}.columns.{'.'.join(columns)}", why, text, total)
+            tests.append(replace(test, examples=f"SELECT * FROM ({text}) AS _d({alias}) ORDER BY ALL LIMIT {EXAMPLES}"))
+        elif parts[0] == "links" and parts[-1] == "carries" and parts[1] in new.links:
+            link = new.links[parts[1]]
+            table = new.tables.get(link.from_table)
+            key = [c for c in (table.key if table else ()) if c not in link.from_columns]
+            shown = key + list(link.from_columns)
+            tests.append(_count_test("not-null", f"links.{link.name}", why,
+                                     plan.sql_nulls(link.from_table, link.from_columns), shown))
+            tests.append(_count_test("referential-integrity", f"links.{link.name}", why,
+                                     plan.sql_orphans(link.from_table, link.from_columns, link.to_table,
+                                                      link.to_columns), [f"f.{c}" for c in shown]))
+        elif parts[0] == "tables" and parts[-1] == "history" and parts[1] in new.tables:
+            table = new.tables[parts[1]]
+            h = table.history
+            if h is None or not table.natural_key or not table.key or h.valid_from is None or h.valid_to is None:
+                continue
+            tests.append(_rows_test("no-overlapping-versions", f"tables.{table.name}", why,
+                                    plan.sql_overlapping_versions(table.name, table.natural_key, table.key,
+                                                                  h.valid_from, h.valid_to)))
+            tests.append(_rows_test("one-current-row", f"tables.{table.name}", why,
+                                    plan.sql_current_rows(table.name, table.natural_key, h.current, h.valid_to)))
+    return tests
+
+
+def run_test(test: _Test, db) -> Precondition:
+    import duckdb
+
+    try:
+        offending = int(db.connection.execute(test.count).fetchone()[0] or 0)
+        examples: list[dict] = []
+        if offending and test.examples:
+            cursor = db.connection.execute(test.examples)
+            names = [d[0] for d in cursor.description]
+            examples = [dict(zip(names, row)) for row in cursor.fetchall()]
+    except duckdb.Error as error:
+        first = (str(error).strip().splitlines() or [type(error).__name__])[0]
+        raise ModeldiffError(f"cannot check {test.check} of {test.subject} on the data: {first}") from None
+    return Precondition(test.check, test.subject, offending == 0, offending, tuple(examples), test.why, test.sql)
+
+
+# --- the whole verification -------------------------------------------------------------------------------
+
+
+class _Progress:
+    """A progress bar on stderr when it is a terminal; nothing otherwise."""
+
+    def __init__(self, total: int, stream: TextIO | None = None) -> None:
+        self.stream = stream if stream is not None else sys.stderr
+        self.bar = None
+        if total > 1 and hasattr(self.stream, "isatty") and self.stream.isatty():
+            from rich.console import Console
+            from rich.progress import BarColumn, MofNCompleteColumn, Progress, TextColumn
+
+            self.bar = Progress(TextColumn("{task.description}"), BarColumn(), MofNCompleteColumn(),
+                                console=Console(file=self.stream), transient=True)
+            self.task = self.bar.add_task("verifying", total=total)
+            self.bar.start()
+
+    def __call__(self, label: str, work: Callable[[], Any]) -> Any:
+        if self.bar is not None:
+            self.bar.update(self.task, description=label)
+        try:
+            return work()
+        finally:
+            if self.bar is not None:
+                self.bar.advance(self.task)
+
+    def close(self) -> None:
+        if self.bar is not None:
+            self.bar.stop()
+
+
+def verify(md, data_dir: str | None = None, db_file: str | None = None, user: str | None = None,
+           progress_stream: TextIO | None = None) -> Verification:
+    """Evaluate what `md` (a compare.ModelDiff) says is impacted, on the data; raises ModeldiffError on bad input."""
+    result = md.result
+    data = open_data(md, data_dir, db_file)
+    try:
+        items = [item for impact in result.measures for item in measure_items(result, impact)]
+        tests = precondition_tests(md)
+        total = len(result.reports) + len(items) + len(result.roles) + len(tests)
+        step = _Progress(total, progress_stream)
+        try:
+            reports = tuple(step(f"report {i.name}", lambda i=i: compare_report(result, i.name, data, user))
+                            for i in result.reports)
+            measures = tuple(step(f"measure {it.measure}", lambda it=it: compare_measure(result, it, data, user))
+                             for it in items)
+            roles = tuple(step(f"role {i.name}", lambda i=i: check_role(result, i.name, data, user))
+                          for i in result.roles)
+            preconditions = tuple(step(f"{t.check} {t.subject}", lambda t=t: run_test(t, data.new)) for t in tests)
+        finally:
+            step.close()
+    finally:
+        data.close()
+    return Verification(md, data.label, reports, measures, roles, preconditions)
+
+
+# --- the command ----------------------------------------------------------------------------------------
+
+
+def configure(parser) -> None:
+    parser.add_argument("old", metavar="OLD", help="the old revision: model file, NAME.model/ folder, or REV:PATH")
+    parser.add_argument("new", metavar="NEW", help="the new revision, as OLD")
+    where = parser.add_mutually_exclusive_group()
+    where.add_argument("--data", metavar="DIR", help="folder holding <table>.parquet or <table>.csv "
+                                                     "(default: each table's source: in the model)")
+    where.add_argument("--db", metavar="FILE", help="a DuckDB database file holding one table per model table")
+    parser.add_argument("--format", choices=FORMATS, default="text")
+    parser.add_argument("--user", metavar="EMAIL", help="the person viewing, for roles and reports filtering on :user")
+    parser.add_argument("--limit", metavar="N", type=int, default=DEFAULT_LIMIT,
+                        help=f"differences listed per report or measure (default {DEFAULT_LIMIT}; 0: all)")
+
+
+def run(args, stdout: TextIO) -> int:
+    """Verify, print, and exit 0 (nothing moved), 1 (numbers moved), 3 (precondition failed or rows exposed)."""
+    from modeldiff import compare
+    from modeldiff.render import verify_out
+
+    if args.limit is not None and args.limit < 0:
+        raise ModeldiffError(f"--limit {args.limit}: give 0 (list every difference) or a positive number")
+    md = compare.compare_specs(args.old, args.new)
+    verification = verify(md, args.data, args.db, args.user)
+    render = {"json": verify_out.as_json, "markdown": verify_out.as_markdown}.get(args.format, verify_out.as_text)
+    render(verification, stdout, limit=args.limit)
+    return verification.exit_code
