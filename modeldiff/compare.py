@@ -31,30 +31,51 @@ def read_model(spec: str):
     """(label, LoadResult) for a path on disk or a `REV:PATH` spec."""
     from modeldiff import load
 
+    return spec, load.load_files(_spec_files(spec))
+
+
+def _spec_files(spec: str):
+    """The (display name, content) pairs of a path on disk or a `REV:PATH` spec, not yet parsed."""
+    from modeldiff import load
+
     if os.path.exists(spec):
-        return spec, load.load_path(spec)
+        return load.path_files(spec)
     if ":" in spec:
         from modeldiff import git
 
-        source = git.read_spec(spec)
-        return spec, load.load_files(source.files)
+        return git.read_spec(spec).files
     raise ModeldiffError(f"{spec}: no such file or folder; give a model file, a NAME.model/ folder, or REV:PATH")
 
 
+def compare_specs(old_spec: str, new_spec: str, use_cache: bool = True) -> ModelDiff:
+    """Compare two models given as paths or REV:PATH.
 
-def compare_specs(old_spec: str, new_spec: str) -> ModelDiff:
-    """Compare two models given as paths or REV:PATH."""
-    result = _diff_pair(old_spec, new_spec, (old_spec, None), (new_spec, None))
+    `use_cache=False` (or MODELDIFF_NO_CACHE=1) reads and compares afresh
+    without looking at or writing the cache (modeldiff/cache.py).
+    """
+    from modeldiff import load
+
+    old_files = _spec_files(old_spec)
+    try:
+        new_files = _spec_files(new_spec)
+    except ModeldiffError:
+        load.load_files(old_files)  # a broken old model is reported first, as it is read first
+        raise
+    result = _compare_files(old_files, new_files, use_cache, ".")
     return ModelDiff(Side(*_split_side(old_spec)), Side(*_split_side(new_spec)), result)
 
 
-def compare_revisions(root: str, base: str, head: str | None, paths: list[str] | None = None) -> list[ModelDiff]:
-    """Every model of the repository (or `paths`) at `base` against `head` (None: the working tree)."""
+def compare_revisions(root: str, base: str, head: str | None, paths: list[str] | None = None,
+                      use_cache: bool = True) -> list[ModelDiff]:
+    """Every model of the repository (or `paths`) at `base` against `head` (None: the working tree).
+
+    `use_cache` as in `compare_specs`; entries live in the repository's git folder.
+    """
     from modeldiff import git
 
     if paths is None:
         paths = sorted(set(git.list_models(root, base)) | set(git.list_models(root, head)))
-    return _diff_revisions(root, base, head, paths)
+    return _diff_revisions(root, base, head, paths, use_cache)
 
 
 def _empty_model(name: str):
@@ -63,23 +84,65 @@ def _empty_model(name: str):
     return Model(name=name, tables={})
 
 
-def _diff_pair(old_spec: str | None, new_spec: str | None, old_side, new_side):
-    """One ModelDiff; a side that is None is a model absent there (whole-model addition or removal)."""
-    from modeldiff import impact, load
+class _Revision:
+    """One side of a comparison: its files, loaded at most once."""
 
-    def side(spec, source):
-        if source is not None:
-            return load.load_files(source.files)
-        if spec is not None:
-            return read_model(spec)[1]
-        return None
+    def __init__(self, files) -> None:
+        self.files = files
+        self._loaded = None
 
-    old_result, new_result = side(*old_side), side(*new_side)
+    def loaded(self):
+        if self._loaded is None:
+            from modeldiff import load
+
+            self._loaded = load.load_files(self.files)
+        return self._loaded
+
+
+def _compare_files(old_files, new_files, use_cache: bool, where: str, old=None, new=None):
+    """The DiffResult of two revisions' files (None: the model is absent on that side), through the cache."""
+    from modeldiff import cache
+
+    old = old if old is not None else (_Revision(old_files) if old_files is not None else None)
+    new = new if new is not None else (_Revision(new_files) if new_files is not None else None)
+    if not cache.enabled(use_cache):
+        return _analyse(old, new, None, None)
+    folder = cache.directory(where)
+    old_key = cache.revision_key(old.files) if old is not None else None
+    new_key = cache.revision_key(new.files) if new is not None else None
+    pair = cache.pair_key(old_key, new_key)
+    found = cache.load_pair(folder, pair, old.files if old else None, new.files if new else None)
+    if found is not None:
+        return found
+    if old is not None:
+        old.loaded()  # the old model is read (and any error in it reported) first
+    checked = []
+    for revision, key in ((old, old_key), (new, new_key)):
+        known = cache.load_revision(folder, key) if key is not None else None
+        if known is None and revision is not None:
+            from modeldiff import check
+
+            result = revision.loaded()
+            known = tuple(check.check_model(result.model, result.findings, graph_rules=False))
+            cache.store_revision(folder, key, known)
+        checked.append(known)
+    result = _analyse(old, new, *checked)
+    cache.store_pair(folder, pair, result)
+    return result
+
+
+def _analyse(old, new, old_checked, new_checked):
+    """impact.analyse of two sides; a side that is None is a model absent there (whole-model addition or removal)."""
+    from modeldiff import impact
+
+    old_result = old.loaded() if old is not None else None
+    new_result = new.loaded() if new is not None else None
     name = (new_result or old_result).model.name
-    old_model = old_result.model if old_result else _empty_model(name)
-    new_model = new_result.model if new_result else _empty_model(name)
-    return impact.analyse(old_model, new_model, old_result.findings if old_result else (),
-                          new_result.findings if new_result else ())
+    return impact.analyse(old_result.model if old_result else _empty_model(name),
+                          new_result.model if new_result else _empty_model(name),
+                          old_result.findings if old_result else (), new_result.findings if new_result else (),
+                          old_checked=old_checked if old_result else None,
+                          new_checked=new_checked if new_result else None)
 
 
 def _split_side(spec: str) -> tuple[str | None, str]:
@@ -89,27 +152,30 @@ def _split_side(spec: str) -> tuple[str | None, str]:
     return None, spec
 
 
-def _diff_revisions(root: str, base: str, head: str | None, paths: list[str]):
+def _diff_revisions(root: str, base: str, head: str | None, paths: list[str], use_cache: bool = True):
     """ModelDiffs for `paths` between two revisions; a model moved to another path is paired by its name."""
-    from modeldiff import git, impact, load
+    from modeldiff import git
 
     pairs: list[tuple[str | None, str | None]] = []
-    old_only: dict[str, object] = {}
-    new_only: dict[str, object] = {}
-    loaded: dict[tuple[str, str | None], object] = {}
+    old_only: dict[str, _Revision] = {}
+    new_only: dict[str, _Revision] = {}
+    sides: dict[tuple[str, str | None], _Revision] = {}
+    done: dict[tuple[str | None, str | None], object] = {}
     for path in paths:
         old_source, new_source = git.read_at(root, base, path), git.read_at(root, head, path)
         if old_source is None and new_source is None:
             raise ModeldiffError(f"{path}: not found at {base} nor at {head or 'the working tree'}; check the path")
         for side, source in (("old", old_source), ("new", new_source)):
             if source is not None:
-                loaded[(side, path)] = load.load_files(source.files)
+                sides[(side, path)] = _Revision(source.files)
         if old_source is not None and new_source is not None:
-            pairs.append((path, path))
+            pairs.append((path, path))  # compared now: its revisions are read (or found in the cache) in path order
+            done[(path, path)] = _compare_files(old_source.files, new_source.files, use_cache, root,
+                                                sides[("old", path)], sides[("new", path)])
         elif old_source is not None:
-            old_only[path] = loaded[("old", path)]
+            old_only[path] = sides[("old", path)].loaded()
         else:
-            new_only[path] = loaded[("new", path)]
+            new_only[path] = sides[("new", path)].loaded()
     # a model present only at an old path and only at a new path, under the same name, was moved
     by_name_new: dict[str, list[str]] = {}
     for path, result in new_only.items():
@@ -124,12 +190,11 @@ def _diff_revisions(root: str, base: str, head: str | None, paths: list[str]):
 
     out = []
     for old_path, new_path in sorted(pairs, key=lambda p: (p[1] or p[0], p[0] or "")):
-        old_result = loaded.get(("old", old_path)) if old_path else None
-        new_result = loaded.get(("new", new_path)) if new_path else None
-        name = (new_result or old_result).model.name
-        result = impact.analyse(old_result.model if old_result else _empty_model(name),
-                                new_result.model if new_result else _empty_model(name),
-                                old_result.findings if old_result else (), new_result.findings if new_result else ())
+        old = sides.get(("old", old_path)) if old_path else None
+        new = sides.get(("new", new_path)) if new_path else None
+        result = done.get((old_path, new_path))
+        if result is None:
+            result = _compare_files(old.files if old else None, new.files if new else None, use_cache, root, old, new)
         out.append(ModelDiff(Side(base, old_path or new_path), Side(head, new_path or old_path), result))
     return out
 

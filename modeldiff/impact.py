@@ -953,14 +953,22 @@ def _dedupe(reasons: list[Reason]) -> list[Reason]:
 # --- entry point ------------------------------------------------------------------------------
 
 
-def analyse(old: Model, new: Model, old_findings: Iterable[Finding] = (), new_findings: Iterable[Finding] = ()) -> DiffResult:
-    """Everything `modeldiff diff` reports about two revisions."""
+def analyse(old: Model, new: Model, old_findings: Iterable[Finding] = (), new_findings: Iterable[Finding] = (), *,
+            old_checked: Iterable[Finding] | None = None, new_checked: Iterable[Finding] | None = None) -> DiffResult:
+    """Everything `modeldiff diff` reports about two revisions.
+
+    `old_checked`/`new_checked`: the revisions' findings from
+    `check.check_model(model, findings, graph_rules=False)` when already
+    known (compare.py keeps them in its cache); computed here otherwise.
+    """
     from modeldiff import check, diff
 
     structural = diff.diff_models(old, new)
     a = _Analysis(old, new, structural)
-    old_checked = check.check_model(old, old_findings, graph_rules=False)
-    new_checked = check.check_model(new, new_findings, graph_rules=False)
+    if old_checked is None:
+        old_checked = check.check_model(old, old_findings, graph_rules=False)
+    if new_checked is None:
+        new_checked = check.check_model(new, new_findings, graph_rules=False)
     derived = _derived_graph_changes(a) + _security_changes(a) + _reference_changes(old_checked, new_checked)
     changes = sorted(structural + derived, key=Change.sort_key)
     changes = [replace(c, id=f"c{i}") for i, c in enumerate(changes, 1)]

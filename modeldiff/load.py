@@ -79,14 +79,19 @@ class LoadResult:
 
 def load_path(path: str | os.PathLike) -> LoadResult:
     """Load a NAME.model.yaml file or a NAME.model/ folder of *.yaml/*.yml files."""
+    return load_files(path_files(path))
+
+
+def path_files(path: str | os.PathLike) -> list[tuple[str, bytes]]:
+    """The (display name, content) pairs `load_path` reads: the file, or the folder's YAML files."""
     shown = os.fspath(path)
     if not os.path.exists(shown):
         raise ModeldiffError(
             f"{shown}: no such file or folder; give the path of a NAME.model.yaml file or a NAME.model/ folder"
         )
     if os.path.isdir(shown):
-        return load_files(_folder_files(shown))
-    return load_files([(shown, _read_file(shown))])
+        return _folder_files(shown)
+    return [(shown, _read_file(shown))]
 
 
 def load_files(files: Sequence[tuple[str, bytes | str]]) -> LoadResult:
