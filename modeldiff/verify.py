@@ -23,6 +23,7 @@ docs/verify.md says more.
 from __future__ import annotations
 
 import math
+import re
 import sys
 from dataclasses import dataclass, field, replace
 from datetime import date, datetime
@@ -38,6 +39,10 @@ VIEWER_CAP = 5  # viewers tried for a role filtering on :user when --user is not
 EXAMPLES = 3  # offending rows shown per failed precondition
 FLOAT_TOLERANCE = 1e-9  # relative: two floating-point values this close are the same number
 TEXT_TYPES = ("text", "date")  # types a default grouping attribute may have
+# What `offending` counts, per precondition check.
+OFFENDING_UNITS = {"unique": "rows", "not-null": "rows", "referential-integrity": "rows",
+                   "no-overlapping-versions": "pairs of versions", "one-current-row": "members"}
+_ORDERING = re.compile(r"^s\d+ done \(")  # a plan step's "after step N" precondition, not about data
 
 
 # --- records ------------------------------------------------------------------------------------------
@@ -640,7 +645,7 @@ def precondition_tests(md) -> list[_Test]:
     for step in plan.build_plan(md).steps:
         if step.kind != "check-data":
             continue
-        why = step.preconditions[-1] if step.preconditions else step.title
+        why = "; ".join(p for p in step.preconditions if not _ORDERING.match(p)) or step.title
         parts = step.subject.split(".")
         if parts[0] == "tables" and len(parts) >= 4 and parts[2] == "unique" and parts[1] in new.tables:
             table, columns = parts[1], parts[3:]

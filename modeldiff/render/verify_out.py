@@ -11,7 +11,7 @@ import json
 from decimal import Decimal
 from typing import Any, Sequence, TextIO
 
-from modeldiff.verify import Comparison, Difference, Precondition, RoleCheck, Verification, json_value
+from modeldiff.verify import OFFENDING_UNITS, Comparison, Difference, Precondition, RoleCheck, Verification, json_value
 
 ABSENT = "(absent)"  # a group the revision does not show
 VERDICTS = {0: "nothing moved", 1: "numbers moved", 3: "a precondition fails or a role sees more rows"}
@@ -228,7 +228,7 @@ def as_text(v: Verification, stream: TextIO, limit: int = 0) -> None:
         if p.passed:
             line(f"  PASS {p.check} {p.subject}")
             continue
-        line(f"  FAIL {p.check} {p.subject}: {p.offending} offending", "red")
+        line(f"  FAIL {p.check} {p.subject}: {p.offending} offending {OFFENDING_UNITS.get(p.check, 'rows')}", "red")
         line(f"    {p.why}")
         for example in p.examples:
             line(f"    e.g. {example_text(example)}")
@@ -283,7 +283,7 @@ def as_markdown(v: Verification, stream: TextIO, limit: int = 0) -> None:
         if p.passed:
             lines.append(f"- pass: `{p.check}` `{p.subject}`")
             continue
-        lines.append(f"- **FAIL**: `{p.check}` `{p.subject}`: {p.offending} offending. {_md(p.why)}")
+        lines.append(f"- **FAIL**: `{p.check}` `{p.subject}`: {p.offending} offending {OFFENDING_UNITS.get(p.check, 'rows')}. {_md(p.why)}")
         lines += [f"  - e.g. {_md(example_text(e))}" for e in p.examples]
         lines.append(f"  - `{_md(p.sql)}`")
     stream.write("\n".join(lines) + "\n")
