@@ -1,0 +1,19 @@
+"""benchmarks/run.py --smoke runs every step on a tiny model (no timing is asserted)."""
+
+from __future__ import annotations
+
+import subprocess
+import sys
+from pathlib import Path
+
+ROOT = Path(__file__).resolve().parent.parent
+
+
+def test_benchmark_smoke_run_prints_the_ratio_lines():
+    done = subprocess.run([sys.executable, str(ROOT / "benchmarks" / "run.py"), "--smoke"],
+                          capture_output=True, text=True, timeout=300, cwd=ROOT)
+    assert done.returncode == 0, done.stderr
+    ratios = [line for line in done.stdout.splitlines() if line.startswith("ratio ")]
+    assert [line.split(":")[0] for line in ratios] == [
+        "ratio diff, one link flipped", "ratio check", "ratio repeated diff, warm cache"]
+    assert all("json.loads of both revisions" in line for line in ratios)

@@ -1,0 +1,190 @@
+"""The cache of compared revisions (modeldiff/cache.py) and compare.py's use of it."""
+
+from __future__ import annotations
+
+import io
+import os
+import pickle
+import threading
+from pathlib import Path
+
+import pytest
+
+from modeldiff import cache, compare
+from modeldiff.render import diff_out
+
+ROOT = Path(__file__).resolve().parent.parent
+OLD = ROOT / "examples" / "bikeshare.model.yaml"
+NEW = ROOT / "examples" / "revision-2" / "bikeshare.model.yaml"
+
+
+@pytest.fixture
+def folder(tmp_path, monkeypatch):
+    where = tmp_path / "cache"
+    monkeypatch.setenv(cache.DIR_ENV, str(where))
+    monkeypatch.delenv(cache.NO_CACHE_ENV, raising=False)
+    return where
+
+
+def _json(md) -> str:
+    out = io.StringIO()
+    diff_out.as_json([md], out)
+    return out.getvalue()
+
+
+def _pairs(folder: Path) -> list[Path]:
+    return sorted(folder.glob("pair-*" + cache.SUFFIX)) if folder.exists() else []
+
+
+def test_a_repeated_diff_comes_from_the_cache_and_says_the_same(folder):
+    fresh = compare.compare_specs(str(OLD), str(NEW), use_cache=False)
+    assert not _pairs(folder)  # use_cache=False neither reads nor writes
+    first = compare.compare_specs(str(OLD), str(NEW))
+    assert len(_pairs(folder)) == 1
+    again = compare.compare_specs(str(OLD), str(NEW))
+    assert isinstance(again.result.new.tables, cache._Section)  # read from the cache: no YAML parsed yet
+    assert _json(again) == _json(first) == _json(fresh)
+    assert again.result == fresh.result  # the models too, read from the files on first use
+
+
+def test_a_diff_not_seen_before_is_computed(folder):
+    compare.compare_specs(str(OLD), str(NEW))
+    other = compare.compare_specs(str(NEW), str(OLD))
+    assert not isinstance(other.result.new.tables, cache._Section)
+    assert len(_pairs(folder)) == 2
+
+
+def test_environment_switch_turns_the_cache_off(folder, monkeypatch):
+    monkeypatch.setenv(cache.NO_CACHE_ENV, "1")
+    compare.compare_specs(str(OLD), str(NEW))
+    assert not _pairs(folder)
+    monkeypatch.setenv(cache.NO_CACHE_ENV, "0")
+    compare.compare_specs(str(OLD), str(NEW))
+    assert len(_pairs(folder)) == 1
+
+
+def test_changed_content_gets_a_new_key(tmp_path):
+    files = [("m.model.yaml", OLD.read_bytes())]
+    same = [("m.model.yaml", OLD.read_bytes())]
+    edited = [("m.model.yaml", OLD.read_bytes() + b"\n# a comment\n")]
+    renamed = [("n.model.yaml", OLD.read_bytes())]
+    assert cache.revision_key(files) == cache.revision_key(same)
+    assert cache.revision_key(files) != cache.revision_key(edited)
+    assert cache.revision_key(files) != cache.revision_key(renamed)  # display names appear in positions
+    assert cache.pair_key("a", "b") != cache.pair_key("b", "a")
+    assert cache.pair_key(None, "b") != cache.pair_key("b", None)
+
+
+@pytest.mark.parametrize("damage", ["truncate", "flip", "header", "foreign"])
+def test_a_damaged_entry_is_rebuilt_not_trusted(folder, damage):
+    first = compare.compare_specs(str(OLD), str(NEW))
+    (entry,) = _pairs(folder)
+    blob = entry.read_bytes()
+    if damage == "truncate":
+        entry.write_bytes(blob[: len(blob) // 2])
+    elif damage == "flip":
+        entry.write_bytes(blob[:-10] + bytes([blob[-10] ^ 0xFF]) + blob[-9:])
+    elif damage == "header":
+        entry.write_bytes(blob.replace(cache.MAGIC, b"something-else", 1))
+    else:  # a well-formed entry whose payload builds something that is not a modeldiff record
+        payload = pickle.dumps({"format": cache.FORMAT, "call": os.system})  # a function: refused by the unpickler
+        entry.write_bytes(cache._header(payload) + payload)
+    again = compare.compare_specs(str(OLD), str(NEW))
+    assert not isinstance(again.result.new.tables, cache._Section)  # computed afresh
+    assert _json(again) == _json(first)
+    assert entry.read_bytes() == blob  # removed and written again whole
+
+
+def test_an_entry_of_another_tool_version_is_not_used(folder, monkeypatch):
+    compare.compare_specs(str(OLD), str(NEW))
+    monkeypatch.setattr(cache, "_FINGERPRINT", "another version")
+    again = compare.compare_specs(str(OLD), str(NEW))
+    assert not isinstance(again.result.new.tables, cache._Section)
+
+
+def test_the_unpickler_builds_only_modeldiff_records():
+    with pytest.raises(pickle.UnpicklingError):
+        cache._Unpickler(io.BytesIO(pickle.dumps(os.system))).load()
+    from modeldiff.model import Pos
+
+    assert cache._Unpickler(io.BytesIO(pickle.dumps({"p": Pos("f", 1, 2)}))).load() == {"p": Pos("f", 1, 2)}
+
+
+def test_eviction_keeps_the_most_recently_used(tmp_path):
+    for index in range(6):
+        assert cache.write(str(tmp_path), "pair", f"k{index}", {"n": index})
+        os.utime(tmp_path / f"pair-k{index}{cache.SUFFIX}", (1000 + index, 1000 + index))
+    assert cache.read(str(tmp_path), "pair", "k0") == {"n": 0}  # read: now the most recent
+    assert cache.evict(str(tmp_path), max_entries=3) == 3
+    left = sorted(p.name for p in tmp_path.glob("*" + cache.SUFFIX))
+    assert left == [f"pair-k{i}{cache.SUFFIX}" for i in (0, 4, 5)]
+    assert cache.evict(str(tmp_path), max_entries=3) == 0  # within the limits: nothing goes
+    assert cache.evict(str(tmp_path), max_entries=10, max_bytes=1) == 3  # over the size limit
+
+
+def test_concurrent_writers_leave_one_whole_entry(tmp_path):
+    values = [{"n": i, "pad": "x" * 50_000} for i in range(8)]
+    threads = [threading.Thread(target=cache.write, args=(str(tmp_path), "pair", "same", v)) for v in values]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    assert cache.read(str(tmp_path), "pair", "same") in values
+    assert [p.name for p in tmp_path.iterdir()] == [f"pair-same{cache.SUFFIX}"]  # no temporary file left
+
+
+def test_an_unwritable_folder_only_turns_the_cache_off(tmp_path, monkeypatch):
+    blocker = tmp_path / "not-a-folder"
+    blocker.write_text("x")
+    monkeypatch.setenv(cache.DIR_ENV, str(blocker / "cache"))
+    monkeypatch.delenv(cache.NO_CACHE_ENV, raising=False)
+    result = compare.compare_specs(str(OLD), str(NEW))
+    assert result.result.changes
+
+
+def test_cache_folder_is_inside_the_git_folder(tmp_path, monkeypatch):
+    monkeypatch.delenv(cache.DIR_ENV, raising=False)
+    (tmp_path / "repo" / ".git").mkdir(parents=True)
+    (tmp_path / "repo" / "models").mkdir()
+    assert cache.directory(tmp_path / "repo" / "models") == str(tmp_path / "repo" / ".git" / "modeldiff-cache")
+    (tmp_path / "linked").mkdir()
+    (tmp_path / "linked" / ".git").write_text("gitdir: ../repo/.git/worktrees/linked\n")
+    assert cache.directory(tmp_path / "linked") == os.path.normpath(
+        str(tmp_path / "repo" / ".git" / "worktrees" / "linked" / "modeldiff-cache"))
+
+
+def test_cache_folder_outside_a_repository_is_the_users(tmp_path, monkeypatch):
+    monkeypatch.delenv(cache.DIR_ENV, raising=False)
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
+    assert cache.git_dir(tmp_path) is None
+    assert cache.directory(tmp_path) == str(tmp_path / "xdg" / "modeldiff")
+
+
+def test_revisions_compared_through_git_use_the_cache(tmp_path, monkeypatch):
+    import subprocess
+
+    monkeypatch.delenv(cache.DIR_ENV, raising=False)
+    monkeypatch.delenv(cache.NO_CACHE_ENV, raising=False)
+    repo = tmp_path / "repo"
+    repo.mkdir()
+    env = {**os.environ, "GIT_AUTHOR_NAME": "t", "GIT_AUTHOR_EMAIL": "t@example.invalid",
+           "GIT_COMMITTER_NAME": "t", "GIT_COMMITTER_EMAIL": "t@example.invalid"}
+    for variable in ("GIT_DIR", "GIT_WORK_TREE", "GIT_INDEX_FILE"):
+        env.pop(variable, None)
+
+    def git(*args):
+        subprocess.run(["git", *args], cwd=repo, env=env, check=True, capture_output=True)
+
+    git("init", "-q")
+    (repo / "bikeshare.model.yaml").write_bytes(OLD.read_bytes())
+    git("add", ".")
+    git("commit", "-q", "-m", "one")
+    (repo / "bikeshare.model.yaml").write_bytes(NEW.read_bytes())
+    git("commit", "-q", "-am", "two")
+    fresh = compare.compare_revisions(str(repo), "HEAD~1", "HEAD", use_cache=False)
+    assert not (repo / ".git" / "modeldiff-cache").exists()
+    first = compare.compare_revisions(str(repo), "HEAD~1", "HEAD")
+    assert len(_pairs(repo / ".git" / "modeldiff-cache")) == 1
+    again = compare.compare_revisions(str(repo), "HEAD~1", "HEAD")
+    assert isinstance(again[0].result.new.tables, cache._Section)
+    assert [_json(d) for d in again] == [_json(d) for d in first] == [_json(d) for d in fresh]
