@@ -64,7 +64,7 @@ from dataclasses import dataclass, field
 from typing import Callable, Iterable, Mapping, Sequence
 
 from modeldiff.errors import ModeldiffError
-from modeldiff.model import Link, Measure, Model, Overrides, Report, Role
+from modeldiff.model import Link, Measure, Model, Overrides, Report
 
 NO_MATCH_COLUMN = "_no_match"  # last column of a grouped query: true on the (no match) row
 ROWS_COLUMN = "rows"
@@ -638,9 +638,13 @@ class _Compiler:
         outputs += [f"{self._measure_sql(name, report_layers, terms)} AS {q(name)}" for name in measure_names]
         if not sources:
             row = ", ".join(f"(SELECT {q('_value')} FROM {q(values[k].value)}) AS {q(f'_m{k}')}"
-                            for k in range(len(terms)))
+                            for k in range(len(terms))) or "1 AS _one"
             final = f"SELECT {', '.join(outputs)}\nFROM (SELECT {row}) AS _v"
             return self.plan.query(final, columns, self.params)
+        if not terms:  # derived measures over no base measure see no row of any table: no group
+            nothing = ", ".join([f"NULL AS {t}" for t in tag_cols] + [f"false AS {q(NO_MATCH_COLUMN)}"])
+            final = f"SELECT {', '.join(outputs)}, {q(NO_MATCH_COLUMN)}\nFROM (SELECT {nothing}) AS _v WHERE false"
+            return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
         combos = self.plan.relation("_combos", "\nUNION\n".join(values[k].combos for k in range(len(terms))))
         picks, joins = [], []
         for k in range(len(terms)):

@@ -241,6 +241,12 @@ def test_a_variant_option_use_changes_the_route():
     assert rows_of(m, "by_end", rows=rows).rows == (("Mill", 1), ("Square", 1))
 
 
+def test_a_derived_measure_over_no_measure_is_its_constant_and_has_no_groups():
+    m = edit(MINI, measure("one", "1 + 1"), report("total", "one"), report("grouped", "one", "districts.name"))
+    assert rows_of(m, "total").rows == ((2,),)
+    assert rows_of(m, "grouped").rows == ()
+
+
 # --- roles ------------------------------------------------------------------------------
 
 
