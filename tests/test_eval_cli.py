@@ -235,12 +235,17 @@ def test_a_model_with_errors_is_refused(small):
 # --- the demo data against plain SQL ----------------------------------------------------
 
 
-def test_every_demo_report_evaluates(demo):
+@pytest.fixture(scope="module")
+def demo_reports(demo) -> dict[str, dict]:
     code, out, err = cli(EXAMPLE, "--data", demo, "--format", "json")
     assert (code, err) == (0, "")
-    docs = {d["report"]: d for d in json.loads(out)}
-    assert sorted(docs) == sorted(["weekly_fares", "station_stock", "repair_costs_by_depot", "repair_costs_current",
-                                   "rider_trips", "daily_returns", "east_overview"])
+    return {d["report"]: d for d in json.loads(out)}
+
+
+def test_every_demo_report_evaluates(demo_reports):
+    assert sorted(demo_reports) == sorted(["weekly_fares", "station_stock", "repair_costs_by_depot",
+                                           "repair_costs_current", "rider_trips", "daily_returns", "east_overview"])
+    assert all(doc["rows"] for doc in demo_reports.values())
 
 
 def plain(demo: Path, sql: str) -> list[tuple]:
@@ -252,8 +257,8 @@ def plain(demo: Path, sql: str) -> list[tuple]:
     return con.execute(sql).fetchall()
 
 
-def test_demo_rider_trips_equal_plain_sql(demo):
-    rows = json.loads(cli(EXAMPLE, "--data", demo, "--report", "rider_trips", "--format", "json")[1])["rows"]
+def test_demo_rider_trips_equal_plain_sql(demo, demo_reports):
+    rows = demo_reports["rider_trips"]["rows"]
     expected = plain(demo, """
         SELECT r.plan, count(*), sum(t.minutes), sum(t.minutes) / count(*)
         FROM trips t JOIN riders r ON t.rider_key = r.rider_key
@@ -261,8 +266,8 @@ def test_demo_rider_trips_equal_plain_sql(demo):
     assert [tuple(r) for r in rows] == [(p, c, m, pytest.approx(a)) for p, c, m, a in expected]
 
 
-def test_demo_daily_returns_follow_the_end_day(demo):
-    rows = json.loads(cli(EXAMPLE, "--data", demo, "--report", "daily_returns", "--format", "json")[1])["rows"]
+def test_demo_daily_returns_follow_the_end_day(demo, demo_reports):
+    rows = demo_reports["daily_returns"]["rows"]
     by_end = plain(demo, """SELECT c.date, count(*) FROM trips t JOIN calendar c ON t.end_day_key = c.day_key
                             GROUP BY c.date ORDER BY c.date""")
     by_start = plain(demo, """SELECT c.date, count(*) FROM trips t JOIN calendar c ON t.start_day_key = c.day_key
@@ -271,12 +276,9 @@ def test_demo_daily_returns_follow_the_end_day(demo):
     assert by_end != by_start  # overnight trips: the standby link makes a difference here
 
 
-def test_demo_current_attribution_moves_repairs_between_depots(demo):
-    def by_depot(report):
-        doc = json.loads(cli(EXAMPLE, "--data", demo, "--report", report, "--format", "json")[1])
-        return {row[0]: row[2] for row in doc["rows"]}
-
-    historical, current = by_depot("repair_costs_by_depot"), by_depot("repair_costs_current")
+def test_demo_current_attribution_moves_repairs_between_depots(demo, demo_reports):
+    historical, current = ({row[0]: row[2] for row in demo_reports[name]["rows"]}
+                           for name in ("repair_costs_by_depot", "repair_costs_current"))
     expected = dict(plain(demo, """
         SELECT d.name, count(*) FROM repairs r JOIN mechanics m ON r.current_mechanic_key = m.mechanic_key
         JOIN districts d ON m.depot_district_key = d.district_key GROUP BY d.name"""))
