@@ -570,10 +570,13 @@ def check_model(model: Model, load_findings: Iterable[Finding] = (), graph_rules
     `graph_rules=False` skips the graph walks, which raise only warnings: the
     diff uses it to learn a revision's errors cheaply.
     """
+    from modeldiff.load import paused_gc
+
     ctx = _Context(model)
     findings = list(load_findings)
-    for rule in RECORD_RULES + (GRAPH_RULES if graph_rules else ()):
-        findings.extend(rule(ctx))
+    with paused_gc():  # many small records, no cycles: the collector would only walk the model again and again
+        for rule in RECORD_RULES + (GRAPH_RULES if graph_rules else ()):
+            findings.extend(rule(ctx))
     unique = {(f.rule, f.subject, f.message): f for f in findings}
     return sorted(unique.values(), key=lambda f: (f.severity != ERROR, f.rule, f.subject, f.message))
 

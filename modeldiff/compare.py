@@ -103,8 +103,17 @@ def _compare_files(old_files, new_files, use_cache: bool, where: str, old=None, 
     """The DiffResult of two revisions' files (None: the model is absent on that side), through the cache."""
     from modeldiff import cache
 
+    from modeldiff.load import paused_gc
+
     old = old if old is not None else (_Revision(old_files) if old_files is not None else None)
     new = new if new is not None else (_Revision(new_files) if new_files is not None else None)
+    with paused_gc():  # two models' worth of records and no cycles: the collector would only walk them
+        return _cached_comparison(old, new, use_cache, where)
+
+
+def _cached_comparison(old: _Revision | None, new: _Revision | None, use_cache: bool, where: str):
+    from modeldiff import cache
+
     if not cache.enabled(use_cache):
         return _analyse(old, new, None, None)
     folder = cache.directory(where)
