@@ -275,7 +275,7 @@ def _key(row):
     return tuple((value is NO_MATCH, repr(value)) for value in row)
 
 
-@settings(max_examples=80, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=60, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(scenarios())
 def test_engine_equals_the_python_reading_of_section_5(scenario):
     assert sorted(engine_rows(scenario), key=_key) == sorted(reference(scenario), key=_key)
@@ -347,7 +347,7 @@ def sqlite_rows(scenario: Scenario) -> list[tuple] | None:
     return out
 
 
-@settings(max_examples=50, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@settings(max_examples=40, deadline=None, suppress_health_check=[HealthCheck.too_slow])
 @given(scenarios(tree=True))
 def test_tree_shaped_models_equal_plain_joins_in_sqlite(scenario):
     expected = sqlite_rows(scenario)
