@@ -643,7 +643,8 @@ class _LazyPositions(Mapping):
     def _positions(self) -> Mapping[str, Pos]:
         if self._found is None:
             with paused_gc():
-                self._found = _exact_load(self._files).model.positions
+                docs = [_read_document(name, content) for name, content in self._files]
+                self._found = _Positions(_positions_of(docs))
             self._files = ()
         return self._found
 
@@ -662,6 +663,76 @@ class _LazyPositions(Mapping):
 
     def __repr__(self) -> str:
         return "<positions, read on first use>" if self._found is None else repr(self._found)
+
+
+def _positions_of(docs: list[_Document]) -> dict[str, _At]:
+    """Model.positions of a model without findings, from the event reader's values alone.
+
+    The same subjects `_RecordBuilder` records on such a model, without
+    building records (tests hold the two to the same answer on every model
+    file): a named item points at its name; a field and an entry of a
+    table-keyed map at its value; a history's `type` is not recorded.
+    """
+    found: dict[str, _At] = {}
+    first = next(doc for doc in docs if "model" in doc.top)
+    found["model"] = _value_pos(first.top, "model")
+    for section in SECTIONS:
+        for doc in docs:
+            items = doc.top.get(section, _NOTHING) if isinstance(doc.top, dict) else _NOTHING
+            if items is _NOTHING:
+                continue
+            found[section] = _value_pos(doc.top, section)
+            if not isinstance(items, YamlMap):
+                continue
+            for name, fields in items.items():
+                subject = f"{section}.{name}"
+                found[subject] = _key_pos(items, name)
+                if isinstance(fields, YamlMap):
+                    _field_positions(found, subject, fields, section)
+    return found
+
+
+# Fields whose value is a map of entries each recorded at its value (a table-keyed map, or link -> flow).
+_ENTRY_MAPS = frozenset({"flow", "where", "filters", "variant"})
+
+
+def _field_positions(found: dict[str, _At], subject: str, fields: YamlMap, section: str) -> None:
+    for key, value in fields.items():
+        here = f"{subject}.{key}"
+        found[here] = _value_pos(fields, key)
+        if not isinstance(value, YamlMap):
+            continue
+        if key in _ENTRY_MAPS:
+            for entry in value:
+                found[f"{here}.{entry}"] = _value_pos(value, entry)
+        elif section == "tables" and key == "columns":
+            for column, spec in value.items():
+                found[f"{here}.{column}"] = _key_pos(value, column)
+                if isinstance(spec, YamlMap):
+                    for column_key in spec:
+                        found[f"{here}.{column}.{column_key}"] = _value_pos(spec, column_key)
+        elif section == "tables" and key == "history":
+            for history_key, history_value in value.items():
+                if history_key != "type":
+                    found[f"{here}.{history_key}"] = _value_pos(value, history_key)
+                if history_key == "previous" and isinstance(history_value, YamlMap) and "column" in history_value:
+                    found[f"{here}.previous.column"] = _value_pos(history_value, "column")
+        elif section == "variants" and key == "options":
+            for option, option_fields in value.items():
+                option_subject = f"{here}.{option}"
+                found[option_subject] = _key_pos(value, option)
+                if isinstance(option_fields, YamlMap):
+                    _field_positions(found, option_subject, option_fields, "options")
+
+
+def _key_pos(mapping: YamlMap, key: Any) -> _At:
+    at = mapping.at[key]
+    return (mapping.file, at[0], at[1])
+
+
+def _value_pos(mapping: YamlMap, key: Any) -> _At:
+    at = mapping.at[key]
+    return (mapping.file, at[2], at[3])
 
 
 # --------------------------------------------------------------------------
