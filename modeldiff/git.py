@@ -24,7 +24,7 @@ import os
 import posixpath
 import re
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Iterable, Iterator
+from typing import TYPE_CHECKING, Iterable, Iterator, Sequence
 
 from modeldiff.errors import GitError, ModeldiffError
 
@@ -379,6 +379,18 @@ def commit_trailers(repo_dir, sha: str) -> dict[str, list[str]]:
             return {key: list(values) for key, values in commit.trailers_dict.items()}
         except (git.exc.GitError, ValueError, UnicodeError) as exc:
             raise GitError(f"cannot read the trailers of commit '{sha}' in {_location(repo)}: {exc}") from None
+
+
+def commit_facts(repo_dir, shas: Sequence[str]) -> dict[str, tuple[tuple[str, ...], str]]:
+    """sha -> (parent shas, subject line), read in batches of 200 commits."""
+    facts: dict[str, tuple[tuple[str, ...], str]] = {}
+    with _open(repo_dir) as repo:
+        for start in range(0, len(shas), 200):
+            out = _run(repo, "show", "-s", "--no-color", "--format=%H%x00%P%x00%s", *shas[start:start + 200])
+            for line in out.splitlines():
+                sha, parents, subject = (line.split("\0") + ["", ""])[:3]
+                facts[sha] = (tuple(parents.split()), subject)
+    return facts
 
 
 # ---------------------------------------------------------------------------

@@ -79,24 +79,6 @@ def split_range(text: str) -> tuple[str, str, str]:
     raise UsageError(f"'{text}' is not a range; write A..B (for everything since a tag: TAG..HEAD)")
 
 
-def _commit_facts(root: str, shas: Sequence[str]) -> dict[str, tuple[tuple[str, ...], str]]:
-    """sha -> (parents, subject line).
-
-    Goes through git.py's own repository handling (its environment and error
-    translation); git.py has no public reader for commit subjects yet.
-    """
-    from modeldiff import git
-
-    facts: dict[str, tuple[tuple[str, ...], str]] = {}
-    with git._open(root) as repo:
-        for start in range(0, len(shas), 200):
-            out = git._run(repo, "show", "-s", "--no-color", "--format=%H%x00%P%x00%s", *shas[start:start + 200])
-            for line in out.splitlines():
-                sha, parents, subject = (line.split("\0") + ["", ""])[:3]
-                facts[sha] = (tuple(parents.split()), subject)
-    return facts
-
-
 def _touched(root: str, sha: str, parents: tuple[str, ...]) -> tuple[str, ...]:
     from modeldiff import git
 
@@ -141,7 +123,7 @@ def read_notes(root: str, range_text: str, mode: str = "squash") -> Notes:
 
     left, operator, right = split_range(range_text)
     shas = git.commits_in_range(root, f"{left}{operator}{right}")
-    facts = _commit_facts(root, shas)
+    facts = git.commit_facts(root, shas)
     commits = []
     for sha in shas:
         parents, subject = facts.get(sha, ((), ""))
