@@ -17,6 +17,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from gitkit import git, init_repo, isolate_git
 
 from modeldiff import __version__
 from modeldiff.cli import main
@@ -267,25 +268,15 @@ def test_piped_output_of_the_real_command_has_no_escape_codes():
 # --- REV:PATH on a real repository ------------------------------------------------------
 
 
-def git(cwd: Path, *args: str) -> str:
-    return subprocess.run(["git", *args], cwd=cwd, check=True, capture_output=True, text=True).stdout.strip()
 
 
 @pytest.fixture
 def repo(tmp_path, monkeypatch) -> Path:
     """Committed: the fixed model. Working tree: the model with a type mismatch."""
-    for name in list(os.environ):
-        if name.startswith("GIT_"):
-            monkeypatch.delenv(name)
-    monkeypatch.setenv("GIT_CONFIG_NOSYSTEM", "1")
-    monkeypatch.setenv("GIT_CONFIG_GLOBAL", str(tmp_path / "no-global-gitconfig"))
-    monkeypatch.setenv("HOME", str(tmp_path))
+    isolate_git(monkeypatch, tmp_path)
     root = tmp_path / "repo"
     (root / "models").mkdir(parents=True)
-    git(root, "init", "-q", "-b", "main")
-    git(root, "config", "user.name", "Test Rider")
-    git(root, "config", "user.email", "rider@example.invalid")
-    git(root, "config", "commit.gpgsign", "false")
+    init_repo(root)
     (root / "models" / "bikes.model.yaml").write_text(MISMATCH_FIXED)
     git(root, "add", "-A")
     git(root, "commit", "-q", "-m", "bikes model")

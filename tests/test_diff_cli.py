@@ -7,13 +7,12 @@ from __future__ import annotations
 
 import io
 import json
-import os
 import re
-import subprocess
 from pathlib import Path
 
 import pytest
 
+from gitkit import git, init_repo, isolate_git
 from modeldiff import cli
 
 SCENARIOS = Path(__file__).parent / "impact_scenarios"
@@ -285,19 +284,9 @@ def test_markdown_security_caution_only_with_an_exposure():
 # --- git revisions -----------------------------------------------------------------------------------
 
 
-def git(cwd: Path, *args: str) -> str:
-    return subprocess.run(["git", *args], cwd=cwd, check=True, capture_output=True, text=True).stdout.strip()
-
-
 @pytest.fixture(autouse=True)
 def clean_git_env(monkeypatch, tmp_path):
-    """No GIT_* variable of the surrounding process (a hook, a CI runner) may reach these tests."""
-    for name in list(os.environ):
-        if name.startswith("GIT_"):
-            monkeypatch.delenv(name)
-    monkeypatch.setenv("GIT_CONFIG_NOSYSTEM", "1")
-    monkeypatch.setenv("GIT_CONFIG_GLOBAL", str(tmp_path / "no-global-gitconfig"))
-    monkeypatch.setenv("HOME", str(tmp_path))
+    isolate_git(monkeypatch, tmp_path)
 
 
 def scenario_text(name: str, side: str) -> str:
@@ -309,10 +298,7 @@ def repo(tmp_path, monkeypatch) -> Path:
     """Two commits of models/bikeshare.model.yaml: the base model, then trips_start_station two-way."""
     root = tmp_path / "repo"
     (root / "models").mkdir(parents=True)
-    git(root, "init", "-q", "-b", "main")
-    git(root, "config", "user.name", "Test Rider")
-    git(root, "config", "user.email", "rider@example.invalid")
-    git(root, "config", "commit.gpgsign", "false")
+    init_repo(root)
     model = root / "models" / "bikeshare.model.yaml"
     model.write_text(scenario_text("flow_widened", "old"))
     git(root, "add", "-A")

@@ -8,6 +8,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from gitkit import git, init_repo, isolate_git
 
 from modeldiff import git as mgit
 from modeldiff.errors import GitError, ModeldiffError
@@ -16,9 +17,7 @@ TRIPS_V1 = b"model: bikeshare\nformat: 1\ntables:\n  trips: {kind: fact, key: tr
 TRIPS_V2 = TRIPS_V1 + b"measures:\n  trip_count: {table: trips, expr: count(*)}\n"
 
 
-def run_git(cwd: Path, *args: str) -> str:
-    done = subprocess.run(["git", *args], cwd=cwd, check=True, capture_output=True, text=True)
-    return done.stdout.strip()
+run_git = git
 
 
 def write(root: Path, relative: str, content: bytes | str) -> None:
@@ -33,24 +32,12 @@ def commit_all(root: Path, message: str) -> str:
     return run_git(root, "rev-parse", "HEAD")
 
 
-def make_repo(path: Path) -> Path:
-    path.mkdir(parents=True, exist_ok=True)
-    run_git(path, "init", "-q", "-b", "main")
-    run_git(path, "config", "user.name", "Test Rider")
-    run_git(path, "config", "user.email", "rider@example.invalid")
-    run_git(path, "config", "commit.gpgsign", "false")
-    return path
+make_repo = init_repo
 
 
 @pytest.fixture(autouse=True)
 def clean_git_env(monkeypatch, tmp_path):
-    """No GIT_* variable of the surrounding process (a hook, a CI runner) may reach these tests."""
-    for name in list(os.environ):
-        if name.startswith("GIT_"):
-            monkeypatch.delenv(name)
-    monkeypatch.setenv("GIT_CONFIG_NOSYSTEM", "1")
-    monkeypatch.setenv("GIT_CONFIG_GLOBAL", str(tmp_path / "no-global-gitconfig"))
-    monkeypatch.setenv("HOME", str(tmp_path))
+    isolate_git(monkeypatch, tmp_path)
 
 
 @pytest.fixture

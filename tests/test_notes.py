@@ -9,12 +9,11 @@ from __future__ import annotations
 
 import io
 import json
-import os
 import re
-import subprocess
 from pathlib import Path
 
 import pytest
+from gitkit import git, isolate_git
 
 from modeldiff import cli
 from modeldiff.render.diff_out import SECURITY_CAUTION
@@ -27,17 +26,7 @@ SAFE_EDIT = "    description: Units held at close of day.\n"
 MODEL = "models/bikeshare.model.yaml"
 
 
-def git(cwd: Path, *args: str) -> str:
-    return subprocess.run(["git", *args], cwd=cwd, check=True, capture_output=True, text=True).stdout.strip()
-
-
-def clear_git_env(mp: pytest.MonkeyPatch, home: Path) -> None:
-    for name in list(os.environ):
-        if name.startswith("GIT_"):
-            mp.delenv(name)
-    mp.setenv("GIT_CONFIG_NOSYSTEM", "1")
-    mp.setenv("GIT_CONFIG_GLOBAL", str(home / "no-global-gitconfig"))
-    mp.setenv("HOME", str(home))
+clear_git_env = isolate_git
 
 
 def new_repo(root: Path) -> Path:
