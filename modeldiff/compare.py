@@ -87,15 +87,16 @@ def _empty_model(name: str):
 class _Revision:
     """One side of a comparison: its files, loaded at most once."""
 
-    def __init__(self, files) -> None:
+    def __init__(self, files, memo: dict | None = None) -> None:
         self.files = files
+        self.memo = memo  # shared with the other side: records written the same way are built once
         self._loaded = None
 
     def loaded(self):
         if self._loaded is None:
             from modeldiff import load
 
-            self._loaded = load.load_files(self.files)
+            self._loaded = load.load_files(self.files, self.memo)
         return self._loaded
 
 
@@ -105,8 +106,9 @@ def _compare_files(old_files, new_files, use_cache: bool, where: str, old=None, 
 
     from modeldiff.load import paused_gc
 
-    old = old if old is not None else (_Revision(old_files) if old_files is not None else None)
-    new = new if new is not None else (_Revision(new_files) if new_files is not None else None)
+    memo: dict = {}
+    old = old if old is not None else (_Revision(old_files, memo) if old_files is not None else None)
+    new = new if new is not None else (_Revision(new_files, memo) if new_files is not None else None)
     with paused_gc():  # two models' worth of records and no cycles: the collector would only walk them
         return _cached_comparison(old, new, use_cache, where)
 
@@ -170,13 +172,14 @@ def _diff_revisions(root: str, base: str, head: str | None, paths: list[str], us
     new_only: dict[str, _Revision] = {}
     sides: dict[tuple[str, str | None], _Revision] = {}
     done: dict[tuple[str | None, str | None], object] = {}
+    memos: dict[str, dict] = {}
     for path in paths:
         old_source, new_source = git.read_at(root, base, path), git.read_at(root, head, path)
         if old_source is None and new_source is None:
             raise ModeldiffError(f"{path}: not found at {base} nor at {head or 'the working tree'}; check the path")
         for side, source in (("old", old_source), ("new", new_source)):
             if source is not None:
-                sides[(side, path)] = _Revision(source.files)
+                sides[(side, path)] = _Revision(source.files, memos.setdefault(path, {}))
         if old_source is not None and new_source is not None:
             pairs.append((path, path))  # compared now: its revisions are read (or found in the cache) in path order
             done[(path, path)] = _compare_files(old_source.files, new_source.files, use_cache, root,

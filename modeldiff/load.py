@@ -94,12 +94,16 @@ def path_files(path: str | os.PathLike) -> list[tuple[str, bytes]]:
     return [(shown, _read_file(shown))]
 
 
-def load_files(files: Sequence[tuple[str, bytes | str]]) -> LoadResult:
-    """Load (display name, content) pairs: one file, or several merged as a folder."""
+def load_files(files: Sequence[tuple[str, bytes | str]], memo: dict | None = None) -> LoadResult:
+    """Load (display name, content) pairs: one file, or several merged as a folder.
+
+    `memo`: a dict shared by the loads of related revisions (the two sides of a
+    diff); a record written the same way in both is built once and shared.
+    """
     if not files:
         raise ModeldiffError("no model files were given; give a NAME.model.yaml file or a NAME.model/ folder")
     with paused_gc():
-        return _fast_load(files) or _exact_load(files)
+        return _fast_load(files, memo) or _exact_load(files)
 
 
 def _exact_load(files: Sequence[tuple[str, bytes | str]]) -> LoadResult:
@@ -613,7 +617,7 @@ def _fast_values(loads, name: str, content: bytes | str) -> dict | None:
     return top if type(top) is dict else None
 
 
-def _fast_load(files: Sequence[tuple[str, bytes | str]]) -> LoadResult | None:
+def _fast_load(files: Sequence[tuple[str, bytes | str]], memo: dict | None = None) -> LoadResult | None:
     """The model read by the fast reader, or None when the event reader must read it."""
     loads = _fast_reader()
     if loads is None:
@@ -626,7 +630,7 @@ def _fast_load(files: Sequence[tuple[str, bytes | str]]) -> LoadResult | None:
         docs.append(_Document(name, top))
     try:
         name, fmt = _model_identity(docs)
-        return _FastBuilder(files).build(docs, name, fmt)
+        return _FastBuilder(files, memo).build(docs, name, fmt)
     except (_Fallback, ModeldiffError, AttributeError):  # AttributeError: an error path asked for a position
         return None
 
@@ -1405,10 +1409,11 @@ class _FastBuilder(_RecordBuilder):
     event reader would build, without findings.
     """
 
-    def __init__(self, files: Sequence[tuple[str, bytes | str]]) -> None:
+    def __init__(self, files: Sequence[tuple[str, bytes | str]], memo: dict | None = None) -> None:
         super().__init__()
         self.files = files
         self.positions = _NoPositions()
+        self.memo = memo if memo is not None else {}
 
     def _model_positions(self) -> Mapping[str, Pos]:
         return _LazyPositions(self.files)
@@ -1431,11 +1436,16 @@ class _FastBuilder(_RecordBuilder):
         """The common measure (text fields only) without the general path's bookkeeping; the same record."""
         if value.__class__ is dict and "expr" in value and value.keys() <= _MEASURE_TEXT_KEYS:
             if all(v.__class__ is str for v in value.values()):
+                key = ("measures", name, *value.items())  # text only: equal keys mean equal records
+                found = self.memo.get(key)
+                if found is not None:
+                    return found
                 get = value.get
                 table, where = get("table"), get("where")
                 if value["expr"].strip() and (table is None or _NAME.match(table)) and (where is None or where.strip()):
-                    return Measure(name, value["expr"], table, where, NO_OVERRIDES, get("description"), get("unit"),
-                                   get("owner"), get("folder"))
+                    found = self.memo[key] = Measure(name, value["expr"], table, where, NO_OVERRIDES, get("description"),
+                                                     get("unit"), get("owner"), get("folder"))
+                    return found
         return super()._measure(name, value, subject, parent)
 
     def _field(self, fields: YamlMap, key: str, subject: str) -> tuple[Any, _At | None]:
