@@ -844,6 +844,29 @@ _SINGULAR = {
 }  # fmt: skip
 _COLUMN_TYPE_SET = frozenset(COLUMN_TYPES)
 _MEASURE_TEXT_KEYS = frozenset(("table", "expr", "where", "description", "unit", "owner", "folder"))
+_TABLE_PLAIN_KEYS = frozenset(("kind", "key", "columns", "source", "description"))
+_LINK_PLAIN_KEYS = frozenset(_LINK_KEYS)
+
+
+def _plain_names(value: Any) -> tuple[str, ...] | None:
+    """A table's `key` as `_get_columns` reads it when it is well formed (absent: ()); else None."""
+    if value is _NOTHING:
+        return ()
+    if value.__class__ is str:
+        return (value,) if _NAME.match(value) else None
+    if value.__class__ is list and value and all(v.__class__ is str and _NAME.match(v) for v in value):
+        return tuple(value)
+    return None
+
+
+def _plain_columns(columns: dict) -> dict[str, Column] | None:
+    """Columns written as `name: type` only, as `_columns` reads them; else None."""
+    records = {}
+    for name, value in columns.items():
+        if not (name.__class__ is str and value.__class__ is str and value in _COLUMN_TYPE_SET and _NAME.match(name)):
+            return None
+        records[name] = Column(name, value)
+    return records
 _BAD = object()  # a field that was present but wrong (a finding was recorded)
 
 
@@ -1447,6 +1470,36 @@ class _FastBuilder(_RecordBuilder):
                                                      get("unit"), get("owner"), get("folder"))
                     return found
         return super()._measure(name, value, subject, parent)
+
+    def _table(self, name: str, value: Any, subject: str, parent: YamlMap) -> Table | None:
+        """The common table (kind, key, plain column types, texts) without the general path's bookkeeping."""
+        if value.__class__ is dict and value.keys() <= _TABLE_PLAIN_KEYS:
+            kind, key, columns = value.get("kind"), value.get("key", _NOTHING), value.get("columns")
+            if (kind.__class__ is str and kind in TABLE_KINDS and columns.__class__ is dict
+                    and all(v.__class__ is str for k, v in value.items() if k in ("source", "description"))):
+                keys = _plain_names(key)
+                built = _plain_columns(columns)
+                if keys is not None and built is not None:
+                    return Table(name, kind, keys, built, source=value.get("source"),
+                                 description=value.get("description"))
+        return super()._table(name, value, subject, parent)
+
+    def _link(self, name: str, value: Any, subject: str, parent: YamlMap) -> Link | None:
+        """The common link (one column each way, known words) without the general path's bookkeeping."""
+        if value.__class__ is dict and value.keys() <= _LINK_PLAIN_KEYS:
+            ends = value.get("from"), value.get("to")
+            if ends[0].__class__ is str and ends[1].__class__ is str:
+                start, end = _COLREF.match(ends[0]), _COLREF.match(ends[1])
+                get = value.get
+                cardinality, flow = get("cardinality", "many-to-one"), get("flow", "one-way")
+                security, standby = get("security_flow", "one-way"), get("standby", False)
+                description = get("description")
+                if (start and end and cardinality.__class__ is str and cardinality in CARDINALITIES
+                        and flow.__class__ is str and flow in FLOWS and security.__class__ is str and security in FLOWS
+                        and (standby is True or standby is False) and (description is None or description.__class__ is str)):
+                    return Link(name, start.group(1), (start.group(2),), end.group(1), (end.group(2),), cardinality,
+                                flow, security, standby, description)
+        return super()._link(name, value, subject, parent)
 
     def _field(self, fields: YamlMap, key: str, subject: str) -> tuple[Any, _At | None]:
         return fields.get(key, _NOTHING), None

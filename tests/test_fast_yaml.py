@@ -155,3 +155,86 @@ def test_generated_models_read_the_same_with_both_readers(fmt, history, descript
 def test_environment_switch_name_is_documented():
     docs = (ROOT / "docs" / "performance.md").read_text(encoding="utf-8")
     assert load.FAST_READER_ENV in docs
+
+
+# Per field: the values the fast builder's shortcuts accept (first, up to the "|" marker), then values
+# next to them that they must hand to the general path (which reports them, or reads them the long way).
+LINK_VALUES = {
+    "from": ["trips.bike_id", "|", "trips.bike_id ", "[trips.bike_id]", "trips", "1", "null"],
+    "to": ["bikes.id", "|", "[bikes.id, bikes.code]", "bikes.nope", "1.5"],
+    "cardinality": [None, "many-to-one", "one-to-one", "many-to-many", "|", "one-to-many", "1"],
+    "flow": [None, "one-way", "two-way", "|", "off", "true"],
+    "security_flow": [None, "one-way", "two-way", "|", "both"],
+    "standby": [None, "true", "false", "|", "1", "'true'", "yes"],
+    "description": [None, "a link", "''", "|", "1", "null"],
+}
+TABLE_VALUES = {
+    "kind": ["dimension", "fact", "bridge", "access", "|", None, "dim", "1"],
+    "key": [None, "id", "[id]", "[id, code]", "|", "[]", "1", "bad-name", "[id, 1]"],
+    "columns": ["{id: integer, code: text}", "{}", "|", "{id: integer, code: bogus}", "{id: {type: integer}}",
+                "{1: integer}", "[id]", None],
+    "source": [None, "raw.bikes", "|", "1"],
+    "description": [None, "bikes", "|", "true"],
+    "natural_key": [None, "|", "code"],
+}
+MEASURE_VALUES = {
+    "table": [None, "trips", "|", "bikes", "1", "null"],
+    "expr": ["count(*)", "sum(fare)", "|", "' '", "1", None],
+    "where": [None, "fare > 0", "|", "''", "true"],
+    "description": [None, "rides", "|", "1"],
+    "unit": [None, "EUR", "|", "~"],
+    "use": [None, "|", "[trips_bike]"],
+}
+
+
+def _item(values: dict, picks: list[int]) -> str:
+    """An item in flow style; a pick below 100 takes an accepted value, above it any value."""
+    fields = []
+    for (key, options), pick in zip(values.items(), picks):
+        accepted = options[: options.index("|")]
+        every = [o for o in options if o != "|"]
+        value = accepted[pick % len(accepted)] if pick < 100 else every[pick % len(every)]
+        if value is not None:
+            fields.append(f"{key}: {value}")
+    return "{" + ", ".join(fields) + "}"
+
+
+VALID = {"trips": "{kind: fact, key: id, columns: {id: integer, bike_id: integer, fare: decimal}}",
+         "bikes": "{kind: dimension, key: id, columns: {id: integer, code: text}}",
+         "link": "{from: trips.bike_id, to: bikes.id}", "measure": "{table: trips, expr: count(*)}"}
+picks = st.lists(st.one_of(st.integers(0, 99), st.integers(0, 200)), min_size=7, max_size=7)
+
+
+@settings(max_examples=150, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(which=st.sampled_from(["table", "link", "measure"]), chosen=picks)
+def test_the_fast_builders_shortcuts_agree_with_the_event_reader(which, chosen):
+    bikes = _item(TABLE_VALUES, chosen) if which == "table" else VALID["bikes"]
+    link = _item(LINK_VALUES, chosen) if which == "link" else VALID["link"]
+    measure = _item(MEASURE_VALUES, chosen) if which == "measure" else VALID["measure"]
+    text = (f"model: m\nformat: 1\ntables:\n  trips: {VALID['trips']}\n  bikes: {bikes}\n"
+            f"links:\n  trips_bike: {link}\nmeasures:\n  rides: {measure}\n")
+    files = [("x.model.yaml", text)]
+    exact = _exact(files)
+    quick = load._fast_load(files)
+    if all(pick < 100 for pick in chosen):
+        assert quick is not None, text  # accepted values only: the shortcut takes it
+    if quick is not None:
+        assert not isinstance(exact, str), exact
+        _same(quick, exact)
+    try:
+        got = load.load_files(files)
+    except ModeldiffError as exc:
+        assert str(exc) == exact
+    else:
+        _same(got, exact)
+
+
+def test_a_measure_written_the_same_way_is_shared_between_revisions():
+    old = BASE + "measures:\n  m: {expr: sum(fare), table: trips}\n  n: {expr: count(*), table: trips}\n"
+    new = BASE + "measures:\n  m: {expr: sum(fare), table: trips}\n  n: {expr: count(*), table: trips, unit: rides}\n"
+    memo: dict = {}
+    first = load.load_files([("old.model.yaml", old)], memo)
+    second = load.load_files([("new.model.yaml", new)], memo)
+    assert second.model.measures["m"] is first.model.measures["m"]
+    assert second.model.measures["n"] is not first.model.measures["n"]  # written differently: built anew
+    _same(second, load._exact_load([("new.model.yaml", new)]))
