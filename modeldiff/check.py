@@ -190,7 +190,13 @@ def rule_link_references(ctx: _Context) -> Iterator[Finding]:
 
 
 def rule_measure_references(ctx: _Context) -> Iterator[Finding]:
+    tables = ctx.model.tables
     for measure in ctx.model.measures.values():
+        if not measure.overrides and measure.table is not None:  # the common case, settled without generators
+            table = tables.get(measure.table)
+            if table is not None and ctx.clean_base_text("expr", measure.expr, table) and (
+                    measure.where is None or ctx.clean_base_text("where", measure.where, table)):
+                continue
         subject = f"measures.{measure.name}"
         yield from _overrides_refs(ctx, subject, measure.overrides)
         if measure.table is None:

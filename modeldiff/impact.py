@@ -800,11 +800,16 @@ class _Impacts:
     def measures(self) -> list[Impact]:
         a = self.a
         direct: dict[str, list[Reason]] = {}
+        named = {c.subject.split(".")[1] for c in self.changes if c.subject.startswith("measures.")}
+        loud = self._loud_tables()
         for name, m in a.new.measures.items():
             comp = self.computation(m)
             if comp is None:
                 continue  # a new measure had no numbers to move
-            reasons = list(self.own_reasons(name))
+            if name in named or m.table is None or m.table in loud or self.old_name("tables", m.table) in loud:
+                reasons = list(self.own_reasons(name))
+            else:
+                reasons = []  # no change names it or touches its table: `own_reasons` would find nothing
             if m.table is not None:
                 reasons += self.path_reasons(m.table, comp)
             if reasons:
@@ -818,6 +823,13 @@ class _Impacts:
                 for reason in direct.get(dep, ()):
                     result.setdefault(name, []).append(_via(reason, dep))
         return [self._impact(name, reasons) for name, reasons in sorted(result.items())]
+
+    def _loud_tables(self) -> set[str]:
+        """Tables whose measures `own_reasons` may give a reason: changed, re-secured or under a changed role filter."""
+        loud = set(self.table_changes) | set(self.security_by_table)
+        for change in self.filter_changes:
+            loud |= set(self._filter_reach(change))
+        return loud
 
     def dependencies(self, name: str) -> list[str]:
         out, todo, seen = [], list(self.measure_deps.get(name, ())), {name}
