@@ -687,14 +687,17 @@ class _SourceAnalysis:
         self.source = source
         self.tree = _Tree(graph, source)
         n = len(graph._names)
-        self.depth = [0] * n
+        self.depth = depth = [0] * n
+        parent = [-1] * n
         src, edge = graph._src, self.tree.edge
-        for v in self.tree.order[1:]:
-            self.depth[v] = self.depth[src[edge[v]]] + 1
-        self.pre, self.size = _number(self.tree.order, [src[e] if e >= 0 else -1 for e in edge])
+        for v in self.tree.order[1:]:  # the tables reached only: a source reaching few costs little
+            p = parent[v] = src[edge[v]]
+            depth[v] = depth[p] + 1
+        self.pre, self.size = _number(self.tree.order, parent)
         self._dom: tuple[list[int], list[int]] | None = None
         self._budget = self.SEARCH_FACTOR * (n + len(graph.edges))  # backward searches before a dominator tree
         self.ambiguous = bytearray(n)
+        self._marked: list[int] = []  # the ambiguous targets, so listing them costs their number, not n
         self.kind = bytearray(n)
         self.other = [-1] * n  # the in-edge giving the second path, for EDGE and DETOUR
         for t in self.tree.order[1:]:
@@ -702,7 +705,7 @@ class _SourceAnalysis:
         self._witnesses: dict[int, tuple[tuple[int, ...], tuple[int, ...]]] = {}
 
     def targets(self) -> list[int]:
-        return [t for t in range(len(self.ambiguous)) if self.ambiguous[t]]
+        return sorted(self._marked)
 
     def _classify(self, t: int) -> None:
         tree_edge = self.tree.edge[t]
@@ -728,6 +731,8 @@ class _SourceAnalysis:
                     break
 
     def _mark(self, t: int, kind: int, edge: int) -> None:
+        if not self.ambiguous[t]:
+            self._marked.append(t)
         self.ambiguous[t] = 1
         self.kind[t] = kind
         self.other[t] = edge
