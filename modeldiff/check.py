@@ -503,9 +503,17 @@ def _settings(model: Model):
 def rule_ambiguous_paths(ctx: _Context) -> Iterator[Finding]:
 
     reported: set[tuple[str, str]] = set()
-    for label, setting in _settings(ctx.model):
+    default = None
+    for label, setting in _settings(ctx.model):  # the default setting first
         fg = graph.flow_graph(ctx.model, setting)
-        for source, target, first, second in fg.ambiguous_pairs():
+        sources = None
+        if default is None:
+            default = fg
+        else:
+            sources = _sources_of_new_routes(default, fg)
+            if not sources:
+                continue
+        for source, target, first, second in fg.ambiguous_pairs(sources=sources):
             if (source, target) in reported:
                 continue
             reported.add((source, target))
@@ -515,6 +523,19 @@ def rule_ambiguous_paths(ctx: _Context) -> Iterator[Finding]:
                               f"({' / '.join(first)} and {' / '.join(second)}); numbers on {target} then depend on the data along each route. "
                               f"Put one of the links on standby, or make the flow one-way, so one route remains.",
                               paths=(first, second), at=f"tables.{target}")
+
+
+def _sources_of_new_routes(default, fg) -> set[str]:
+    """Sources that reach an edge `fg` has and the default setting's graph lacks.
+
+    Any other source has, in `fg`, only routes it also has in the default
+    setting, so each pair of it ambiguous in `fg` was ambiguous (and reported)
+    there already: a setting's analysis need only start from these.
+    """
+    sources: set[str] = set()
+    for edge in set(fg.edges) - set(default.edges):
+        sources |= fg.reaching(edge.src)
+    return sources
 
 
 def rule_security(ctx: _Context) -> Iterator[Finding]:

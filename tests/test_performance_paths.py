@@ -72,3 +72,76 @@ def test_common_measure_shapes_are_read_without_importing_sqlglot():
     assert done.returncode == 0, done.stderr
     expected = "False" if sql.installed_sqlglot_version() == _sqlwords.SQLGLOT_VERSION else "True"
     assert done.stdout.strip() == expected
+
+
+# --- ambiguity in settings other than the default: only sources near a new route are analysed
+
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+from modeldiff import graph  # noqa: E402
+
+TABLES = ["a", "b", "c", "d", "e"]
+
+
+def _every_setting_pair(model) -> set[tuple[str, str, tuple, tuple]]:
+    """Reference: every setting analysed from every source, the first setting to report a pair wins."""
+    reported, out = set(), set()
+    for _, setting in check._settings(model):
+        for s, x, first, second in graph.flow_graph(model, setting).ambiguous_pairs():
+            if (s, x) not in reported:
+                reported.add((s, x))
+                out.add((s, x, first, second))
+    return out
+
+
+def _model_text(links, overrides) -> str:
+    lines = ["model: m", "format: 1", "tables:"]
+    for t in TABLES:
+        lines.append(f"  {t}: {{kind: dimension, key: id, columns: {{id: integer, " +
+                     ", ".join(f"{u}_id: integer" for u in TABLES) + "}}")
+    lines.append("links:")
+    for i, (x, y, two_way, standby) in enumerate(links):
+        lines.append(f"  l{i}: {{from: {x}.{y}_id, to: {y}.id" + (", flow: two-way" if two_way else "")
+                     + (", standby: true" if standby else "") + "}")
+    lines.append("measures:")
+    for i, (table, use, off) in enumerate(overrides):
+        fields = [f"table: {table}", "expr: count(*)"]
+        if use is not None and use < len(links):
+            fields.append(f"use: [l{use}]")
+        if off is not None and off < len(links):
+            fields.append(f"flow: {{l{off}: two-way}}")
+        lines.append(f"  m{i}: {{" + ", ".join(fields) + "}")
+    return "\n".join(lines) + "\n"
+
+
+link = st.tuples(st.sampled_from(TABLES), st.sampled_from(TABLES), st.booleans(), st.booleans()).filter(
+    lambda t: t[0] != t[1])
+override = st.tuples(st.sampled_from(TABLES), st.one_of(st.none(), st.integers(0, 7)),
+                     st.one_of(st.none(), st.integers(0, 7)))
+
+
+@settings(max_examples=60, deadline=None)
+@given(links=st.lists(link, min_size=1, max_size=8), overrides=st.lists(override, max_size=4))
+def test_ambiguity_findings_match_analysing_every_source_in_every_setting(links, overrides):
+    result = load.load_files([("m.model.yaml", _model_text(links, overrides))])
+    found = {(f.subject, f.paths) for f in check.check_model(result.model, result.findings)
+             if f.rule == "ambiguous-paths"}
+    expected = {(f"paths.{s}->{x}", (first, second)) for s, x, first, second in _every_setting_pair(result.model)}
+    assert found == expected
+
+
+def test_ambiguity_only_in_a_measures_setting_is_reported():
+    # filters go b -> a -> c and c -> b; when the measure makes l2 two-way, b -> c directly as well
+    links = [("a", "b", False, False), ("c", "a", False, False), ("b", "c", False, False)]
+    text = _model_text(links, [("a", None, 2)])
+    result = load.load_files([("m.model.yaml", text)])
+    found = [f for f in check.check_model(result.model, result.findings) if f.rule == "ambiguous-paths"]
+    assert [f.subject for f in found] == ["paths.b->c"]
+    assert "in measure m0's setting" in found[0].message
+
+
+def test_no_ambiguity_reported_when_no_setting_has_two_routes():
+    links = [("a", "b", False, False), ("c", "a", False, False), ("b", "c", False, False)]
+    result = load.load_files([("m.model.yaml", _model_text(links, [("a", None, None)]))])
+    assert [f for f in check.check_model(result.model, result.findings) if f.rule == "ambiguous-paths"] == []
