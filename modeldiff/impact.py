@@ -37,7 +37,6 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from typing import Any, Iterable, Mapping
 
-from modeldiff import graph, sql  # both light: sqlglot is imported on first use
 from modeldiff.changes import EXIT_CODES, Change, worst
 from modeldiff.model import Finding, Measure, Model, Overrides, Report, VariantOption
 
@@ -161,6 +160,8 @@ class PairChange:
 
 def in_new_names(g, renames: Renames):
     """`g` (a graph of the old revision) with its tables and links spelled by their new names."""
+    from modeldiff import graph
+
     if not renames:
         return g
 
@@ -189,6 +190,7 @@ def changed_pairs(g_old, g_new, renames: Renames | None = None, sources: Iterabl
     so only pairs upstream/downstream of such an edge are compared; each is
     settled by `graph.path_delta` (equal path signatures answer at once).
     """
+    from modeldiff import graph
 
     old = in_new_names(g_old, renames or Renames())
     gone, came = set(old.edges) - set(g_new.edges), set(g_new.edges) - set(old.edges)
@@ -239,6 +241,7 @@ def _option_in_force(model: Model, variant: str, report: Report | None) -> tuple
 
 def setting_layers(model: Model, measure: Measure | None = None, report: Report | None = None) -> tuple[Overrides, ...]:
     """Override layers of one computation: each variant's option in force, the report's, the measure's."""
+    from modeldiff import graph
 
     return graph.setting_layers(model, measure, report, variant_defaults=True)
 
@@ -260,6 +263,7 @@ class _Analysis:
 
     def graph(self, model: Model, layers: tuple[Overrides, ...] = ()):
         """The flow graph of `model` in the setting of `layers`, shared by every computation with that setting."""
+        from modeldiff import graph
 
         layers_key = (id(model), _layers_key(layers))
         found = self._graphs.get(layers_key)
@@ -364,6 +368,7 @@ def _path_start(sec, filtered: Iterable[str], path: Path, table: str) -> str:
 
 def _security_changes(a: _Analysis) -> list[Change]:
     """security.exposed / tightened / rerouted, per role and table, over the default setting's security graph."""
+    from modeldiff import graph
 
     changes: list[Change] = []
     old_roles = {a.renames.roles.get(name, name): role for name, role in a.old.roles.items()}
@@ -415,6 +420,7 @@ def _restriction_text(path: Path, start: str) -> str:
 
 
 def _restricted(sec, filtered: list[str]) -> dict[str, Path]:
+    from modeldiff import graph
     from modeldiff.model import Role
 
     return graph.role_restricted(Model("", {}), Role("", {t: "" for t in filtered}), sec)
@@ -477,6 +483,7 @@ class _Impacts:
     """Builds the impact lists once every change has its id."""
 
     def __init__(self, a: _Analysis, changes: list[Change]):
+        from modeldiff import sql
 
         self.a = a
         self.changes = changes
@@ -650,6 +657,7 @@ class _Impacts:
 
     @staticmethod
     def _columns_read(m: Measure) -> set[str]:
+        from modeldiff import sql
 
         try:
             read = {c.lower() for _, c in sql.column_refs(m.expr)}
@@ -661,6 +669,7 @@ class _Impacts:
 
     def _filter_reach(self, change: Change) -> dict[str, list[str]]:
         """Tables (new names) that the changed filters of a role restrict in either revision -> those filters."""
+        from modeldiff import graph
 
         if change.id in self._reach_cache:
             return self._reach_cache[change.id]
@@ -726,6 +735,7 @@ class _Impacts:
 
     def where_reasons(self, home: str, comp: _Computation) -> list[Reason]:
         """A variant option's `where` in force changed on a table whose filter reaches `home`."""
+        from modeldiff import sql
 
         reasons = []
         g_old, g_new = self.a.old_graph(comp.old_layers), self.a.graph(self.a.new, comp.new_layers)

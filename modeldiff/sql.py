@@ -22,7 +22,6 @@ from __future__ import annotations
 import contextlib
 import functools
 import json
-import logging
 import re
 from collections.abc import Iterable, Iterator, Mapping, Set
 from dataclasses import dataclass
@@ -225,6 +224,8 @@ def _restore_parameters(tree: "exp.Expression") -> "exp.Expression":
 @contextlib.contextmanager
 def _quiet_sqlglot() -> Iterator[None]:
     """sqlglot logs a warning when it falls back to a raw command; we report it ourselves."""
+    import logging  # sqlglot imports it too: only paid when sqlglot is
+
     logger = logging.getLogger("sqlglot")
     level = logger.level
     logger.setLevel(logging.ERROR)
