@@ -121,9 +121,9 @@ def install_clock() -> StageClock:
     for name in ("as_text",):
         clock.wrap(diff_out, name, "render")
         clock.wrap(check_out, name, "render")
-    for name in ("load_revision", "store_revision", "load_pair", "store_pair"):
-        if hasattr(cache, name):
-            clock.wrap(cache, name, "cache")
+    clock.wrap(compare, "_spec_files", "read")
+    for name in ("load_revision", "store_revision", "load_pair", "store_pair", "revision_key", "fingerprint"):
+        clock.wrap(cache, name, "cache")
     return clock
 
 
