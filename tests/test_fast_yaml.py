@@ -229,6 +229,37 @@ def test_the_fast_builders_shortcuts_agree_with_the_event_reader(which, chosen):
         _same(got, exact)
 
 
+def _one_field_varied() -> list[tuple[str, str, str | None]]:
+    """Every (item kind, field, value) of the tables above; each case varies one field, the rest accepted."""
+    cases = []
+    for which, values in (("table", TABLE_VALUES), ("link", LINK_VALUES), ("measure", MEASURE_VALUES)):
+        for key, options in values.items():
+            cases += [(which, key, value) for value in options if value != "|"]
+    return cases
+
+
+@pytest.mark.parametrize("which,key,value", _one_field_varied())
+def test_each_field_value_reads_the_same_with_both_readers(which, key, value):
+    values = {"table": TABLE_VALUES, "link": LINK_VALUES, "measure": MEASURE_VALUES}[which]
+    fields = {k: options[0] for k, options in values.items()}
+    fields[key] = value
+    item = "{" + ", ".join(f"{k}: {v}" for k, v in fields.items() if v is not None) + "}"
+    bikes = item if which == "table" else VALID["bikes"]
+    link = item if which == "link" else VALID["link"]
+    measure = item if which == "measure" else VALID["measure"]
+    text = (f"model: m\nformat: 1\ntables:\n  trips: {VALID['trips']}\n  bikes: {bikes}\n"
+            f"links:\n  trips_bike: {link}\nmeasures:\n  rides: {measure}\n")
+    files = [("x.model.yaml", text)]
+    exact = _exact(files)
+    quick = load._fast_load(files)
+    accepted = values[key][: values[key].index("|")]
+    if value in accepted:
+        assert quick is not None, text
+    if quick is not None:
+        assert not isinstance(exact, str), exact
+        _same(quick, exact)
+
+
 def test_a_measure_written_the_same_way_is_shared_between_revisions():
     old = BASE + "measures:\n  m: {expr: sum(fare), table: trips}\n  n: {expr: count(*), table: trips}\n"
     new = BASE + "measures:\n  m: {expr: sum(fare), table: trips}\n  n: {expr: count(*), table: trips, unit: rides}\n"
