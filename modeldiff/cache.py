@@ -29,7 +29,8 @@ place with `os.replace`, so concurrent runs never see half an entry. An
 entry whose header or checksum does not match is removed and rebuilt, never
 trusted; payloads are read by an unpickler that builds only modeldiff's
 records and plain containers. Beyond `MAX_ENTRIES` entries or `MAX_BYTES`
-the least recently used are removed. Off: `use_cache=False` in compare.py's
+the least recently used are removed, and so are temporary files left by a
+writer that was stopped half-way. Off: `use_cache=False` in compare.py's
 functions, or `MODELDIFF_NO_CACHE=1`. Any error of the cache itself (a
 read-only folder, a full disk) only turns the cache off for that call.
 """
@@ -51,6 +52,7 @@ MAX_BYTES = 200 * 1024 * 1024
 NO_CACHE_ENV = "MODELDIFF_NO_CACHE"
 DIR_ENV = "MODELDIFF_CACHE_DIR"
 SUFFIX = ".entry"
+STALE_SECONDS = 3600  # a temporary file this old belongs to a writer that was stopped
 
 Files = Sequence[tuple[str, "bytes | str"]]
 
@@ -248,8 +250,26 @@ def entries(folder: str) -> list[tuple[float, int, str]]:
     return sorted(found)
 
 
+def _remove_abandoned(folder: str, now: float) -> None:
+    """Temporary files of writers that were stopped half-way (older than STALE_SECONDS)."""
+    try:
+        with os.scandir(folder) as listing:
+            for item in listing:
+                if item.name.startswith(".tmp-") and item.name.endswith(SUFFIX):
+                    try:
+                        if now - item.stat().st_mtime > STALE_SECONDS:
+                            _remove(item.path)
+                    except OSError:
+                        continue
+    except OSError:
+        pass
+
+
 def evict(folder: str, max_entries: int = MAX_ENTRIES, max_bytes: int = MAX_BYTES) -> int:
     """Remove the least recently used entries beyond the limits; how many were removed."""
+    import time
+
+    _remove_abandoned(folder, time.time())
     found = entries(folder)
     total = sum(size for _, size, _ in found)
     removed = 0

@@ -188,3 +188,14 @@ def test_revisions_compared_through_git_use_the_cache(tmp_path, monkeypatch):
     again = compare.compare_revisions(str(repo), "HEAD~1", "HEAD")
     assert isinstance(again[0].result.new.tables, cache._Section)
     assert [_json(d) for d in again] == [_json(d) for d in first] == [_json(d) for d in fresh]
+
+
+def test_a_writers_abandoned_temporary_file_is_removed_once_stale(tmp_path):
+    stale = tmp_path / f".tmp-old{cache.SUFFIX}"
+    fresh = tmp_path / f".tmp-new{cache.SUFFIX}"
+    stale.write_bytes(b"half an entry")
+    fresh.write_bytes(b"being written")
+    os.utime(stale, (1000, 1000))
+    cache.evict(str(tmp_path))
+    assert not stale.exists()
+    assert fresh.exists()  # another writer may still be at work on it
