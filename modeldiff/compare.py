@@ -102,8 +102,6 @@ class _Revision:
 
 def _compare_files(old_files, new_files, use_cache: bool, where: str, old=None, new=None):
     """The DiffResult of two revisions' files (None: the model is absent on that side), through the cache."""
-    from modeldiff import cache
-
     from modeldiff.load import paused_gc
 
     memo: dict = {}
