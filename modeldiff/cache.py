@@ -1,6 +1,6 @@
 """A cache of analysed revisions and comparisons, so that a repeated diff costs little more than reading the files.
 
-Two kinds of entry, both content-addressed:
+Three kinds of entry, all content-addressed:
 
 - a revision entry, keyed by the revision's files (display names and bytes):
   the findings of the record rules that `impact.analyse` runs on it, so a
@@ -9,7 +9,9 @@ Two kinds of entry, both content-addressed:
   impacted measures, roles and reports, the new revision's errors). A hit
   needs no YAML at all: the two models come back as `Model` records whose
   sections are read from the files on first use (most renderers only need
-  the model's name).
+  the model's name);
+- a check entry, keyed by the revision: every finding of `check.check_model`
+  (`compare.check_spec`), so a model checked before is not read again.
 
 A key is the SHA-256 of the tool's fingerprint (its version, the text of its
 modules, the installed YAML and SQL libraries) and of the content, so it
@@ -382,3 +384,15 @@ def store_pair(folder: str, key: str, result) -> bool:
     }
     return write(folder, "pair", key, value)
 
+
+def load_check(folder: str, key: str, files: Files) -> tuple | None:
+    """(Model read on first use, findings) of a revision checked before, or None."""
+    value = read(folder, "check", key)
+    if not (isinstance(value, dict) and value.get("format") == FORMAT):
+        return None
+    return deferred_model(value["name"], value["model_format"], files), list(value["findings"])
+
+
+def store_check(folder: str, key: str, model, findings: Sequence) -> bool:
+    value = {"format": FORMAT, "name": model.name, "model_format": model.format, "findings": tuple(findings)}
+    return write(folder, "check", key, value)

@@ -34,6 +34,30 @@ def read_model(spec: str):
     return spec, load.load_files(_spec_files(spec))
 
 
+def check_spec(spec: str, use_cache: bool = True):
+    """(label, Model, findings) of `modeldiff check SPEC`: `check.check_model` of the model, through the cache.
+
+    A model checked before (same files, same tool) is not read again: its
+    findings come from the cache and its records are read from the files
+    on first use. `use_cache=False` or MODELDIFF_NO_CACHE=1 checks afresh.
+    """
+    from modeldiff import cache, check, load
+
+    files = _spec_files(spec)
+    folder = key = None
+    if cache.enabled(use_cache):
+        folder, key = cache.directory("."), cache.revision_key(files)
+        found = cache.load_check(folder, key, files)
+        if found is not None:
+            return (spec, *found)
+    with load.paused_gc():
+        result = load.load_files(files)
+        findings = check.check_model(result.model, result.findings)
+    if key is not None:
+        cache.store_check(folder, key, result.model, findings)
+    return spec, result.model, findings
+
+
 def _spec_files(spec: str):
     """The (display name, content) pairs of a path on disk or a `REV:PATH` spec, not yet parsed."""
     from modeldiff import load

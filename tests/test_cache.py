@@ -199,3 +199,33 @@ def test_a_writers_abandoned_temporary_file_is_removed_once_stale(tmp_path):
     cache.evict(str(tmp_path))
     assert not stale.exists()
     assert fresh.exists()  # another writer may still be at work on it
+
+
+def _checks(folder: Path) -> list[Path]:
+    return sorted(folder.glob("check-*" + cache.SUFFIX)) if folder.exists() else []
+
+
+def test_a_repeated_check_comes_from_the_cache_and_says_the_same(folder):
+    from modeldiff import check
+
+    label, model, fresh = compare.check_spec(str(OLD), use_cache=False)
+    assert not _checks(folder)
+    loaded = compare.read_model(str(OLD))[1]
+    assert fresh == check.check_model(loaded.model, loaded.findings)
+    first = compare.check_spec(str(OLD))
+    assert len(_checks(folder)) == 1
+    again_label, again_model, again = compare.check_spec(str(OLD))
+    assert isinstance(again_model.tables, cache._Section)  # from the cache: nothing parsed
+    assert (again_label, again) == (first[0], first[2]) == (label, fresh)
+    assert again_model == model and again_model.name == model.name
+
+
+def test_a_changed_model_is_checked_afresh(folder, tmp_path):
+    copy = tmp_path / "bikeshare.model.yaml"
+    copy.write_bytes(OLD.read_bytes())
+    compare.check_spec(str(copy))
+    copy.write_bytes(OLD.read_bytes().replace(b"model: bikeshare", b"model: bikeshare_two", 1))
+    _, model, _ = compare.check_spec(str(copy))
+    assert not isinstance(model.tables, cache._Section)
+    assert model.name == "bikeshare_two"
+    assert len(_checks(folder)) == 2
