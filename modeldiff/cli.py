@@ -16,16 +16,23 @@ from modeldiff import __version__
 from modeldiff.errors import ModeldiffError, UsageError
 
 
-# Commands that live in modules of their own. Each module defines HELP (one
-# line), configure(parser) and run(args, stdout) -> exit code, and imports its
-# heavy libraries inside run(), so building the parser stays cheap.
+# Commands that live in modules of their own: (name, module, one-line help).
+# Each module defines configure(parser) and run(args, stdout) -> exit
+# code; only the module of the command being run is imported, so a command
+# pays for no other command's imports.
 EXTRA_COMMANDS = (
-    ("graph", "modeldiff.picture"),
-    ("plan", "modeldiff.plan"),
-    ("notes", "modeldiff.notes"),
-    ("hook", "modeldiff.hook"),
-    ("eval", "modeldiff.evaluate"),
-    ("verify", "modeldiff.verify"),
+    ("graph", "modeldiff.picture",
+     "draw a model's filter graph (Mermaid, Graphviz dot, SVG or text), optionally in one measure's or report's setting"),
+    ("plan", "modeldiff.plan",
+     "a migration plan from OLD to NEW: ordered steps with preconditions, checks (SQL for data) and rollbacks"),
+    ("notes", "modeldiff.notes",
+     "release notes for a range of commits (A..B): what changed in each model, by severity, with a diagram"),
+    ("hook", "modeldiff.hook",
+     "install, remove or show the pre-push hook that blocks unacknowledged breaking model changes"),
+    ("eval", "modeldiff.evaluate",
+     "evaluate a model's reports on data (Parquet, CSV or a DuckDB file) and print their numbers"),
+    ("verify", "modeldiff.verify",
+     "evaluate OLD and NEW on the same data: which numbers really move, and whether the data meets the change's preconditions"),
 )
 
 
@@ -40,22 +47,20 @@ class _Parser(argparse.ArgumentParser):
 
 def cmd_check(args, stdout: TextIO) -> int:
     from modeldiff import check
+    from modeldiff.compare import check_spec
     from modeldiff.render import check_out
 
-    from modeldiff.compare import read_model
-
-    label, result = read_model(args.model)
-    findings = check.check_model(result.model, result.findings)
+    label, model, findings = check_spec(args.model, use_cache=not args.no_cache)
     if args.format == "json":
-        check_out.as_json(result.model.name, findings, stdout)
+        check_out.as_json(model.name, findings, stdout)
     elif args.format == "github":
         from modeldiff.render import github
 
-        github.check_annotations(result.model.name, findings, stdout)
+        github.check_annotations(model.name, findings, stdout)
     elif args.format == "markdown":
-        check_out.as_markdown(result.model.name, label, findings, stdout)
+        check_out.as_markdown(model.name, label, findings, stdout)
     else:
-        check_out.as_text(result.model.name, label, findings, stdout)
+        check_out.as_text(model.name, label, findings, stdout)
     return check.exit_code(findings, strict=args.strict)
 
 
@@ -70,7 +75,7 @@ def cmd_diff(args, stdout: TextIO) -> int:
         if args.head is not None:
             raise UsageError("--head goes with --base")
         old_spec, new_spec = args.models
-        diffs.append(compare.compare_specs(old_spec, new_spec))
+        diffs.append(compare.compare_specs(old_spec, new_spec, use_cache=not args.no_cache))
     else:
         from modeldiff import git
 
@@ -82,7 +87,7 @@ def cmd_diff(args, stdout: TextIO) -> int:
         if not paths:
             raise ModeldiffError(f"no model files (*.model.yaml or *.model/) found at {args.base} or "
                                  f"{args.head or 'the working tree'}; name them after --base")
-        diffs.extend(compare.compare_revisions(root, args.base, args.head, paths))
+        diffs.extend(compare.compare_revisions(root, args.base, args.head, paths, use_cache=not args.no_cache))
     if args.format == "html":
         from modeldiff.render import html
 
@@ -105,7 +110,12 @@ def cmd_schema(args, stdout: TextIO) -> int:
     return 0
 
 
-def build_parser() -> argparse.ArgumentParser:
+def _command_of(argv: Sequence[str]) -> str | None:
+    """The command word of `argv` (its first word that is not an option)."""
+    return next((word for word in argv if not word.startswith("-")), None)
+
+
+def build_parser(argv: Sequence[str] = ()) -> argparse.ArgumentParser:
     from modeldiff.render import FORMATS
 
     parser = _Parser(prog="modeldiff", description="What a change to an analytical model does to its numbers and its row security.")
@@ -116,6 +126,7 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("model", metavar="MODEL", help="model file, NAME.model/ folder, or REV:PATH")
     p.add_argument("--format", choices=FORMATS + ("github",), default="text")
     p.add_argument("--strict", action="store_true", help="exit 1 when there are warnings")
+    p.add_argument("--no-cache", action="store_true", help="read and check afresh, ignoring and not writing the cache")
     p.set_defaults(run=cmd_check)
 
     p = sub.add_parser("diff", help="compare two revisions: changes, and what could return different numbers")
@@ -123,19 +134,19 @@ def build_parser() -> argparse.ArgumentParser:
     p.add_argument("--base", metavar="REV", help="compare every model file at REV with the working tree (or --head)")
     p.add_argument("--head", metavar="REV", help="with --base: compare with this revision instead of the working tree")
     p.add_argument("--format", choices=FORMATS + ("html", "github"), default="text")
+    p.add_argument("--no-cache", action="store_true", help="read and compare afresh, ignoring and not writing the cache")
     p.set_defaults(run=cmd_diff)
 
     p = sub.add_parser("schema", help="print the JSON Schema of the model file format")
     p.set_defaults(run=cmd_schema)
 
-    for name, module_name in EXTRA_COMMANDS:
-        try:
-            module = importlib.import_module(module_name)
-        except ModuleNotFoundError as exc:
-            if exc.name != module_name:
-                raise
-            continue  # a command not built yet
-        p = sub.add_parser(name, help=module.HELP, description=module.__doc__.strip().splitlines()[0] if module.__doc__ else None)
+    wanted = _command_of(argv)
+    for name, module_name, help_text in EXTRA_COMMANDS:
+        if name != wanted:
+            sub.add_parser(name, help=help_text)  # listed in --help; configured only when it runs
+            continue
+        module = importlib.import_module(module_name)
+        p = sub.add_parser(name, help=help_text, description=module.__doc__.strip().splitlines()[0] if module.__doc__ else None)
         module.configure(p)
         p.set_defaults(run=module.run)
     return parser
@@ -149,7 +160,7 @@ def main(argv: Sequence[str] | None = None, stdout: TextIO | None = None, stderr
         print(f"modeldiff {__version__}", file=stdout)
         return 0
     try:
-        parser = build_parser()
+        parser = build_parser(argv)
         args = parser.parse_args(argv)
         if args.version:
             print(f"modeldiff {__version__}", file=stdout)

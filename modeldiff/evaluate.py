@@ -23,7 +23,6 @@ from datetime import date, datetime, time
 from decimal import Decimal
 from typing import Any, Sequence, TextIO
 
-HELP = "evaluate a model's reports on data (Parquet, CSV or a DuckDB file) and print their numbers"
 
 FORMATS = ("text", "json", "csv")
 NO_MATCH_TEXT = "(no match)"

@@ -31,7 +31,6 @@ from typing import Mapping, Sequence, TextIO
 from modeldiff import prepush
 from modeldiff.errors import ModeldiffError
 
-HELP = "install, remove or show the pre-push hook that blocks unacknowledged breaking model changes"
 
 HOOK_NAME = "pre-push"
 CHAINED_NAME = "pre-push.local"

@@ -29,7 +29,6 @@ from typing import Sequence, TextIO
 
 from modeldiff.errors import UsageError
 
-HELP = "release notes for a range of commits (A..B): what changed in each model, by severity, with a diagram"
 FORMATS = ("markdown", "json")
 SEVERITY_TITLES = {"breaking": "Breaking", "numbers": "Can move numbers", "safe": "Safe"}
 SHORT = 7  # characters of a commit id shown

@@ -21,7 +21,6 @@ import re
 from dataclasses import dataclass
 from typing import Iterable, Sequence
 
-HELP = "draw a model's filter graph (Mermaid, Graphviz dot, SVG or text), optionally in one measure's or report's setting"
 
 FORMATS = ("mermaid", "dot", "svg", "text")
 NEIGHBOURHOOD_LIMIT = 60  # tables; above it a diff's picture shows only what is near the change

@@ -37,7 +37,6 @@ import json
 from dataclasses import dataclass, field
 from typing import Iterable, Sequence, TextIO
 
-HELP = "a migration plan from OLD to NEW: ordered steps with preconditions, checks (SQL for data) and rollbacks"
 FORMATS = ("text", "markdown", "json")
 
 # Step kinds in tie-break order: reviews and data checks first, additions, changes, then removals.

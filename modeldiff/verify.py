@@ -32,7 +32,6 @@ from typing import Any, Callable, Iterable, Mapping, Sequence, TextIO
 
 from modeldiff.errors import ModeldiffError
 
-HELP = "evaluate OLD and NEW on the same data: which numbers really move, and whether the data meets the change's preconditions"
 FORMATS = ("text", "json", "markdown")
 DEFAULT_LIMIT = 10  # differences listed per report or measure (0: all)
 VIEWER_CAP = 5  # viewers tried for a role filtering on :user when --user is not given
