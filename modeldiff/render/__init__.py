@@ -23,3 +23,16 @@ def console(stream: TextIO):
             width = 100
     options = {"color_system": None} if os.environ.get("NO_COLOR") else {}
     return Console(file=stream, width=width, highlight=False, emoji=False, **options)
+
+
+def print_indented(out, text: str, indent: int) -> None:
+    """Print plain `text` (no markup) so that wrapped lines keep the same indentation."""
+    import textwrap
+
+    from rich.text import Text
+
+    pad = " " * indent
+    width = max(40, (out.width or 100) - 1)
+    filled = textwrap.fill(text, width=width, initial_indent=pad, subsequent_indent=pad,
+                           break_long_words=False, break_on_hyphens=False)
+    out.print(Text(filled), overflow="ignore", crop=False, soft_wrap=True)

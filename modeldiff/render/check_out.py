@@ -31,7 +31,7 @@ def _counts(findings: Sequence[Finding]) -> tuple[int, int]:
 def as_text(model_name: str, source: str, findings: Sequence[Finding], stream: TextIO) -> None:
     from rich.markup import escape
 
-    from modeldiff.render import console
+    from modeldiff.render import console, print_indented
 
     out = console(stream)
     errors, warnings = _counts(findings)
@@ -48,7 +48,7 @@ def as_text(model_name: str, source: str, findings: Sequence[Finding], stream: T
         for f in group:
             where = f"{f.pos}: " if f.pos else ""
             out.print(f"  [{style}]{f.rule}[/] {escape(f.subject)}")
-            out.print(f"    {escape(where + f.message)}")
+            print_indented(out, where + f.message, 4)
             for path in f.paths:
                 out.print(f"    path: {escape(' -> '.join(path))}")
 

@@ -118,7 +118,7 @@ def _role_extras(i: Impact) -> str:
 def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
     from rich.markup import escape
 
-    from modeldiff.render import console
+    from modeldiff.render import console, print_indented
 
     out = console(stream)
     for md in diffs:
@@ -142,12 +142,12 @@ def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
             out.print(f"  [{_STYLE[severity]}]{severity}[/]")
             for c in group:
                 out.print(f"    {c.id} [{_STYLE[severity]}]{escape(c.kind)}[/] {escape(c.subject)}")
-                out.print(f"       {escape(c.message)}")
+                print_indented(out, c.message, 7)
         if r.new_errors:
             out.print()
             out.print("  [bold red]errors in the new revision[/] (run `modeldiff check` for details)")
             for f in r.new_errors:
-                out.print(f"    {escape(f.rule)} {escape(f.subject)}: {escape(f.message)}")
+                print_indented(out, f"{f.rule} {f.subject}: {f.message}", 4)
         for title, impacts in (("measures", r.measures), ("roles", r.roles), ("reports", r.reports)):
             if not impacts:
                 continue
@@ -158,7 +158,7 @@ def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
                 out.print(f"    [{_STYLE[i.severity]}]{escape(i.name)}[/] ({i.severity})"
                           + (f"  {escape(extra)}" if extra else ""))
                 for reason in i.reasons:
-                    out.print(f"       {escape(reason_words(reason, kinds))}")
+                    print_indented(out, reason_words(reason, kinds), 7)
                     for p in reason.paths_added:
                         out.print(f"         + {escape(_path_text(p))}")
                     for p in reason.paths_removed:
