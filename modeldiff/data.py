@@ -116,8 +116,10 @@ class Database:
         """A database holding the given rows (one tuple per row, the model's columns in order).
 
         For tests and for callers that build data in Python; keys are not
-        checked. Given a DuckDB `connection`, its tables of the model's names
-        are replaced (and closing the database closes the connection).
+        checked, but the engine relies on them: give no two rows of a table
+        the same value of its key or of a column declared unique. Given a
+        DuckDB `connection`, its tables of the model's names are replaced (and
+        closing the database closes the connection).
         """
         import duckdb
 

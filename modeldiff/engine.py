@@ -41,6 +41,21 @@ matches nothing.
 Role cuts are the same computation over the security graph with the role's
 filters; its visible rows become the starting rows of every later step.
 
+Measures of one home table with the same `where`, in one setting, are
+aggregated together in one pass over that table: each row visible in the
+total comes once per group it is visible in (its tags), or once marked `_nm`
+when it is in no group, and the pass groups by the tags, `_nm` and whether
+the row passes the `where`; the groups, the `(no match)` row and each
+measure's values are read from that small result. When the table gets its
+tags through one join outside any cycle, the pass is its visible rows LEFT
+JOINed to that join's relation (the shape of a hand-written star join);
+otherwise its visible rows LEFT JOIN its grouped rows on `_row`.
+
+The data must honour each table's `key` and `unique` columns (modeldiff.data
+checks both in `Database.open`): a join on a key or unique column reads the
+source's (tags, key) pairs without DISTINCT, since a visible row carries each
+tag set once. Relations the final statement does not read are left out.
+
 Settings: a base measure used by a report is evaluated in the setting made of
 the variant options in force (each variant's choice in the report, else its
 default), the report's overrides, the overrides of each derived measure on the
@@ -353,7 +368,8 @@ class _Plan:
         """
         rels = [(item[1], item[2]) for item in self.items if item[0] == "rel"]
         tables = self._needed_by_loops(rels)
-        ctes = ",\n".join(f"{q(name)} AS (\n{sql}\n)" for name, sql in rels if name not in tables)
+        used = _referenced(rels, [final])
+        ctes = ",\n".join(f"{q(name)} AS (\n{sql}\n)" for name, sql in rels if name not in tables and name in used)
         final = (f"WITH {ctes}\n" if ctes else "") + final
         steps: list = []
         for item in self.items:
@@ -375,6 +391,20 @@ class _Plan:
                     needed.add(name)
                     todo.append(name)
         return needed
+
+
+def _referenced(rels: list[tuple[str, str]], texts: Sequence[str]) -> set[str]:
+    """Names of the relations `texts` read, directly or through other relations."""
+    sql_of = dict(rels)
+    found: set[str] = set()
+    todo = list(texts)
+    while todo:
+        text = todo.pop()
+        for name in sql_of:
+            if name not in found and q(name) in text:
+                found.add(name)
+                todo.append(sql_of[name])
+    return found
 
 
 @dataclass(frozen=True)
@@ -399,9 +429,12 @@ class _Visibility:
 
     def __init__(self, plan: _Plan, prefix: str, arcs: Sequence[_Arc], filters: Mapping[str, tuple[str, ...]],
                  base: Mapping[str, str], sources: Sequence[_Source] = (),
-                 domain: Callable[[int], str] | None = None, reuse: Mapping[str, _Rel] | None = None) -> None:
+                 domain: Callable[[int], str] | None = None, reuse: Mapping[str, _Rel] | None = None,
+                 unique_on: Callable[[str, tuple[str, ...]], bool] | None = None) -> None:
         self.plan, self.prefix, self.filters, self.base = plan, prefix, filters, base
         self.sources, self.domain, self.reuse = tuple(sources), domain, reuse or {}
+        self.unique_on = unique_on or (lambda table, columns: False)
+        self.cyclic: set[str] = set()
         filtered = {t for t, preds in filters.items() if preds} | {s.table for s in self.sources}
         self.constrained = _reach(arcs, filtered)
         self.arcs = [a for a in arcs if a.src in self.constrained]
@@ -432,6 +465,7 @@ class _Visibility:
             self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}", self._select(table, self._into(table))),
                                     self.tags[table])
             return
+        self.cyclic.update(members)
         for table in self._order(members):
             ready = [a for a in self._into(table) if a.src in self.rels]
             self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}", self._select(table, ready)),
@@ -468,14 +502,14 @@ class _Visibility:
         conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {outer}.{_tag(i)}" for i in src.tags]
         return f"EXISTS (SELECT 1 FROM {q(src.name)} AS _u WHERE {_and(conds)})"
 
-    def _select(self, table: str, arcs: Sequence[_Arc]) -> str:
-        """Rows of `table` passing its filters, tagged, semi-joined with the visible rows of `arcs`' sources."""
-        preds = self.filters.get(table, ())
-        inner = f"SELECT * FROM {q(self.base.get(table, table))} AS {q(table)}"
-        if preds:
-            inner += " WHERE " + _and([f"({p})" for p in preds])
+    def _split(self, table: str, arcs: Sequence[_Arc]) -> tuple[dict[int, str], list[tuple[str, _Arc]], list[_Arc]]:
+        """How `_select` meets `arcs`: tags `table` provides itself, arcs joined (with their alias), arcs semi-joined.
+
+        An arc is joined when its source carries a tag not yet provided: the
+        join brings that tag along; the other arcs are semi-joins.
+        """
         provided: dict[int, str] = {s.index: f"_x.{q(s.column)}" for s in self.sources if s.table == table}
-        joins: list[str] = []
+        joins: list[tuple[str, _Arc]] = []
         semi: list[_Arc] = []
         for n, arc in enumerate(arcs):
             src = self.rel(arc.src)
@@ -483,13 +517,40 @@ class _Visibility:
                 semi.append(arc)
                 continue
             alias = f"_j{n}"
-            keys = [f"{q(c)} AS {q(f'_k{m}')}" for m, c in enumerate(arc.src_columns)]
-            conds = [f"_x.{q(d)} = {alias}.{q(f'_k{m}')}" for m, d in enumerate(arc.dst_columns)]
-            conds += [f"{alias}.{_tag(i)} IS NOT DISTINCT FROM {provided[i]}" for i in src.tags if i in provided]
-            columns = ", ".join([_tag(i) for i in src.tags] + keys)
-            joins.append(f"JOIN (SELECT DISTINCT {columns} FROM {q(src.name)}) AS {alias} ON {_and(conds)}")
+            joins.append((alias, arc))
             for i in src.tags:
                 provided.setdefault(i, f"{alias}.{_tag(i)}")
+        return provided, joins, semi
+
+    def _join(self, alias: str, arc: _Arc, provided: Mapping[int, str], kind: str = "JOIN") -> str:
+        """Join the distinct (tags, link columns) of arc.src's visible rows, matching link columns and known tags.
+
+        When the link columns hold the source table's key (or a unique
+        column), each visible row has one tag set, so the pairs are distinct
+        already and DISTINCT is left out.
+        """
+        src = self.rel(arc.src)
+        keys = [f"{q(c)} AS {q(f'_k{m}')}" for m, c in enumerate(arc.src_columns)]
+        conds = [f"_x.{q(d)} = {alias}.{q(f'_k{m}')}" for m, d in enumerate(arc.dst_columns)]
+        conds += [f"{alias}.{_tag(i)} IS NOT DISTINCT FROM {provided[i]}" for i in src.tags if i in provided]
+        columns = ", ".join([_tag(i) for i in src.tags] + keys)
+        distinct = "" if self.unique_on(arc.src, arc.src_columns) else "DISTINCT "
+        return f"{kind} (SELECT {distinct}{columns} FROM {q(src.name)}) AS {alias} ON {_and(conds)}"
+
+    def _select(self, table: str, arcs: Sequence[_Arc]) -> str:
+        """Rows of `table` passing its filters, tagged, semi-joined with the visible rows of `arcs`' sources."""
+        preds = self.filters.get(table, ())
+        inner = f"SELECT * FROM {q(self.base.get(table, table))} AS {q(table)}"
+        if preds:
+            inner += " WHERE " + _and([f"({p})" for p in preds])
+        own = {s.index: f"_x.{q(s.column)}" for s in self.sources if s.table == table}
+        provided, joined, semi = self._split(table, arcs)
+        joins = []
+        known = dict(own)
+        for alias, arc in joined:
+            joins.append(self._join(alias, arc, known))
+            for i in self.rel(arc.src).tags:
+                known.setdefault(i, f"{alias}.{_tag(i)}")
         for i in self.tags[table]:
             if i not in provided:  # only in a cycle: every value of the grouping column, a superset
                 joins.append(f"CROSS JOIN {q(self.domain(i))} AS _d{i}")
@@ -501,6 +562,36 @@ class _Visibility:
         if semi:
             sql = f"SELECT * FROM ({sql}) AS _c WHERE " + _and([self._exists(a, "_c") for a in semi])
         return sql
+
+    def home_rows(self, table: str, total: "_Visibility") -> str | None:
+        """Every row of `table` visible in `total`, with its tags and `_nm`, or None when no plain form exists.
+
+        The plain form: `table` is built by `_select` outside any cycle with
+        at most one join, and semi-joins only untagged relations (the very
+        ones of `total`). Then its grouped rows are its total rows joined with
+        that one relation, and a LEFT JOIN gives each total row its groups, or
+        one row with NULL tags and `_nm` true when it is in no group. No tag
+        at all: the total rows, `_nm` false.
+        """
+        tags = self.tags.get(table, ())
+        rows = q(total.rel(table).name)
+        if not tags:
+            return f"SELECT _x.*, false AS _nm FROM {rows} AS _x"
+        if table in self.cyclic:
+            return None
+        provided, joined, semi = self._split(table, self._into(table))
+        if len(joined) > 1 or set(tags) - set(provided) or any(self.rel(a.src).tags for a in semi):
+            return None
+        own = {s.index for s in self.sources if s.table == table}
+        if not joined:
+            picks = "".join(f", {provided[i]} AS {_tag(i)}" for i in tags)
+            return f"SELECT _x.*{picks}, false AS _nm FROM {rows} AS _x"
+        alias, arc = joined[0]
+        missed = f"{alias}.{q('_k0')} IS NULL"
+        picks = "".join(f", CASE WHEN {missed} THEN NULL ELSE {provided[i]} END AS {_tag(i)}" if i in own
+                        else f", {provided[i]} AS {_tag(i)}" for i in tags)
+        join = self._join(alias, arc, {i: provided[i] for i in own}, "LEFT JOIN")
+        return f"SELECT _x.*{picks}, {missed} AS _nm FROM {rows} AS _x\n  {join}"
 
 
 # --- measures ---------------------------------------------------------------------------
@@ -598,7 +689,7 @@ class _Compiler:
                 raise ModeldiffError(f"role {role.name} filters table {table}, which model {self.model.name} "
                                      "does not have; fix the role")
         filters = self.bound_filters({t: [(f"role {role.name}'s filter on {t}", p)] for t, p in role.filters.items()})
-        cut = _Visibility(self.plan, "_r", _security_arcs(self.model), filters, {})
+        cut = _Visibility(self.plan, "_r", _security_arcs(self.model), filters, {}, unique_on=self.unique_on)
         return {t: cut.rel(t).name for t in cut.constrained}
 
     # -- queries
@@ -608,7 +699,7 @@ class _Compiler:
 
         base = self.role_base(role)
         seen = _Visibility(self.plan, "_t", _flow_arcs(self.model, graph.default_setting(self.model)),
-                           self.bound_filters(filters), base)
+                           self.bound_filters(filters), base, unique_on=self.unique_on)
         final = f"SELECT count(*) AS {q(ROWS_COLUMN)} FROM {q(seen.rel(table).name)}"
         return self.plan.query(final, (ROWS_COLUMN,), self.params)
 
@@ -626,10 +717,31 @@ class _Compiler:
             settings.setdefault(graph.resolve_setting(model, *term.layers), []).append(term)
         values: dict[int, _Value] = {}
         for s, (setting, members) in enumerate(settings.items()):
-            group = _SettingGroups(self.plan, f"_s{s}", _flow_arcs(model, setting), bound, base, sources)
+            group = _SettingGroups(self.plan, f"_s{s}", _flow_arcs(model, setting), bound, base, sources,
+                                   self.unique_on)
+            batches: dict[tuple[str, str | None], list[_Bound]] = {}
             for term in members:
-                values[terms.index(term)] = group.measure(model.measures[term.measure], self, terms.index(term))
+                b = self.bound_measure(model.measures[term.measure], terms.index(term))
+                batches.setdefault((b.home, b.where), []).append(b)
+            for batch in batches.values():
+                values.update(group.measures(batch))
         return self._final(measure_names, by, sources, terms, values, report_layers)
+
+    def bound_measure(self, measure: Measure, k: int) -> _Bound:
+        home = measure.table
+        if home not in self.model.tables:
+            raise ModeldiffError(f"measure {measure.name} is on table {home}, which model {self.model.name} "
+                                 "does not have; fix the measure")
+        where = self.bind(measure.where, f"measure {measure.name}'s where") if measure.where else None
+        return _Bound(k, home, self.bind(measure.expr, f"measure {measure.name}"), where)
+
+    def unique_on(self, table: str, columns: tuple[str, ...]) -> bool:
+        """Whether `columns` hold the table's key or a column declared unique (the data is checked for both)."""
+        t = self.model.tables.get(table)
+        if t is None:
+            return False
+        return bool(t.key) and set(t.key) <= set(columns) or any(
+            c in t.columns and t.columns[c].unique for c in columns)
 
     def _final(self, measure_names, by, sources, terms, values, report_layers) -> Query:
         columns = list(by) + list(measure_names)
@@ -645,7 +757,8 @@ class _Compiler:
             nothing = ", ".join([f"NULL AS {t}" for t in tag_cols] + [f"false AS {q(NO_MATCH_COLUMN)}"])
             final = f"SELECT {', '.join(outputs)}, {q(NO_MATCH_COLUMN)}\nFROM (SELECT {nothing}) AS _v WHERE false"
             return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
-        combos = self.plan.relation("_combos", "\nUNION\n".join(values[k].combos for k in range(len(terms))))
+        combos = self.plan.relation("_combos", "\nUNION\n".join(dict.fromkeys(values[k].combos
+                                                                             for k in range(len(terms)))))
         picks, joins = [], []
         for k in range(len(terms)):
             v = values[k]
@@ -706,17 +819,29 @@ class _Value:
     no_match: str  # _rows, _value: home rows visible in the total but in no group
 
 
+@dataclass(frozen=True)
+class _Bound:
+    """A base measure ready to evaluate: its index among the terms, home table, SQL of its aggregate and its where."""
+
+    k: int
+    home: str
+    expr: str
+    where: str | None
+
+
 class _SettingGroups:
     """The total and the per-group visible rows of one setting, and the measures evaluated in it."""
 
     def __init__(self, plan: _Plan, prefix: str, arcs: list[_Arc], filters: Mapping[str, tuple[str, ...]],
-                 base: Mapping[str, str], sources: Sequence[_Source]) -> None:
+                 base: Mapping[str, str], sources: Sequence[_Source],
+                 unique_on: Callable[[str, tuple[str, ...]], bool] | None = None) -> None:
         self.plan, self.prefix, self.base, self.sources = plan, prefix, base, tuple(sources)
-        self.total = _Visibility(plan, f"{prefix}t", arcs, filters, base)
+        self.total = _Visibility(plan, f"{prefix}t", arcs, filters, base, unique_on=unique_on)
         self._domains: dict[int, str] = {}
         if sources:
             reuse = {t: self.total.rel(t) for t in self.total.constrained}
-            self.grouped = _Visibility(plan, f"{prefix}v", arcs, filters, base, sources, self.domain, reuse)
+            self.grouped = _Visibility(plan, f"{prefix}v", arcs, filters, base, sources, self.domain, reuse,
+                                       unique_on)
         else:
             self.grouped = self.total
 
@@ -728,45 +853,100 @@ class _SettingGroups:
             self._domains[i] = self.plan.relation(f"{self.prefix}d{i}", sql)
         return self._domains[i]
 
-    def measure(self, measure: Measure, compiler: _Compiler, k: int) -> _Value:
-        home = measure.table
-        if home not in compiler.model.tables:
-            raise ModeldiffError(f"measure {measure.name} is on table {home}, which model {compiler.model.name} "
-                                 "does not have; fix the measure")
-        where = f"measure {measure.name}'s where"
-        cond = f" WHERE ({compiler.bind(measure.where, where)})" if measure.where else ""
-        expr = compiler.bind(measure.expr, f"measure {measure.name}")
+    def _home_rows(self, home: str) -> str:
+        """Each row of `home` visible in the total, once per group it is visible in (tags), or once with `_nm`."""
+        plain = self.grouped.home_rows(home, self.total)
+        if plain is not None:
+            return plain
         seen = self.grouped.rel(home)
-        tags = tuple(i for i in seen.tags)
-        tag_list = ", ".join(_tag(i) for i in tags)
-        rows = f"(SELECT * FROM {q(seen.name)} AS {q(home)}{cond}) AS {q(home)}"
-        if tags:
-            value_sql = f"SELECT {tag_list}, {expr} AS _value, true AS _seen FROM {rows} GROUP BY {tag_list}"
-        else:
-            value_sql = f"SELECT {expr} AS _value, true AS _seen FROM {rows}"
-        value = self.plan.relation(f"_m{k}", value_sql)
-        empty = self.plan.relation(f"_e{k}", f"SELECT {expr} AS _value FROM (SELECT * FROM {q(home)} "
-                                             f"WHERE false) AS {q(home)}")
+        tags = "".join(f", _v.{_tag(i)}" for i in seen.tags)
+        picks = ", ".join([q("_row")] + [_tag(i) for i in seen.tags])
+        return (f"SELECT _x.*{tags}, _v._row IS NULL AS _nm FROM {q(self.total.rel(home).name)} AS _x\n"
+                f"  LEFT JOIN (SELECT {picks} FROM {q(seen.name)}) AS _v ON _x._row = _v._row")
+
+    def measures(self, batch: Sequence[_Bound]) -> dict[int, _Value]:
+        """Base measures of one home table and one where, aggregated in one pass over that table's rows.
+
+        `_aJ` holds one row per group (tags, `_nm`, `_w`: the row passes the
+        measures' where) with `_n`, the rows, and `_vK`, measure K's value.
+        Without grouping columns it is one row over the visible rows.
+        """
+        first = batch[0]
+        home, where = first.home, first.where
+        values = ", ".join(f"{b.expr} AS {q(f'_v{b.k}')}" for b in batch)
         if not self.sources:
-            return _Value(tags, value, empty, "", "")
+            cond = f" WHERE ({where})" if where else ""
+            rows = f"(SELECT * FROM {q(self.total.rel(home).name)} AS {q(home)}{cond}) AS {q(home)}"
+            agg = self.plan.relation(f"_a{first.k}", f"SELECT {values} FROM {rows}")
+            out = {}
+            for b in batch:
+                value = self.plan.relation(f"_m{b.k}", f"SELECT {q(f'_v{b.k}')} AS _value, true AS _seen FROM {q(agg)}")
+                out[b.k] = _Value((), value, self._empty(b), "", "")
+            return out
+        tags = tuple(self.grouped.rel(home).tags)
+        rows = self._home_rows(home)
+        if where:
+            rows = f"SELECT *, ({where}) IS TRUE AS _w FROM ({rows}) AS {q(home)}"
+        keys = ", ".join([_tag(i) for i in tags] + ["_nm"] + (["_w"] if where else []))
+        agg = self.plan.relation(f"_a{first.k}", f"SELECT {keys}, count(*) AS _n, {values} FROM ({rows}) AS {q(home)} "
+                                                 f"GROUP BY {keys}")
+        passing = " AND _w" if where else ""
+        tag_list = ", ".join(_tag(i) for i in tags)
+        present_sql = (f"SELECT DISTINCT {tag_list} FROM {q(agg)} WHERE NOT _nm" if tags else
+                       f"SELECT 1 AS _one WHERE EXISTS (SELECT 1 FROM {q(agg)} WHERE NOT _nm)")
+        present = self.plan.relation(f"_p{first.k}", present_sql)
         unreached = [s.index for s in self.sources if s.index not in tags]
-        seen_groups = f"SELECT DISTINCT {tag_list} FROM {q(seen.name)}" if tags else \
-            f"SELECT 1 AS _one WHERE EXISTS (SELECT 1 FROM {q(seen.name)})"
-        present = self.plan.relation(f"_p{k}", seen_groups)
         picks = [f"_p.{_tag(i)}" if i in tags else f"_d{i}.{_tag(i)}" for i in range(len(self.sources))]
         combos = f"SELECT {', '.join(picks)} FROM {q(present)} AS _p" + "".join(
             f" CROSS JOIN {q(self.domain(i))} AS _d{i}" for i in unreached)
-        total = self.total.rel(home)
-        lost = []
+        out = {}
+        for b in batch:
+            value = self.plan.relation(
+                f"_m{b.k}", f"SELECT {tag_list + ', ' if tags else ''}{q(f'_v{b.k}')} AS _value, true AS _seen "
+                            f"FROM {q(agg)} WHERE NOT _nm{passing}")
+            empty = self._empty(b)
+            no_match = self.plan.relation(f"_n{b.k}", self._no_match(b, agg, tags, unreached, empty))
+            out[b.k] = _Value(tags, value, empty, combos, no_match)
+        return out
+
+    def _empty(self, b: _Bound) -> str:
+        return self.plan.relation(f"_e{b.k}", f"SELECT {b.expr} AS _value FROM (SELECT * FROM {q(b.home)} "
+                                              f"WHERE false) AS {q(b.home)}")
+
+    def _no_match(self, b: _Bound, agg: str, tags: tuple[int, ...], unreached: list[int], empty: str) -> str:
+        """`_rows`, `_value`: the home rows visible in the total but in no group, and the measure over them.
+
+        A row is in no group when no tag set reaches it (`_nm`), or when a
+        grouping column its table does not reach has no value at all.
+        """
         if tags:
-            lost.append(f"NOT EXISTS (SELECT 1 FROM {q(seen.name)} AS _s WHERE _s._row = {q(home)}._row)")
-        lost += [f"NOT EXISTS (SELECT 1 FROM {q(self.domain(i))})" for i in unreached]
-        left = f"SELECT * FROM {q(total.name)} AS {q(home)} WHERE " + (" OR ".join(lost) if lost else "false")
-        leftover = self.plan.relation(f"_x{k}", left)
-        no_match = self.plan.relation(
-            f"_n{k}", f"SELECT (SELECT count(*) FROM {q(leftover)}) AS _rows, "
-                      f"(SELECT {expr} FROM (SELECT * FROM {q(leftover)} AS {q(home)}{cond}) AS {q(home)}) AS _value")
-        return _Value(tags, value, empty, combos, no_match)
+            rows, value = self._over(b, agg, ["_nm"], empty)
+        else:
+            rows, value = "0", f"(SELECT _value FROM {q(empty)})"
+        if unreached:
+            nothing = " OR ".join(f"NOT EXISTS (SELECT 1 FROM {q(self.domain(i))})" for i in unreached)
+            if tags:
+                total = q(self.total.rel(b.home).name)
+                cond = f" WHERE ({b.where})" if b.where else ""
+                all_rows = f"(SELECT count(*) FROM {total})"
+                all_value = f"(SELECT {b.expr} FROM (SELECT * FROM {total} AS {q(b.home)}{cond}) AS {q(b.home)})"
+            else:  # no tag, so no row in several groups: the groups of `agg` hold each visible row once
+                all_rows, all_value = self._over(b, agg, [], empty)
+            rows = f"CASE WHEN {nothing} THEN {all_rows} ELSE {rows} END"
+            value = f"CASE WHEN {nothing} THEN {all_value} ELSE {value} END"
+        return f"SELECT {rows} AS _rows, {value} AS _value"
+
+    @staticmethod
+    def _over(b: _Bound, agg: str, conds: list[str], empty: str) -> tuple[str, str]:
+        """The rows of `agg`'s groups passing `conds`, and measure K over those of them passing its where."""
+        def where(parts: list[str]) -> str:
+            return f" WHERE {_and(parts)}" if parts else ""
+
+        kept = f"{q(agg)}{where(conds + (['_w'] if b.where else []))}"
+        rows = f"(SELECT coalesce(sum(_n), 0) FROM {q(agg)}{where(conds)})"
+        value = (f"CASE WHEN EXISTS (SELECT 1 FROM {kept}) THEN (SELECT {q(f'_v{b.k}')} FROM {kept}) "
+                 f"ELSE (SELECT _value FROM {q(empty)}) END")
+        return rows, value
 
 
 # --- reading a report's parts -----------------------------------------------------------
