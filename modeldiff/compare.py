@@ -111,16 +111,21 @@ def _empty_model(name: str):
 class _Revision:
     """One side of a comparison: its files, loaded at most once."""
 
-    def __init__(self, files, memo: dict | None = None) -> None:
+    def __init__(self, files, memo: dict | None = None, base: "_Revision | None" = None) -> None:
         self.files = files
         self.memo = memo  # shared with the other side: records written the same way are built once
+        self.base = base  # the other side, read first: items written as there are not read again
         self._loaded = None
 
     def loaded(self):
         if self._loaded is None:
             from modeldiff import load
 
-            self._loaded = load.load_files(self.files, self.memo)
+            base = self.base
+            if base is not None and base._loaded is not None:
+                self._loaded = load.splice_files(self.files, base.files, base._loaded, self.memo)
+            else:
+                self._loaded = load.load_files(self.files, self.memo)
         return self._loaded
 
 
@@ -130,7 +135,7 @@ def _compare_files(old_files, new_files, use_cache: bool, where: str, old=None, 
 
     memo: dict = {}
     old = old if old is not None else (_Revision(old_files, memo) if old_files is not None else None)
-    new = new if new is not None else (_Revision(new_files, memo) if new_files is not None else None)
+    new = new if new is not None else (_Revision(new_files, memo, old) if new_files is not None else None)
     with paused_gc():  # two models' worth of records and no cycles: the collector would only walk them
         return _cached_comparison(old, new, use_cache, where)
 
@@ -203,6 +208,7 @@ def _diff_revisions(root: str, base: str, head: str | None, paths: list[str], us
             if source is not None:
                 sides[(side, path)] = _Revision(source.files, memos.setdefault(path, {}))
         if old_source is not None and new_source is not None:
+            sides[("new", path)].base = sides[("old", path)]
             pairs.append((path, path))  # compared now: its revisions are read (or found in the cache) in path order
             done[(path, path)] = _compare_files(old_source.files, new_source.files, use_cache, root,
                                                 sides[("old", path)], sides[("new", path)])

@@ -1603,3 +1603,169 @@ def _close_match(key: Any, allowed: Iterable[str]) -> str | None:
 
     matches = difflib.get_close_matches(key, list(allowed), n=1, cutoff=0.75)
     return matches[0] if matches else None
+
+
+# --------------------------------------------------------------------------
+# Splicing: a revision read as its base revision plus the items that changed
+
+# patterns over "\n" + text (a leading newline is faster to find than a line start)
+_ITEM_START = re.compile(r"\n  (" + _NAME_PATTERN + r"):(?=[ \n])")  # an item of a section
+# a line at one column, or at two that is neither an item's first line nor a comment
+_ODD_LINE = re.compile(r"\n(?: [^ \n#]|  (?!" + _NAME_PATTERN + r":[ \n])[^ \n#])")
+_TOP_START = re.compile(r"\n[^ \n#][^\n]*")  # a line at column 0, not a comment
+_TOP_LINE = re.compile(r"(" + _NAME_PATTERN + r"):(?: |\Z)")
+
+SPLICE_MAX_CHANGED = 2000  # beyond this many changed items a full read is as cheap
+
+
+def _split_sections(text: str) -> tuple[list[str], dict[str, str]] | None:
+    """A file's top-level layout: (the text outside sections, {section: its text, heading included}).
+
+    None when the layout is not the plain one the splice can vouch for: a
+    section written other than as a bare `SECTION:` line, then only comments
+    or blank lines, then items `  NAME:` at two spaces; a section twice or
+    without items; a line at one column's indentation, or at two that is
+    neither an item's first line nor a comment; a top-level key other than
+    the format's, or an item under one. Comment lines go with the item (or
+    heading) above them; every other line that starts deeper than two spaces
+    continues the item above. Pieces start with the newline before them.
+    """
+    text = "\n" + text + "\n"  # positions below are those of the newline before each line
+    if _ODD_LINE.search(text):
+        return None
+    tops = [(match.start(), match.group()[1:]) for match in _TOP_START.finditer(text)]
+    frame = [text[:tops[0][0]] if tops else text]
+    sections: dict[str, str] = {}
+    bounds = [start for start, _ in tops[1:]] + [len(text) - 1]
+    for (start, line), end in zip(tops, bounds):
+        piece = text[start:end]
+        heading = line.rstrip(" ")
+        if heading[:-1] in SECTIONS and heading[-1:] == ":":
+            section = heading[:-1]
+            first = _ITEM_START.search(piece)
+            if section in sections or first is None:
+                return None  # a section twice, or without items
+            if any(rest.strip() and not rest.lstrip().startswith("#") for rest in piece[:first.start()].split("\n")[2:]):
+                return None  # something other than comments between the heading and the first item
+            sections[section] = piece
+            frame.append(f"\n{section}:")
+        else:
+            top = _TOP_LINE.match(line)
+            if top is None or top.group(1) not in _TOP_KEYS or top.group(1) in SECTIONS or _ITEM_START.search(piece):
+                return None
+            frame.append(piece)
+    return frame, sections
+
+
+def _section_items(piece: str) -> list[tuple[str, str]]:
+    """(name, text) of each item of a section's text from `_split_sections`; texts start with their newline."""
+    starts = [(match.start(), match.group(1)) for match in _ITEM_START.finditer(piece)]
+    ends = [start for start, _ in starts[1:]] + [len(piece)]
+    return [(name, piece[start:end]) for (start, name), end in zip(starts, ends)]
+
+
+def splice_files(files: Sequence[tuple[str, bytes | str]], base_files: Sequence[tuple[str, bytes | str]],
+                 base: LoadResult, memo: dict | None = None) -> LoadResult:
+    """`load_files(files, memo)`, reusing the records of `base` (the LoadResult of `base_files`) where the text is the same.
+
+    For a revision that differs from its base in a few items (the two sides of
+    a diff): both texts are split into sections (`_split_sections`); a section
+    written byte for byte as in the base keeps the base's records, and in the
+    others an item written as in the base is the base's record; only the
+    changed items are read, by the same fast reader and record builder as a
+    full read. Used only when the base was read by the fast reader without
+    findings, both are one file, their text outside the sections is the same,
+    the base's sections hold the names of its records in their order, and
+    the changed items read alone give exactly their own names; anything else
+    is a full read, so the result is always that of `load_files(files, memo)`.
+    """
+    with paused_gc():
+        spliced = _spliced(files, base_files, base, memo)
+        return spliced if spliced is not None else load_files(files, memo)
+
+
+def _spliced(files, base_files, base: LoadResult, memo: dict | None) -> LoadResult | None:
+    if len(files) != 1 or len(base_files) != 1 or base.findings or not isinstance(base.model.positions, _LazyPositions):
+        return None
+    loads = _fast_reader()
+    if loads is None:
+        return None
+    try:
+        old_text, text = _decode(*base_files[0]), _decode(*files[0])
+    except ModeldiffError:
+        return None
+    old_split, new_split = _split_sections(old_text), _split_sections(text)
+    if old_split is None or new_split is None or old_split[0] != new_split[0]:
+        return None
+    old_model = base.model
+    for section, piece in old_split[1].items():
+        if _ITEM_START.findall(piece) != list(getattr(old_model, section)):
+            return None  # the split does not see what the reader saw
+    kept: dict[str, dict[str, Any]] = {}  # section -> the records of a section written as in the base
+    reused: dict[str, dict[str, Any]] = {}  # section -> item text -> the base's record
+    changed: dict[str, list[tuple[str, str]]] = {}
+    order: dict[str, list[tuple[str, str]]] = {}
+    for section, piece in new_split[1].items():
+        old_piece = old_split[1].get(section)
+        if piece == old_piece:
+            kept[section] = getattr(old_model, section)
+            continue
+        items = _section_items(piece)
+        if len({name for name, _ in items}) != len(items):
+            return None  # a name written twice: the full read words it
+        records = getattr(old_model, section)
+        known = {item_text: records[name] for name, item_text in _section_items(old_piece)} if old_piece else {}
+        reused[section], order[section] = known, items
+        fresh = [(name, item_text) for name, item_text in items if item_text not in known]
+        if fresh:
+            changed[section] = fresh
+    if sum(len(items) for items in changed.values()) > SPLICE_MAX_CHANGED:
+        return None
+    built = _changed_records(loads, files, changed, memo)
+    if built is None:
+        return None
+    sections = {}
+    for section in SECTIONS:
+        if section in kept:
+            sections[section] = dict(kept[section])
+        elif section in order:
+            fresh, known = built.get(section, {}), reused[section]
+            sections[section] = {name: fresh[name] if name in fresh else known[item_text]
+                                 for name, item_text in order[section]}
+        else:
+            sections[section] = {}
+    model = Model(name=old_model.name, format=old_model.format, positions=_LazyPositions(files), **sections)
+    return LoadResult(model, ())
+
+
+def _changed_records(loads, files, changed: dict[str, list[tuple[str, str]]], memo: dict | None):
+    """{section: {name: record}} of the changed items, read on their own; None when only a full read can tell."""
+    if not changed:
+        return {}
+    parts = []
+    for section, items in changed.items():
+        parts.append(f"\n{section}:")
+        parts += [item_text for _, item_text in items]  # each starts with the newline before it
+    text = "".join(parts)[1:] + "\n"
+    if _fast_unsure(text):
+        return None
+    try:
+        top = loads(text)
+    except Exception:  # noqa: BLE001 - the full read words any complaint
+        return None
+    if type(top) is not dict or list(top) != list(changed):
+        return None
+    for section, items in changed.items():
+        values = top[section]
+        if type(values) is not dict or list(values) != [name for name, _ in items]:
+            return None  # an item that does not end where the split says
+    builder = _FastBuilder(files, memo)
+    builders = {
+        "tables": builder._table, "links": builder._link, "measures": builder._measure,
+        "variants": builder._variant, "roles": builder._role, "reports": builder._report,
+    }  # fmt: skip
+    doc = [_Document(files[0][0], top)]
+    try:
+        return {section: builder._section(doc, section, builders[section]) for section in changed}
+    except (_Fallback, ModeldiffError, AttributeError):
+        return None
