@@ -591,6 +591,24 @@ RECORD_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (
 GRAPH_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (rule_ambiguous_paths, rule_security)
 
 
+# What each record rule reads: a section's records, or only the names in it. A rule whose inputs are
+# equal in two revisions gives the same findings in both, but for their positions.
+RULE_INPUTS: dict[Callable[[_Context], Iterable[Finding]], tuple[str, ...]] = {
+    rule_table_references: ("tables",),
+    rule_link_references: ("links", "tables"),
+    rule_measure_references: ("measures", "tables", "link names"),
+    rule_variant_references: ("variants", "tables", "link names"),
+    rule_role_references: ("roles", "tables"),
+    rule_report_references: ("reports", "measure names", "tables", "variants", "role names", "link names"),
+    rule_duplicate_active_link: ("links",),
+    rule_key_not_unique: ("links", "tables"),
+    rule_type_mismatch: ("links", "tables"),
+    rule_measure_cycle: ("measures",),
+    rule_history_incomplete: ("tables",),
+    rule_standby: ("measures", "variants", "reports", "links"),
+}
+
+
 def check_model(model: Model, load_findings: Iterable[Finding] = (), graph_rules: bool = True) -> list[Finding]:
     """All findings for one revision, sorted errors first, then by rule and subject.
 
@@ -604,6 +622,46 @@ def check_model(model: Model, load_findings: Iterable[Finding] = (), graph_rules
     with paused_gc():  # many small records, no cycles: the collector would only walk the model again and again
         for rule in RECORD_RULES + (GRAPH_RULES if graph_rules else ()):
             findings.extend(rule(ctx))
+    return _sorted_unique(findings)
+
+
+def check_pair(old: Model, old_load_findings: Iterable[Finding], new: Model,
+               new_load_findings: Iterable[Finding]) -> tuple[list[Finding], list[Finding]]:
+    """`check_model(m, findings, graph_rules=False)` of two revisions, for a diff.
+
+    A record rule that finds nothing in `old` is not run again on `new` when
+    everything it reads (RULE_INPUTS) is equal in both: it would find nothing
+    there either. A rule with findings in `old` runs again, since findings
+    carry the revision's positions.
+    """
+    from modeldiff.load import paused_gc
+
+    old_ctx, new_ctx = _Context(old), _Context(new)
+    old_found, new_found = list(old_load_findings), list(new_load_findings)
+    same: dict[str, bool] = {}
+    with paused_gc():
+        for rule in RECORD_RULES:
+            found = list(rule(old_ctx))
+            old_found += found
+            if found or not all(_same_input(old, new, what, same) for what in RULE_INPUTS[rule]):
+                new_found.extend(rule(new_ctx))
+    return _sorted_unique(old_found), _sorted_unique(new_found)
+
+
+def _same_input(old: Model, new: Model, what: str, memo: dict[str, bool]) -> bool:
+    """Whether one input of a rule ("measures", or "measure names": the names only) is equal in two revisions."""
+    found = memo.get(what)
+    if found is None:
+        section, _, names = what.partition(" ")
+        if names:
+            found = getattr(old, section + "s").keys() == getattr(new, section + "s").keys()
+        else:
+            found = getattr(old, section) == getattr(new, section)  # records often shared: compared by identity first
+        memo[what] = found
+    return found
+
+
+def _sorted_unique(findings: list[Finding]) -> list[Finding]:
     unique = {(f.rule, f.subject, f.message): f for f in findings}
     return sorted(unique.values(), key=lambda f: (f.severity != ERROR, f.rule, f.subject, f.message))
 

@@ -154,16 +154,22 @@ def _cached_comparison(old: _Revision | None, new: _Revision | None, use_cache: 
         return found
     if old is not None:
         old.loaded()  # the old model is read (and any error in it reported) first
-    checked = []
-    for revision, key in ((old, old_key), (new, new_key)):
-        known = cache.load_revision(folder, key) if key is not None else None
-        if known is None and revision is not None:
+    checked = [cache.load_revision(folder, key) if key is not None else None for key in (old_key, new_key)]
+    if old is not None and new is not None and checked == [None, None]:
+        from modeldiff import check
+
+        old_result, new_result = old.loaded(), new.loaded()
+        both = check.check_pair(old_result.model, old_result.findings, new_result.model, new_result.findings)
+        checked = [tuple(found) for found in both]
+        cache.store_revision(folder, old_key, checked[0])
+        cache.store_revision(folder, new_key, checked[1])
+    for index, (revision, key) in enumerate(((old, old_key), (new, new_key))):
+        if checked[index] is None and revision is not None:
             from modeldiff import check
 
             result = revision.loaded()
-            known = tuple(check.check_model(result.model, result.findings, graph_rules=False))
-            cache.store_revision(folder, key, known)
-        checked.append(known)
+            checked[index] = tuple(check.check_model(result.model, result.findings, graph_rules=False))
+            cache.store_revision(folder, key, checked[index])
     result = _analyse(old, new, *checked)
     cache.store_pair(folder, pair, result)
     return result

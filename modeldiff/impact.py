@@ -38,7 +38,7 @@ from dataclasses import dataclass, field, replace
 from typing import Any, Iterable, Mapping
 
 from modeldiff.changes import EXIT_CODES, Change, worst
-from modeldiff.model import Finding, Measure, Model, Overrides, Report, VariantOption
+from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Report, VariantOption
 
 PATH_LIMIT = 64  # paths listed per pair when telling what was added or removed
 PATH_BUDGET = 200_000  # search steps per pair listing; beyond it the pair counts as changed (conservative)
@@ -525,6 +525,8 @@ class _Impacts:
                 self.security_by_table.setdefault(parts[3], []).append(change)
         self._link_edges: dict[int, tuple[Any, dict[str, list]]] = {}
         self._plain_computations: dict[str | None, _Computation] = {}
+        # measures with a change of their own setting (`computation` cannot share the plain setting with them)
+        self._own_setting_changes = {c.subject.split(".", 1)[1] for c in changes if c.kind == "measure.overrides_changed"}
         self._path_cache: dict[tuple, tuple[_Computation, list[Reason]]] = {}
 
     # -- helpers
@@ -755,6 +757,14 @@ class _Impacts:
     def computation(self, measure: Measure, report: Report | None = None) -> _Computation | None:
         """The old and new settings of a measure (inside `report` when given), or None when it is new."""
         a = self.a
+        if report is None and measure.overrides is NO_OVERRIDES:  # the common case, without the general path's lists
+            plain = self._plain_computations.get(None)
+            if plain is not None and measure.name not in self._own_setting_changes:
+                old_measure = a.old.measures.get(self.back["measures"].get(measure.name, measure.name))
+                if old_measure is None:
+                    return None
+                if old_measure.overrides is NO_OVERRIDES:
+                    return plain
         old_measure = a.old.measures.get(self.old_name("measures", measure.name))
         old_report = None
         if report is not None:
@@ -995,6 +1005,8 @@ def _analyse(old: Model, new: Model, old_findings: Iterable[Finding], new_findin
 
     structural = diff.diff_models(old, new)
     a = _Analysis(old, new, structural)
+    if old_checked is None and new_checked is None:
+        old_checked, new_checked = check.check_pair(old, old_findings, new, new_findings)
     if old_checked is None:
         old_checked = check.check_model(old, old_findings, graph_rules=False)
     if new_checked is None:
