@@ -12,8 +12,12 @@ Where each table's rows come from:
    relative to the folder of the model file (for a `NAME.model/` folder, to
    that folder).
 
-Loading copies each table into an in-memory database, with the model's
-columns in the model's order and `_row`, a row number the engine relies on.
+Each model table becomes a relation of its name in an in-memory database,
+with the model's columns in the model's order and `_row`, a row number the
+engine relies on. A Parquet file is read where it lies (a view: each query
+reads only the columns it needs, so data larger than memory can be
+evaluated, `_row` is the file's row number); CSV files and database tables
+are copied in.
 CSV files are read as text with a header row (an empty field is NULL) and
 each column is converted to its declared type. Bad data stops with one clear
 line (ModeldiffError, exit 2): a missing file or column, a value that is not
@@ -299,6 +303,11 @@ def _load(connection, table: Table, origin: _Origin) -> None:
                                      f"says {column.type}; fix the data or the column's type")
             selects.append(f"{q(stored)} AS {q(name)}")
         source = relation
+    if origin.kind == "parquet" and "file_row_number" not in found:  # else the option's column would clash
+        reader = f"read_parquet({_literal(origin.place)}, file_row_number = true)"
+        connection.execute(f"CREATE VIEW {q(table.name)} AS SELECT file_row_number + 1 AS _row, "
+                           f"{', '.join(selects)} FROM {reader}")
+        return
     connection.execute(f"CREATE TABLE {q(table.name)} AS SELECT row_number() OVER () AS _row, "
                        f"{', '.join(selects)} FROM {source}")
     if origin.kind == "csv":
