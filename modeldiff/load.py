@@ -121,7 +121,10 @@ def paused_gc() -> Iterator[None]:
 
     Building a model allocates hundreds of thousands of objects and no
     reference cycles; the collector would walk them again and again (a third
-    of the loading time on a large model). Nested use is harmless.
+    of the loading time on a large model). Nested use is harmless. Afterwards
+    the objects made are moved to the oldest generation without a walk (the
+    first young collection would otherwise walk all of them: 0.03 s after a
+    22,000-measure diff); a later full collection still examines them.
     """
     if not gc.isenabled():
         yield
@@ -130,6 +133,11 @@ def paused_gc() -> Iterator[None]:
     try:
         yield
     finally:
+        if gc.get_freeze_count() == 0:  # (a process that froze objects of its own keeps them frozen)
+            # what was made meanwhile goes straight to the oldest generation, as if it had survived the
+            # young collections, rather than being walked all at once by the next young collection
+            gc.freeze()
+            gc.unfreeze()
         gc.enable()
 
 

@@ -24,7 +24,7 @@ import functools
 import json
 import re
 from collections.abc import Iterable, Iterator, Mapping, Set
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -1105,10 +1105,57 @@ def _fast_facts(text: str) -> Facts | None:
     scan = _scan(text)
     if scan.unsure or not scan.tokens:
         return None
-    reader = _FastReader(scan.tokens)
+    shape, names = _shape(scan.tokens)
+    if names is None:
+        return _read_tokens(scan.tokens)
+    found = _shape_facts(shape)
+    if found is None:
+        return None
+    back = {f"\0{index}": name for index, name in enumerate(names)}
+    return replace(found, columns=frozenset((None, back[name]) for _, name in found.columns),
+                   outside_aggregate=frozenset((None, back[name]) for _, name in found.outside_aggregate))
+
+
+def _shape(tokens: tuple[tuple[str, str], ...]) -> tuple[tuple[tuple[str, str], ...], list[str] | None]:
+    """The tokens with each plain column name replaced by a stand-in, and the names in stand-in order.
+
+    `a / nullif(b, 0)` and `c / nullif(d, 0)` have one shape, read once. A plain
+    column name is a word that is no keyword, no reserved word, not `distinct`
+    and not followed by `(`: `_FastReader` treats every such word alike,
+    whatever its letters, so the facts of the text are those of its shape with
+    the names put back. Texts with qualified or quoted names are read as they
+    are (names: None).
+    """
+    names: dict[str, str] = {}
+    out = []
+    reserved = _reserved_words()
+    last = len(tokens) - 1
+    for index, token in enumerate(tokens):
+        kind, value = token
+        if kind == "." or kind == "quoted":
+            return tokens, None
+        if kind == "word":
+            lower = value.lower()
+            if (lower not in _SIMPLE_KEYWORDS and lower not in reserved and lower != "distinct"
+                    and (index == last or tokens[index + 1][0] != "(")):
+                stand_in = names.get(value)
+                if stand_in is None:
+                    stand_in = names[value] = f"\0{len(names)}"  # no word can hold a NUL
+                token = ("word", stand_in)
+        out.append(token)
+    return tuple(out), list(names)
+
+
+@functools.lru_cache(maxsize=1 << 12)
+def _shape_facts(shape: tuple[tuple[str, str], ...]) -> Facts | None:
+    return _read_tokens(shape)
+
+
+def _read_tokens(tokens: tuple[tuple[str, str], ...]) -> Facts | None:
+    reader = _FastReader(tokens)
     try:
         kind = reader.expression(False)
-        if reader.pos != len(scan.tokens):
+        if reader.pos != len(tokens):
             return None
     except _Unsure:
         return None
