@@ -109,7 +109,9 @@ def install_clock() -> StageClock:
     clock = StageClock()
     clock.wrap(load, "_read_file", "read")
     clock.wrap(load, "load_files", "load")
+    clock.wrap(load, "splice_files", "load")
     clock.wrap(check, "check_model", "check rules")
+    clock.wrap(check, "check_pair", "check rules")
     for name in ("flow_graph", "security_graph", "path_delta", "role_restricted", "security_stops"):
         clock.wrap(graph, name, "graph")
     for name in ("ambiguous_pairs", "ambiguous_count"):

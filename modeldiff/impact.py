@@ -822,7 +822,23 @@ class _Impacts:
         direct: dict[str, list[Reason]] = {}
         named = {c.subject.split(".")[1] for c in self.changes if c.subject.startswith("measures.")}
         loud = self._loud_tables()
+        back_measures, back_tables, old_measures = self.back["measures"], self.back["tables"], a.old.measures
+        plain_paths: dict[str, list[Reason]] = {}  # home table -> its path reasons in the plain setting
         for name, m in a.new.measures.items():
+            table = m.table
+            if (table is not None and m.overrides is NO_OVERRIDES and name not in named and name not in self._own_setting_changes
+                    and table not in loud and back_tables.get(table, table) not in loud):
+                # the common case, as below without the per-measure steps: the plain setting, no reasons of its own
+                old_measure = old_measures.get(back_measures.get(name, name))
+                if old_measure is None:
+                    continue  # a new measure had no numbers to move
+                if old_measure.overrides is NO_OVERRIDES:
+                    found = plain_paths.get(table)
+                    if found is None:
+                        found = plain_paths[table] = self.path_reasons(table, self.computation(m))
+                    if found:
+                        direct[name] = list(found)
+                    continue
             comp = self.computation(m)
             if comp is None:
                 continue  # a new measure had no numbers to move
