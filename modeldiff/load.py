@@ -1486,6 +1486,37 @@ class _RecordBuilder:
         return (items.file, *items.at[index])
 
 
+_IS_TEXT = str.__instancecheck__
+_MEASURE_FIELDS = ("name", "expr", "table", "where", "overrides", "description", "unit", "owner", "folder")
+
+
+def _measure_maker():
+    """A maker of Measure records without overrides, twice as fast as the dataclass's own __init__.
+
+    It fills the record's fields directly, which is the same record only while
+    Measure has exactly these fields and no __post_init__: otherwise (checked
+    once, here) the class itself is called.
+    """
+    import dataclasses
+
+    if tuple(f.name for f in dataclasses.fields(Measure)) != _MEASURE_FIELDS or hasattr(Measure, "__post_init__") \
+            or hasattr(Measure, "__slots__"):
+        return lambda name, expr, table, where, description, unit, owner, folder: Measure(
+            name, expr, table, where, NO_OVERRIDES, description, unit, owner, folder)
+    new = object.__new__
+
+    def make(name, expr, table, where, description, unit, owner, folder):
+        record = new(Measure)
+        record.__dict__.update(name=name, expr=expr, table=table, where=where, overrides=NO_OVERRIDES,
+                               description=description, unit=unit, owner=owner, folder=folder)
+        return record
+
+    return make
+
+
+_plain_measure = _measure_maker()
+
+
 class _NoPositions(dict):
     """The fast builder's positions: none are kept, and every one asked for is unknown."""
 
@@ -1527,7 +1558,7 @@ class _FastBuilder(_RecordBuilder):
     def _measure(self, name: str, value: Any, subject: str, parent: YamlMap) -> Measure | None:
         """The common measure (text fields only) without the general path's bookkeeping; the same record."""
         if value.__class__ is dict and "expr" in value and value.keys() <= _MEASURE_TEXT_KEYS:
-            if all(v.__class__ is str for v in value.values()):
+            if all(map(_IS_TEXT, value.values())):  # (the fast reader makes no subclass of str)
                 key = ("measures", name, *value.items())  # text only: equal keys mean equal records
                 found = self.memo.get(key)
                 if found is not None:
@@ -1535,8 +1566,8 @@ class _FastBuilder(_RecordBuilder):
                 get = value.get
                 table, where = get("table"), get("where")
                 if value["expr"].strip() and (table is None or _NAME.match(table)) and (where is None or where.strip()):
-                    found = self.memo[key] = Measure(name, value["expr"], table, where, NO_OVERRIDES, get("description"),
-                                                     get("unit"), get("owner"), get("folder"))
+                    found = self.memo[key] = _plain_measure(name, value["expr"], table, where, get("description"),
+                                                            get("unit"), get("owner"), get("folder"))
                     return found
         return super()._measure(name, value, subject, parent)
 

@@ -157,3 +157,18 @@ def test_generated_edits_spliced_equal_a_full_read(edits):
     base_files, files = _files("a.model.yaml", old_text), _files("b.model.yaml", "\n".join(lines))
     base = load.load_files(base_files, {})
     _assert_same(_spliced(files, base_files, base), _full(files))
+
+
+def test_the_plain_measure_maker_makes_the_records_measure_makes():
+    import dataclasses
+    import pickle
+
+    from modeldiff.model import NO_OVERRIDES, Measure
+
+    made = load._plain_measure("trip_count", "count(*)", "trips", "status = 'done'", "Trips", "trips", None, "Rides")
+    want = Measure("trip_count", "count(*)", "trips", "status = 'done'", NO_OVERRIDES, "Trips", "trips", None, "Rides")
+    assert made == want and repr(made) == repr(want)
+    assert dataclasses.asdict(made) == dataclasses.asdict(want)
+    assert pickle.loads(pickle.dumps(made)) == want
+    assert made != dataclasses.replace(want, where=None)  # a different record is told apart
+    assert tuple(f.name for f in dataclasses.fields(Measure)) == load._MEASURE_FIELDS  # else the maker calls Measure
