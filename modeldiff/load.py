@@ -1487,6 +1487,17 @@ class _RecordBuilder:
 
 
 _IS_TEXT = str.__instancecheck__
+_NAME_LINES = re.compile(rf"(?:{_NAME_PATTERN}\n)*{_NAME_PATTERN}")
+
+
+def _plain_names_only(items: dict) -> bool:
+    """Whether every key is text and a plain name (`_NAME`): one pattern over the keys, one per line."""
+    if not items:
+        return True
+    if not all(map(_IS_TEXT, items)):
+        return False
+    lines = "\n".join(items)
+    return lines.count("\n") == len(items) - 1 and _NAME_LINES.fullmatch(lines) is not None
 _MEASURE_FIELDS = ("name", "expr", "table", "where", "overrides", "description", "unit", "owner", "folder")
 
 
@@ -1537,6 +1548,13 @@ class _FastBuilder(_RecordBuilder):
         self.files = files
         self.positions = _NoPositions()
         self.memo = memo if memo is not None else {}
+        self.good_tables: set[str] = set()  # home tables of measures whose names were found well formed
+
+    def _good_table(self, table: str) -> bool:
+        if _NAME.match(table):
+            self.good_tables.add(table)
+            return True
+        return False
 
     def _model_positions(self) -> Mapping[str, Pos]:
         return _LazyPositions(self.files)
@@ -1547,10 +1565,11 @@ class _FastBuilder(_RecordBuilder):
             items = self._get_map(doc.top, section, section)
             if items is None:
                 continue
+            if not _plain_names_only(items) or (records and not records.keys().isdisjoint(items)):
+                raise _Fallback  # a bad name, or one defined in two files
+            prefix = section + "."
             for name, value in items.items():
-                if not (name.__class__ is str and _NAME.match(name)) or name in records:
-                    raise _Fallback  # a bad name, or one defined in two files (or ignored in one: rare)
-                record = build_item(name, value, f"{section}.{name}", items)
+                record = build_item(name, value, prefix + name, items)
                 if record is not None:
                     records[name] = record
         return records
@@ -1565,7 +1584,8 @@ class _FastBuilder(_RecordBuilder):
                     return found
                 get = value.get
                 table, where = get("table"), get("where")
-                if value["expr"].strip() and (table is None or _NAME.match(table)) and (where is None or where.strip()):
+                if value["expr"].strip() and (table is None or table in self.good_tables or self._good_table(table)) \
+                        and (where is None or where.strip()):
                     found = self.memo[key] = _plain_measure(name, value["expr"], table, where, get("description"),
                                                             get("unit"), get("owner"), get("folder"))
                     return found

@@ -172,3 +172,11 @@ def test_the_plain_measure_maker_makes_the_records_measure_makes():
     assert pickle.loads(pickle.dumps(made)) == want
     assert made != dataclasses.replace(want, where=None)  # a different record is told apart
     assert tuple(f.name for f in dataclasses.fields(Measure)) == load._MEASURE_FIELDS  # else the maker calls Measure
+
+
+def test_plain_names_only_accepts_plain_names_and_refuses_others():
+    assert load._plain_names_only({"trips": 1, "bike_key2": 2, "B": 3})
+    assert load._plain_names_only({})
+    for bad in ("2trips", "trips\nbikes", "trips ", "", "trips-x", "é"):
+        assert not load._plain_names_only({"stations": 1, bad: 2}), repr(bad)
+    assert not load._plain_names_only({1: "x"})  # not text
