@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import os
 from dataclasses import dataclass
+from typing import Sequence
 
 from modeldiff.errors import ModeldiffError
 
@@ -100,6 +101,24 @@ def compare_revisions(root: str, base: str, head: str | None, paths: list[str] |
     if paths is None:
         paths = sorted(set(git.list_models(root, base)) | set(git.list_models(root, head)))
     return _diff_revisions(root, base, head, paths, use_cache)
+
+
+def compare_with_nothing(root: str, rev: str, paths: Sequence[str], old_label: str | None = None) -> list[ModelDiff]:
+    """Each model at `rev` compared with nothing (a commit without a parent, a push with no shared history).
+
+    The old side is labelled `old_label`, or the model's own path when None.
+    """
+    from modeldiff import git, impact, load
+
+    out = []
+    for path in paths:
+        source = git.read_at(root, rev, path)
+        if source is None:
+            continue
+        loaded = load.load_files(source.files)
+        result = impact.analyse(_empty_model(loaded.model.name), loaded.model, (), loaded.findings)
+        out.append(ModelDiff(Side(None, old_label or path), Side(rev, path), result))
+    return out
 
 
 def _empty_model(name: str):

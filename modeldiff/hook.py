@@ -436,7 +436,7 @@ def _diffs(root: str, r: prepush.PushRange, paths: list[str]):
     from modeldiff import compare
 
     if r.base is None:
-        diffs = _added_whole(root, r.head, paths)
+        diffs = compare.compare_with_nothing(root, r.head, paths, old_label="(nothing)")
     else:
         diffs = compare.compare_revisions(root, r.base, r.head, paths)
     labels = {r.head: prepush.short(r.head)}
@@ -444,22 +444,6 @@ def _diffs(root: str, r: prepush.PushRange, paths: list[str]):
         labels[r.base] = prepush.short(r.base)
     return [replace(d, old=replace(d.old, rev=labels.get(d.old.rev, d.old.rev)),
                     new=replace(d.new, rev=labels.get(d.new.rev, d.new.rev))) for d in diffs]
-
-
-def _added_whole(root: str, head: str, paths: list[str]):
-    """Every model at `head` reported as added: the push shares no history with the remote's branches."""
-    from modeldiff import compare, git, impact, load
-    from modeldiff.model import Model
-
-    out = []
-    for path in paths:
-        source = git.read_at(root, head, path)
-        if source is None:
-            continue
-        loaded = load.load_files(source.files)
-        result = impact.analyse(Model(name=loaded.model.name, tables={}), loaded.model, (), loaded.findings)
-        out.append(compare.ModelDiff(compare.Side(None, "(nothing)"), compare.Side(head, path), result))
-    return out
 
 
 def _as_text(diffs) -> str:

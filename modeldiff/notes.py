@@ -89,30 +89,13 @@ def _touched(root: str, sha: str, parents: tuple[str, ...]) -> tuple[str, ...]:
     return tuple(sorted(found))
 
 
-def _whole(root: str, sha: str, paths: Sequence[str]) -> list:
-    """ModelDiffs of a commit without a parent: each model compared with nothing."""
-    from modeldiff import git, impact, load
-    from modeldiff.compare import ModelDiff, Side
-    from modeldiff.model import Model
-
-    out = []
-    for path in paths:
-        source = git.read_at(root, sha, path)
-        if source is None:
-            continue
-        loaded = load.load_files(source.files)
-        result = impact.analyse(Model(loaded.model.name, {}), loaded.model, (), loaded.findings)
-        out.append(ModelDiff(Side(None, path), Side(sha, path), result))
-    return out
-
-
 def _commit_diffs(root: str, commit: Commit) -> tuple:
     from modeldiff import compare
 
     if not commit.paths:
         return ()
     if not commit.parents:
-        return tuple(_whole(root, commit.sha, commit.paths))
+        return tuple(compare.compare_with_nothing(root, commit.sha, commit.paths))
     return tuple(compare.compare_revisions(root, commit.parents[0], commit.sha, list(commit.paths)))
 
 
