@@ -139,6 +139,14 @@ class Renames:
     def __bool__(self) -> bool:
         return bool(self.tables or self.links)
 
+    def inverse(self) -> "Renames":
+        """New name -> old name, per section."""
+        def flip(m: Mapping[str, str]) -> dict[str, str]:
+            return {new: old for old, new in m.items()}
+
+        return Renames(flip(self.tables), flip(self.links), flip(self.measures), flip(self.roles),
+                       flip(self.reports), flip(self.variants))
+
 
 # --- comparing two graphs around their changed edges ------------------------------------
 
@@ -499,13 +507,7 @@ class _Impacts:
                     self.measure_deps[m.name] = frozenset(sql.measure_refs(m.expr, names))
                 except sql.SqlError:
                     self.measure_deps[m.name] = frozenset()
-        self.back = {
-            "tables": {v: k for k, v in a.renames.tables.items()},
-            "measures": {v: k for k, v in a.renames.measures.items()},
-            "reports": {v: k for k, v in a.renames.reports.items()},
-            "roles": {v: k for k, v in a.renames.roles.items()},
-            "variants": {v: k for k, v in a.renames.variants.items()},
-        }
+        self.back = a.renames.inverse()
         self._twins = self._twin_links()
         self._cause_cache: dict[tuple, tuple[int, str] | None] = {}
         self._security = None
@@ -540,7 +542,7 @@ class _Impacts:
         return self._link_edges[id(g)][1].get(link, [])
 
     def old_name(self, section: str, name: str) -> str:
-        return self.back[section].get(name, name)
+        return getattr(self.back, section).get(name, name)
 
     def kinds(self, prefix: str) -> list[Change]:
         return [c for c in self.changes if c.kind.startswith(prefix)]
@@ -760,7 +762,7 @@ class _Impacts:
         if report is None and measure.overrides is NO_OVERRIDES:  # the common case, without the general path's lists
             plain = self._plain_computations.get(None)
             if plain is not None and measure.name not in self._own_setting_changes:
-                old_measure = a.old.measures.get(self.back["measures"].get(measure.name, measure.name))
+                old_measure = a.old.measures.get(self.back.measures.get(measure.name, measure.name))
                 if old_measure is None:
                     return None
                 if old_measure.overrides is NO_OVERRIDES:
@@ -822,7 +824,7 @@ class _Impacts:
         direct: dict[str, list[Reason]] = {}
         named = {c.subject.split(".")[1] for c in self.changes if c.subject.startswith("measures.")}
         loud = self._loud_tables()
-        back_measures, back_tables, old_measures = self.back["measures"], self.back["tables"], a.old.measures
+        back_measures, back_tables, old_measures = self.back.measures, self.back.tables, a.old.measures
         plain_paths: dict[str, list[Reason]] = {}  # home table -> its path reasons in the plain setting
         for name, m in a.new.measures.items():
             table = m.table

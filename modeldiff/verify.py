@@ -334,30 +334,11 @@ def measure_items(result, impact) -> list[_Item]:
     return sorted(items, key=_Item.sort_key) or [_Item(impact.name)]
 
 
-@dataclass(frozen=True)
-class _Names:
-    """New names -> old names (renamed tables, measures, roles, reports)."""
+def _old_names(result):
+    """New name -> old name of what the change renamed (tables, links, measures, roles, reports, variants)."""
+    from modeldiff.impact import Renames
 
-    tables: Mapping[str, str] = field(default_factory=dict)
-    measures: Mapping[str, str] = field(default_factory=dict)
-    roles: Mapping[str, str] = field(default_factory=dict)
-    reports: Mapping[str, str] = field(default_factory=dict)
-
-    @classmethod
-    def of(cls, result) -> "_Names":
-        from modeldiff.impact import Renames
-
-        r = Renames.of(result.changes)
-
-        def inverse(m: Mapping[str, str]) -> dict[str, str]:
-            return {new: old for old, new in m.items()}
-
-        return cls(inverse(r.tables), inverse(r.measures), inverse(r.roles), inverse(r.reports))
-
-    def column(self, text: str) -> str:
-        """`table.column` in the new names -> in the old names."""
-        table, _, column = text.partition(".")
-        return f"{self.tables.get(table, table)}.{column}"
+    return Renames.of(result.changes).inverse()
 
 
 # --- the data -------------------------------------------------------------------------------------------
@@ -382,7 +363,7 @@ def loading_model(result):
     itself newly declares is a precondition of the migration instead, so it
     is checked there and reported with examples.
     """
-    names = _Names.of(result)
+    names = _old_names(result)
     tables = {}
     for name, table in result.new.tables.items():
         old = result.old.tables.get(names.tables.get(name, name))
@@ -478,7 +459,7 @@ def viewers(roles: Sequence[Any], db, user: str | None) -> tuple[tuple[str | Non
 def compare_report(result, name: str, data: _Data, user: str | None) -> Comparison:
     from modeldiff.data import evaluate_report
 
-    names = _Names.of(result)
+    names = _old_names(result)
     old_name = names.reports.get(name, name)
     new_report, old_report = result.new.reports.get(name), result.old.reports.get(old_name)
     if new_report is None or old_report is None:
@@ -520,7 +501,7 @@ def _measure_rows(model, measure: str, by: Sequence[str], role: str | None, db, 
 
 
 def compare_measure(result, item: _Item, data: _Data, user: str | None) -> Comparison:
-    names = _Names.of(result)
+    names = _old_names(result)
     name = item.measure
     old_name = names.measures.get(name, name)
     missing = [side for side, model, n in (("new", result.new, name), ("old", result.old, old_name))
@@ -567,7 +548,7 @@ def role_tables(result, name: str) -> list[str]:
     """Tables (new names) a role restricts in either revision, or that the diff names for it."""
     from modeldiff import graph
 
-    names = _Names.of(result)
+    names = _old_names(result)
     to_new = {old: new for new, old in names.tables.items()}
     tables: set[str] = set()
     new_role = result.new.roles.get(name)
@@ -585,7 +566,7 @@ def role_tables(result, name: str) -> list[str]:
 def check_role(result, name: str, data: _Data, user: str | None) -> RoleCheck:
     from modeldiff.engine import visible_rows_query
 
-    names = _Names.of(result)
+    names = _old_names(result)
     old_name = names.roles.get(name, name)
     new_role, old_role = result.new.roles.get(name), result.old.roles.get(old_name)
     who, note = viewers([old_role, new_role], data.new, user)
