@@ -587,18 +587,37 @@ def _fast_unsure(text: str) -> bool:
         return True  # nesting far deeper than a model's
     if "?" in text and _COMPLEX_KEY.search(text):
         return True
-    for match in re.finditer(r"[&*!]", text):  # anchors, aliases, tags where a node starts
-        before = match.start() - 1
-        while before >= 0 and text[before] == " ":
-            before -= 1
-        if before < 0 or text[before] in _NODE_INDICATORS or text[before] == "\n":
-            return True
+    if _node_mark(text):
+        return True
     for pattern in _NUMBER_FIELDS:
         for match in pattern.finditer(text):
             value = match.group(1)
             if value and not (value.isdigit() or value.isalpha()):
                 return True
     return False
+
+
+def _node_mark(text: str) -> bool:
+    """Whether an anchor, alias or tag mark (`&`, `*`, `!`) stands where a node starts.
+
+    That is: after only spaces since the text's start, a line's start or one of
+    `_NODE_INDICATORS`. Each mark is found with `str.find`; one right after any
+    other character (the `*` of `count(*)`) is passed over at once.
+    """
+    for mark in "&*!":
+        index = text.find(mark)
+        while index >= 0:
+            before = index - 1
+            if before < 0 or text[before] in _MARK_NEIGHBOURS:
+                while before >= 0 and text[before] == " ":
+                    before -= 1
+                if before < 0 or text[before] in _NODE_INDICATORS or text[before] == "\n":
+                    return True
+            index = text.find(mark, index + 1)
+    return False
+
+
+_MARK_NEIGHBOURS = " \n" + _NODE_INDICATORS  # the characters after which a mark may start a node
 
 
 class _Fallback(Exception):
