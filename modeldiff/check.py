@@ -648,6 +648,38 @@ def check_pair(old: Model, old_load_findings: Iterable[Finding], new: Model,
     return _sorted_unique(old_found), _sorted_unique(new_found)
 
 
+def check_new_side(old: Model, old_load_findings: Iterable[Finding], new: Model,
+                   new_load_findings: Iterable[Finding]) -> tuple[list[Finding], list[Finding]]:
+    """(the old revision's findings as far as a diff reads them, `check_model(new, ..., graph_rules=False)`).
+
+    Without a cache, a diff reads the old revision's findings only to tell
+    which of the new revision's broken references are new
+    (`impact._reference_changes`: their rule, subject and message). So every
+    record rule runs on the new revision; on the old one a rule runs only when
+    it found a broken reference in the new revision and what it reads
+    (RULE_INPUTS) differs. When its inputs are equal, its findings in the new
+    revision stand for those of the old one (equal but for their positions).
+    The first list holds the old load findings and these; the second list is
+    exactly `check_model`'s.
+    """
+    from modeldiff.load import paused_gc
+
+    old_ctx, new_ctx = _Context(old), _Context(new)
+    old_found, new_found = list(old_load_findings), list(new_load_findings)
+    same: dict[str, bool] = {}
+    with paused_gc():
+        for rule in RECORD_RULES:
+            found = list(rule(new_ctx))
+            new_found += found
+            if not any(f.rule == "broken-reference" for f in found):
+                continue
+            if all(_same_input(old, new, what, same) for what in RULE_INPUTS[rule]):
+                old_found += found
+            else:
+                old_found.extend(rule(old_ctx))
+    return _sorted_unique(old_found), _sorted_unique(new_found)
+
+
 def _same_input(old: Model, new: Model, what: str, memo: dict[str, bool]) -> bool:
     """Whether one input of a rule ("measures", or "measure names": the names only) is equal in two revisions."""
     found = memo.get(what)

@@ -1023,8 +1023,8 @@ def _analyse(old: Model, new: Model, old_findings: Iterable[Finding], new_findin
 
     structural = diff.diff_models(old, new)
     a = _Analysis(old, new, structural)
-    if old_checked is None and new_checked is None:
-        old_checked, new_checked = check.check_pair(old, old_findings, new, new_findings)
+    if old_checked is None and new_checked is None:  # only broken references are read from the old side
+        old_checked, new_checked = check.check_new_side(old, old_findings, new, new_findings)
     if old_checked is None:
         old_checked = check.check_model(old, old_findings, graph_rules=False)
     if new_checked is None:
