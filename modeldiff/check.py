@@ -563,7 +563,7 @@ def rule_security(ctx: _Context) -> Iterator[Finding]:
 def rule_standby(ctx: _Context) -> Iterator[Finding]:
     model = ctx.model
     users: dict[str, list[str]] = {}
-    holders = [(f"measures.{m.name}", m.overrides) for m in model.measures.values()]
+    holders = [(f"measures.{m.name}", m.overrides) for m in model.measures.values() if m.overrides.use]
     holders += [(f"variants.{v.name}.options.{o.name}", o.overrides) for v in model.variants.values() for o in v.options.values()]
     holders += [(f"reports.{r.name}", r.overrides) for r in model.reports.values()]
     for subject, overrides in holders:
