@@ -112,6 +112,7 @@ def install_clock() -> StageClock:
     clock.wrap(load, "splice_files", "load")
     clock.wrap(check, "check_model", "check rules")
     clock.wrap(check, "check_pair", "check rules")
+    clock.wrap(check, "check_new_side", "check rules")
     for name in ("flow_graph", "security_graph", "path_delta", "role_restricted", "security_stops"):
         clock.wrap(graph, name, "graph")
     for name in ("ambiguous_pairs", "ambiguous_count"):
