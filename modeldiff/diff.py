@@ -1219,8 +1219,9 @@ def diff_section(ctx: DiffContext, section: str) -> Iterator[Change]:
         yield spec.renamed(ctx, old, new) if spec.renamed else _renamed_change(ctx, section, spec.noun, old, new)
         yield from spec.compare(ctx, old_items[old], new_items[new])
     for name in kept:
-        if old_items[name] != new_items[name]:
-            yield from spec.compare(ctx, old_items[name], new_items[name])
+        old_item, new_item = old_items[name], new_items[name]
+        if old_item is not new_item and old_item != new_item:  # a record shared by splicing equals itself
+            yield from spec.compare(ctx, old_item, new_item)
 
 
 def diff_models(old: Model, new: Model) -> list[Change]:
