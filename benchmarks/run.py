@@ -193,6 +193,14 @@ def json_floor(texts: list[str], repeat: int) -> float:
     return best(lambda: [json.loads(d) for d in dumped], max(repeat, 7))
 
 
+def pyyaml_parse(texts: list[str], repeat: int) -> float:
+    """PyYAML's C loader parsing each text: the baseline of the foundation's and the diff's first targets."""
+    import yaml
+
+    loader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
+    return best(lambda: [yaml.load(text, Loader=loader) for text in texts], repeat)
+
+
 def main(argv=None) -> int:
     p = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--tables", type=int, default=2000)
@@ -222,6 +230,8 @@ def main(argv=None) -> int:
 
         one = json_floor([old_text], args.repeat)
         both = json_floor([old_text, new_text], args.repeat)
+        yaml_one = pyyaml_parse([old_text], min(args.repeat, 3))
+        yaml_both = pyyaml_parse([old_text, new_text], min(args.repeat, 3))
 
         cold = lambda: run_diff(old_path, new_path, use_cache=False)  # noqa: E731
         checked = lambda: run_check(old_path)  # noqa: E731
@@ -259,6 +269,11 @@ def main(argv=None) -> int:
     for name, key, seconds, _ in rows:
         verdict = "meets" if seconds / both <= GOALS[key] else "misses"
         print(f"ratio {name}: {seconds / both:.1f}x json.loads of both revisions ({verdict} the goal of {GOALS[key]:g}x)")
+    # the first targets, against PyYAML's C loader parsing the same file(s) in this run
+    print(f"ratio check: {timed['check'] / yaml_one:.2f}x PyYAML's C loader parsing the file "
+          f"({yaml_one:.3f} s; goal <= 2x)")
+    print(f"ratio diff, one link flipped: {timed['diff'] / yaml_both:.2f}x PyYAML's C loader parsing both revisions "
+          f"({yaml_both:.3f} s; goal <= 2x)")
     start = best(lambda: subprocess.run([sys.executable, "-c", "pass"], check=True), 3)
     print(f"(each command's time includes starting Python: {start:.3f} s)")
     version = best(lambda: subprocess.run([sys.executable, "-m", "modeldiff", "--version"], check=True,
