@@ -13,19 +13,9 @@ from pathlib import Path
 
 from modeldiff import check, load
 
-ROOT = Path(__file__).resolve().parent.parent
-sys.path.insert(0, str(ROOT / "benchmarks"))
-from synth import synthetic_model_text  # noqa: E402
+from scenariokit import ROOT, SMALL, scenario_pairs, synthetic_model_text  # noqa: F401
 
-SMALL = dict(tables=30, links=45, measures=120, roles=6)
-
-
-def _pairs():
-    for folder in ("scenarios", "impact_scenarios"):
-        for case in sorted((ROOT / "tests" / folder).iterdir()):
-            old, new = case / "old.model.yaml", case / "new.model.yaml"
-            if old.is_file() and new.is_file():
-                yield old, new
+_pairs = scenario_pairs
 
 
 def _both(old_result, new_result):

@@ -20,22 +20,11 @@ from modeldiff import load
 from modeldiff.errors import ModeldiffError
 from modeldiff.model import SECTIONS
 
-ROOT = Path(__file__).resolve().parent.parent
+from scenariokit import ROOT, SMALL, scenario_pairs, synthetic_model_text  # noqa: F401
+
 pytest.importorskip("yaml_rs", reason="splicing needs the fast reader")
-sys.path.insert(0, str(ROOT / "benchmarks"))
-from synth import synthetic_model_text  # noqa: E402
 
-SMALL = dict(tables=30, links=45, measures=120, roles=6)
-
-
-def _pairs() -> list[tuple[Path, Path]]:
-    found = []
-    for folder in ("scenarios", "impact_scenarios"):
-        for case in sorted((ROOT / "tests" / folder).iterdir()):
-            old, new = case / "old.model.yaml", case / "new.model.yaml"
-            if old.is_file() and new.is_file():
-                found.append((old, new))
-    return found
+_pairs = scenario_pairs
 
 
 PAIRS = _pairs()
