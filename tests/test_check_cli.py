@@ -88,6 +88,23 @@ def test_warnings_exit_0_without_strict():
     assert "2 warning(s)" in out
 
 
+def test_summary_line_is_never_wrapped_whatever_the_path_length(tmp_path, monkeypatch):
+    # The counts must stay greppable in CI logs, where checkouts live under deep paths.
+    monkeypatch.setenv("COLUMNS", "80")
+    deep = tmp_path / ("a-rather-long-folder-name-" * 4) / "checkout"
+    deep.mkdir(parents=True)
+    model = write(deep, WARNINGS.read_text())
+    code, out, _ = run("check", str(model))
+    assert code == 0
+    first = out.splitlines()[0]
+    assert str(model) in first and first.endswith("0 error(s), 2 warning(s)")
+
+
+def test_short_summary_line_is_unchanged(monkeypatch):
+    monkeypatch.setenv("COLUMNS", "200")
+    assert run("check", str(WARNINGS))[1].splitlines()[0].endswith("0 error(s), 2 warning(s)")
+
+
 def test_warnings_exit_1_with_strict():
     code, _, err = run("check", str(WARNINGS), "--strict")
     assert (code, err) == (1, "")

@@ -36,9 +36,10 @@ def as_text(model_name: str, source: str, findings: Sequence[Finding], stream: T
     out = console(stream)
     errors, warnings = _counts(findings)
     if not findings:
-        out.print(f"[bold green]ok[/] model {escape(model_name)} ({escape(source)}): no findings")
+        out.print(f"[bold green]ok[/] model {escape(model_name)} ({escape(source)}): no findings",
+                  soft_wrap=True)
         return
-    out.print(f"model [bold]{escape(model_name)}[/] ({escape(source)}): {errors} error(s), {warnings} warning(s)")
+    out.print(f"model [bold]{escape(model_name)}[/] ({escape(source)}): {errors} error(s), {warnings} warning(s)", soft_wrap=True)
     for severity, style, title in (("error", "bold red", "Errors"), ("warning", "yellow", "Warnings")):
         group = [f for f in findings if f.severity == severity]
         if not group:

@@ -125,7 +125,8 @@ def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
         r = md.result
         counts = r.counts()
         kinds = {c.id: c.kind for c in r.changes}
-        out.print(f"[bold]{escape(r.new.name or r.old.name)}[/]: {escape(_side(md.old))} -> {escape(_side(md.new))}")
+        out.print(f"[bold]{escape(r.new.name or r.old.name)}[/]: {escape(_side(md.old))} -> {escape(_side(md.new))}",
+                  soft_wrap=True)
         if not r.changes and not r.new_errors:
             out.print("  [green]no changes[/]")
             out.print()
