@@ -1,5 +1,3 @@
-import sys
+from modeldiff.cli import run
 
-from modeldiff.cli import main
-
-sys.exit(main())
+run()

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import argparse
 import importlib
+import os
 import sys
 from typing import Sequence, TextIO
 
@@ -177,3 +178,21 @@ def main(argv: Sequence[str] | None = None, stdout: TextIO | None = None, stderr
     except KeyboardInterrupt:
         print("modeldiff: interrupted", file=stderr)
         return 130
+
+
+def run() -> None:
+    """The `modeldiff` program: `main()`, then leave without tearing down the process.
+
+    A diff of a large model holds a few hundred thousand small records; freeing
+    them one by one at exit cost 0.03-0.05 s, a tenth of the whole command. Every
+    file, repository and connection is closed by the time `main` returns (each
+    lives in a `with` block or a try/finally), so once the output is flushed
+    nothing is left to do and the process ends at once. Tests call `main`.
+    """
+    code = main()
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            stream.flush()
+        except (OSError, ValueError):  # a reader that went away, or a closed stream: nothing more can be said
+            pass
+    os._exit(code)
