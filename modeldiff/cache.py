@@ -39,11 +39,8 @@ read-only folder, a full disk) only turns the cache off for that call.
 
 from __future__ import annotations
 
-import hashlib
 import io
 import os
-import pickle
-import tempfile
 from collections.abc import Mapping
 from typing import Any, Iterator, Sequence
 
@@ -112,6 +109,7 @@ def fingerprint() -> str:
     """The tool's identity for cache keys: its version, its modules' text, and the libraries it reads with."""
     global _FINGERPRINT
     if _FINGERPRINT is None:
+        import hashlib
         import importlib.util
 
         import modeldiff
@@ -140,6 +138,8 @@ def fingerprint() -> str:
 
 def revision_key(files: Files) -> str:
     """The key of one revision: the fingerprint, then each file's display name and bytes."""
+    import hashlib
+
     digest = hashlib.sha256(fingerprint().encode())
     for name, content in files:
         data = content.encode("utf-8") if isinstance(content, str) else bytes(content)
@@ -150,26 +150,32 @@ def revision_key(files: Files) -> str:
 
 def pair_key(old_key: str | None, new_key: str | None) -> str:
     """The key of one comparison (None: the model is absent on that side)."""
+    import hashlib
+
     return hashlib.sha256(f"pair {old_key or '-'} {new_key or '-'}".encode()).hexdigest()
 
 
 # --------------------------------------------------------------------------- entries on disk
 
 
-class _Unpickler(pickle.Unpickler):
-    """Builds only modeldiff's own records and plain containers."""
+def _unpickle(payload: bytes) -> Any:
+    """The payload's value, built by an unpickler that makes only modeldiff's own records and plain containers."""
+    import pickle
 
-    _BUILTINS = frozenset({"frozenset", "set", "tuple", "list", "dict", "str", "bytes", "int", "float", "bool",
-                           "complex", "NoneType"})
+    allowed = frozenset({"frozenset", "set", "tuple", "list", "dict", "str", "bytes", "int", "float", "bool",
+                         "complex", "NoneType"})
 
-    def find_class(self, module: str, name: str) -> Any:
-        if module == "builtins" and name in self._BUILTINS:
-            return super().find_class(module, name)
-        if module == "copyreg" and name in ("_reconstructor", "__newobj__"):
-            return super().find_class(module, name)
-        if module.startswith("modeldiff.") and not name.startswith("_") or (module, name) == ("modeldiff.load", "_Positions"):
-            return super().find_class(module, name)
-        raise pickle.UnpicklingError(f"{module}.{name} is not a record of modeldiff")
+    class Unpickler(pickle.Unpickler):
+        def find_class(self, module: str, name: str) -> Any:
+            if module == "builtins" and name in allowed:
+                return super().find_class(module, name)
+            if module == "copyreg" and name in ("_reconstructor", "__newobj__"):
+                return super().find_class(module, name)
+            if module.startswith("modeldiff.") and not name.startswith("_") or (module, name) == ("modeldiff.load", "_Positions"):
+                return super().find_class(module, name)
+            raise pickle.UnpicklingError(f"{module}.{name} is not a record of modeldiff")
+
+    return Unpickler(io.BytesIO(payload)).load()
 
 
 def _path(folder: str, kind: str, key: str) -> str:
@@ -177,6 +183,8 @@ def _path(folder: str, kind: str, key: str) -> str:
 
 
 def _header(payload: bytes) -> bytes:
+    import hashlib
+
     return b" ".join((MAGIC, str(FORMAT).encode(), fingerprint().encode(),
                       hashlib.sha256(payload).hexdigest().encode())) + b"\n"
 
@@ -197,7 +205,7 @@ def read(folder: str, kind: str, key: str) -> Any | None:
         from modeldiff.load import paused_gc
 
         with paused_gc():
-            value = _Unpickler(io.BytesIO(payload)).load()
+            value = _unpickle(payload)
     except Exception:  # noqa: BLE001 - whatever is wrong with it, it is rebuilt
         _remove(path)
         return None
@@ -210,6 +218,9 @@ def read(folder: str, kind: str, key: str) -> Any | None:
 
 def write(folder: str, kind: str, key: str, value: Any) -> bool:
     """Store `value` under (kind, key) atomically; False when the cache folder cannot be written."""
+    import pickle
+    import tempfile
+
     try:
         payload = pickle.dumps(value, protocol=pickle.HIGHEST_PROTOCOL)
         os.makedirs(folder, exist_ok=True)

@@ -130,10 +130,9 @@ def _empty_model(name: str):
 class _Revision:
     """One side of a comparison: its files, loaded at most once."""
 
-    def __init__(self, files, memo: dict | None = None, base: "_Revision | None" = None) -> None:
+    def __init__(self, files, base: "_Revision | None" = None) -> None:
         self.files = files
-        self.memo = memo  # shared with the other side: records written the same way are built once
-        self.base = base  # the other side, read first: items written as there are not read again
+        self.base = base  # the other side, read first: items written as there are not read again, equal records shared
         self._loaded = None
 
     def loaded(self):
@@ -142,9 +141,9 @@ class _Revision:
 
             base = self.base
             if base is not None and base._loaded is not None:
-                self._loaded = load.splice_files(self.files, base.files, base._loaded, self.memo)
+                self._loaded = load.splice_files(self.files, base.files, base._loaded)
             else:
-                self._loaded = load.load_files(self.files, self.memo)
+                self._loaded = load.load_files(self.files)
         return self._loaded
 
 
@@ -152,9 +151,8 @@ def _compare_files(old_files, new_files, use_cache: bool, where: str, old=None, 
     """The DiffResult of two revisions' files (None: the model is absent on that side), through the cache."""
     from modeldiff.load import paused_gc
 
-    memo: dict = {}
-    old = old if old is not None else (_Revision(old_files, memo) if old_files is not None else None)
-    new = new if new is not None else (_Revision(new_files, memo, old) if new_files is not None else None)
+    old = old if old is not None else (_Revision(old_files) if old_files is not None else None)
+    new = new if new is not None else (_Revision(new_files, old) if new_files is not None else None)
     with paused_gc():  # two models' worth of records and no cycles: the collector would only walk them
         return _cached_comparison(old, new, use_cache, where)
 
@@ -224,14 +222,13 @@ def _diff_revisions(root: str, base: str, head: str | None, paths: list[str], us
     new_only: dict[str, _Revision] = {}
     sides: dict[tuple[str, str | None], _Revision] = {}
     done: dict[tuple[str | None, str | None], object] = {}
-    memos: dict[str, dict] = {}
     for path in paths:
         old_source, new_source = git.read_at(root, base, path), git.read_at(root, head, path)
         if old_source is None and new_source is None:
             raise ModeldiffError(f"{path}: not found at {base} nor at {head or 'the working tree'}; check the path")
         for side, source in (("old", old_source), ("new", new_source)):
             if source is not None:
-                sides[(side, path)] = _Revision(source.files, memos.setdefault(path, {}))
+                sides[(side, path)] = _Revision(source.files)
         if old_source is not None and new_source is not None:
             sides[("new", path)].base = sides[("old", path)]
             pairs.append((path, path))  # compared now: its revisions are read (or found in the cache) in path order

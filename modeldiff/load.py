@@ -96,16 +96,17 @@ def path_files(path: str | os.PathLike) -> list[tuple[str, bytes]]:
     return [(shown, _read_file(shown))]
 
 
-def load_files(files: Sequence[tuple[str, bytes | str]], memo: dict | None = None) -> LoadResult:
+def load_files(files: Sequence[tuple[str, bytes | str]], shared: Mapping[str, Measure] | None = None) -> LoadResult:
     """Load (display name, content) pairs: one file, or several merged as a folder.
 
-    `memo`: a dict shared by the loads of related revisions (the two sides of a
-    diff); a record written the same way in both is built once and shared.
+    `shared`: the measures of a related revision (the other side of a diff). A
+    measure read equal to the one of the same name there is that record, so the
+    two models share it and comparing them is cheap.
     """
     if not files:
         raise ModeldiffError("no model files were given; give a NAME.model.yaml file or a NAME.model/ folder")
     with paused_gc():
-        return _fast_load(files, memo) or _exact_load(files)
+        return _fast_load(files, shared) or _exact_load(files)
 
 
 def _exact_load(files: Sequence[tuple[str, bytes | str]]) -> LoadResult:
@@ -655,7 +656,7 @@ def _fast_values(loads, name: str, content: bytes | str) -> dict | None:
     return top if type(top) is dict else None
 
 
-def _fast_load(files: Sequence[tuple[str, bytes | str]], memo: dict | None = None) -> LoadResult | None:
+def _fast_load(files: Sequence[tuple[str, bytes | str]], shared: Mapping[str, Measure] | None = None) -> LoadResult | None:
     """The model read by the fast reader, or None when the event reader must read it."""
     loads = _fast_reader()
     if loads is None:
@@ -668,7 +669,7 @@ def _fast_load(files: Sequence[tuple[str, bytes | str]], memo: dict | None = Non
         docs.append(_Document(name, top))
     try:
         name, fmt = _model_identity(docs)
-        return _FastBuilder(files, memo).build(docs, name, fmt)
+        return _FastBuilder(files, shared).build(docs, name, fmt)
     except (_Fallback, ModeldiffError, AttributeError):  # AttributeError: an error path asked for a position
         return None
 
@@ -1571,11 +1572,11 @@ class _FastBuilder(_RecordBuilder):
     event reader would build, without findings.
     """
 
-    def __init__(self, files: Sequence[tuple[str, bytes | str]], memo: dict | None = None) -> None:
+    def __init__(self, files: Sequence[tuple[str, bytes | str]], shared: Mapping[str, Measure] | None = None) -> None:
         super().__init__()
         self.files = files
         self.positions = _NoPositions()
-        self.memo = memo if memo is not None else {}
+        self.shared = shared or None  # see load_files
         self.good_tables: set[str] = set()  # home tables of measures whose names were found well formed
 
     def _good_table(self, table: str) -> bool:
@@ -1606,16 +1607,16 @@ class _FastBuilder(_RecordBuilder):
         """The common measure (text fields only) without the general path's bookkeeping; the same record."""
         if value.__class__ is dict and "expr" in value and value.keys() <= _MEASURE_TEXT_KEYS:
             if all(map(_IS_TEXT, value.values())):  # (the fast reader makes no subclass of str)
-                key = ("measures", name, *value.items())  # text only: equal keys mean equal records
-                found = self.memo.get(key)
-                if found is not None:
-                    return found
                 get = value.get
                 table, where = get("table"), get("where")
                 if value["expr"].strip() and (table is None or table in self.good_tables or self._good_table(table)) \
                         and (where is None or where.strip()):
-                    found = self.memo[key] = _plain_measure(name, value["expr"], table, where, get("description"),
-                                                            get("unit"), get("owner"), get("folder"))
+                    found = _plain_measure(name, value["expr"], table, where, get("description"), get("unit"),
+                                           get("owner"), get("folder"))
+                    if self.shared is not None:
+                        twin = self.shared.get(name)
+                        if twin is not None and twin == found:
+                            return twin
                     return found
         return super()._measure(name, value, subject, parent)
 
@@ -1752,8 +1753,8 @@ def _section_items(piece: str) -> list[tuple[str, str]]:
 
 
 def splice_files(files: Sequence[tuple[str, bytes | str]], base_files: Sequence[tuple[str, bytes | str]],
-                 base: LoadResult, memo: dict | None = None) -> LoadResult:
-    """`load_files(files, memo)`, reusing the records of `base` (the LoadResult of `base_files`) where the text is the same.
+                 base: LoadResult) -> LoadResult:
+    """`load_files(files, base.model.measures)`, reusing the records of `base` (the LoadResult of `base_files`) where the text is the same.
 
     For a revision that differs from its base in a few items (the two sides of
     a diff): both texts are split into sections (`_split_sections`); a section
@@ -1764,14 +1765,14 @@ def splice_files(files: Sequence[tuple[str, bytes | str]], base_files: Sequence[
     findings, both are one file, their text outside the sections is the same,
     the base's sections hold the names of its records in their order, and
     the changed items read alone give exactly their own names; anything else
-    is a full read, so the result is always that of `load_files(files, memo)`.
+    is a full read, so the result is always that of `load_files(files, base.model.measures)`.
     """
     with paused_gc():
-        spliced = _spliced(files, base_files, base, memo)
-        return spliced if spliced is not None else load_files(files, memo)
+        spliced = _spliced(files, base_files, base)
+        return spliced if spliced is not None else load_files(files, base.model.measures)
 
 
-def _spliced(files, base_files, base: LoadResult, memo: dict | None) -> LoadResult | None:
+def _spliced(files, base_files, base: LoadResult) -> LoadResult | None:
     if len(files) != 1 or len(base_files) != 1 or base.findings or not isinstance(base.model.positions, _LazyPositions):
         return None
     loads = _fast_reader()
@@ -1808,7 +1809,7 @@ def _spliced(files, base_files, base: LoadResult, memo: dict | None) -> LoadResu
             changed[section] = fresh
     if sum(len(items) for items in changed.values()) > SPLICE_MAX_CHANGED:
         return None
-    built = _changed_records(loads, files, changed, memo)
+    built = _changed_records(loads, files, changed, old_model.measures)
     if built is None:
         return None
     sections = {}
@@ -1825,7 +1826,7 @@ def _spliced(files, base_files, base: LoadResult, memo: dict | None) -> LoadResu
     return LoadResult(model, ())
 
 
-def _changed_records(loads, files, changed: dict[str, list[tuple[str, str]]], memo: dict | None):
+def _changed_records(loads, files, changed: dict[str, list[tuple[str, str]]], shared: Mapping[str, Measure]):
     """{section: {name: record}} of the changed items, read on their own; None when only a full read can tell."""
     if not changed:
         return {}
@@ -1846,7 +1847,7 @@ def _changed_records(loads, files, changed: dict[str, list[tuple[str, str]]], me
         values = top[section]
         if type(values) is not dict or list(values) != [name for name, _ in items]:
             return None  # an item that does not end where the split says
-    builder = _FastBuilder(files, memo)
+    builder = _FastBuilder(files, shared)
     builders = {
         "tables": builder._table, "links": builder._link, "measures": builder._measure,
         "variants": builder._variant, "roles": builder._role, "reports": builder._report,

@@ -5,6 +5,8 @@ from __future__ import annotations
 import io
 import os
 import pickle
+import subprocess
+import sys
 import threading
 from pathlib import Path
 
@@ -104,10 +106,30 @@ def test_an_entry_of_another_tool_version_is_not_used(folder, monkeypatch):
 
 def test_the_unpickler_builds_only_modeldiff_records():
     with pytest.raises(pickle.UnpicklingError):
-        cache._Unpickler(io.BytesIO(pickle.dumps(os.system))).load()
+        cache._unpickle(pickle.dumps(os.system))
     from modeldiff.model import Pos
 
-    assert cache._Unpickler(io.BytesIO(pickle.dumps({"p": Pos("f", 1, 2)}))).load() == {"p": Pos("f", 1, 2)}
+    assert cache._unpickle(pickle.dumps({"p": Pos("f", 1, 2)})) == {"p": Pos("f", 1, 2)}
+
+
+def test_a_diff_without_the_cache_loads_no_hashing_or_pickling():
+    # MODELDIFF_NO_CACHE=1: the cache's libraries are never imported (start-up time, docs/performance.md).
+    # (pickle is not probed: rich imports it for its own styles.)
+    code = ("import sys; from modeldiff.cli import main; main(['diff', sys.argv[1], sys.argv[2]]); "
+            "print(sorted(m for m in ('hashlib', 'tempfile') if m in sys.modules), file=sys.stderr)")
+    done = subprocess.run([sys.executable, "-c", code, str(OLD), str(NEW)], capture_output=True, text=True,
+                          env={**os.environ, "MODELDIFF_NO_CACHE": "1"})
+    assert done.stderr.strip() == "[]", done.stderr
+
+
+def test_a_diff_with_the_cache_does_hash_and_pickle(tmp_path):
+    # The twin of the test above: with the cache on, they are loaded (so the probe can see them).
+    code = ("import sys; from modeldiff.cli import main; main(['diff', sys.argv[1], sys.argv[2]]); "
+            "print(sorted(m for m in ('hashlib', 'tempfile') if m in sys.modules), file=sys.stderr)")
+    env = {k: v for k, v in os.environ.items() if k != "MODELDIFF_NO_CACHE"}
+    done = subprocess.run([sys.executable, "-c", code, str(OLD), str(NEW)], capture_output=True, text=True,
+                          env={**env, "MODELDIFF_CACHE_DIR": str(tmp_path)})
+    assert done.stderr.strip() == "['hashlib', 'tempfile']", done.stderr
 
 
 def test_eviction_keeps_the_most_recently_used(tmp_path):

@@ -19,9 +19,9 @@ _pairs = scenario_pairs
 
 
 def _load_pair(old_files, new_files, splice: bool):
-    old_result = load.load_files(old_files, {})
-    new_result = (load.splice_files(new_files, old_files, old_result, {}) if splice
-                  else load.load_files(new_files, {}))
+    old_result = load.load_files(old_files)
+    new_result = (load.splice_files(new_files, old_files, old_result) if splice
+                  else load.load_files(new_files))
     return old_result, new_result
 
 

@@ -32,8 +32,8 @@ def test_check_pair_equals_check_model_on_every_fixture_pair():
     for old, new in _pairs():
         old_files, new_files = load.path_files(old), load.path_files(new)
         try:
-            old_result = load.load_files(old_files, {})
-            new_result = load.splice_files(new_files, old_files, old_result, {})
+            old_result = load.load_files(old_files)
+            new_result = load.splice_files(new_files, old_files, old_result)
         except Exception:  # noqa: BLE001 - a pair that does not load is another test's business
             continue
         got = check.check_pair(old_result.model, old_result.findings, new_result.model, new_result.findings)
@@ -46,8 +46,8 @@ def test_check_pair_equals_check_model_on_every_fixture_pair():
 
 def _edited(old_text: str, new_text: str):
     old_files, new_files = [("a.model.yaml", old_text.encode())], [("b.model.yaml", new_text.encode())]
-    old_result = load.load_files(old_files, {})
-    new_result = load.splice_files(new_files, old_files, old_result, {})
+    old_result = load.load_files(old_files)
+    new_result = load.splice_files(new_files, old_files, old_result)
     return old_result, new_result
 
 

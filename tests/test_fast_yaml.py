@@ -260,12 +260,24 @@ def test_each_field_value_reads_the_same_with_both_readers(which, key, value):
         _same(quick, exact)
 
 
-def test_a_measure_written_the_same_way_is_shared_between_revisions():
-    old = BASE + "measures:\n  m: {expr: sum(fare), table: trips}\n  n: {expr: count(*), table: trips}\n"
-    new = BASE + "measures:\n  m: {expr: sum(fare), table: trips}\n  n: {expr: count(*), table: trips, unit: rides}\n"
-    memo: dict = {}
-    first = load.load_files([("old.model.yaml", old)], memo)
-    second = load.load_files([("new.model.yaml", new)], memo)
+def test_an_equal_measure_is_shared_between_revisions():
+    # m is unchanged; n gained a unit; o is the same record written with its keys in another order.
+    old = BASE + ("measures:\n  m: {expr: sum(fare), table: trips}\n  n: {expr: count(*), table: trips}\n"
+                  "  o: {table: trips, expr: max(fare)}\n")
+    new = BASE + ("measures:\n  m: {expr: sum(fare), table: trips}\n  n: {expr: count(*), table: trips, unit: rides}\n"
+                  "  o: {expr: max(fare), table: trips}\n")
+    first = load.load_files([("old.model.yaml", old)])
+    second = load.load_files([("new.model.yaml", new)], first.model.measures)
     assert second.model.measures["m"] is first.model.measures["m"]
-    assert second.model.measures["n"] is not first.model.measures["n"]  # written differently: built anew
+    assert second.model.measures["o"] is first.model.measures["o"]
+    assert second.model.measures["n"] is not first.model.measures["n"]  # not equal: built anew
+    assert second.model.measures["n"].unit == "rides"
     _same(second, load._exact_load([("new.model.yaml", new)]))
+
+
+def test_no_measure_is_shared_without_a_related_revision():
+    # The twin of the test above: read alone, the same text gives records of its own.
+    text = BASE + "measures:\n  m: {expr: sum(fare), table: trips}\n"
+    first, second = load.load_files([("a.model.yaml", text)]), load.load_files([("b.model.yaml", text)])
+    assert second.model.measures["m"] == first.model.measures["m"]
+    assert second.model.measures["m"] is not first.model.measures["m"]

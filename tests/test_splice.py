@@ -36,14 +36,14 @@ def _files(name: str, text: str) -> list[tuple[str, bytes]]:
 
 def _full(files):
     try:
-        return load.load_files(files, {})
+        return load.load_files(files)
     except ModeldiffError as exc:
         return str(exc)
 
 
 def _spliced(files, base_files, base):
     try:
-        return load.splice_files(files, base_files, base, {})
+        return load.splice_files(files, base_files, base)
     except ModeldiffError as exc:
         return str(exc)
 
@@ -64,9 +64,9 @@ def test_every_fixture_pair_spliced_equals_a_full_read():
     taken = 0
     for old, new in PAIRS:
         base_files, files = load.path_files(old), load.path_files(new)
-        base = load.load_files(base_files, {})
+        base = load.load_files(base_files)
         _assert_same(_spliced(files, base_files, base), _full(files))
-        taken += load._spliced(files, base_files, base, {}) is not None
+        taken += load._spliced(files, base_files, base) is not None
     assert len(PAIRS) >= 50
     assert taken >= len(PAIRS) * 3 // 4  # the splice is the common case, not a rare one
 
@@ -75,8 +75,8 @@ def test_splice_reuses_the_base_records_of_unchanged_items():
     old_text = synthetic_model_text(**SMALL)
     new_text = synthetic_model_text(flip="l0", **SMALL)
     base_files, files = _files("a.model.yaml", old_text), _files("b.model.yaml", new_text)
-    base = load.load_files(base_files, {})
-    got = load._spliced(files, base_files, base, {})
+    base = load.load_files(base_files)
+    got = load._spliced(files, base_files, base)
     assert got is not None
     assert got.model.links["l1"] is base.model.links["l1"]
     assert got.model.links["l0"] is not base.model.links["l0"]
@@ -96,10 +96,10 @@ def test_splice_is_refused_for_unusual_layouts():
         ("  l0:\n", '  "l0":\n'),  # a quoted name
     ]
     base_files = _files("a.model.yaml", old_text)
-    base = load.load_files(base_files, {})
+    base = load.load_files(base_files)
     for old, new in edits:
         files = _files("b.model.yaml", old_text.replace(old, new, 1))
-        assert load._spliced(files, base_files, base, {}) is None, new
+        assert load._spliced(files, base_files, base) is None, new
         _assert_same(_spliced(files, base_files, base), _full(files))
 
 
@@ -108,8 +108,8 @@ def test_splice_is_taken_for_a_plain_edit_with_comments():
     new_text = old_text.replace("links:\n", "links:\n# links follow\n  # and so on\n", 1).replace(
         "  l3:\n", "  l3:\n    standby: true  # kept for later\n", 1)
     base_files, files = _files("a.model.yaml", old_text), _files("b.model.yaml", new_text)
-    base = load.load_files(base_files, {})
-    got = load._spliced(files, base_files, base, {})
+    base = load.load_files(base_files)
+    got = load._spliced(files, base_files, base)
     assert got is not None
     assert got.model.links["l3"].standby
     _assert_same(got, _full(files))
@@ -118,7 +118,7 @@ def test_splice_is_taken_for_a_plain_edit_with_comments():
 def test_a_broken_changed_item_is_reported_as_a_full_read_reports_it():
     old_text = synthetic_model_text(**SMALL)
     base_files = _files("a.model.yaml", old_text)
-    base = load.load_files(base_files, {})
+    base = load.load_files(base_files)
     for old, new in (("  l0:\n", "  l0: [\n"), ("  l1:\n", "  l0:\n    from: a.b\n    to: c.d\n  l1:\n"),
                      ("  m1:\n", "  m1:\n    flow: sideways\n"), ("  m1:\n", '  m1: "unclosed\n')):
         files = _files("b.model.yaml", old_text.replace(old, new, 1))
@@ -144,7 +144,7 @@ def test_generated_edits_spliced_equal_a_full_read(edits):
         else:
             lines.insert(at, line)
     base_files, files = _files("a.model.yaml", old_text), _files("b.model.yaml", "\n".join(lines))
-    base = load.load_files(base_files, {})
+    base = load.load_files(base_files)
     _assert_same(_spliced(files, base_files, base), _full(files))
 
 
