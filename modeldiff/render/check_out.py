@@ -29,29 +29,26 @@ def _counts(findings: Sequence[Finding]) -> tuple[int, int]:
 
 
 def as_text(model_name: str, source: str, findings: Sequence[Finding], stream: TextIO) -> None:
-    from rich.markup import escape
+    from modeldiff.render import TextOut
 
-    from modeldiff.render import console, print_indented
-
-    out = console(stream)
+    out = TextOut(stream)
     errors, warnings = _counts(findings)
     if not findings:
-        out.print(f"[bold green]ok[/] model {escape(model_name)} ({escape(source)}): no findings",
-                  soft_wrap=True)
+        out.line(("ok", "bold green"), f" model {model_name} ({source}): no findings")
         return
-    out.print(f"model [bold]{escape(model_name)}[/] ({escape(source)}): {errors} error(s), {warnings} warning(s)", soft_wrap=True)
+    out.line("model ", (model_name, "bold"), f" ({source}): {errors} error(s), {warnings} warning(s)")
     for severity, style, title in (("error", "bold red", "Errors"), ("warning", "yellow", "Warnings")):
         group = [f for f in findings if f.severity == severity]
         if not group:
             continue
-        out.print()
-        out.print(f"[{style}]{title}[/]")
+        out.line()
+        out.line((title, style))
         for f in group:
             where = f"{f.pos}: " if f.pos else ""
-            out.print(f"  [{style}]{f.rule}[/] {escape(f.subject)}")
-            print_indented(out, where + f.message, 4)
+            out.line("  ", (f.rule, style), f" {f.subject}")
+            out.paragraph(where + f.message, 4)
             for path in f.paths:
-                out.print(f"    path: {escape(' -> '.join(path))}")
+                out.line(f"    path: {' -> '.join(path)}")
 
 
 def _cell(text: str) -> str:

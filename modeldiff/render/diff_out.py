@@ -116,55 +116,51 @@ def _role_extras(i: Impact) -> str:
 
 
 def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
-    from rich.markup import escape
+    from modeldiff.render import TextOut
 
-    from modeldiff.render import console, print_indented
-
-    out = console(stream)
+    out = TextOut(stream)
     for md in diffs:
         r = md.result
         counts = r.counts()
         kinds = {c.id: c.kind for c in r.changes}
-        out.print(f"[bold]{escape(r.new.name or r.old.name)}[/]: {escape(_side(md.old))} -> {escape(_side(md.new))}",
-                  soft_wrap=True)
+        out.line((r.new.name or r.old.name, "bold"), f": {_side(md.old)} -> {_side(md.new)}")
         if not r.changes and not r.new_errors:
-            out.print("  [green]no changes[/]")
-            out.print()
+            out.line("  ", ("no changes", "green"))
+            out.line()
             continue
-        out.print(f"  verdict: [{_STYLE[r.verdict]}]{r.verdict}[/] "
-                  f"({counts['breaking']} breaking, {counts['numbers']} can move numbers, {counts['safe']} safe)")
+        out.line("  verdict: ", (r.verdict, _STYLE[r.verdict]),
+                 f" ({counts['breaking']} breaking, {counts['numbers']} can move numbers, {counts['safe']} safe)")
         if any(c.kind == "security.exposed" for c in r.changes):
-            out.print(f"  [bold red]SECURITY:[/] {escape(SECURITY_CAUTION)}")
+            out.paragraph(SECURITY_CAUTION, 4, "  ", ("SECURITY:", "bold red"), " ")
         for severity in reversed(SEVERITIES):
             group = [c for c in r.changes if c.severity == severity]
             if not group:
                 continue
-            out.print()
-            out.print(f"  [{_STYLE[severity]}]{severity}[/]")
+            out.line()
+            out.line("  ", (severity, _STYLE[severity]))
             for c in group:
-                out.print(f"    {c.id} [{_STYLE[severity]}]{escape(c.kind)}[/] {escape(c.subject)}")
-                print_indented(out, c.message, 7)
+                out.line(f"    {c.id} ", (c.kind, _STYLE[severity]), f" {c.subject}")
+                out.paragraph(c.message, 7)
         if r.new_errors:
-            out.print()
-            out.print("  [bold red]errors in the new revision[/] (run `modeldiff check` for details)")
+            out.line()
+            out.line("  ", ("errors in the new revision", "bold red"), " (run `modeldiff check` for details)")
             for f in r.new_errors:
-                print_indented(out, f"{f.rule} {f.subject}: {f.message}", 4)
+                out.paragraph(f"{f.rule} {f.subject}: {f.message}", 4)
         for title, impacts in (("measures", r.measures), ("roles", r.roles), ("reports", r.reports)):
             if not impacts:
                 continue
-            out.print()
-            out.print(f"  [bold]impacted {title}[/] ({len(impacts)})")
+            out.line()
+            out.line("  ", (f"impacted {title}", "bold"), f" ({len(impacts)})")
             for i in impacts:
                 extra = _role_extras(i)
-                out.print(f"    [{_STYLE[i.severity]}]{escape(i.name)}[/] ({i.severity})"
-                          + (f"  {escape(extra)}" if extra else ""))
+                out.line("    ", (i.name, _STYLE[i.severity]), f" ({i.severity})" + (f"  {extra}" if extra else ""))
                 for reason in i.reasons:
-                    print_indented(out, reason_words(reason, kinds), 7)
+                    out.paragraph(reason_words(reason, kinds), 7)
                     for p in reason.paths_added:
-                        out.print(f"         + {escape(_path_text(p))}")
+                        out.line(f"         + {_path_text(p)}")
                     for p in reason.paths_removed:
-                        out.print(f"         - {escape(_path_text(p))}")
-        out.print()
+                        out.line(f"         - {_path_text(p)}")
+        out.line()
 
 
 # --- Markdown ---------------------------------------------------------------------------
