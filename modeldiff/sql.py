@@ -24,7 +24,7 @@ import functools
 import json
 import re
 from collections.abc import Iterable, Iterator, Mapping, Set
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -610,7 +610,14 @@ def names(text: str) -> frozenset[str]:
     In a derived measure these are the measures it names; function names are
     never among them.
     """
-    return frozenset(name for _, name in facts(text).columns)
+    if not isinstance(text, str):
+        facts(text)  # raises SqlError, as for any text that is not SQL
+    return _names(text)
+
+
+@functools.lru_cache(maxsize=1 << 16)
+def _names(text: str) -> frozenset[str]:
+    return frozenset([name for _, name in facts(text).columns])
 
 
 def measure_refs(expr: str, measure_names: Iterable[str]) -> frozenset[str]:
@@ -855,18 +862,21 @@ class _Scan:
     unsure: bool = False  # something outside the scanner's small grammar
 
 
-_TOKEN = re.compile(
+_TOKEN = re.compile(  # spaces before a token are passed over in the same match; `end` only after the last token
     r"""
-    (?P<space>\s+)
-  | (?P<line_comment>--[^\n]*)
-  | (?P<block_comment>/\*)
-  | (?P<string>')
-  | (?P<quoted>")
-  | (?P<param>:[A-Za-z_][A-Za-z0-9_]*)
-  | (?P<number>\d+(?:\.\d*)?(?:[eE][+-]?\d+)?)
-  | (?P<word>[A-Za-z_][A-Za-z0-9_]*)
-  | (?P<op>[-+*/%=<>!]+)
-  | (?P<punct>[(),.])
+    \s*
+    (?:
+        (?P<word>[A-Za-z_][A-Za-z0-9_]*)
+      | (?P<punct>[(),.])
+      | (?P<line_comment>--[^\n]*)
+      | (?P<block_comment>/\*)
+      | (?P<op>[-+*/%=<>!]+)
+      | (?P<number>\d+(?:\.\d*)?(?:[eE][+-]?\d+)?)
+      | (?P<string>')
+      | (?P<quoted>")
+      | (?P<param>:[A-Za-z_][A-Za-z0-9_]*)
+      | (?P<end>\Z)
+    )
     """,
     re.VERBOSE,
 )
@@ -883,24 +893,47 @@ _SIMPLE_FUNCTIONS = frozenset(
 
 def _scan(text: str) -> _Scan:
     tokens: list[tuple[str, str]] = []
+    append, match_at = tokens.append, _TOKEN.match
     pos, end = 0, len(text)
-    while pos < end:
-        match = _TOKEN.match(text, pos)
+    while True:
+        match = match_at(text, pos)
         if match is None:
             return _Scan(tuple(tokens), unsure=True)
         kind = match.lastgroup
-        if kind == "space" or kind == "line_comment":
-            pos = match.end()
+        pos = match.end()
+        if kind == "word" or kind == "param":
+            if pos < end and not (text[pos].isspace() or text[pos] in "()+-*/%=<>!,."):
+                return _Scan(tuple(tokens), unsure=True)  # e'..', x'..', a$b, café ...
+            append((kind, match.group(kind)))
+        elif kind == "punct":
+            value = match.group(kind)
+            append((value, value))
+        elif kind == "end":
+            return _Scan(tuple(tokens))
+        elif kind == "op":
+            value = match.group(kind)
+            if value not in _SIMPLE_OPS:
+                return _Scan(tuple(tokens), unsure=True)
+            append((kind, value))
+        elif kind == "number":
+            value = match.group(kind)
+            if pos < end and (text[pos].isalnum() or text[pos] in "_."):
+                return _Scan(tuple(tokens), unsure=True)
+            if pos < end and text[pos] in "+-" and value[-1:].isdigit() and "e" in value.lower():
+                return _Scan(tuple(tokens), unsure=True)  # sqlglot reads `1e3+1` as one number
+            append((kind, value))
+        elif kind == "line_comment":
+            continue
         elif kind == "block_comment":
-            close = text.find("*/", match.end())
+            close = text.find("*/", pos)
             if close < 0:
                 return _Scan(tuple(tokens), unsure=True)
-            if "/*" in text[match.end() : close]:
+            if "/*" in text[pos:close]:
                 return _Scan(tuple(tokens), unsure=True)  # nested comments
             pos = close + 2
-        elif kind in ("string", "quoted"):
-            closing = match.group()
-            value, pos = _quoted_body(text, match.end(), closing)
+        else:  # string or quoted
+            closing = match.group(kind)
+            value, pos = _quoted_body(text, pos, closing)
             if value is None:
                 return _Scan(tuple(tokens), unsure=True)
             if kind == "quoted" and (closing in value or not value):
@@ -908,21 +941,6 @@ def _scan(text: str) -> _Scan:
             if kind == "string" and "\\" in value:
                 return _Scan(tuple(tokens), unsure=True)
             tokens.append((kind, value))
-        else:
-            value = match.group()
-            pos = match.end()
-            if kind == "number" and pos < end and (text[pos].isalnum() or text[pos] in "_."):
-                return _Scan(tuple(tokens), unsure=True)
-            if kind == "number" and pos < end and text[pos] in "+-" and value[-1:].isdigit() and "e" in value.lower():
-                return _Scan(tuple(tokens), unsure=True)  # sqlglot reads `1e3+1` as one number
-            if kind == "op" and value not in _SIMPLE_OPS:
-                return _Scan(tuple(tokens), unsure=True)
-            if kind == "punct":
-                kind = value
-            if kind in ("word", "param") and pos < end and not (text[pos].isspace() or text[pos] in "()+-*/%=<>!,."):
-                return _Scan(tuple(tokens), unsure=True)  # e'..', x'..', a$b, café ...
-            tokens.append((kind, value))
-    return _Scan(tuple(tokens))
 
 
 def _quoted_body(text: str, start: int, closing: str) -> tuple[str | None, int]:
@@ -1111,9 +1129,10 @@ def _fast_facts(text: str) -> Facts | None:
     found = _shape_facts(shape)
     if found is None:
         return None
-    back = {f"\0{index}": name for index, name in enumerate(names)}
-    return replace(found, columns=frozenset((None, back[name]) for _, name in found.columns),
-                   outside_aggregate=frozenset((None, back[name]) for _, name in found.outside_aggregate))
+    back = {f"\0{index}": (None, name) for index, name in enumerate(names)}
+    return Facts(frozenset([back[name] for _, name in found.columns]),
+                 frozenset([back[name] for _, name in found.outside_aggregate]) if found.outside_aggregate else frozenset(),
+                 found.aggregates, found.parameters, found.subquery, found.condition_like)
 
 
 def _shape(tokens: tuple[tuple[str, str], ...]) -> tuple[tuple[tuple[str, str], ...], list[str] | None]:

@@ -154,9 +154,18 @@ def test_the_plain_measure_maker_makes_the_records_measure_makes():
 
     from modeldiff.model import NO_OVERRIDES, Measure
 
-    made = load._plain_measure("trip_count", "count(*)", "trips", "status = 'done'", "Trips", "trips", None, "Rides")
+    fields = {"folder": "Rides", "expr": "count(*)", "where": "status = 'done'", "table": "trips",
+              "description": "Trips", "unit": "trips"}  # in another order than the class's
+    made = load._plain_measure("trip_count", fields)
     want = Measure("trip_count", "count(*)", "trips", "status = 'done'", NO_OVERRIDES, "Trips", "trips", None, "Rides")
     assert made == want and repr(made) == repr(want)
+    assert list(vars(made)) == list(load._MEASURE_FIELDS)
+    assert fields == {"folder": "Rides", "expr": "count(*)", "where": "status = 'done'", "table": "trips",
+                      "description": "Trips", "unit": "trips"}  # the caller's dict is left alone
+    bare = load._plain_measure("n", {"expr": "sum(x)"})
+    assert bare == Measure("n", "sum(x)") and bare.overrides is NO_OVERRIDES
+    with pytest.raises(dataclasses.FrozenInstanceError):
+        made.expr = "sum(x)"  # still frozen
     assert dataclasses.asdict(made) == dataclasses.asdict(want)
     assert pickle.loads(pickle.dumps(made)) == want
     assert made != dataclasses.replace(want, where=None)  # a different record is told apart
