@@ -508,7 +508,7 @@ class _Impacts:
                 except sql.SqlError:
                     self.measure_deps[m.name] = frozenset()
         self.back = a.renames.inverse()
-        self._twins = self._twin_links()
+        self._twin_index: tuple[dict, dict] | None = None  # see _twins_of
         self._cause_cache: dict[tuple, tuple[int, str] | None] = {}
         self._security = None
         self._own_cache: dict[str, list[Reason]] = {}
@@ -547,16 +547,31 @@ class _Impacts:
     def kinds(self, prefix: str) -> list[Change]:
         return [c for c in self.changes if c.kind.startswith(prefix)]
 
-    def _twin_links(self) -> dict[str, frozenset[str]]:
-        """Each link (new names) -> the links joining the same two tables in either revision."""
+    def _twins_of(self, link: str) -> frozenset[str]:
+        """The links (new names) joining the same two tables as `link` in either revision, `link` included."""
+        if self._twin_index is None:
+            self._twin_index = self._twin_links()
+        by_tables, ends = self._twin_index
+        keys = ends.get(link)
+        return frozenset(t for key in keys for t in by_tables[key]) if keys else frozenset({link})
+
+    def _twin_links(self) -> tuple[dict[frozenset[str], set[str]], dict[str, set[frozenset[str]]]]:
+        """(the links (new names) by the pair of tables they join, the pairs each link joins), over both revisions."""
         by_tables: dict[frozenset[str], set[str]] = {}
         ends: dict[str, set[frozenset[str]]] = {}
-        old = [(self.a.renames.link(n), frozenset(self.a.renames.table(t) for t in l.tables))
-               for n, l in self.a.old.links.items()]
-        for name, tables in old + [(n, l.tables) for n, l in self.a.new.links.items()]:
-            by_tables.setdefault(tables, set()).add(name)
-            ends.setdefault(name, set()).add(tables)
-        return {name: frozenset(t for key in keys for t in by_tables[key]) for name, keys in ends.items()}
+        renames, new_links = self.a.renames, self.a.new.links
+        for name, link in new_links.items():
+            key = frozenset((link.from_table, link.to_table))
+            by_tables.setdefault(key, set()).add(name)
+            ends[name] = {key}
+        for old_name, link in self.a.old.links.items():
+            name = renames.link(old_name)
+            if new_links.get(name) is link and not renames.tables:
+                continue  # the very record under the same name: counted above
+            key = frozenset((renames.table(link.from_table), renames.table(link.to_table)))
+            by_tables.setdefault(key, set()).add(name)
+            ends.setdefault(name, set()).add(key)
+        return by_tables, ends
 
     def _link_ends(self, link: str) -> set[str]:
         out: set[str] = set()
@@ -591,7 +606,7 @@ class _Impacts:
         edge_changes = sorted((c for c in own if c.kind in EDGE_KINDS), key=lambda c: EDGE_KINDS.index(c.kind))
         if edge_changes and (not setting_changes or self._moved_by_model(edge, came, comp)):
             return 0, edge_changes[0].id
-        twins = self._twins.get(link, frozenset({link}))
+        twins = self._twins_of(link)
         for change in setting_changes:
             if _mentions(change.before, twins) or _mentions(change.after, twins):
                 return 1, change.id
