@@ -12,7 +12,7 @@ from functools import cached_property
 from typing import TYPE_CHECKING, Callable, Iterable, Iterator
 
 from modeldiff import graph, sql  # both light: sqlglot is imported on first use
-from modeldiff.model import Finding, Measure, Model, Overrides, Table
+from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Table
 
 if TYPE_CHECKING:  # pragma: no cover
     from modeldiff.graph import Setting
@@ -191,11 +191,18 @@ def rule_link_references(ctx: _Context) -> Iterator[Finding]:
 
 def rule_measure_references(ctx: _Context) -> Iterator[Finding]:
     tables = ctx.model.tables
+    clean: dict[tuple[str, str | None, str], bool] = {}  # (expr, where, table) of plain base measures -> no finding
     for measure in ctx.model.measures.values():
-        if not measure.overrides and measure.table is not None:  # the common case, settled without generators
-            table = tables.get(measure.table)
-            if table is not None and ctx.clean_base_text("expr", measure.expr, table) and (
-                    measure.where is None or ctx.clean_base_text("where", measure.where, table)):
+        home = measure.table
+        if home is not None and (measure.overrides is NO_OVERRIDES or not measure.overrides):
+            # the common case, settled without generators, once per (expr, where, table)
+            key = (measure.expr, measure.where, home)
+            found = clean.get(key)
+            if found is None:
+                table = tables.get(home)
+                found = clean[key] = table is not None and ctx.clean_base_text("expr", measure.expr, table) and (
+                    measure.where is None or ctx.clean_base_text("where", measure.where, table))
+            if found:
                 continue
         subject = f"measures.{measure.name}"
         yield from _overrides_refs(ctx, subject, measure.overrides)

@@ -841,12 +841,15 @@ class _Impacts:
         loud = self._loud_tables()
         back_measures, back_tables, old_measures = self.back.measures, self.back.tables, a.old.measures
         plain_paths: dict[str, list[Reason]] = {}  # home table -> its path reasons in the plain setting
+        own = named | self._own_setting_changes
+        quiet: dict[str, bool] = {}  # home table -> no change touches it (in either revision's name)
         for name, m in a.new.measures.items():
             table = m.table
-            if (table is not None and m.overrides is NO_OVERRIDES and name not in named and name not in self._own_setting_changes
-                    and table not in loud and back_tables.get(table, table) not in loud):
+            if table is not None and m.overrides is NO_OVERRIDES and name not in own and (
+                    quiet[table] if table in quiet else
+                    quiet.setdefault(table, table not in loud and back_tables.get(table, table) not in loud)):
                 # the common case, as below without the per-measure steps: the plain setting, no reasons of its own
-                old_measure = old_measures.get(back_measures.get(name, name))
+                old_measure = old_measures.get(back_measures.get(name, name) if back_measures else name)
                 if old_measure is None:
                     continue  # a new measure had no numbers to move
                 if old_measure.overrides is NO_OVERRIDES:
