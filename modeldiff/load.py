@@ -582,8 +582,8 @@ def _fast_unsure(text: str) -> bool:
     """
     if "\t" in text or "\r" in text or "\\" in text or "<<" in text:  # tabs, escapes, merge keys
         return True
-    if text.startswith(("%", "---", "...")) or "\n%" in text or "\n---" in text or "\n..." in text:
-        return True  # directives, document markers
+    if text.startswith(("%", "---", "...")) or any(mark in text and "\n" + mark in text for mark in ("%", "---", "...")):
+        return True  # directives, document markers (each mark looked for alone first: it is rare, a newline is not)
     if "\n" + " " * 200 in text or (_COMPACT_PAIR.search(text) and _COMPACT_RUN.search(text)):
         return True  # nesting far deeper than a model's
     if "?" in text and _COMPLEX_KEY.search(text):
@@ -1766,7 +1766,7 @@ def splice_files(files: Sequence[tuple[str, bytes | str]], base_files: Sequence[
     changed items are read, by the same fast reader and record builder as a
     full read. Used only when the base was read by the fast reader without
     findings, both are one file, their text outside the sections is the same,
-    the base's sections hold the names of its records in their order, and
+    each changed section of the base holds the names of its records in their order, and
     the changed items read alone give exactly their own names; anything else
     is a full read, so the result is always that of `load_files(files, base.model.measures)`.
     """
@@ -1789,9 +1789,6 @@ def _spliced(files, base_files, base: LoadResult) -> LoadResult | None:
     if old_split is None or new_split is None or old_split[0] != new_split[0]:
         return None
     old_model = base.model
-    for section, piece in old_split[1].items():
-        if _ITEM_START.findall(piece) != list(getattr(old_model, section)):
-            return None  # the split does not see what the reader saw
     kept: dict[str, dict[str, Any]] = {}  # section -> the records of a section written as in the base
     reused: dict[str, dict[str, Any]] = {}  # section -> item text -> the base's record
     changed: dict[str, list[tuple[str, str]]] = {}
@@ -1805,7 +1802,10 @@ def _spliced(files, base_files, base: LoadResult) -> LoadResult | None:
         if len({name for name, _ in items}) != len(items):
             return None  # a name written twice: the full read words it
         records = getattr(old_model, section)
-        known = {item_text: records[name] for name, item_text in _section_items(old_piece)} if old_piece else {}
+        old_items = _section_items(old_piece) if old_piece else []
+        if [name for name, _ in old_items] != list(records):
+            return None  # the split does not see what the reader saw
+        known = {item_text: records[name] for name, item_text in old_items}
         reused[section], order[section] = known, items
         fresh = [(name, item_text) for name, item_text in items if item_text not in known]
         if fresh:
