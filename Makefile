@@ -7,10 +7,12 @@ STAMP := $(VENV)/.installed
 
 .PHONY: demo test bench clean
 
-$(STAMP): pyproject.toml
+# The editable install in compat mode puts the project folder on sys.path with a .pth file and no
+# import hook: the hook cost 0.009 s of every command's start-up.
+$(STAMP): pyproject.toml Makefile
 	test -x $(BIN)/python || $(PY) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
-	$(BIN)/python -m pip install --quiet -e '.[test]'
+	$(BIN)/python -m pip install --quiet -e '.[test]' --config-settings editable_mode=compat
 	touch $(STAMP)
 
 demo: $(STAMP)

@@ -37,7 +37,32 @@ EXTRA_COMMANDS = (
 )
 
 
+class _Formatter(argparse.HelpFormatter):
+    """argparse's own help layout, its width found without importing shutil (0.002 s on every command)."""
+
+    def __init__(self, prog: str, indent_increment: int = 2, max_help_position: int = 24, width: int | None = None):
+        super().__init__(prog, indent_increment, max_help_position, _terminal_columns() - 2 if width is None else width)
+
+
+def _terminal_columns() -> int:
+    """The terminal's width as `shutil.get_terminal_size` finds it: COLUMNS, the terminal, else 80."""
+    try:
+        columns = int(os.environ.get("COLUMNS", "0"))
+    except ValueError:
+        columns = 0
+    if columns <= 0:
+        try:
+            columns = os.get_terminal_size(sys.__stdout__.fileno()).columns
+        except (AttributeError, ValueError, OSError):
+            columns = 0
+    return columns if columns > 0 else 80
+
+
 class _Parser(argparse.ArgumentParser):
+    def __init__(self, *args, **kwargs) -> None:
+        kwargs.setdefault("formatter_class", _Formatter)
+        super().__init__(*args, **kwargs)
+
     def error(self, message: str):  # argparse would print usage and exit 2 itself
         raise UsageError(f"{message} (see 'modeldiff {self.prog.split()[-1]} --help')" if " " in self.prog
                          else f"{message} (see 'modeldiff --help')")

@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 from typing import Sequence, TextIO
 
 from modeldiff.model import Finding
@@ -20,6 +19,8 @@ def as_json(model_name: str, findings: Sequence[Finding], stream: TextIO) -> Non
     doc = {"format": 1, "model": model_name, "findings": [finding_json(f) for f in findings],
            "summary": {"errors": sum(f.severity == "error" for f in findings),
                        "warnings": sum(f.severity == "warning" for f in findings)}}
+    import json
+
     json.dump(doc, stream, indent=2)
     stream.write("\n")
 

@@ -5,7 +5,6 @@ Everything here reads `DiffResult` records; nothing is re-derived.
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass
 from typing import Sequence, TextIO
 
@@ -76,6 +75,8 @@ def as_json(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
         summary = {k: sum(d["summary"][k] for d in docs) for k in ("breaking", "numbers", "safe", "errors")}
         verdict = verdict_of(diffs)
         doc = {"format": 1, "models": docs, "summary": {**summary, "verdict": verdict, "exit_code": EXIT_CODES[verdict]}}
+    import json
+
     json.dump(doc, stream, indent=2)
     stream.write("\n")
 
