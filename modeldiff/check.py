@@ -270,7 +270,8 @@ def _derived_measure(ctx: _Context, measure: Measure, subject: str) -> Iterator[
         return
     for qualifier, name in sorted(found.columns, key=lambda r: (r[0] or "", r[1])):
         shown = f"{qualifier}.{name}" if qualifier else name
-        if qualifier is not None or name.lower() not in ctx.measure_names_lower:  # SQL names ignore case
+        if qualifier is not None or (name not in ctx.model.measures
+                                     and name.lower() not in ctx.measure_names_lower):  # SQL names ignore case
             yield ctx.finding("broken-reference", subject,
                               f"{what} names '{shown}', which is not a measure; fix the name, or give the measure a `table` if it aggregates columns.",
                               at=at)

@@ -870,9 +870,10 @@ class _Impacts:
                 reasons += self.path_reasons(m.table, comp)
             if reasons:
                 direct[name] = reasons
-        # derived measures inherit the reasons of the measures they use
+        # derived measures inherit the reasons of the measures they use: only those that use an impacted one
         result: dict[str, list[Reason]] = {k: list(v) for k, v in direct.items()}
-        for name, m in a.new.measures.items():
+        for name in sorted(self._users_of(direct)):
+            m = a.new.measures[name]
             if m.table is not None or self.computation(m) is None:
                 continue
             for dep in self.dependencies(name):
@@ -886,6 +887,21 @@ class _Impacts:
         for change in self.filter_changes:
             loud |= set(self._filter_reach(change))
         return loud
+
+    def _users_of(self, used: Iterable[str]) -> set[str]:
+        """Derived measures that use any of `used`, directly or through other derived measures."""
+        users: dict[str, list[str]] = {}
+        for name, deps in self.measure_deps.items():
+            for dep in deps:
+                users.setdefault(dep, []).append(name)
+        found: set[str] = set()
+        todo = [user for name in used for user in users.get(name, ())]
+        while todo:
+            name = todo.pop()
+            if name not in found:
+                found.add(name)
+                todo.extend(users.get(name, ()))
+        return found
 
     def dependencies(self, name: str) -> list[str]:
         out, todo, seen = [], list(self.measure_deps.get(name, ())), {name}
