@@ -1,6 +1,6 @@
 """Benchmarks: each command timed as a ratio to a floor measured in the same run, with each stage's share.
 
-    python benchmarks/run.py [--tables 2000 --links 3000 --measures 22000 --roles 100] [--repeat 3]
+    python benchmarks/run.py [--tables 2000 --links 3000 --measures 22000 --roles 100] [--repeat 5]
     python benchmarks/run.py --smoke      # tiny sizes, one repeat: runs every step, asserts nothing
 
 The floor is `json.loads` of the same data: the YAML-loaded values of each
@@ -12,8 +12,10 @@ not depend on the machine. Goals (issue tracker), on the default model:
     check                             <= 40x  json.loads of both revisions (one revision also shown)
     repeated diff, warm cache         <= 3x   json.loads of both revisions
 
-Times are CPU seconds (user + system), the least of `--repeat` runs, for the
-command and for the floor alike. Each command is timed as a person runs it: `python -m modeldiff diff OLD NEW`
+Times are CPU seconds (user + system), the least of `--repeat` rounds, for the
+command and for the floor alike; each round times the floor and every command
+in turn, so that a machine that slows down or speeds up during the run moves
+both alike. Each command is timed as a person runs it: `python -m modeldiff diff OLD NEW`
 (or `check OLD`) in a fresh process, from the files on disk to the text on
 standard output; the cold diff with MODELDIFF_NO_CACHE=1,
 the warm one after a first run filled a cache folder of its own. The stage
@@ -183,14 +185,33 @@ def command(args: list[str], env: dict[str, str]) -> None:
                    stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, check=False)
 
 
-def json_floor(texts: list[str], repeat: int) -> float:
-    """json.loads of each text's YAML values, the least a Python reader of the same data pays."""
+def json_floor(texts: list[str]):
+    """A function doing json.loads of each text's YAML values: the least a Python reader of the same data pays."""
     import yaml
 
     loader = getattr(yaml, "CSafeLoader", yaml.SafeLoader)
     dumped = [json.dumps(yaml.load(text, Loader=loader)) for text in texts]
-    gc.collect()  # measured on a tidy heap: leftovers of earlier steps would make the collector's share vary
-    return best(lambda: [json.loads(d) for d in dumped], max(repeat, 7))
+    return lambda: [json.loads(d) for d in dumped]
+
+
+def interleaved(measures: dict[str, object], rounds: int, floors: tuple[str, ...] = ()) -> dict[str, float]:
+    """The least CPU time of each measure over `rounds` rounds; each round runs every measure in turn.
+
+    A shared machine speeds up and slows down during a run; taking the floor
+    and the commands in turn lets both see the same spells. A floor (a few
+    hundredths of a second) is timed three times a round, each time on a tidy
+    heap: leftovers of earlier steps would make the collector's share vary.
+    """
+    least = {key: float("inf") for key in measures}
+    for _ in range(rounds):
+        for key, fn in measures.items():
+            for _ in range(3 if key in floors else 1):
+                if key in floors:
+                    gc.collect()
+                start = _cpu()
+                fn()
+                least[key] = min(least[key], _cpu() - start)
+    return least
 
 
 def pyyaml_parse(texts: list[str], repeat: int) -> float:
@@ -207,7 +228,7 @@ def main(argv=None) -> int:
     p.add_argument("--links", type=int, default=3000)
     p.add_argument("--measures", type=int, default=22000)
     p.add_argument("--roles", type=int, default=100)
-    p.add_argument("--repeat", type=int, default=3)
+    p.add_argument("--repeat", type=int, default=5)
     p.add_argument("--smoke", action="store_true", help="tiny sizes, one repeat")
     args = p.parse_args(argv)
     if args.smoke:
@@ -228,8 +249,6 @@ def main(argv=None) -> int:
         os.environ["MODELDIFF_CACHE_DIR"] = os.path.join(work, "cache")
         os.environ.pop("MODELDIFF_NO_CACHE", None)
 
-        one = json_floor([old_text], args.repeat)
-        both = json_floor([old_text, new_text], args.repeat)
         yaml_one = pyyaml_parse([old_text], min(args.repeat, 3))
         yaml_both = pyyaml_parse([old_text, new_text], min(args.repeat, 3))
 
@@ -247,11 +266,14 @@ def main(argv=None) -> int:
         warm_env = {**base_env, "COLUMNS": "100"}
         command(["diff", old_path, new_path], warm_env)  # the cache folder holds this comparison from now on
         command(["check", old_path], cold_env)  # every module compiled once
-        timed = {
-            "diff": best(lambda: command(["diff", old_path, new_path], cold_env), args.repeat),
-            "check": best(lambda: command(["check", old_path], cold_env), args.repeat),
-            "warm": best(lambda: command(["diff", old_path, new_path], warm_env), args.repeat),
-        }
+        timed = interleaved({
+            "one": json_floor([old_text]),
+            "both": json_floor([old_text, new_text]),
+            "diff": lambda: command(["diff", old_path, new_path], cold_env),
+            "check": lambda: command(["check", old_path], cold_env),
+            "warm": lambda: command(["diff", old_path, new_path], warm_env),
+        }, max(args.repeat, 1), floors=("one", "both"))
+        one, both = timed["one"], timed["both"]
         rows = [
             ("diff, one link flipped", "diff", timed["diff"], shares(cold, 1)),
             ("check", "check", timed["check"], shares(checked, 1)),

@@ -38,6 +38,8 @@ RULES = {
 
 @dataclass
 class _Context:
+    """One revision being checked, with the memos its rules share."""
+
     model: Model
     _clean: dict = field(default_factory=dict, repr=False)
 

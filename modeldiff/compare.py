@@ -15,6 +15,8 @@ from modeldiff.errors import ModeldiffError
 
 @dataclass(frozen=True)
 class Side:
+    """Where one side of a comparison came from: a git revision (None: the working tree or a plain path) and a path."""
+
     rev: str | None
     path: str
 

@@ -126,6 +126,8 @@ Row = tuple  # one value per column of TABLE_COLUMNS[table]
 
 @dataclass(frozen=True)
 class MechanicVersion:
+    """One version of a mechanic in the type-2 mechanic dimension of the demo data."""
+
     key: int
     code: str
     name: str

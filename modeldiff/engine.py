@@ -344,6 +344,8 @@ def _and(parts: Sequence[str]) -> str:
 
 @dataclass
 class _Plan:
+    """The named SQL relations of one evaluation, in the order they are built."""
+
     items: list = field(default_factory=list)  # ("rel", name, sql) | ("loop", Loop, member names)
     names: set = field(default_factory=set)
 

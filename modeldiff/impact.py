@@ -58,6 +58,8 @@ _SETTING_FIELDS = frozenset({"overrides", "variant"})
 
 @dataclass(frozen=True)
 class Reason:
+    """Why one measure, role or report is impacted: the change, and the paths it added or removed."""
+
     change: str  # id of the change it comes from
     message: str
     source: str | None = None  # "numbers move when filtered or grouped by" this table
@@ -68,6 +70,8 @@ class Reason:
 
 @dataclass(frozen=True)
 class Impact:
+    """One impacted measure, role or report, with its severity and reasons."""
+
     name: str
     severity: str
     reasons: tuple[Reason, ...]
@@ -78,6 +82,8 @@ class Impact:
 
 @dataclass(frozen=True)
 class DiffResult:
+    """The comparison of two revisions: changes, impacted measures, roles and reports, new errors."""
+
     old: Model
     new: Model
     changes: tuple[Change, ...]

@@ -71,6 +71,8 @@ _COLREF = re.compile(rf"({_NAME_PATTERN})\.({_NAME_PATTERN})\Z")
 
 @dataclass(frozen=True)
 class LoadResult:
+    """A model as read, with the invalid-model findings met while reading it."""
+
     model: Model
     findings: tuple[Finding, ...]  # rule "invalid-model", severity "error"
 
@@ -843,6 +845,8 @@ def _value_pos(mapping: YamlMap, key: Any) -> _At:
 
 @dataclass(frozen=True)
 class _Document:
+    """One file's top-level mapping, with its display name."""
+
     file: str
     top: YamlMap
 

@@ -33,6 +33,8 @@ class Pos:
 
 @dataclass(frozen=True)
 class Column:
+    """A column of a table: its name, type and whether its values are unique."""
+
     name: str
     type: str
     description: str | None = None
@@ -52,6 +54,8 @@ class History:
 
 @dataclass(frozen=True)
 class Table:
+    """A fact, dimension, bridge or access table: its key, columns and history handling."""
+
     name: str
     kind: str
     key: tuple[str, ...]
@@ -117,6 +121,8 @@ class Measure:
 
 @dataclass(frozen=True)
 class VariantOption:
+    """One option of a variant: the overrides and row conditions it brings."""
+
     name: str
     overrides: Overrides = NO_OVERRIDES
     where: Mapping[str, str] = field(default_factory=dict)  # table -> SQL predicate
@@ -124,6 +130,8 @@ class VariantOption:
 
 @dataclass(frozen=True)
 class Variant:
+    """A named choice between options (a setting a report may pick), with its default option."""
+
     name: str
     default: str
     options: Mapping[str, VariantOption]
@@ -132,6 +140,8 @@ class Variant:
 
 @dataclass(frozen=True)
 class Role:
+    """A row-security role: a SQL filter per table it restricts."""
+
     name: str
     filters: Mapping[str, str]  # table -> SQL predicate (may use :user)
     description: str | None = None
@@ -139,6 +149,8 @@ class Role:
 
 @dataclass(frozen=True)
 class Report:
+    """A consumer of measures: grouped by columns, filtered, in a variant option and role."""
+
     name: str
     measures: tuple[str, ...]
     by: tuple[str, ...] = ()  # "table.column"
@@ -152,6 +164,8 @@ class Report:
 
 @dataclass(frozen=True)
 class Model:
+    """One revision of an analytical model: every section, and where each item was written."""
+
     name: str
     tables: Mapping[str, Table]
     links: Mapping[str, Link] = field(default_factory=dict)

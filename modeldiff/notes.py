@@ -36,6 +36,8 @@ SHORT = 7  # characters of a commit id shown
 
 @dataclass(frozen=True)
 class Commit:
+    """One commit of the range, with the model paths it changed."""
+
     sha: str
     subject: str
     parents: tuple[str, ...]
@@ -56,6 +58,8 @@ class Commit:
 
 @dataclass(frozen=True)
 class Notes:
+    """Release notes across a range of commits."""
+
     range: str
     mode: str  # squash | per-commit
     start: str  # what the squashed comparison starts from, as shown

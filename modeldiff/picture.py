@@ -48,6 +48,8 @@ _ARROWS = {ONE_WAY: "-->", TWO_WAY: "<-->", STANDBY: "-.->", REMOVED: "-.->"}
 
 @dataclass(frozen=True)
 class Node:
+    """A table in a picture."""
+
     id: str  # sanitised, safe as a Mermaid or dot identifier
     table: str
     kind: str  # fact | dimension | bridge | access | missing (named by a link, not defined)
@@ -73,6 +75,8 @@ class Arrow:
 
 @dataclass(frozen=True)
 class Picture:
+    """A picture of a model's filter graph: tables, arrows and a caption."""
+
     model: str
     nodes: tuple[Node, ...]
     arrows: tuple[Arrow, ...]

@@ -69,6 +69,8 @@ class Check:
 
 @dataclass(frozen=True)
 class Step:
+    """One step of a migration plan, with what it waits for, how to check it and how to undo it."""
+
     id: str
     kind: str
     subject: str
@@ -82,6 +84,8 @@ class Step:
 
 @dataclass(frozen=True)
 class Plan:
+    """A migration plan from one revision to the next: ordered steps and what blocks them."""
+
     model: str
     old: object  # compare.Side
     new: object
@@ -170,6 +174,8 @@ def history_checks(table) -> list[Check]:
 
 @dataclass
 class _Draft:
+    """A step being assembled, before steps are ordered and numbered."""
+
     kind: str
     subject: str
     title: str

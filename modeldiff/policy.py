@@ -42,6 +42,8 @@ class PolicyError(ModeldiffError):
 
 @dataclass(frozen=True)
 class Policy:
+    """The repository's pre-push policy: which severities block, what is accepted, who owns which reports."""
+
     block: tuple[str, ...] = ("breaking",)
     accept: tuple[str, ...] = ()
     owners: tuple[tuple[str, tuple[str, ...]], ...] = ()  # (report name or glob, teams), in file order

@@ -21,7 +21,6 @@ from __future__ import annotations
 
 import contextlib
 import functools
-import json
 import re
 from collections.abc import Iterable, Iterator, Mapping, Set
 from dataclasses import dataclass
@@ -78,6 +77,8 @@ def parse(text: str) -> "exp.Expression":
 
 @dataclass(frozen=True)
 class _Failure:
+    """A text that is not SQL the model accepts, with the reason (memoised like a success)."""
+
     message: str
 
 
@@ -444,6 +445,8 @@ def _caseless_types(exp) -> tuple[type, ...]:  # noqa: ANN001
 
 
 def _value_form(value: object, form: dict[int, str], caseless: bool, exp) -> str:  # noqa: ANN001
+    import json  # (only normal forms need it: a command that reads no SQL does not pay for it)
+
     if isinstance(value, exp.Expression):
         return form[id(value)]
     if isinstance(value, list):
@@ -858,6 +861,8 @@ def derived_refs_fast(expr: str, measure_names: Iterable[str]) -> frozenset[str]
 
 @dataclass(frozen=True)
 class _Scan:
+    """The scanner's tokens of a text, and whether it left the scanner's small grammar."""
+
     tokens: tuple[tuple[str, str], ...]  # (kind, text); kinds: word quoted param number string op ( ) , .
     unsure: bool = False  # something outside the scanner's small grammar
 

@@ -125,6 +125,8 @@ class RoleRows:
 
 @dataclass(frozen=True)
 class RoleCheck:
+    """The rows one role may see per table, before and after."""
+
     name: str
     tables: tuple[RoleRows, ...]
     notes: tuple[str, ...] = ()
@@ -160,6 +162,8 @@ class Precondition:
 
 @dataclass(frozen=True)
 class Verification:
+    """What `verify` found: numbers that moved, role rows, and the data's preconditions."""
+
     diff: Any  # compare.ModelDiff
     data: str  # where the rows came from, for people
     reports: tuple[Comparison, ...] = ()
@@ -346,6 +350,8 @@ def _old_names(result):
 
 @dataclass
 class _Data:
+    """The databases holding each revision's data (one, when both read the same)."""
+
     old: Any  # data.Database
     new: Any
     label: str
@@ -593,6 +599,8 @@ def check_role(result, name: str, data: _Data, user: str | None) -> RoleCheck:
 
 @dataclass(frozen=True)
 class _Test:
+    """One data precondition: the SQL that counts and shows the rows breaking it."""
+
     check: str
     subject: str
     why: str

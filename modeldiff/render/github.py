@@ -44,6 +44,8 @@ def escape_property(text: str) -> str:
 
 @dataclass(frozen=True)
 class Annotation:
+    """One workflow-command annotation: level, title, message and where."""
+
     level: str  # error | warning | notice
     title: str
     message: str

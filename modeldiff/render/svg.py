@@ -32,6 +32,8 @@ GREY = "#555"
 
 @dataclass(frozen=True)
 class Box:
+    """A table's box in the drawing."""
+
     table: str
     layer: int
     x: float
@@ -49,6 +51,8 @@ class Box:
 
 @dataclass(frozen=True)
 class Layout:
+    """Where every box and bend of a drawing goes."""
+
     boxes: dict  # table -> Box
     bends: dict  # arrow index -> the Boxes (dummy slots) it passes through in the columns it crosses
     width: float
