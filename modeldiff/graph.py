@@ -261,6 +261,23 @@ class _Lru(OrderedDict):
         return value
 
 
+_NUMBERINGS: "OrderedDict[frozenset[str], tuple[list[str], dict[str, int]]]" = OrderedDict()
+
+
+def _numbering(tables: frozenset[str]) -> tuple[list[str], dict[str, int]]:
+    """The tables in name order and each one's number, shared by graphs over the same tables (last 8 kept).
+
+    Neither is changed after it is made.
+    """
+    found = _NUMBERINGS.get(tables)
+    if found is None:
+        names = sorted(tables)
+        found = _NUMBERINGS[tables] = (names, {name: i for i, name in enumerate(names)})
+        if len(_NUMBERINGS) > 8:
+            _NUMBERINGS.popitem(last=False)
+    return found
+
+
 class FilterGraph:
     """Tables and the directed edges filters travel along; all answers are sorted.
 
@@ -275,11 +292,11 @@ class FilterGraph:
         self.tables: frozenset[str] = frozenset(tables)
         tables = self.tables
         self.edges: tuple[Edge, ...] = tuple(sorted({e for e in edges if e.src in tables and e.dst in tables}))
-        self._names: list[str] = sorted(self.tables)
-        self._index: dict[str, int] = {name: i for i, name in enumerate(self._names)}
-        self._link: list[str] = [e.link for e in self.edges]
-        self._src: list[int] = [self._index[e.src] for e in self.edges]
-        self._dst: list[int] = [self._index[e.dst] for e in self.edges]
+        self._names, self._index = _numbering(tables)  # (the two revisions of a diff mostly share their tables)
+        links, sources, targets = zip(*self.edges) if self.edges else ((), (), ())
+        self._link: list[str] = list(links)
+        self._src: list[int] = list(map(self._index.__getitem__, sources))
+        self._dst: list[int] = list(map(self._index.__getitem__, targets))
         # adjacency: (neighbour, edge number), in edge order, hence in link-name order
         self._out: list[list[tuple[int, int]]] = [[] for _ in self._names]
         self._in: list[list[tuple[int, int]]] = [[] for _ in self._names]
