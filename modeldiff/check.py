@@ -206,6 +206,9 @@ def rule_measure_references(ctx: _Context) -> Iterator[Finding]:
                     measure.where is None or ctx.clean_base_text("where", measure.where, table))
             if found:
                 continue
+        elif home is None and measure.where is None and (measure.overrides is NO_OVERRIDES or not measure.overrides) \
+                and _is_clean_derived_text(ctx, measure.expr):
+            continue
         subject = f"measures.{measure.name}"
         yield from _overrides_refs(ctx, subject, measure.overrides)
         if measure.table is None:
@@ -259,6 +262,19 @@ def _is_clean_base_text(field_name: str, text: str, table: Table) -> bool:
         return False
     return all((qualifier is None or qualifier.lower() == table.name.lower()) and _column(table, column) is not None
                for qualifier, column in found.columns)
+
+
+def _is_clean_derived_text(ctx: _Context, text: str) -> bool:
+    """The conditions under which `_derived_measure` words no finding for a measure without `where`, on their own."""
+    try:
+        found = sql.facts(text)
+    except sql.SqlError:
+        return False
+    if found.aggregates or found.subquery or found.parameters:
+        return False
+    measures = ctx.model.measures
+    return all(qualifier is None and (name in measures or name.lower() in ctx.measure_names_lower)
+               for qualifier, name in found.columns)
 
 
 def _derived_measure(ctx: _Context, measure: Measure, subject: str) -> Iterator[Finding]:

@@ -636,7 +636,7 @@ def measure_refs(expr: str, measure_names: Iterable[str]) -> frozenset[str]:
 
 
 def _match_names(used: Iterable[str], measure_names: Iterable[str]) -> frozenset[str]:
-    if not isinstance(measure_names, (Set, Mapping)):
+    if measure_names.__class__ not in _PLAIN_LOOKUPS and not isinstance(measure_names, (Set, Mapping)):  # (ABC checks are slow)
         measure_names = frozenset(measure_names)
     found: set[str] = set()
     missing: list[str] = []
@@ -653,6 +653,9 @@ def _match_names(used: Iterable[str], measure_names: Iterable[str]) -> frozenset
         for name in missing:
             found.update(index.get(name, ()))
     return frozenset(found)
+
+
+_PLAIN_LOOKUPS = (frozenset, set, dict)
 
 
 @functools.lru_cache(maxsize=8)
