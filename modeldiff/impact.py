@@ -388,9 +388,12 @@ def _security_changes(a: _Analysis) -> list[Change]:
     old_roles = {a.renames.roles.get(name, name): role for name, role in a.old.roles.items()}
     s_old, s_new = in_new_names(graph.security_graph(a.old), a.renames), graph.security_graph(a.new)
     same_edges = set(s_old.edges) == set(s_new.edges)
+    same_graph = same_edges and s_old.tables == s_new.tables
     for name in sorted(set(old_roles) & set(a.new.roles)):
         old_filters = sorted(a.renames.table(t) for t in old_roles[name].filters)
         new_filters = sorted(a.new.roles[name].filters)
+        if same_graph and old_filters == new_filters:
+            continue  # the same filtered tables over the same graph: the same rows restricted, along the same paths
         # filters on tables that do not exist are ignored (a broken reference says it)
         before = _restricted(s_old, old_filters)
         after = _restricted(s_new, new_filters)
