@@ -1604,6 +1604,9 @@ class _FastBuilder(_RecordBuilder):
                 continue
             if not _plain_names_only(items) or (records and not records.keys().isdisjoint(items)):
                 raise _Fallback  # a bad name, or one defined in two files
+            if build_item == self._measure:  # most of a large model: its own loop, without a call per item
+                self._measures(items, records)
+                continue
             prefix = section + "."
             for name, value in items.items():
                 record = build_item(name, value, prefix + name, items)
@@ -1611,21 +1614,29 @@ class _FastBuilder(_RecordBuilder):
                     records[name] = record
         return records
 
-    def _measure(self, name: str, value: Any, subject: str, parent: YamlMap) -> Measure | None:
-        """The common measure (text fields only) without the general path's bookkeeping; the same record."""
-        if value.__class__ is dict and "expr" in value and value.keys() <= _MEASURE_TEXT_KEYS:
-            if all(map(_IS_TEXT, value.values())):  # (the fast reader makes no subclass of str)
+    def _measures(self, items: dict[str, Any], records: dict[str, Any]) -> None:
+        """The common measure (text fields only) made directly, the same record the general path makes; others by it.
+
+        With `shared`, a measure equal to the one of the same name there is that record.
+        """
+        good, shared, text_keys, is_text, make = self.good_tables, self.shared, _MEASURE_TEXT_KEYS, _IS_TEXT, _plain_measure
+        for name, value in items.items():
+            if value.__class__ is dict and "expr" in value and value.keys() <= text_keys \
+                    and all(map(is_text, value.values())):  # (the fast reader makes no subclass of str)
                 get = value.get
                 table, where = get("table"), get("where")
-                if value["expr"].strip() and (table is None or table in self.good_tables or self._good_table(table)) \
+                if value["expr"].strip() and (table is None or table in good or self._good_table(table)) \
                         and (where is None or where.strip()):
-                    found = _plain_measure(name, value)
-                    if self.shared is not None:
-                        twin = self.shared.get(name)
+                    found = make(name, value)
+                    if shared is not None:
+                        twin = shared.get(name)
                         if twin is not None and twin == found:
-                            return twin
-                    return found
-        return super()._measure(name, value, subject, parent)
+                            found = twin
+                    records[name] = found
+                    continue
+            record = self._measure(name, value, "measures." + name, items)
+            if record is not None:
+                records[name] = record
 
     def _table(self, name: str, value: Any, subject: str, parent: YamlMap) -> Table | None:
         """The common table (kind, key, plain column types, texts) without the general path's bookkeeping."""
