@@ -961,13 +961,23 @@ def _plain_names(value: Any) -> tuple[str, ...] | None:
     return None
 
 
-def _plain_columns(columns: dict) -> dict[str, Column] | None:
-    """Columns written as `name: type` only, as `_columns` reads them; else None."""
+def _plain_columns(columns: dict, made: dict[tuple[str, str], Column]) -> dict[str, Column] | None:
+    """Columns written as `name: type` only, as `_columns` reads them; else None.
+
+    `made` holds the columns made so far by (name, type): a column is an
+    immutable record, and most tables repeat a few (`id: integer`), so equal
+    ones are made once and shared.
+    """
     records = {}
     for name, value in columns.items():
-        if not (name.__class__ is str and value.__class__ is str and value in _COLUMN_TYPE_SET and _NAME.match(name)):
+        if value.__class__ is not str:
             return None
-        records[name] = Column(name, value)
+        found = made.get((name, value))
+        if found is None:
+            if not (name.__class__ is str and value in _COLUMN_TYPE_SET and _NAME.match(name)):
+                return None
+            found = made[(name, value)] = Column(name, value)
+        records[name] = found
     return records
 _BAD = object()  # a field that was present but wrong (a finding was recorded)
 
@@ -1586,6 +1596,7 @@ class _FastBuilder(_RecordBuilder):
         self.positions = _NoPositions()
         self.shared = shared or None  # see load_files
         self.good_tables: set[str] = set()  # home tables of measures whose names were found well formed
+        self.columns: dict[tuple[str, str], Column] = {}  # plain columns made so far (`_plain_columns`)
 
     def _good_table(self, table: str) -> bool:
         if _NAME.match(table):
@@ -1645,7 +1656,7 @@ class _FastBuilder(_RecordBuilder):
             if (kind.__class__ is str and kind in TABLE_KINDS and columns.__class__ is dict
                     and all(v.__class__ is str for k, v in value.items() if k in ("source", "description"))):
                 keys = _plain_names(key)
-                built = _plain_columns(columns)
+                built = _plain_columns(columns, self.columns)
                 if keys is not None and built is not None:
                     return Table(name, kind, keys, built, source=value.get("source"),
                                  description=value.get("description"))
