@@ -235,8 +235,25 @@ def _plain_ascii(text: str) -> bool:
     return text.isascii() and not text.encode("ascii").translate(None, _ALLOWED_ASCII)
 
 
+_RECENTLY_DECODED: list[tuple[bytes | str, str, str]] = []  # (content, name, text) of the last two files decoded
+
+
 def _decode(name: str, content: bytes | str) -> str:
-    """UTF-8 text of one file, refusing binary and oversized content."""
+    """UTF-8 text of one file, refusing binary and oversized content.
+
+    The last two contents decoded are remembered by identity: a diff decodes
+    each revision more than once (the fast read, then the splice).
+    """
+    for seen, seen_name, text in _RECENTLY_DECODED:
+        if seen is content and seen_name == name:
+            return text
+    text = _decode_afresh(name, content)
+    if content.__class__ is bytes or content.__class__ is str:  # immutable: the same object is the same text
+        _RECENTLY_DECODED[:] = [(content, name, text), *_RECENTLY_DECODED[:1]]
+    return text
+
+
+def _decode_afresh(name: str, content: bytes | str) -> str:
     if len(content) > MAX_FILE_BYTES:
         raise _too_big(name, len(content))
     if isinstance(content, str):
@@ -1727,9 +1744,9 @@ def _close_match(key: Any, allowed: Iterable[str]) -> str | None:
 
 # patterns over "\n" + text (a leading newline is faster to find than a line start)
 _ITEM_START = re.compile(r"\n  (" + _NAME_PATTERN + r"):(?=[ \n])")  # an item of a section
-# a line at one column, or at two that is neither an item's first line nor a comment
-_ODD_LINE = re.compile(r"\n(?: [^ \n#]|  (?!" + _NAME_PATTERN + r":[ \n])[^ \n#])")
-_TOP_START = re.compile(r"\n[^ \n#][^\n]*")  # a line at column 0, not a comment
+# `top`: a line at column 0, not a comment; `odd`: a line at one column, or at two that is neither an item's
+# first line nor a comment
+_LAYOUT_LINE = re.compile(r"\n(?:(?P<top>[^ \n#][^\n]*)|(?P<odd> [^ \n#]|  (?!" + _NAME_PATTERN + r":[ \n])[^ \n#]))")
 _TOP_LINE = re.compile(r"(" + _NAME_PATTERN + r"):(?: |\Z)")
 
 SPLICE_MAX_CHANGED = 2000  # beyond this many changed items a full read is as cheap
@@ -1748,9 +1765,11 @@ def _split_sections(text: str) -> tuple[list[str], dict[str, str]] | None:
     continues the item above. Pieces start with the newline before them.
     """
     text = "\n" + text + "\n"  # positions below are those of the newline before each line
-    if _ODD_LINE.search(text):
-        return None
-    tops = [(match.start(), match.group()[1:]) for match in _TOP_START.finditer(text)]
+    tops = []
+    for match in _LAYOUT_LINE.finditer(text):  # one pass finds both kinds of line
+        if match.lastgroup == "odd":
+            return None
+        tops.append((match.start(), match.group()[1:]))
     frame = [text[:tops[0][0]] if tops else text]
     sections: dict[str, str] = {}
     bounds = [start for start, _ in tops[1:]] + [len(text) - 1]

@@ -450,3 +450,29 @@ def test_reader_matches_pyyaml_on_dumped_data(data, flow):
 
     text = yaml.safe_dump(data, default_flow_style=flow, sort_keys=False)
     assert read_yaml("d.yaml", text) == data == yaml.safe_load(text)
+
+
+def test_decoding_remembers_the_last_contents_by_identity_only():
+    from modeldiff import load
+
+    first, second = b"model: a\n", b"model: b\n"
+    assert load._decode("a.model.yaml", first) == "model: a\n"
+    assert load._decode("b.model.yaml", second) == "model: b\n"
+    assert load._decode("a.model.yaml", first) is load._decode("a.model.yaml", first)  # remembered
+    # an equal but distinct object is decoded for itself, and a mutable buffer is never remembered
+    assert load._decode("a.model.yaml", bytes(bytearray(first))) == "model: a\n"
+    buffer = bytearray(b"model: c\n")
+    assert load._decode("c.model.yaml", buffer) == "model: c\n"
+    buffer[7:8] = b"d"
+    assert load._decode("c.model.yaml", buffer) == "model: d\n"
+
+
+def test_a_remembered_content_is_still_checked_under_another_name():
+    # The twin of the test above: the memo is keyed by content and name, so an error names the file asked for.
+    from modeldiff import load
+    from modeldiff.errors import ModeldiffError
+
+    bad = b"model: a\0\n"
+    for name in ("one.model.yaml", "two.model.yaml"):
+        with pytest.raises(ModeldiffError, match=name):
+            load._decode(name, bad)
