@@ -177,7 +177,12 @@ def rule_table_references(ctx: _Context) -> Iterator[Finding]:
 
 
 def rule_link_references(ctx: _Context) -> Iterator[Finding]:
+    tables = ctx.model.tables
     for link in ctx.model.links.values():
+        start, end = tables.get(link.from_table), tables.get(link.to_table)
+        if start is not None and end is not None and all(c in start.columns for c in link.from_columns) \
+                and all(c in end.columns for c in link.to_columns):
+            continue  # the common case: every name written exactly as defined
         subject = f"links.{link.name}"
         for end, table, columns in (("from", link.from_table, link.from_columns), ("to", link.to_table, link.to_columns)):
             if table not in ctx.model.tables:
@@ -394,7 +399,9 @@ def rule_key_not_unique(ctx: _Context) -> Iterator[Finding]:
         if link.cardinality == "many-to-many":
             continue
         table = ctx.model.tables.get(link.to_table)
-        if table is None or not all(_column(table, c) for c in link.to_columns):
+        if table is None or (link.to_columns == table.key and (table.history is None or table.history.type != 2)):
+            continue  # no table: reported as broken-reference; its key, written as declared: unique
+        if not all(_column(table, c) for c in link.to_columns):
             continue  # reported as broken-reference
         if _is_unique_target(table, link.to_columns):
             continue
