@@ -48,10 +48,6 @@ class _Context:
                        self.model.pos(at or subject))
 
     @cached_property
-    def measure_names(self) -> frozenset[str]:
-        return frozenset(self.model.measures)
-
-    @cached_property
     def measure_names_lower(self) -> frozenset[str]:
         return frozenset(name.lower() for name in self.model.measures)
 
@@ -358,13 +354,12 @@ def rule_duplicate_active_link(ctx: _Context) -> Iterator[Finding]:
     for link in ctx.model.links.values():
         if not link.standby:
             by_pair.setdefault(link.tables, []).append(link.name)
-    for pair, names in sorted(by_pair.items(), key=lambda item: sorted(item[1])):
-        if len(names) > 1:
-            names = sorted(names)
-            tables = " and ".join(sorted(pair))
-            for extra in names[1:]:
-                yield ctx.finding("duplicate-active-link", f"links.{extra}",
-                                  f"Links {', '.join(names)} all join {tables} and none is on standby; set `standby: true` on all but one and name the others in `use` where needed.")
+    shared = [(pair, sorted(names)) for pair, names in by_pair.items() if len(names) > 1]
+    for pair, names in sorted(shared, key=lambda item: item[1]):
+        tables = " and ".join(sorted(pair))
+        for extra in names[1:]:
+            yield ctx.finding("duplicate-active-link", f"links.{extra}",
+                              f"Links {', '.join(names)} all join {tables} and none is on standby; set `standby: true` on all but one and name the others in `use` where needed.")
 
 
 def _type_2_natural_key(table: Table) -> frozenset[str]:
@@ -431,13 +426,8 @@ def rule_type_mismatch(ctx: _Context) -> Iterator[Finding]:
 
 def rule_measure_cycle(ctx: _Context) -> Iterator[Finding]:
 
-    deps: dict[str, list[str]] = {}
-    for measure in ctx.model.measures.values():
-        if measure.table is None:
-            try:
-                deps[measure.name] = sorted(sql.measure_refs(measure.expr, ctx.measure_names))
-            except sql.SqlError:
-                deps[measure.name] = []  # reported as invalid-model
+    # unreadable expressions name nothing here (reported as invalid-model)
+    deps = {name: sorted(refs) for name, refs in sql.derived_measure_refs(ctx.model.measures).items()}
     for cycle in _cycles(deps):
         shown = " -> ".join(cycle + [cycle[0]])
         yield ctx.finding("measure-cycle", f"measures.{cycle[0]}",

@@ -508,14 +508,7 @@ class _Impacts:
         self.by_subject: dict[str, list[Change]] = {}
         for change in changes:
             self.by_subject.setdefault(change.subject, []).append(change)
-        self.measure_deps: dict[str, frozenset[str]] = {}
-        names = frozenset(a.new.measures)
-        for m in a.new.measures.values():
-            if m.table is None:
-                try:
-                    self.measure_deps[m.name] = frozenset(sql.measure_refs(m.expr, names))
-                except sql.SqlError:
-                    self.measure_deps[m.name] = frozenset()
+        self.measure_deps: Mapping[str, frozenset[str]] = sql.derived_measure_refs(a.new.measures)
         self.back = a.renames.inverse()
         self._twin_index: tuple[dict, dict] | None = None  # see _twins_of
         self._cause_cache: dict[tuple, tuple[int, str] | None] = {}

@@ -635,6 +635,31 @@ def measure_refs(expr: str, measure_names: Iterable[str]) -> frozenset[str]:
     return _match_names(names(expr), measure_names)
 
 
+_LAST_DERIVED_REFS: list[tuple[Mapping, dict[str, frozenset[str]]]] = []  # (measures, answer) last asked
+
+
+def derived_measure_refs(measures: Mapping[str, "Measure"]) -> Mapping[str, frozenset[str]]:  # noqa: F821
+    """Each derived measure (no home `table`) -> the measures its expression names (none when unreadable).
+
+    The answer for the last mapping asked is kept (by identity: a model's
+    sections are not changed once read): the check and the impact analysis of
+    a diff both ask it of the new revision. Do not change the answer.
+    """
+    for seen, answer in _LAST_DERIVED_REFS:
+        if seen is measures:
+            return answer
+    names = frozenset(measures)
+    answer: dict[str, frozenset[str]] = {}
+    for measure in measures.values():
+        if measure.table is None:
+            try:
+                answer[measure.name] = measure_refs(measure.expr, names)
+            except SqlError:
+                answer[measure.name] = frozenset()
+    _LAST_DERIVED_REFS[:] = [(measures, answer)]
+    return answer
+
+
 def _match_names(used: Iterable[str], measure_names: Iterable[str]) -> frozenset[str]:
     if measure_names.__class__ not in _PLAIN_LOOKUPS and not isinstance(measure_names, (Set, Mapping)):  # (ABC checks are slow)
         measure_names = frozenset(measure_names)

@@ -721,3 +721,23 @@ def test_importing_the_module_does_not_import_sqlglot():
     assert not _sqlglot_loaded_after("import modeldiff.sql")
     assert not _sqlglot_loaded_after("import modeldiff.sql as s; s.same_logic('a', 'a')")
     assert _sqlglot_loaded_after("import modeldiff.sql as s; s.parse('a')")
+
+
+def test_derived_measure_refs_of_a_model_are_computed_once_per_mapping():
+    from modeldiff.model import Measure
+
+    measures = {"a": Measure("a", "sum(x)", "t"), "b": Measure("b", "a * 2"), "c": Measure("c", "B + a"),
+                "d": Measure("d", "a +")}
+    refs = sql.derived_measure_refs(measures)
+    assert refs == {"b": frozenset({"a"}), "c": frozenset({"a", "b"}), "d": frozenset()}  # case ignored; unreadable: none
+    assert sql.derived_measure_refs(measures) is refs  # the check and the impact analysis share it
+
+
+def test_derived_measure_refs_of_another_mapping_are_its_own():
+    # The twin of the test above: an equal-looking but different mapping is read for itself.
+    from modeldiff.model import Measure
+
+    first = {"a": Measure("a", "sum(x)", "t"), "b": Measure("b", "a * 2")}
+    second = {"a": Measure("a", "sum(x)", "t"), "b": Measure("b", "a * 3 + e"), "e": Measure("e", "count(*)", "t")}
+    assert sql.derived_measure_refs(first) == {"b": frozenset({"a"})}
+    assert sql.derived_measure_refs(second) == {"b": frozenset({"a", "e"})}
