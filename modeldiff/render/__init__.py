@@ -40,6 +40,10 @@ def console(stream: TextIO):
 Part = Union[str, Tuple[str, str]]  # text, or (text, rich style)
 
 
+def _plain(parts: tuple[Part, ...]) -> str:
+    return "".join(p if p.__class__ is str else p[0] for p in parts)
+
+
 class TextOut:
     """Where the text renderers of check and diff write: lines made of plain and styled parts.
 
@@ -58,7 +62,7 @@ class TextOut:
 
     def line(self, *parts: Part) -> None:
         if self._rich is None:
-            self.stream.write("".join(p if p.__class__ is str else p[0] for p in parts) + "\n")
+            self.stream.write(_plain(parts) + "\n")
         else:
             from rich.text import Text
 
@@ -68,7 +72,7 @@ class TextOut:
         """Plain `text` wrapped at the width, its lines indented by `indent` spaces; the first begins with `lead`."""
         import textwrap
 
-        start = "".join(p if p.__class__ is str else p[0] for p in lead) if lead else " " * indent
+        start = _plain(lead) if lead else " " * indent
         rows = textwrap.wrap(text, width=max(40, (self.width or 100) - 1), initial_indent=" " * len(start),
                              subsequent_indent=" " * indent, break_long_words=False, break_on_hyphens=False)
         first = rows[0][len(start):] if rows else ""
