@@ -53,6 +53,20 @@ def _same(fast_result, exact_result) -> None:
     assert dict(fast_result.model.positions) == dict(exact_result.model.positions)
 
 
+def _same_as_exact(files, exact, label: str = "") -> None:
+    """The fast reader's model, when it takes the files, and `load_files`' answer or error equal the event reader's."""
+    quick = load._fast_load(files)
+    if quick is not None:
+        assert not isinstance(exact, str), f"{label}: the fast reader accepted files the event reader refuses: {exact}"
+        _same(quick, exact)
+    try:
+        got = load.load_files(files)
+    except ModeldiffError as exc:
+        assert str(exc) == exact, label
+    else:
+        _same(got, exact)
+
+
 def test_every_model_file_reads_the_same_with_both_readers():
     taken = 0
     for label, files in SOURCES:
@@ -69,13 +83,7 @@ def test_every_model_file_reads_the_same_with_both_readers():
 
 def test_load_files_gives_the_event_readers_answer_or_error_for_every_file():
     for label, files in SOURCES:
-        exact = _exact(files)
-        try:
-            got = load.load_files(files)
-        except ModeldiffError as exc:
-            assert str(exc) == exact, label
-            continue
-        _same(got, exact)
+        _same_as_exact(files, _exact(files), label)
 
 
 def test_positions_of_a_fast_read_model_are_read_on_first_use():
@@ -139,17 +147,7 @@ def test_generated_models_read_the_same_with_both_readers(fmt, history, descript
             f"      {name}: {{type: decimal, unique: {unique}}}\n"
             f"measures:\n  m:\n    table: trips\n    expr: sum(fare)\n    description: {description}\n")
     files = [("x.model.yaml", text)]
-    exact = _exact(files)
-    quick = load._fast_load(files)
-    if quick is not None:
-        assert not isinstance(exact, str), exact
-        _same(quick, exact)
-    try:
-        got = load.load_files(files)
-    except ModeldiffError as exc:
-        assert str(exc) == exact
-    else:
-        _same(got, exact)
+    _same_as_exact(files, _exact(files))
 
 
 def test_environment_switch_name_is_documented():
@@ -215,18 +213,9 @@ def test_the_fast_builders_shortcuts_agree_with_the_event_reader(which, chosen):
             f"links:\n  trips_bike: {link}\nmeasures:\n  rides: {measure}\n")
     files = [("x.model.yaml", text)]
     exact = _exact(files)
-    quick = load._fast_load(files)
     if all(pick < 100 for pick in chosen):
-        assert quick is not None, text  # accepted values only: the shortcut takes it
-    if quick is not None:
-        assert not isinstance(exact, str), exact
-        _same(quick, exact)
-    try:
-        got = load.load_files(files)
-    except ModeldiffError as exc:
-        assert str(exc) == exact
-    else:
-        _same(got, exact)
+        assert load._fast_load(files) is not None, text  # accepted values only: the shortcut takes it
+    _same_as_exact(files, exact)
 
 
 def _one_field_varied() -> list[tuple[str, str, str | None]]:
