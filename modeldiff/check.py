@@ -23,7 +23,7 @@ WARNING = "warning"
 RULES = {
     "invalid-model": ERROR,
     "broken-reference": ERROR,
-    "duplicate-active-link": ERROR,
+    "duplicate-live-link": ERROR,
     "key-not-unique": ERROR,
     "type-mismatch": ERROR,
     "measure-cycle": ERROR,
@@ -32,7 +32,8 @@ RULES = {
     "security-stops": WARNING,
     "role-reaches-no-fact": WARNING,
     "standby-unused": WARNING,
-    "use-not-standby": WARNING,
+    "via-not-standby": WARNING,
+    "deprecated-key": WARNING,  # ours: a key in its first spelling (load.DEPRECATED_KEYS), read as the new one
 }
 
 
@@ -84,11 +85,11 @@ def _column(table: Table, name: str):
 
 
 def _overrides_refs(ctx: _Context, subject: str, overrides: Overrides) -> Iterator[Finding]:
-    for link in overrides.use:
+    for link in overrides.via:
         if link not in ctx.model.links:
             yield ctx.finding("broken-reference", subject,
-                              f"{subject} uses link '{link}', which does not exist; name an existing standby link or remove it from `use`.",
-                              at=f"{subject}.use")
+                              f"{subject} uses link '{link}', which does not exist; name an existing standby link or remove it from `via`.",
+                              at=f"{subject}.via")
     for link in overrides.flow:
         if link not in ctx.model.links:
             yield ctx.finding("broken-reference", subject,
@@ -218,7 +219,7 @@ def rule_measure_references(ctx: _Context) -> Iterator[Finding]:
         table = ctx.model.tables.get(measure.table)
         if table is None:
             yield ctx.finding("broken-reference", subject,
-                              f"Measure {measure.name}: home table '{measure.table}' does not exist; fix `table`.", at=f"{subject}.table")
+                              f"Measure {measure.name}: its table '{measure.table}' does not exist; fix `table`.", at=f"{subject}.table")
             continue
         yield from _base_measure(ctx, measure, table, subject)
 
@@ -282,7 +283,7 @@ def _derived_measure(ctx: _Context, measure: Measure, subject: str) -> Iterator[
     at, what = f"{subject}.expr", f"Derived measure {measure.name}"
     if measure.where is not None:
         yield ctx.finding("invalid-model", subject,
-                          f"{what} has a `where`; a row condition needs a home `table`.", at=f"{subject}.where")
+                          f"{what} has a `where`; a row condition needs the measure's own `table`.", at=f"{subject}.where")
     found, bad = _sql_facts(ctx, subject, measure.expr, f"{what}: `expr`", at)
     if bad is not None:
         yield bad
@@ -349,7 +350,7 @@ def rule_report_references(ctx: _Context) -> Iterator[Finding]:
 # --- links ---------------------------------------------------------------------------
 
 
-def rule_duplicate_active_link(ctx: _Context) -> Iterator[Finding]:
+def rule_duplicate_live_link(ctx: _Context) -> Iterator[Finding]:
     by_pair: dict[frozenset[str], list[str]] = {}
     for link in ctx.model.links.values():
         if not link.standby:
@@ -358,8 +359,8 @@ def rule_duplicate_active_link(ctx: _Context) -> Iterator[Finding]:
     for pair, names in sorted(shared, key=lambda item: item[1]):
         tables = " and ".join(sorted(pair))
         for extra in names[1:]:
-            yield ctx.finding("duplicate-active-link", f"links.{extra}",
-                              f"Links {', '.join(names)} all join {tables} and none is on standby; set `standby: true` on all but one and name the others in `use` where needed.")
+            yield ctx.finding("duplicate-live-link", f"links.{extra}",
+                              f"Links {', '.join(names)} all join {tables} and none is on standby; set `standby: true` on all but one and name the others in `via` where needed.")
 
 
 def _type_2_natural_key(table: Table) -> frozenset[str]:
@@ -586,28 +587,28 @@ def rule_security(ctx: _Context) -> Iterator[Finding]:
 def rule_standby(ctx: _Context) -> Iterator[Finding]:
     model = ctx.model
     users: dict[str, list[str]] = {}
-    holders = [(f"measures.{m.name}", m.overrides) for m in model.measures.values() if m.overrides.use]
+    holders = [(f"measures.{m.name}", m.overrides) for m in model.measures.values() if m.overrides.via]
     holders += [(f"variants.{v.name}.options.{o.name}", o.overrides) for v in model.variants.values() for o in v.options.values()]
     holders += [(f"reports.{r.name}", r.overrides) for r in model.reports.values()]
     for subject, overrides in holders:
-        for link in overrides.use:
+        for link in overrides.via:
             users.setdefault(link, []).append(subject)
             target = model.links.get(link)
             if target is not None and not target.standby:
-                yield ctx.finding("use-not-standby", subject,
-                                  f"{subject} names link {link} in `use`, but {link} is not on standby and carries filters anyway; "
-                                  f"remove it from `use`, or set `standby: true` on {link} if only some measures should follow it.",
-                                  at=f"{subject}.use")
+                yield ctx.finding("via-not-standby", subject,
+                                  f"{subject} names link {link} in `via`, but {link} is not on standby and carries filters anyway; "
+                                  f"remove it from `via`, or set `standby: true` on {link} if only some measures should follow it.",
+                                  at=f"{subject}.via")
     for link in model.links.values():
         if link.standby and link.name not in users:
             yield ctx.finding("standby-unused", f"links.{link.name}",
-                              f"Standby link {link.name} is used by no measure, variant option or report, so it never carries a filter; name it in a `use` or remove it.")
+                              f"Standby link {link.name} is used by no measure, variant option or report, so it never carries a filter; name it in the `via` of a measure, variant option or report, or remove it.")
 
 
 # Rules that need only the model's own records; every error rule is among them.
 RECORD_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (
     rule_table_references, rule_link_references, rule_measure_references, rule_variant_references,
-    rule_role_references, rule_report_references, rule_duplicate_active_link, rule_key_not_unique,
+    rule_role_references, rule_report_references, rule_duplicate_live_link, rule_key_not_unique,
     rule_type_mismatch, rule_measure_cycle, rule_history_incomplete, rule_standby,
 )
 # Rules that walk the flow and security graphs (warnings only).
@@ -623,7 +624,7 @@ RULE_INPUTS: dict[Callable[[_Context], Iterable[Finding]], tuple[str, ...]] = {
     rule_variant_references: ("variants", "tables", "link names"),
     rule_role_references: ("roles", "tables"),
     rule_report_references: ("reports", "measure names", "tables", "variants", "role names", "link names"),
-    rule_duplicate_active_link: ("links",),
+    rule_duplicate_live_link: ("links",),
     rule_key_not_unique: ("links", "tables"),
     rule_type_mismatch: ("links", "tables"),
     rule_measure_cycle: ("measures",),

@@ -62,7 +62,7 @@ class Result:
 
 
 class _NoMatch:
-    """The grouping value of the row gathering home rows that fall in no group."""
+    """The grouping value of the row gathering rows of a measure's table that fall in no group."""
 
     def __repr__(self) -> str:
         return "NO_MATCH"

@@ -258,11 +258,11 @@ def rename_in_sql(text: str, columns: Mapping[str, str], qualifiers: Mapping[str
 
 def _plain(value: Any) -> Any:
     if isinstance(value, Overrides):
-        return {"use": list(value.use), "flow": dict(sorted(value.flow.items()))}
+        return {"via": list(value.via), "flow": dict(sorted(value.flow.items()))}
     if isinstance(value, History):
         return {k: v for k, v in asdict(value).items() if v is not None}
     if isinstance(value, VariantOption):
-        return {"use": list(value.overrides.use), "flow": dict(sorted(value.overrides.flow.items())),
+        return {"via": list(value.overrides.via), "flow": dict(sorted(value.overrides.flow.items())),
                 "where": dict(sorted(value.where.items()))}
     if isinstance(value, Mapping):
         return {k: _plain(v) for k, v in sorted(value.items())}
@@ -278,7 +278,7 @@ def _frozen(value: Any) -> Hashable:
     if isinstance(value, (tuple, list)):
         return tuple(_frozen(v) for v in value)
     if isinstance(value, Overrides):
-        return ("overrides", _frozen(value.use), _frozen(value.flow))
+        return ("overrides", _frozen(value.via), _frozen(value.flow))
     return value
 
 
@@ -333,7 +333,7 @@ class References:
         m = self.model
 
         def overrides(subject: str, o: Overrides) -> None:
-            for link in (*o.use, *o.flow):
+            for link in (*o.via, *o.flow):
                 out["links"][link].add(subject)
 
         for link in m.links.values():
@@ -484,7 +484,7 @@ class Renames:
         links = self.sections["links"]
         if not links or not o:
             return o
-        return Overrides(tuple(links.get(n, n) for n in o.use), {links.get(n, n): v for n, v in o.flow.items()})
+        return Overrides(tuple(links.get(n, n) for n in o.via), {links.get(n, n): v for n, v in o.flow.items()})
 
     def tables_keyed(self, by_table: Mapping[str, str]) -> dict[str, str]:
         return {self.name("tables", t): text for t, text in by_table.items()}
@@ -874,7 +874,7 @@ def compare_links(ctx: DiffContext, old_raw: Link, new: Link) -> Iterator[Change
     if standby_set(old, new):
         yield ctx.change("link.standby_set", subject, NUMBERS,
                          f"Link {name} is now on standby: filters on {new.to_table} no longer reach {new.from_table} through it, "
-                         "except where a measure, variant option or report names it in `use`.", False, True)
+                         "except where a measure, variant option or report names it in `via`.", False, True)
     if standby_cleared(old, new):
         yield ctx.change("link.standby_cleared", subject, NUMBERS,
                          f"Link {name} is no longer on standby: filters on {new.to_table} now reach {new.from_table} through it everywhere.",
@@ -951,7 +951,7 @@ def compare_measures(ctx: DiffContext, old_raw: Measure, new: Measure) -> Iterat
                          cosmetic_before, cosmetic_after)
     if old.overrides != new.overrides:
         yield ctx.change("measure.overrides_changed", subject, NUMBERS,
-                         f"Measure {name} follows different links now (`use`/`flow` changed): which filters reach its table can change.",
+                         f"Measure {name} follows different links now (`via`/`flow` changed): which filters reach its table can change.",
                          _plain(old.overrides), _plain(new.overrides))
     before, after = _changed_fields(old, new, _MEASURE_METADATA)
     if before:
@@ -1031,8 +1031,8 @@ def compare_variants(ctx: DiffContext, old_raw: Variant, new: Variant) -> Iterat
             continue
         opt_subject = f"{subject}.options.{option}"
         before, after = {}, {}
-        if a.overrides.use != b.overrides.use:
-            before["use"], after["use"] = list(a.overrides.use), list(b.overrides.use)
+        if a.overrides.via != b.overrides.via:
+            before["via"], after["via"] = list(a.overrides.via), list(b.overrides.via)
         if a.overrides.flow != b.overrides.flow:
             before["flow"], after["flow"] = _plain(a.overrides.flow), _plain(b.overrides.flow)
         lb, la, cb, ca = _where_verdicts(ctx, a.where, b.where)
@@ -1106,7 +1106,7 @@ def compare_roles(ctx: DiffContext, old_raw: Role, new: Role) -> Iterator[Change
 
 _REPORT_DEFINITION = ("measures", "by", "variant", "role")
 _REPORT_FIELD_WORDS = {"measures": "measures", "by": "grouping (`by`)", "variant": "variant choice", "role": "role",
-                       "overrides": "links followed (`use`/`flow`)", "where": "row filter (`where`)"}
+                       "overrides": "links followed (`via`/`flow`)", "where": "row filter (`where`)"}
 
 
 def _report_signature(ctx: DiffContext, p: Report, old: bool, deep: bool) -> Hashable:

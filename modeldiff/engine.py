@@ -41,7 +41,7 @@ matches nothing.
 Role cuts are the same computation over the security graph with the role's
 filters; its visible rows become the starting rows of every later step.
 
-Measures of one home table with the same `where`, in one setting, are
+Measures of one table with the same `where`, in one setting, are
 aggregated together in one pass over that table: each row visible in the
 total comes once per group it is visible in (its tags), or once marked `_nm`
 when it is in no group, and the pass groups by the tags, `_nm` and whether
@@ -65,9 +65,9 @@ joins the report's `where` as direct filters.
 Choices where section 5 is silent (written down in docs/evaluation.md):
 - a grouping column's values are those of the rows of its table visible in
   the total (the report's filters and role, no group filter); this only
-  matters for a measure whose home table the grouping column does not reach,
+  matters for a measure whose table the grouping column does not reach,
   which repeats its total on every value;
-- a measure "sees a row" of its home table when the group's visible rows of
+- a measure "sees a row" of its table when the group's visible rows of
   that table are not empty, before the measure's own `where`;
 - a base measure with no visible row in a group takes its aggregate over no
   rows (count 0, sum NULL).
@@ -145,7 +145,7 @@ def measure_query(model: Model, measure_name: str, by: Sequence[str] = (), where
 
     `by`: "table.column" names; `where`: {table: SQL predicate}; `role`: a role
     name whose filters cut each table's rows first. The setting is the model's
-    links, then each variant's default option (its `use`/`flow`; its `where`
+    links, then each variant's default option (its `via`/`flow`; its `where`
     joins `where`), then `layers` in order, then the measure's own overrides
     (and those of the measures a derived measure names). Columns as in
     `report_query`.
@@ -608,7 +608,7 @@ class _Term:
 
 
 def _layers_key(layers: Sequence[Overrides]) -> tuple:
-    return tuple((o.use, tuple(sorted(o.flow.items()))) for o in layers)
+    return tuple((o.via, tuple(sorted(o.flow.items()))) for o in layers)
 
 
 def _measure_refs(model: Model, measure: Measure) -> list[str]:
@@ -814,16 +814,16 @@ class _Compiler:
 class _Value:
     """Relations of one base measure in one computation."""
 
-    tags: tuple[int, ...]  # grouping columns that reach its home table
-    value: str  # tags..., _value, _seen: one row per group with visible home rows passing its where
+    tags: tuple[int, ...]  # grouping columns that reach its table
+    value: str  # tags..., _value, _seen: one row per group with visible rows of its table passing its where
     empty: str  # _value: the aggregate over no rows
-    combos: str  # SELECT of every group (all tag columns) in which it sees a home row
-    no_match: str  # _rows, _value: home rows visible in the total but in no group
+    combos: str  # SELECT of every group (all tag columns) in which it sees a row of its table
+    no_match: str  # _rows, _value: rows of its table visible in the total but in no group
 
 
 @dataclass(frozen=True)
 class _Bound:
-    """A base measure ready to evaluate: its index among the terms, home table, SQL of its aggregate and its where."""
+    """A base measure ready to evaluate: its index among the terms, its table, SQL of its aggregate and its where."""
 
     k: int
     home: str
@@ -867,7 +867,7 @@ class _SettingGroups:
                 f"  LEFT JOIN (SELECT {picks} FROM {q(seen.name)}) AS _v ON _x._row = _v._row")
 
     def measures(self, batch: Sequence[_Bound]) -> dict[int, _Value]:
-        """Base measures of one home table and one where, aggregated in one pass over that table's rows.
+        """Base measures of one table and one where, aggregated in one pass over that table's rows.
 
         `_aJ` holds one row per group (tags, `_nm`, `_w`: the row passes the
         measures' where) with `_n`, the rows, and `_vK`, measure K's value.
@@ -916,7 +916,7 @@ class _SettingGroups:
                                               f"WHERE false) AS {q(b.home)}")
 
     def _no_match(self, b: _Bound, agg: str, tags: tuple[int, ...], unreached: list[int], empty: str) -> str:
-        """`_rows`, `_value`: the home rows visible in the total but in no group, and the measure over them.
+        """`_rows`, `_value`: the rows of its table visible in the total but in no group, and the measure over them.
 
         A row is in no group when no tag set reaches it (`_nm`), or when a
         grouping column its table does not reach has no value at all.

@@ -138,10 +138,10 @@ class SettingResolver:
 
     def _apply(self, layer: Overrides, standby: dict[str, bool], flow: dict[str, str]) -> None:
         links = self.model.links
-        used = [name for name in layer.use if name in links]
+        used = [name for name in layer.via if name in links]
         for name in used:
             standby[name] = False
-            if flow[name] == OFF:  # a later `use` brings back a link an earlier layer turned off
+            if flow[name] == OFF:  # a later `via` brings back a link an earlier layer turned off
                 flow[name] = links[name].flow
         for name in used:
             for twin in self._twins[links[name].tables]:
@@ -159,9 +159,9 @@ def default_setting(model: Model) -> Setting:
 def resolve_setting(model: Model, *layers: Overrides) -> Setting:
     """The setting of the model after `layers`, applied in the order given.
 
-    `use: [L]` makes L carry filters and puts every other link between the same
+    `via: [L]` makes L carry filters and puts every other link between the same
     two tables on standby; `flow: {L: off}` removes L; `flow: {L: one-way|two-way}`
-    sets L's flow (a standby link still needs a `use` to carry filters). A later
+    sets L's flow (a standby link still needs a `via` to carry filters). A later
     layer wins over an earlier one.
     """
     return SettingResolver(model).resolve(*layers)

@@ -18,7 +18,7 @@ report's numbers move through path changes only from the tables it places
 filters on (`by`, `where`, and its variant options' `where`).
 
 Further decisions:
-- `use` and `flow` (of a measure, a report or a variant option) act only
+- `via` and `flow` (of a measure, a report or a variant option) act only
   through the filter paths they open or close, so their changes impact a
   measure or report only where its paths changed; a variant option's `where`
   in force that changed impacts what its table's filter reaches.
@@ -261,7 +261,7 @@ def setting_layers(model: Model, measure: Measure | None = None, report: Report 
 
 
 def _layers_key(layers: tuple[Overrides, ...]) -> tuple:
-    return tuple((o.use, tuple(sorted(o.flow.items()))) for o in layers)
+    return tuple((o.via, tuple(sorted(o.flow.items()))) for o in layers)
 
 
 class _Analysis:
@@ -648,7 +648,7 @@ class _Impacts:
         m = self.a.new.measures[name]
         reasons = []
         for change in self.by_subject.get(f"measures.{name}", ()):
-            # `use`/`flow` act only through the paths they open or close: see path_reasons
+            # `via`/`flow` act only through the paths they open or close: see path_reasons
             if change.kind in ("measure.logic_changed", "reference.broken"):
                 reasons.append(Reason(change.id, change.message))
         if m.table is None:
@@ -707,7 +707,7 @@ class _Impacts:
         self._reach_cache[change.id] = out
         return out
 
-    # -- reasons that depend on the setting: paths into the home table, keys on them, options' `where`
+    # -- reasons that depend on the setting: paths into the measure's table, keys on them, options' `where`
 
     def path_reasons(self, home: str, comp: _Computation, sources: set[str] | None = None) -> list[Reason]:
         """Reasons from the paths into `home` in the setting of `comp` (shared by the measures with both)."""
@@ -842,9 +842,9 @@ class _Impacts:
         named = {c.subject.split(".")[1] for c in self.changes if c.subject.startswith("measures.")}
         loud = self._loud_tables()
         back_measures, back_tables, old_measures = self.back.measures, self.back.tables, a.old.measures
-        plain_paths: dict[str, list[Reason]] = {}  # home table -> its path reasons in the plain setting
+        plain_paths: dict[str, list[Reason]] = {}  # measure's table -> its path reasons in the plain setting
         own = named | self._own_setting_changes
-        quiet: dict[str, bool] = {}  # home table -> no change touches it (in either revision's name)
+        quiet: dict[str, bool] = {}  # measure's table -> no change touches it (in either revision's name)
         for name, m in a.new.measures.items():
             table = m.table
             if table is not None and m.overrides is NO_OVERRIDES and name not in own and (

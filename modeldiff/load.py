@@ -6,7 +6,9 @@ Two kinds of bad input (model-format.md, semantics.md section 7):
   YAML, tabs, duplicate keys, alias bombs, no `model`/`format`, ...) raises
   ModeldiffError with one line "FILE:LINE:COL: what is wrong; what to do";
 * input that is readable YAML but does not follow the format still gives a
-  Model, with the bad item dropped or defaulted, plus `invalid-model` findings.
+  Model, with the bad item dropped or defaulted, plus `invalid-model` findings
+  (and a `deprecated-key` warning for a key written in its first spelling in
+  format 1, `use` for `via`, which is read as the new key).
 
 YAML is read event by event with an explicit stack (no recursion, no
 `yaml.load`), so nesting depth, alias expansion and duplicate keys are checked
@@ -63,6 +65,8 @@ MAX_FILE_BYTES = 50 * 1024 * 1024
 YAML_SUFFIXES = (".yaml", ".yml")
 FOLDER_SUFFIX = ".model"
 RULE = "invalid-model"
+DEPRECATED_RULE = "deprecated-key"  # a warning: a key read under its first spelling in format 1
+DEPRECATED_KEYS = {"use": "via"}  # old spelling -> the key it is read as
 
 _NAME_PATTERN = "[A-Za-z][A-Za-z0-9_]*"
 _NAME = re.compile(_NAME_PATTERN + r"\Z")
@@ -74,7 +78,7 @@ class LoadResult:
     """A model as read, with the invalid-model findings met while reading it."""
 
     model: Model
-    findings: tuple[Finding, ...]  # rule "invalid-model", severity "error"
+    findings: tuple[Finding, ...]  # rule "invalid-model" (error), or "deprecated-key" (warning)
 
 
 # --------------------------------------------------------------------------
@@ -952,11 +956,11 @@ _TABLE_KEYS = ("kind", "key", "natural_key", "history", "columns", "source", "de
 _COLUMN_KEYS = ("type", "description", "unique")
 _HISTORY_KEYS = ("type", "valid_from", "valid_to", "current", "previous")
 _LINK_KEYS = ("from", "to", "cardinality", "flow", "security_flow", "standby", "description")
-_MEASURE_KEYS = ("table", "expr", "where", "use", "flow", "description", "unit", "owner", "folder")
+_MEASURE_KEYS = ("table", "expr", "where", "via", "flow", "description", "unit", "owner", "folder")
 _VARIANT_KEYS = ("default", "options", "description")
-_OPTION_KEYS = ("use", "flow", "where")
+_OPTION_KEYS = ("via", "flow", "where")
 _ROLE_KEYS = ("filters", "description")
-_REPORT_KEYS = ("measures", "by", "where", "variant", "role", "owner", "use", "flow", "description")
+_REPORT_KEYS = ("measures", "by", "where", "variant", "role", "owner", "via", "flow", "description")
 _SINGULAR = {
     "tables": "table", "links": "link", "measures": "measure",
     "variants": "variant", "roles": "role", "reports": "report",
@@ -1342,9 +1346,24 @@ class _RecordBuilder:
         )
 
     def _overrides(self, fields: YamlMap, subject: str) -> Overrides:
-        use = self._get_names(fields, "use", subject)
+        key = self._old_spelling(fields, "use", subject) if "use" in fields else "via"
+        via = self._get_names(fields, key, subject)
+        if key != "via" and f"{subject}.{key}" in self.positions:
+            self.positions[f"{subject}.via"] = self.positions[f"{subject}.{key}"]  # where check rules point
         flow = self._get_flow(fields, subject)
-        return Overrides(use, flow) if use or flow else NO_OVERRIDES
+        return Overrides(via, flow) if via or flow else NO_OVERRIDES
+
+    def _old_spelling(self, fields: YamlMap, old: str, subject: str) -> str:
+        """The key to read for `old`'s new spelling: `old` itself, with a deprecated-key warning, unless both are given."""
+        new = DEPRECATED_KEYS[old]
+        at = self._pos_key(fields, old)
+        if new in fields:
+            self._bad(f"{subject}.{old}", at, f"{subject}: both `{new}` and its old spelling `{old}` are given; "
+                                              f"remove `{old}` (it is ignored)")
+            return new
+        self._warn(f"{subject}.{old}", at, f"{subject}: `{old}` (line {at[1]}) is the old spelling of `{new}`; "
+                                           f"rename the key to `{new}` (read as `{new}` until then)")
+        return old
 
     # ---- typed fields: each returns the value, or a default after recording a finding
 
@@ -1512,7 +1531,7 @@ class _RecordBuilder:
 
     def _check_keys(self, mapping: YamlMap, allowed: tuple[str, ...], subject: str, where: str) -> None:
         for key in mapping:
-            if key in allowed:
+            if key in allowed or DEPRECATED_KEYS.get(key) in allowed:
                 continue
             hint = _close_match(key, allowed)
             suggestion = f"; did you mean `{hint}`?" if hint else f"; expected one of {', '.join(allowed)}"
@@ -1526,6 +1545,10 @@ class _RecordBuilder:
     def _bad(self, subject: str, at: _At, message: str) -> None:
         pos = Pos(*at)
         self.findings.append(Finding(rule=RULE, severity="error", subject=subject, message=message, pos=pos))
+
+    def _warn(self, subject: str, at: _At, message: str) -> None:
+        pos = Pos(*at)
+        self.findings.append(Finding(rule=DEPRECATED_RULE, severity="warning", subject=subject, message=message, pos=pos))
 
     @staticmethod
     def _pos_key(mapping: YamlMap, key: Any) -> _At:
@@ -1612,7 +1635,7 @@ class _FastBuilder(_RecordBuilder):
         self.files = files
         self.positions = _NoPositions()
         self.shared = shared or None  # see load_files
-        self.good_tables: set[str] = set()  # home tables of measures whose names were found well formed
+        self.good_tables: set[str] = set()  # tables of measures whose names were found well formed
         self.columns: dict[tuple[str, str], Column] = {}  # plain columns made so far (`_plain_columns`)
 
     def _good_table(self, table: str) -> bool:
@@ -1701,6 +1724,12 @@ class _FastBuilder(_RecordBuilder):
 
     def _bad(self, subject: str, at: _At, message: str) -> None:
         raise _Fallback
+
+    def _warn(self, subject: str, at: _At, message: str) -> None:
+        raise _Fallback
+
+    def _old_spelling(self, fields: YamlMap, old: str, subject: str) -> str:
+        raise _Fallback  # a finding either way, which needs positions
 
     def _defined_twice(self, section: str, name: str, first: _At, pos: _At) -> ModeldiffError:
         raise _Fallback

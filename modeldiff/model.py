@@ -68,13 +68,13 @@ class Table:
 
 @dataclass(frozen=True)
 class Overrides:
-    """`use` and `flow` of a measure, variant option or report."""
+    """`via` and `flow` of a measure, variant option or report."""
 
-    use: tuple[str, ...] = ()
+    via: tuple[str, ...] = ()
     flow: Mapping[str, str] = field(default_factory=dict)  # link -> one-way | two-way | off
 
     def __bool__(self) -> bool:
-        return bool(self.use) or bool(self.flow)
+        return bool(self.via) or bool(self.flow)
 
 
 NO_OVERRIDES = Overrides()
@@ -102,7 +102,7 @@ class Link:
 
 @dataclass(frozen=True)
 class Measure:
-    """A base measure has a home `table`; a derived one (table None) combines measures."""
+    """A base measure has its own `table`; a derived one (table None) combines measures."""
 
     name: str
     expr: str

@@ -639,7 +639,7 @@ _LAST_DERIVED_REFS: list[tuple[Mapping, dict[str, frozenset[str]]]] = []  # (mea
 
 
 def derived_measure_refs(measures: Mapping[str, "Measure"]) -> Mapping[str, frozenset[str]]:  # noqa: F821
-    """Each derived measure (no home `table`) -> the measures its expression names (none when unreadable).
+    """Each derived measure (no `table`) -> the measures its expression names (none when unreadable).
 
     The answer for the last mapping asked is kept (by identity: a model's
     sections are not changed once read): the check and the impact analysis of
@@ -708,7 +708,7 @@ def check_base_measure(
 ) -> list[str]:
     """Problems of a base measure, one sentence each, sorted.
 
-    `table_columns` None means the home table is unknown (reported elsewhere):
+    `table_columns` None means the measure's table is unknown (reported elsewhere):
     column names are then not checked, qualifiers still are.
     """
     subject = f"measure `{name}`"

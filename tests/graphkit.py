@@ -40,9 +40,9 @@ def link(name: str, spec: str) -> Link:
     return Link(name, src, (f"{name}_key",), dst, (f"{dst}_key",), **options)
 
 
-def ov(use: str | Iterable[str] = (), **flow: str) -> Overrides:
+def ov(via: str | Iterable[str] = (), **flow: str) -> Overrides:
     """Overrides: `ov("trips_end_day", trips_bike="off")`."""
-    names = tuple(use.split()) if isinstance(use, str) else tuple(use)
+    names = tuple(via.split()) if isinstance(via, str) else tuple(via)
     return Overrides(names, dict(flow))
 
 

@@ -45,8 +45,8 @@ def link(name: str, src: str, dst: str, **rest) -> Link:
     return Link(name, from_table, tuple(from_columns.split(",")), to_table, tuple(to_columns.split(",")), **rest)
 
 
-def ov(use: str | Iterable[str] = (), **flow: str) -> Overrides:
-    return Overrides(tuple(use.split()) if isinstance(use, str) else tuple(use), dict(flow))
+def ov(via: str | Iterable[str] = (), **flow: str) -> Overrides:
+    return Overrides(tuple(via.split()) if isinstance(via, str) else tuple(via), dict(flow))
 
 
 def measure(name: str, expr: str, table: str | None = None, where: str | None = None,

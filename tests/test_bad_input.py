@@ -359,7 +359,7 @@ NOT_THE_FORMAT = {
     "measure without expr": ("    expr: sum(fare)\n", "", [("measures.fare_revenue", 23, 3)]),
     "expr not text": ("    expr: sum(fare)", "    expr: [sum(fare)]", [("measures.fare_revenue.expr", 25, 11)]),
     "flow override value": ("{trips_station: two-way}", "{trips_station: both-ways}", [("measures.fare_revenue.flow.trips_station", 26, 27)]),
-    "use not a list": ("    expr: sum(fare)\n", "    expr: sum(fare)\n    use: trips_station\n", [("measures.fare_revenue.use", 26, 10)]),
+    "via not a list": ("    expr: sum(fare)\n", "    expr: sum(fare)\n    via: trips_station\n", [("measures.fare_revenue.via", 26, 10)]),
     "report by without table": ("by: [stations.district]", "by: [district]", [("reports.weekly_fares.by", 30, 10)]),
     "report measure name": ("measures: [fare_revenue]", "measures: [fare revenue]", [("reports.weekly_fares.measures", 29, 16)]),
 }

@@ -49,9 +49,9 @@ def ambiguous(findings) -> dict[tuple[str, str], tuple[tuple[str, ...], ...]]:
 
 
 def reference_settings(model: Model) -> dict[str, dict[str, str]]:
-    """Each setting as {link: flow}: the model's own, and each measure's `use`/`flow` on top.
+    """Each setting as {link: flow}: the model's own, and each measure's `via`/`flow` on top.
 
-    semantics.md section 1: `use: [L]` makes L carry filters and puts the other
+    semantics.md section 1: `via: [L]` makes L carry filters and puts the other
     links between the same two tables on standby; `flow: {L: off}` removes L.
     Enough for these fixtures, which have no variants and no reports with overrides.
     """
@@ -63,10 +63,10 @@ def reference_settings(model: Model) -> dict[str, dict[str, str]]:
             continue
         standby = {name: link.standby for name, link in model.links.items()}
         flows = {name: link.flow for name, link in model.links.items()}
-        for used in measure.overrides.use:
+        for used in measure.overrides.via:
             for name, link in model.links.items():
                 if link.tables == model.links[used].tables:
-                    standby[name] = name not in measure.overrides.use
+                    standby[name] = name not in measure.overrides.via
         flows.update(measure.overrides.flow)
         settings[measure.name] = {n: f for n, f in flows.items() if not standby[n] and f != "off"}
     return settings
@@ -203,7 +203,7 @@ def test_tpcds_checks_without_errors(tpcds):
 
 
 def test_tpcds_has_only_ambiguity_warnings(tpcds):
-    # Every standby link is used by a measure, no `use` names an active link, no roles.
+    # Every standby link is used by a measure, no `via` names a live link, no roles.
     assert {f.rule for f in check_model(tpcds)} == {"ambiguous-paths"}
 
 
@@ -270,21 +270,21 @@ def with_link(model: Model, name: str, **changes) -> Model:
     return replace(model, links={**model.links, name: replace(model.links[name], **changes)})
 
 
-def test_tpcds_second_active_role_playing_date_is_duplicate_active_link(tpcds):
-    # Clearing standby on catalog_sales' ship-date link: two active links between
-    # catalog_sales and date_dim. The measure that `use`s it now names an active link,
+def test_tpcds_second_live_role_playing_date_is_duplicate_live_link(tpcds):
+    # Clearing standby on catalog_sales' ship-date link: two live links between
+    # catalog_sales and date_dim. The measure that names it in `via` now names a live link,
     # and a date filter reaches catalog_sales twice.
     findings = check_model(with_link(tpcds, "catalog_sales_ship_date", standby=False))
     assert [(f.rule, f.subject) for f in findings if f.severity == "error"] == [
-        ("duplicate-active-link", "links.catalog_sales_sold_date")]
-    assert ("use-not-standby", "measures.catalog_sales_by_ship_date") in [(f.rule, f.subject) for f in findings]
+        ("duplicate-live-link", "links.catalog_sales_sold_date")]
+    assert ("via-not-standby", "measures.catalog_sales_by_ship_date") in [(f.rule, f.subject) for f in findings]
     assert set(ambiguous(findings)[("date_dim", "catalog_sales")]) == {("catalog_sales_ship_date",),
                                                                        ("catalog_sales_sold_date",)}
 
 
-def test_tpcds_as_shipped_has_no_duplicate_active_link(tpcds, tpcds_reference):
+def test_tpcds_as_shipped_has_no_duplicate_live_link(tpcds, tpcds_reference):
     findings = check_model(tpcds)
-    assert not any(f.rule in ("duplicate-active-link", "use-not-standby") for f in findings)
+    assert not any(f.rule in ("duplicate-live-link", "via-not-standby") for f in findings)
     # As shipped, date_dim reaches catalog_sales twice only in the settings of measures
     # that follow a dimension's own date, never by the two role-playing links at once.
     assert ("date_dim", "catalog_sales") not in tpcds_reference["default"][1]
@@ -292,7 +292,7 @@ def test_tpcds_as_shipped_has_no_duplicate_active_link(tpcds, tpcds_reference):
                                                                        ("catalog_sales_sold_date",)}
 
 
-def test_tpcds_second_active_bill_to_ship_to_customer_is_duplicate_active_link(tpcds):
+def test_tpcds_second_live_bill_to_ship_to_customer_is_duplicate_live_link(tpcds):
     findings = check_model(with_link(tpcds, "catalog_sales_ship_customer", standby=False))
     assert [(f.rule, f.subject) for f in findings if f.severity == "error"] == [
-        ("duplicate-active-link", "links.catalog_sales_ship_customer")]
+        ("duplicate-live-link", "links.catalog_sales_ship_customer")]

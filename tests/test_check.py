@@ -117,7 +117,7 @@ links:
 measures:
   fare_revenue: {table: trips, expr: sum(fare), where: "status = 'completed'"}
   trip_count: {table: trips, expr: count(*)}
-  trips_by_end_day: {table: trips, expr: count(*), use: [trips_end_day]}
+  trips_by_end_day: {table: trips, expr: count(*), via: [trips_end_day]}
   revenue_per_trip: {expr: "fare_revenue / nullif(trip_count, 0)"}
   repair_cost: {table: repairs, expr: sum(cost)}
 variants:
@@ -125,7 +125,7 @@ variants:
     default: historical
     options:
       historical: {}
-      current: {use: [repairs_current_mechanic]}
+      current: {via: [repairs_current_mechanic]}
 roles:
   east_lead: {filters: {districts: "region = 'East'"}}
   depot_staff: {filters: {district_access: "staff_email = :user"}}
@@ -178,9 +178,10 @@ def test_base_model_has_no_findings():
 
 
 def test_every_rule_of_section_7_has_its_severity():
-    errors = {"invalid-model", "broken-reference", "duplicate-active-link", "key-not-unique", "type-mismatch",
+    errors = {"invalid-model", "broken-reference", "duplicate-live-link", "key-not-unique", "type-mismatch",
               "measure-cycle", "history-incomplete"}
-    warnings = {"ambiguous-paths", "security-stops", "role-reaches-no-fact", "standby-unused", "use-not-standby"}
+    warnings = {"ambiguous-paths", "security-stops", "role-reaches-no-fact", "standby-unused", "via-not-standby"}
+    warnings.add("deprecated-key")  # ours (docs/model-format-extensions.md): `use` read as `via`
     assert RULES == {**{r: "error" for r in errors}, **{r: "warning" for r in warnings}}
 
 
@@ -272,7 +273,7 @@ BROKEN_CASES = [
     pytest.param([add("links", "trips_rider: {from: trips.bike_key, to: riders.rider_key}")],
                  [("broken-reference", "links.trips_rider")], id="link-to-missing-table"),
     pytest.param([("repair_cost: {table: repairs,", "repair_cost: {table: repair,")],
-                 [("broken-reference", "measures.repair_cost")], id="measure-home-table-missing"),
+                 [("broken-reference", "measures.repair_cost")], id="measure-table-missing"),
     pytest.param([("east_lead: {filters: {districts:", "east_lead: {filters: {district:")],
                  [("broken-reference", "roles.east_lead")], id="role-filters-missing-table"),
     pytest.param([("by: [calendar.year, stations.name]", "by: [calendar.year, station.name]")],
@@ -299,19 +300,19 @@ BROKEN_CASES = [
     pytest.param([("by: [districts.region]", "by: [districts.region]\n    where: {districts: \"area = 'E'\"}")],
                  [("broken-reference", "reports.repair_costs")], id="report-where-missing-column"),
     # links named in use / flow, on measures, variant options and reports
-    pytest.param([("use: [trips_end_day]", "use: [trips_end_date]")],
+    pytest.param([("via: [trips_end_day]", "via: [trips_end_date]")],
                  [("broken-reference", "measures.trips_by_end_day"), ("standby-unused", "links.trips_end_day")],
-                 id="measure-use-missing-link"),
+                 id="measure-via-missing-link"),
     pytest.param([("trip_count: {table: trips, expr: count(*)}",
                    "trip_count: {table: trips, expr: count(*), flow: {trip_bike: two-way}}")],
                  [("broken-reference", "measures.trip_count")], id="measure-flow-missing-link"),
-    pytest.param([("current: {use: [repairs_current_mechanic]}", "current: {use: [repairs_current_mech]}")],
+    pytest.param([("current: {via: [repairs_current_mechanic]}", "current: {via: [repairs_current_mech]}")],
                  [("broken-reference", "variants.attribution.options.current"),
-                  ("standby-unused", "links.repairs_current_mechanic")], id="option-use-missing-link"),
+                  ("standby-unused", "links.repairs_current_mechanic")], id="option-via-missing-link"),
     pytest.param([("historical: {}", "historical: {flow: {repairs_mech: off}}")],
                  [("broken-reference", "variants.attribution.options.historical")], id="option-flow-missing-link"),
-    pytest.param([("role: east_lead\n", "role: east_lead\n    use: [no_such_link]\n")],
-                 [("broken-reference", "reports.repair_costs")], id="report-use-missing-link"),
+    pytest.param([("role: east_lead\n", "role: east_lead\n    via: [no_such_link]\n")],
+                 [("broken-reference", "reports.repair_costs")], id="report-via-missing-link"),
     pytest.param([("role: east_lead\n", "role: east_lead\n    flow: {no_such_link: off}\n")],
                  [("broken-reference", "reports.repair_costs")], id="report-flow-missing-link"),
     # measures
@@ -341,7 +342,7 @@ BROKEN_TWINS = [
     pytest.param([add("tables", "riders: {kind: dimension, key: rider_key, columns: {rider_key: integer}}"),
                   add("links", "trips_rider: {from: trips.bike_key, to: riders.rider_key}")], id="link-table-exists"),
     pytest.param([("repair_cost: {table: repairs,", "repair_cost: {table: trips,"),
-                  ("expr: sum(cost)}", "expr: sum(fare)}")], id="measure-home-table-exists"),
+                  ("expr: sum(cost)}", "expr: sum(fare)}")], id="measure-table-exists"),
     pytest.param([("east_lead: {filters: {districts: \"region = 'East'\"}}",
                    "east_lead: {filters: {stations: \"name = 'East'\"}}")], id="role-filters-existing-table"),
     pytest.param([("by: [calendar.year, stations.name]", "by: [calendar.year, districts.region]")],
@@ -362,8 +363,8 @@ BROKEN_TWINS = [
                  id="option-flow-existing-link"),
     pytest.param([("role: east_lead\n", "role: east_lead\n    flow: {trips_bike: off}\n")],
                  id="report-flow-existing-link"),
-    pytest.param([("role: east_lead\n", "role: east_lead\n    use: [repairs_current_mechanic]\n")],
-                 id="report-use-existing-link"),
+    pytest.param([("role: east_lead\n", "role: east_lead\n    via: [repairs_current_mechanic]\n")],
+                 id="report-via-existing-link"),
     pytest.param([("fare_revenue / nullif(trip_count, 0)", "fare_revenue / nullif(repair_cost, 0)")],
                  id="derived-names-existing-measures"),
     pytest.param([("fare_revenue / nullif(trip_count, 0)", "Fare_Revenue / nullif(\\\"TRIP_COUNT\\\", 0)")],
@@ -392,38 +393,38 @@ def test_broken_reference_message_names_the_missing_thing():
     assert "trips_count" in finding.message and "not a measure" in finding.message
 
 
-# --- duplicate-active-link --------------------------------------------------------------
+# --- duplicate-live-link --------------------------------------------------------------
 
 
-def test_duplicate_active_link_detected():
-    # Both calendar links active: calendar reaches trips twice, and the measure's
-    # `use` names a link that is no longer on standby.
+def test_duplicate_live_link_detected():
+    # Both calendar links live: calendar reaches trips twice, and the measure's
+    # `via` names a link that is no longer on standby.
     assert expect(("to: calendar.day_key, standby: true}", "to: calendar.day_key}")) == [
-        ("duplicate-active-link", "links.trips_start_day"),
+        ("duplicate-live-link", "links.trips_start_day"),
         ("ambiguous-paths", "paths.calendar->trips"),
-        ("use-not-standby", "measures.trips_by_end_day"),
+        ("via-not-standby", "measures.trips_by_end_day"),
     ]
 
 
-def test_duplicate_active_link_detected_in_either_direction():
+def test_duplicate_live_link_detected_in_either_direction():
     # A link the other way round between the same two tables is a second join too.
     link = "calendar_first_trip: {from: calendar.year, to: trips.trip_key, cardinality: many-to-many}"
     # It also lets a filter on trips reach calendar, and from there repairs: bikes and
     # districts now reach repairs along two routes.
     assert expect(add("links", link)) == [
-        ("duplicate-active-link", "links.trips_start_day"),
+        ("duplicate-live-link", "links.trips_start_day"),
         ("ambiguous-paths", "paths.bikes->repairs"),
         ("ambiguous-paths", "paths.district_access->repairs"),
         ("ambiguous-paths", "paths.districts->repairs"),
     ]
 
 
-def test_duplicate_active_link_not_reported_when_one_is_standby():
+def test_duplicate_live_link_not_reported_when_one_is_standby():
     link = "calendar_first_trip: {from: calendar.year, to: trips.trip_key, cardinality: many-to-many, standby: true}"
     assert expect(add("links", link)) == [("standby-unused", "links.calendar_first_trip")]
 
 
-def test_duplicate_active_link_not_reported_for_links_to_different_tables():
+def test_duplicate_live_link_not_reported_for_links_to_different_tables():
     assert pairs(BASE) == []  # trips meets calendar, stations and bikes once each
 
 
@@ -619,7 +620,7 @@ def test_ambiguous_paths_detected_in_the_default_setting():
 
 
 def test_ambiguous_paths_not_reported_when_the_second_route_is_standby():
-    # (Any `use` of it would make that setting ambiguous; unused, it is only unused.)
+    # (Any `via` of it would make that setting ambiguous; unused, it is only unused.)
     assert expect(add("links", "repairs_station: {from: repairs.station_key, to: stations.station_key, "
                                "standby: true}")) == [("standby-unused", "links.repairs_station")]
 
@@ -837,27 +838,27 @@ def test_roles_ignore_measure_overrides():
         ("role-reaches-no-fact", "roles.docs_clerk")]
 
 
-# --- standby-unused and use-not-standby -------------------------------------------------
+# --- standby-unused and via-not-standby -------------------------------------------------
 
 
 def test_standby_unused_detected():
-    assert expect(("  trips_by_end_day: {table: trips, expr: count(*), use: [trips_end_day]}\n", "")) == [
+    assert expect(("  trips_by_end_day: {table: trips, expr: count(*), via: [trips_end_day]}\n", "")) == [
         ("standby-unused", "links.trips_end_day")]
 
 
 def test_standby_link_named_only_in_flow_is_still_unused():
-    assert expect(("use: [trips_end_day]", "flow: {trips_end_day: two-way}")) == [
+    assert expect(("via: [trips_end_day]", "flow: {trips_end_day: two-way}")) == [
         ("standby-unused", "links.trips_end_day")]
 
 
 @pytest.mark.parametrize("holder", ["measure", "variant-option", "report"])
 def test_standby_used_by_any_holder_is_not_unused(holder):
-    drop_measure = ("  trips_by_end_day: {table: trips, expr: count(*), use: [trips_end_day]}\n", "")
+    drop_measure = ("  trips_by_end_day: {table: trips, expr: count(*), via: [trips_end_day]}\n", "")
     use_it = {
         "measure": ("trip_count: {table: trips, expr: count(*)}",
-                    "trip_count: {table: trips, expr: count(*), use: [trips_end_day]}"),
-        "variant-option": ("historical: {}", "historical: {use: [trips_end_day]}"),
-        "report": ("role: east_lead\n", "role: east_lead\n    use: [trips_end_day]\n"),
+                    "trip_count: {table: trips, expr: count(*), via: [trips_end_day]}"),
+        "variant-option": ("historical: {}", "historical: {via: [trips_end_day]}"),
+        "report": ("role: east_lead\n", "role: east_lead\n    via: [trips_end_day]\n"),
     }[holder]
     assert expect(drop_measure, use_it) == []
 
@@ -867,23 +868,23 @@ def test_standby_used_by_any_holder_is_not_unused(holder):
     ("variant-option", "variants.attribution.options.historical"),
     ("report", "reports.repair_costs"),
 ])
-def test_use_not_standby_detected(holder, subject):
+def test_via_not_standby_detected(holder, subject):
     use_it = {
         "measure": ("trip_count: {table: trips, expr: count(*)}",
-                    "trip_count: {table: trips, expr: count(*), use: [trips_bike]}"),
-        "variant-option": ("historical: {}", "historical: {use: [trips_bike]}"),
-        "report": ("role: east_lead\n", "role: east_lead\n    use: [trips_bike]\n"),
+                    "trip_count: {table: trips, expr: count(*), via: [trips_bike]}"),
+        "variant-option": ("historical: {}", "historical: {via: [trips_bike]}"),
+        "report": ("role: east_lead\n", "role: east_lead\n    via: [trips_bike]\n"),
     }[holder]
-    assert expect(use_it) == [("use-not-standby", subject)]
+    assert expect(use_it) == [("via-not-standby", subject)]
 
 
 @pytest.mark.parametrize("holder", ["measure", "variant-option", "report"])
-def test_use_not_standby_not_reported_for_standby_links(holder):
+def test_via_not_standby_not_reported_for_standby_links(holder):
     use_it = {
         "measure": ("trip_count: {table: trips, expr: count(*)}",
-                    "trip_count: {table: trips, expr: count(*), use: [trips_end_day]}"),
-        "variant-option": ("historical: {}", "historical: {use: [repairs_current_mechanic]}"),
-        "report": ("role: east_lead\n", "role: east_lead\n    use: [trips_end_day]\n"),
+                    "trip_count: {table: trips, expr: count(*), via: [trips_end_day]}"),
+        "variant-option": ("historical: {}", "historical: {via: [repairs_current_mechanic]}"),
+        "report": ("role: east_lead\n", "role: east_lead\n    via: [trips_end_day]\n"),
     }[holder]
     assert expect(use_it) == []
 

@@ -248,7 +248,7 @@ def test_a_measure_rename_shown_by_a_report_is_breaking():
     assert "reports.weekly_fares" in change.message
 
 
-def test_a_link_rename_followed_by_every_use_and_flow_is_one_change():
+def test_a_link_rename_followed_by_every_via_and_flow_is_one_change():
     old = edit(BASE, report("returns_two_way", "trip_count", overrides=ov(trips_end_day="two-way")))
     new = rename(old, "links", "trips_end_day", "trips_return_day")
     new = edit(new, measure("trips_by_end_day", "count(*)", "trips", overrides=ov("trips_return_day")),
@@ -324,7 +324,7 @@ def test_sql_that_cannot_be_parsed_counts_as_changed_only_when_its_text_changed(
     assert (change.kind, change.severity) == ("measure.logic_changed", "numbers")
 
 
-def test_a_new_home_table_is_a_logic_change():
+def test_a_new_measure_table_is_a_logic_change():
     new = edit(BASE, measure("trip_count", "count(*)", "repairs"))
     (change,) = diff_models(BASE, new)
     assert (change.kind, change.before, change.after) == ("measure.logic_changed", {"table": "trips"}, {"table": "repairs"})
@@ -363,11 +363,11 @@ def test_removing_a_link_that_a_variant_option_uses_is_breaking_and_otherwise_nu
     assert only(diff_models(BASE, drop(BASE, "links", "repairs_bike")), "link.removed").severity == "numbers"
 
 
-def test_adding_a_standby_link_nothing_uses_is_safe_but_an_active_one_is_numbers():
+def test_adding_a_standby_link_nothing_uses_is_safe_but_a_live_one_is_numbers():
     standby = link("trips_bike_spare", "trips.bike_key", "bikes.serial_number", standby=True)
     assert only(diff_models(BASE, edit(BASE, standby)), "link.added").severity == "safe"
-    active = dataclasses.replace(standby, standby=False)
-    assert only(diff_models(BASE, edit(BASE, active)), "link.added").severity == "numbers"
+    live = dataclasses.replace(standby, standby=False)
+    assert only(diff_models(BASE, edit(BASE, live)), "link.added").severity == "numbers"
     used = edit(BASE, standby, measure("spare_trips", "count(*)", "trips", overrides=ov("trips_bike_spare")))
     assert only(diff_models(BASE, used), "link.added").severity == "numbers"
 

@@ -173,7 +173,7 @@ def test_identical_models_give_an_empty_document():
 
 
 @pytest.mark.parametrize("name, expected", [("description_only", 0), ("identical", 0), ("link_renamed", 0),
-                                            ("standby_set", 1), ("use_added", 1), ("security_flow_two_way", 1),
+                                            ("standby_set", 1), ("via_added", 1), ("security_flow_two_way", 1),
                                             ("flow_widened", 3), ("security_flow_one_way", 3),
                                             ("measure_removed_used", 3)])
 def test_exit_codes(name, expected):

@@ -228,7 +228,7 @@ def test_a_variant_option_where_filters_the_report_that_picks_it():
     assert rows_of(m, "default").rows == ((5,),)
 
 
-def test_a_variant_option_use_changes_the_route():
+def test_a_variant_option_via_changes_the_route():
     m = edit(MINI, table("trips", "fact", columns={"trip_key": "integer", "station_key": "integer",
                                                    "end_station_key": "integer", "bike_key": "integer",
                                                    "fare": "decimal", "status": "text"}),

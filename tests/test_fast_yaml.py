@@ -181,7 +181,7 @@ MEASURE_VALUES = {
     "where": [None, "fare > 0", "|", "''", "true"],
     "description": [None, "rides", "|", "1"],
     "unit": [None, "EUR", "|", "~"],
-    "use": [None, "|", "[trips_bike]"],
+    "via": [None, "|", "[trips_bike]"],
 }
 
 

@@ -74,7 +74,7 @@ def test_standby_links_carry_nothing_unless_used():
     assert "trips_end_day" not in {e.link for e in g.flow_graph(model).edges}
 
 
-def test_use_makes_a_standby_link_carry_and_puts_its_twins_on_standby():
+def test_via_makes_a_standby_link_carry_and_puts_its_twins_on_standby():
     model = build(CALENDAR)
     setting = g.resolve_setting(model, ov("trips_end_day"))
     assert setting == Setting({"trips_end_day": "one-way", "trips_bike": "one-way"})
@@ -82,13 +82,13 @@ def test_use_makes_a_standby_link_carry_and_puts_its_twins_on_standby():
         ("trips_end_day", "calendar", "trips"), ("trips_bike", "bikes", "trips")}
 
 
-def test_use_puts_a_twin_written_in_the_other_direction_on_standby_too():
+def test_via_puts_a_twin_written_in_the_other_direction_on_standby_too():
     model = build({"trips_start_day": "trips->calendar", "calendar_first_trip": "calendar->trips standby"})
     setting = g.resolve_setting(model, ov("calendar_first_trip"))
     assert setting.links == {"calendar_first_trip"}
 
 
-def test_use_of_a_link_that_is_not_on_standby_changes_nothing():
+def test_via_of_a_link_that_is_not_on_standby_changes_nothing():
     model = build(CALENDAR)
     assert g.resolve_setting(model, ov("trips_start_day")) == g.resolve_setting(model)
 
@@ -154,13 +154,13 @@ def test_later_layers_win_model_variant_report_measure():
     assert "trips_bike" not in g.resolve_setting(model, *reversed(g.setting_layers(model, m, r))).flows
 
 
-def test_a_later_use_replaces_an_earlier_one_between_the_same_tables():
+def test_a_later_via_replaces_an_earlier_one_between_the_same_tables():
     model = _layered_model()
     setting = g.resolve_setting(model, *g.setting_layers(model, report=model.reports["ended"]))
     assert setting.links == {"trips_return_day", "trips_bike"}
 
 
-def test_a_later_use_brings_back_a_link_an_earlier_layer_turned_off():
+def test_a_later_via_brings_back_a_link_an_earlier_layer_turned_off():
     model = build(CALENDAR)
     setting = g.resolve_setting(model, ov(trips_end_day="off"), ov("trips_end_day"))
     assert setting.flows["trips_end_day"] == "one-way"

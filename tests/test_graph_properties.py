@@ -233,7 +233,7 @@ def test_role_restricts_what_its_tables_reach_in_the_security_graph(model, filte
 
 
 @given(models(), st.data())
-def test_overrides_without_use_or_flow_change_nothing(model, data):
+def test_overrides_without_via_or_flow_change_nothing(model, data):
     names = sorted(model.links)
     assert g.resolve_setting(model, ov(), ov()) == g.resolve_setting(model)
     if not names:

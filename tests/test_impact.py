@@ -177,21 +177,21 @@ def test_standby_swap_spares_the_measure_that_followed_the_end_day_already():
     assert "daily_returns" not in names(r.reports)
 
 
-def test_use_added_blames_the_measure_overrides_and_names_the_source():
-    r = scenario("use_added")
+def test_via_added_blames_the_measure_overrides_and_names_the_source():
+    r = scenario("via_added")
     overrides = change(r, "measure.overrides_changed", "measures.ride_minutes")
     reasons = impact_of(r.measures, "ride_minutes").reasons
     assert [(x.change, x.source, x.paths_added, x.paths_removed) for x in reasons] == [
         (overrides.id, "calendar", (("trips_end_day",),), (("trips_start_day",),))]
 
 
-def test_use_added_impacts_only_reports_filtering_along_the_changed_paths():
+def test_via_added_impacts_only_reports_filtering_along_the_changed_paths():
     # rider_trips shows ride_minutes by riders: riders -> trips did not change
-    assert names(scenario("use_added").reports) == []
+    assert names(scenario("via_added").reports) == []
 
 
-def test_use_added_on_a_link_off_the_measure_paths_impacts_nothing():
-    r = scenario("use_added_elsewhere")
+def test_via_added_on_a_link_off_the_measure_paths_impacts_nothing():
+    r = scenario("via_added_elsewhere")
     assert [c.kind for c in r.changes] == ["measure.overrides_changed"]
     assert (names(r.measures), names(r.reports)) == ([], [])
 
@@ -252,10 +252,10 @@ def test_variant_default_change_moves_what_uses_the_default_only():
 
 def test_variant_option_where_change_impacts_the_report_through_its_table():
     base = (SCENARIOS / "identical" / "old.model.yaml").read_text()
-    old = base.replace("current: {use: [repairs_current_mechanic]}",
-                       "current: {use: [repairs_current_mechanic], where: {calendar: \"month > 0\"}}")
-    new = base.replace("current: {use: [repairs_current_mechanic]}",
-                       "current: {use: [repairs_current_mechanic], where: {calendar: \"month > 6\"}}")
+    old = base.replace("current: {via: [repairs_current_mechanic]}",
+                       "current: {via: [repairs_current_mechanic], where: {calendar: \"month > 0\"}}")
+    new = base.replace("current: {via: [repairs_current_mechanic]}",
+                       "current: {via: [repairs_current_mechanic], where: {calendar: \"month > 6\"}}")
     r = analyse_texts(old, new)
     option = change(r, "variant.changed", "variants.attribution.options.current")
     assert names(r.reports) == ["repair_costs_current"]
@@ -269,8 +269,8 @@ def test_report_overrides_move_the_report_only_along_its_own_filters():
     base = (SCENARIOS / "identical" / "old.model.yaml").read_text()
     weekly = "weekly_fares: {measures: [fare_revenue, trip_count, revenue_per_trip], by: [calendar.week_start, districts.name]"
     riders = "rider_trips: {measures: [trip_count, ride_minutes], by: [riders.plan]"
-    r = analyse_texts(base, base.replace(weekly, weekly + ", use: [trips_end_day]")
-                      .replace(riders, riders + ", use: [trips_end_day]"))
+    r = analyse_texts(base, base.replace(weekly, weekly + ", via: [trips_end_day]")
+                      .replace(riders, riders + ", via: [trips_end_day]"))
     assert sorted(c.subject for c in r.changes if c.kind == "report.changed") == ["reports.rider_trips", "reports.weekly_fares"]
     # weekly_fares groups by calendar, whose path into trips moved; rider_trips groups by riders, whose did not
     assert names(r.reports) == ["weekly_fares"]
@@ -414,7 +414,7 @@ def test_reference_broken_when_the_new_revision_names_a_removed_link():
 
 def test_reference_already_broken_in_the_old_revision_is_not_new():
     text = (SCENARIOS / "identical" / "old.model.yaml").read_text()
-    broken = text.replace("use: [trips_end_day]", "use: [trips_finish_day]")
+    broken = text.replace("via: [trips_end_day]", "via: [trips_finish_day]")
     r = analyse_texts(broken, broken)
     assert not [c for c in r.changes if c.kind == "reference.broken"]
     assert r.exit_code == 3  # the new revision still has an error finding
@@ -468,7 +468,7 @@ def test_example_revision_two():
 
 # --- TPC-DS -------------------------------------------------------------------------------------
 # The key graph is the TPC-DS specification's (clause 2), written from memory in the fixture; the link
-# choices (one active link per dimension, the rest on standby) are the fixture's, common practice.
+# choices (one live link per dimension, the rest on standby) are the fixture's, common practice.
 
 
 def tpcds_item_two_way() -> DiffResult:

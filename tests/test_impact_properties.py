@@ -228,15 +228,15 @@ def test_comparing_a_revision_with_itself_reports_nothing(case):
 # --- measures with their own settings ---------------------------------------------------------------
 
 
-def setting_reference(model: Model, use: tuple[str, ...], flow: dict[str, str]) -> nx.MultiDiGraph:
-    """semantics.md sections 1-2 written again: `use` carries a link and benches its twins, `flow` sets or removes."""
+def setting_reference(model: Model, via: tuple[str, ...], flow: dict[str, str]) -> nx.MultiDiGraph:
+    """semantics.md sections 1-2 written again: `via` carries a link and benches its twins, `flow` sets or removes."""
     standby = {n: link.standby for n, link in model.links.items()}
     flows = {n: link.flow for n, link in model.links.items()}
-    for name in use:
+    for name in via:
         standby[name] = False
-    for name in use:
+    for name in via:
         for twin, link in model.links.items():
-            if twin not in use and link.tables == model.links[name].tables:
+            if twin not in via and link.tables == model.links[name].tables:
                 standby[twin] = True
     flows.update(flow)
     g = nx.MultiDiGraph()
@@ -257,10 +257,10 @@ def revisions_with_overrides(draw):
     names = [f"l{s.index}" for s in specs]
 
     def overrides():
-        use = tuple(draw(st.lists(st.sampled_from(names), max_size=1))) if names else ()
+        via = tuple(draw(st.lists(st.sampled_from(names), max_size=1))) if names else ()
         flow = dict(draw(st.lists(st.tuples(st.sampled_from(names), st.sampled_from(["one-way", "two-way", "off"])),
                                   max_size=1))) if names else {}
-        return use, flow
+        return via, flow
 
     chosen = {t: (overrides(), overrides()) for t in tables}
     return tables, specs, chosen
@@ -273,8 +273,8 @@ def with_overrides(model: Model, chosen, side: int) -> Model:
 
     measures = {}
     for t, m in ((n[2:], m) for n, m in model.measures.items()):
-        use, flow = chosen[t][side]
-        measures[m.name] = replace(m, overrides=Overrides(use, flow))
+        via, flow = chosen[t][side]
+        measures[m.name] = replace(m, overrides=Overrides(via, flow))
     return replace(model, measures=measures)
 
 

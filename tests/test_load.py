@@ -91,7 +91,7 @@ def test_measures_become_records(bike_share):
     assert measures["revenue_per_trip"].table is None
     assert measures["revenue_per_trip"].description == "Average fare of a trip."
     assert measures["trips_by_end_day"].overrides == Overrides(
-        use=("trips_end_day",), flow={"trips_bike": "two-way", "trips_station": "off"}
+        via=("trips_end_day",), flow={"trips_bike": "two-way", "trips_station": "off"}
     )
     assert not measures["trip_count"].overrides
 
@@ -105,7 +105,7 @@ def test_variants_roles_reports_become_records(bike_share):
             "started": VariantOption("started"),
             "ended": VariantOption(
                 "ended",
-                Overrides(use=("trips_end_day",), flow={"trips_bike": "off"}),
+                Overrides(via=("trips_end_day",), flow={"trips_bike": "off"}),
                 where={"trips": "status <> 'cancelled'"},
             ),
         },
@@ -121,7 +121,7 @@ def test_variants_roles_reports_become_records(bike_share):
         variant={"counting_day": "ended"},
         role="east_lead",
         owner="finance",
-        overrides=Overrides(use=("trips_end_day",), flow={"trips_station": "one-way"}),
+        overrides=Overrides(via=("trips_end_day",), flow={"trips_station": "one-way"}),
         description="The finance team's weekly export.",
     )
 
@@ -157,7 +157,7 @@ def test_positions_point_at_names_and_values(bike_share):
     assert positions["measures.trips_by_end_day.flow.trips_station"] == position_of(
         BIKE_SHARE, "flow: {trips_bike: two-way, trips_station: off}", "off"
     )
-    assert positions["variants.counting_day.options.ended"] == position_of(BIKE_SHARE, "ended: {use:", "ended")
+    assert positions["variants.counting_day.options.ended"] == position_of(BIKE_SHARE, "ended: {via:", "ended")
     assert positions["roles.east_lead.filters.stations"] == position_of(BIKE_SHARE, "district = 'East'", "district")
     assert positions["reports.weekly_fares.by"] == position_of(BIKE_SHARE, "by: [calendar.year", "[")
 
@@ -317,10 +317,10 @@ VALID_SAMPLES = {
     "history 0": MINIMAL.replace("kind: fact", "kind: dimension\n    history: {type: 0}"),
     "link lists": MINIMAL + "links:\n  l: {from: [trips.a, trips.b], to: [x.a, x.b], standby: false}\n",
     "derived measure": MINIMAL + "measures:\n  m: {expr: a / b, description: d, unit: u, owner: o, folder: f}\n",
-    "measure flow": MINIMAL + "measures:\n  m: {table: trips, expr: count(*), use: [], flow: {l: off}}\n",
+    "measure flow": MINIMAL + "measures:\n  m: {table: trips, expr: count(*), via: [], flow: {l: off}}\n",
     "variant": MINIMAL + "variants:\n  v: {default: a, options: {a: {}, b: {where: {trips: fare > 0}}}}\n",
     "role": MINIMAL + "roles:\n  r: {filters: {}, description: nobody}\n",
-    "report": MINIMAL + "reports:\n  p: {measures: [m], by: [], variant: {v: a}, use: [l], flow: {l: two-way}}\n",
+    "report": MINIMAL + "reports:\n  p: {measures: [m], by: [], variant: {v: a}, via: [l], flow: {l: two-way}}\n",
 }
 
 INVALID_SAMPLES = {
@@ -355,7 +355,7 @@ INVALID_SAMPLES = {
     "standby text": MINIMAL + "links:\n  l: {from: trips.a, to: x.a, standby: 'no'}\n",
     "no expr": MINIMAL + "measures:\n  m: {table: trips}\n",
     "empty expr": MINIMAL + "measures:\n  m: {table: trips, expr: '  '}\n",
-    "use text": MINIMAL + "measures:\n  m: {expr: a, use: l}\n",
+    "via text": MINIMAL + "measures:\n  m: {expr: a, via: l}\n",
     "flow override": MINIMAL + "measures:\n  m: {expr: a, flow: {l: none}}\n",
     "unit number": MINIMAL + "measures:\n  m: {expr: a, unit: 1}\n",
     "variant no options": MINIMAL + "variants:\n  v: {default: a, options: {}}\n",

@@ -105,10 +105,10 @@ def _model_text(links, overrides) -> str:
         lines.append(f"  l{i}: {{from: {x}.{y}_id, to: {y}.id" + (", flow: two-way" if two_way else "")
                      + (", standby: true" if standby else "") + "}")
     lines.append("measures:")
-    for i, (table, use, off) in enumerate(overrides):
+    for i, (table, via, off) in enumerate(overrides):
         fields = [f"table: {table}", "expr: count(*)"]
-        if use is not None and use < len(links):
-            fields.append(f"use: [l{use}]")
+        if via is not None and via < len(links):
+            fields.append(f"via: [l{via}]")
         if off is not None and off < len(links):
             fields.append(f"flow: {{l{off}: two-way}}")
         lines.append(f"  m{i}: {{" + ", ".join(fields) + "}")

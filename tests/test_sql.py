@@ -68,7 +68,7 @@ REAL_CHANGES = [
     ("a and b", "a or b"),
     ("x is null", "x is not null"),
     ("fare * 1", "fare * 1.0"),  # different literal text: reported, never hidden
-    ("sum(trips.fare)", "sum(fare)"),  # without the home table, a qualifier counts
+    ("sum(trips.fare)", "sum(fare)"),  # without the measure's table, a qualifier counts
 ]
 
 
@@ -84,7 +84,7 @@ def test_logic_changes_have_different_normal_forms(a, b):
     assert not sql.same_logic(a, b)
 
 
-def test_home_table_qualifier_is_spelling_only_for_that_table():
+def test_measure_table_qualifier_is_spelling_only_for_that_table():
     assert sql.same_logic("sum(trips.fare)", "sum(fare)", table="trips")
     assert sql.same_logic("sum(TRIPS.fare)", "sum(fare)", table="trips")
     assert not sql.same_logic("sum(bikes.fare)", "sum(fare)", table="trips")
