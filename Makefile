@@ -12,6 +12,8 @@ STAMP := $(VENV)/.installed
 $(STAMP): pyproject.toml Makefile
 	test -x $(BIN)/python || $(PY) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip uninstall --quiet --yes modeldiff 2>/dev/null || true  # this project under its old name
+	rm -rf modeldiff.egg-info
 	$(BIN)/python -m pip install --quiet -e '.[test]' --config-settings editable_mode=compat
 	touch $(STAMP)
 

@@ -149,7 +149,7 @@ def _gitpython():
         import git
     except ImportError as exc:
         if exc.name == "git":  # the library itself is missing
-            raise GitError("the GitPython library is missing; reinstall modeldiff with its dependencies") from None
+            raise GitError("the GitPython library is missing; reinstall modeldiff (pip install modeldiff-cli) with its dependencies") from None
         raise GitError("git is not installed or not on PATH; install git or set GIT_PYTHON_GIT_EXECUTABLE") from None
     return git
 

@@ -118,7 +118,7 @@ def hook_script(python: str, chained: bool) -> str:
         ]
     lines += [
         'echo "modeldiff: push blocked: neither $PYTHON nor a modeldiff command on PATH was found;'
-        ' reinstall modeldiff or run \'modeldiff hook uninstall\'" >&2',
+        ' reinstall modeldiff (pip install modeldiff-cli) or run \'modeldiff hook uninstall\'" >&2',
         "exit 1",
         "",
     ]
