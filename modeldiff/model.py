@@ -2,7 +2,7 @@
 
 YAML, git and the terminal never reach these records: the loader builds them,
 and everything else (check, graph, diff, impact) only reads them.
-Field names follow ../shared/spec/model-format.md; `from`/`to` of a link are
+Field names follow docs/format.md (the model file format); `from`/`to` of a link are
 split into table and columns.
 """
 
