@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING, Callable, Iterable, Iterator
 
 from modeldiff import graph, sql  # both light: sqlglot is imported on first use
 from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Table
+from modeldiff.words import agree, and_list, named
 
 if TYPE_CHECKING:  # pragma: no cover
     from modeldiff.graph import Setting
@@ -148,7 +149,7 @@ def _predicate_refs(ctx: _Context, subject: str, filters, what: str, allow_user:
             continue
         if found.aggregates:
             yield ctx.finding("invalid-model", subject,
-                              f"{label} uses the aggregate {', '.join(found.aggregates)}; a filter tests one row at a time, so compare columns with values.",
+                              f"{label} uses the {named('aggregate', found.aggregates)}; a filter tests one row at a time, so compare columns with values.",
                               at=at)
         if not found.condition_like:
             yield ctx.finding("invalid-model", subject,
@@ -297,7 +298,7 @@ def _derived_measure(ctx: _Context, measure: Measure, subject: str) -> Iterator[
                               at=at)
     if found.aggregates:
         yield ctx.finding("invalid-model", subject,
-                          f"{what} uses the aggregate {', '.join(found.aggregates)}, but combines measures that are already aggregated; "
+                          f"{what} uses the {named('aggregate', found.aggregates)}, but combines measures that are already aggregated; "
                           f"give it a `table` to make it a base measure.", at=at)
     yield from _shape_problems(ctx, subject, found, f"{what}: `expr`", at, allow_user=False)
 
@@ -360,7 +361,8 @@ def rule_duplicate_live_link(ctx: _Context) -> Iterator[Finding]:
         tables = " and ".join(sorted(pair))
         for extra in names[1:]:
             yield ctx.finding("duplicate-live-link", f"links.{extra}",
-                              f"Links {', '.join(names)} all join {tables} and none is on standby; set `standby: true` on all but one and name the others in `via` where needed.")
+                              f"Links {and_list(names)} {agree(len(names) - 1, 'both', 'all')} join {tables} and {agree(len(names) - 1, 'neither', 'none')} is on standby; "
+                              f"set `standby: true` on {agree(len(names) - 1, 'one of them', 'all but one')} and name {agree(len(names) - 1, 'it', 'them')} in `via` where needed.")
 
 
 def _type_2_natural_key(table: Table) -> frozenset[str]:
@@ -475,7 +477,7 @@ def rule_history_incomplete(ctx: _Context) -> Iterator[Finding]:
         missing = [name for name, value in (("natural_key", table.natural_key), ("valid_from", h.valid_from), ("valid_to", h.valid_to)) if not value]
         if missing:
             yield ctx.finding("history-incomplete", f"tables.{table.name}",
-                              f"Table {table.name} keeps type-2 history but lacks {', '.join(missing)}; without them the versions of one member cannot be told apart in time. Add {' and '.join(missing)}.",
+                              f"Table {table.name} keeps type-2 history but lacks {and_list(missing)}; without {agree(len(missing), 'it', 'them')} the versions of one member cannot be told apart in time. Add {agree(len(missing), 'it', 'them')}.",
                               at=f"tables.{table.name}.history")
 
 

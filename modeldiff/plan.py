@@ -37,6 +37,8 @@ import json
 from dataclasses import dataclass, field
 from typing import Iterable, Sequence, TextIO
 
+from modeldiff.words import agree, and_list
+
 FORMATS = ("text", "markdown", "json")
 
 # Step kinds in tie-break order: reviews and data checks first, additions, changes, then removals.
@@ -552,7 +554,7 @@ class _Planner:
             ids = sorted(d.changes & {r.change for r in impact.reasons}, key=_id_order)
             if ids:
                 out.append(Check(f"report {impact.name} compared with {self.old_label} on one period: its numbers "
-                                 f"differ only where {', '.join(ids)} explain it"))
+                                 f"differ only where {and_list(ids)} {agree(len(ids), 'explains', 'explain')} it"))
         return out
 
     def owner(self, report: str) -> str:
@@ -619,7 +621,7 @@ def _default_check(d: _Draft) -> Check:
     name = _name(d.subject).replace(".columns.", ".")
     if d.kind == "update-report":
         return Check(f"report {name} shows the same numbers as before on one period, except where "
-                     f"{', '.join(sorted(d.changes, key=_id_order))} explain the difference")
+                     f"{and_list(sorted(d.changes, key=_id_order))} {agree(len(d.changes), 'explains', 'explain')} the difference")
     if d.kind == "fix-reference":
         return Check(f"modeldiff check on the new revision reports no broken-reference for {name}")
     if d.kind == "review":
@@ -680,8 +682,7 @@ def _unique(items: Iterable[str]) -> list[str]:
     return out
 
 
-def _list(names: Sequence[str]) -> str:
-    return ", ".join(names[:-1]) + f" and {names[-1]}" if len(names) > 1 else (names[0] if names else "")
+_list = and_list
 
 
 def _side(side) -> str:

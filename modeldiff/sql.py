@@ -26,6 +26,8 @@ from collections.abc import Iterable, Iterator, Mapping, Set
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+from modeldiff import words
+
 if TYPE_CHECKING:  # pragma: no cover
     from sqlglot import exp
 
@@ -740,7 +742,7 @@ def check_base_measure(
         else:
             if found.aggregates:
                 problems.append(
-                    f"{subject}: `where` uses the aggregate {', '.join(found.aggregates)}; "
+                    f"{subject}: `where` uses the {words.named('aggregate', found.aggregates)}; "
                     "a row condition tests one row at a time, so move the aggregate into `expr`"
                 )
             problems += _column_problems(subject, "where", found, table, columns)
@@ -771,7 +773,7 @@ def check_derived_measure(name: str, expr: str, measure_names: Iterable[str]) ->
             )
     if found.aggregates:
         problems.append(
-            f"{subject}: uses the aggregate {', '.join(found.aggregates)}, but a derived measure "
+            f"{subject}: uses the {words.named('aggregate', found.aggregates)}, but a derived measure "
             "combines values that are already aggregated; give it a `table` to make it a base measure"
         )
     problems += _common_problems(subject, "expr", found, allow_user=False)
@@ -798,7 +800,7 @@ def check_predicate(
     problems: list[str] = []
     if found.aggregates:
         problems.append(
-            f"{subject}: uses the aggregate {', '.join(found.aggregates)}; "
+            f"{subject}: uses the {words.named('aggregate', found.aggregates)}; "
             "a filter tests one row at a time, so compare columns with values instead"
         )
     if not found.condition_like:

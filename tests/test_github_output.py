@@ -112,7 +112,7 @@ def test_at_most_ten_errors_and_ten_warnings_then_a_notice_counting_the_rest():
     assert levels.count("error") == 10 and levels.count("warning") == 10
     assert levels[:20] == ["error"] * 10 + ["warning"] * 10
     last_level, _, last = found[-1]
-    assert last_level == "notice" and "3 errors, 2 warnings, 3 notices more are not shown" in last
+    assert last_level == "notice" and "3 more errors, 2 more warnings and 3 more notices are not shown" in last
     assert levels.count("notice") == 10  # 9 safe changes and the count
 
 

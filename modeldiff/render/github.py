@@ -19,6 +19,8 @@ import os
 from dataclasses import dataclass
 from typing import Iterable, Mapping, Sequence, TextIO
 
+from modeldiff.words import agree, and_list, counted
+
 from modeldiff.changes import rank
 
 SHOWN_PER_LEVEL = 10  # GitHub shows this many error and this many warning annotations per step
@@ -145,12 +147,13 @@ def limited(annotations: Sequence[Annotation]) -> tuple[list[Annotation], dict[s
 
 
 def more_notice(left: Mapping[str, int], where: str) -> Annotation | None:
-    words = [f"{n} {label}" for label, n in (("errors", left["error"]), ("warnings", left["warning"]),
-                                             ("notices", left["notice"])) if n]
-    if not words:
+    counts = [counted(n, f"more {label}") for label, n in (("error", left["error"]), ("warning", left["warning"]),
+                                                          ("notice", left["notice"])) if n]
+    if not counts:
         return None
+    verb = agree(sum(left.values()), "is", "are")
     return Annotation("notice", "modeldiff: more not shown",
-                      f"{', '.join(words)} more are not shown as annotations (GitHub shows 10 errors and 10 warnings "
+                      f"{and_list(counts)} {verb} not shown as annotations (GitHub shows 10 errors and 10 warnings "
                       f"per step); {where}.")
 
 

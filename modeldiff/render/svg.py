@@ -315,15 +315,31 @@ def _arrow(a, segments, spot: tuple[float, float], prefix: str) -> str:
             f'stroke="#ffffff" stroke-width="3" paint-order="stroke">{escape(_label(a))}</text></g>')
 
 
+SLANT = 10  # px: a hexagon's point, a parallelogram's lean
+
+
+def _outline(kind: str, box: Box) -> str:
+    """The shape of a table's kind (docs/graph.md): fact rectangle, dimension rounded, bridge hexagon, access parallelogram."""
+    x, y, w, h = box.x, box.y, box.w, box.h
+    if kind == "bridge":
+        corners = ((x + SLANT, y), (x + w - SLANT, y), (x + w, y + h / 2), (x + w - SLANT, y + h), (x + SLANT, y + h),
+                   (x, y + h / 2))
+    elif kind == "access":
+        corners = ((x + SLANT, y), (x + w, y), (x + w - SLANT, y + h), (x, y + h))
+    else:
+        rx = 12 if kind == "dimension" else 3
+        return f'<rect x="{_f(x)}" y="{_f(y)}" width="{_f(w)}" height="{_f(h)}" rx="{rx}" '
+    return '<polygon points="' + " ".join(f"{_f(px)},{_f(py)}" for px, py in corners) + '" '
+
+
 def _node(n, box: Box) -> str:
-    rx = 12 if n.kind == "dimension" else 3
     stroke, width = (RED, 3) if n.on_new_path else (_STROKE.get(n.kind, GREY), 1.5)
     dash = ' stroke-dasharray="4 4"' if n.kind == "missing" else ""
     title = f"{n.table} ({n.kind})" + (f": {n.description}" if n.description else "")
     cls = "node newpath" if n.on_new_path else "node"
     return (f'<g class="{cls}" data-table="{escape(n.table)}"><title>{escape(title)}</title>'
-            f'<rect x="{_f(box.x)}" y="{_f(box.y)}" width="{_f(box.w)}" height="{_f(box.h)}" rx="{rx}" '
-            f'fill="{_FILL.get(n.kind, "#fff")}" stroke="{stroke}" stroke-width="{width}"{dash}/>'
+            + _outline(n.kind, box)
+            + f'fill="{_FILL.get(n.kind, "#fff")}" stroke="{stroke}" stroke-width="{width}"{dash}/>'
             f'<text x="{_f(box.x + box.w / 2)}" y="{_f(box.cy + 4.5)}" text-anchor="middle" font-size="13" '
             f'fill="#222">{escape(n.table)}</text></g>')
 
