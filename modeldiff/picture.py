@@ -67,10 +67,18 @@ class Arrow:
     dst: str
     style: str  # one-way | two-way | standby | removed
     changed: bool = False
+    off: bool = False  # style standby because the setting turned the link off (`flow: off`, a twin's `via`)
 
     @property
     def red(self) -> bool:
         return self.changed or self.style == REMOVED
+
+    @property
+    def label(self) -> str:
+        """The link's name, with in words what dashes and arrowheads show (for readers without them)."""
+        if self.style == STANDBY:
+            return self.link + (" (no filter here)" if self.off else " (standby)")
+        return self.link + {TWO_WAY: " (both ways)", REMOVED: " (removed)"}.get(self.style, "")
 
 
 @dataclass(frozen=True)
@@ -165,8 +173,9 @@ def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequ
     for name in sorted(model.links):
         link = model.links[name]
         if link.from_table in tables and link.to_table in tables:
-            arrows.append(Arrow(len(arrows), name, link.to_table, link.from_table, _link_style(link, setting),
-                                name in highlight))
+            style = _link_style(link, setting)
+            arrows.append(Arrow(len(arrows), name, link.to_table, link.from_table, style, name in highlight,
+                                style == STANDBY and not link.standby))
     for link in removed:
         if link.from_table in tables and link.to_table in tables:
             arrows.append(Arrow(len(arrows), link.name, link.to_table, link.from_table, REMOVED, True))
@@ -210,8 +219,7 @@ def mermaid_of(pic: Picture) -> str:
         lines.append(f'  {n.id}{left}"{mermaid_label(n.table)}"{right}')
     ids = {n.table: n.id for n in pic.nodes}
     for a in pic.arrows:
-        label = a.link + (" (removed)" if a.style == REMOVED else "")
-        lines.append(f'  {ids[a.src]} {_ARROWS[a.style]}|"{mermaid_label(label)}"| {ids[a.dst]}')
+        lines.append(f'  {ids[a.src]} {_ARROWS[a.style]}|"{mermaid_label(a.label)}"| {ids[a.dst]}')
     used = [k for k in KIND_ORDER if any(n.kind == k for n in pic.nodes)]
     marked = [n.id for n in pic.nodes if n.on_new_path]
     for kind in used + (["newpath"] if marked else []):
@@ -254,7 +262,7 @@ def dot_of(pic: Picture) -> str:
         lines.append(f"  {n.id} [label={_dot_string(n.table)}, {_DOT_NODE.get(n.kind, _DOT_NODE['missing'])}{extra}];")
     ids = {n.table: n.id for n in pic.nodes}
     for a in pic.arrows:
-        attrs = [f"label={_dot_string(a.link + (' (removed)' if a.style == REMOVED else ''))}"]
+        attrs = [f"label={_dot_string(a.label)}"]
         if a.style == TWO_WAY:
             attrs.append("dir=both")
         if a.style in (STANDBY, REMOVED):

@@ -84,7 +84,7 @@ def mermaid_blocks(text: str) -> list[str]:
     return re.findall(r"```mermaid\n(.*?)```", text, re.S)
 
 
-_EDGE = re.compile(r'^\s*(\S+)\s+(?:<-->|-->|-\.->|---|==>)\|"([^"]*)"\|\s+(\S+)\s*$')
+_EDGE = re.compile(r'^\s*(\S+)\s+(?:<-->|-->|-\.->|---|==>)\|"([^" ]*)[^"]*"\|\s+(\S+)\s*$')  # the link name
 
 
 def edges_and_styles(block: str) -> tuple[list[str], list[int]]:

@@ -293,7 +293,7 @@ def _path_d(segments) -> str:
 
 
 def _label(a) -> str:
-    return a.link + (" (removed)" if a.style == "removed" else "")
+    return a.label
 
 
 def _arrow(a, segments, spot: tuple[float, float], prefix: str) -> str:
