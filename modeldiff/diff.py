@@ -27,6 +27,7 @@ from typing import Any, Callable, Hashable, Iterable, Iterator, Mapping, TypeVar
 
 from modeldiff.changes import Change
 from modeldiff.model import Column, History, Link, Measure, Model, Overrides, Report, Role, Table, Variant, VariantOption
+from modeldiff.words import and_list
 
 SAFE, NUMBERS, BREAKING = "safe", "numbers", "breaking"
 
@@ -293,10 +294,7 @@ def _list(items: Iterable[str], limit: int = 4) -> str:
     return shown + (f" and {len(items) - limit} more" if len(items) > limit else "")
 
 
-def _and(items: Iterable[str]) -> str:
-    """"a", "a and b", "a, b and c"."""
-    items = list(items)
-    return items[0] if len(items) == 1 else ", ".join(items[:-1]) + " and " + items[-1]
+_and = and_list  # "a", "a and b", "a, b and c"
 
 
 def _was(items: Iterable[str]) -> str:
