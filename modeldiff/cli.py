@@ -34,6 +34,8 @@ EXTRA_COMMANDS = (
      "evaluate a model's reports on data (Parquet, CSV or a DuckDB file) and print their numbers"),
     ("verify", "modeldiff.verify",
      "evaluate OLD and NEW on the same data: which numbers really move, and whether the data meets the change's preconditions"),
+    ("draft", "modeldiff.draft",
+     "write a first model file from a database's catalog (a DuckDB file or a DDL script): tables, keys, links, guessed kinds"),
 )
 
 
