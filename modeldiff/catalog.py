@@ -221,6 +221,7 @@ def _parse_error_text(error: Exception) -> str:
     if details:
         first = details[0]
         description = str(first.get("description") or "syntax error").split(". ")[0]
+        description = re.sub(r"<Token [^>]*?text: ([^,]*),[^>]*>", r"'\1'", description)
         return f"{description} at line {first.get('line')}, column {first.get('col')}"
     text = str(error).strip()
     return text.splitlines()[0] if text else type(error).__name__
