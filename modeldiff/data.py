@@ -434,7 +434,7 @@ def duckdb_catalog(db_file: str, schema: str = "main") -> tuple[list[tuple], lis
     """The catalog of one schema of a DuckDB file, as plain rows.
 
     Returns (columns, constraints, views): columns as (table, column, type)
-    in table then column order, base tables only; constraints as (table,
+    in the order the tables were created, base tables only; constraints as (table,
     type, columns, referenced table, referenced columns) for PRIMARY KEY,
     UNIQUE and FOREIGN KEY, in the catalog's order; the names of the views.
     """
@@ -443,11 +443,10 @@ def duckdb_catalog(db_file: str, schema: str = "main") -> tuple[list[tuple], lis
     connection = open_locked_database(db_file)
     try:
         columns = connection.execute(
-            "SELECT c.table_name, c.column_name, c.data_type FROM information_schema.columns c "
-            "JOIN information_schema.tables t ON t.table_catalog = c.table_catalog "
-            "AND t.table_schema = c.table_schema AND t.table_name = c.table_name "
-            "WHERE c.table_catalog = current_database() AND c.table_schema = $schema "
-            "AND t.table_type = 'BASE TABLE' ORDER BY c.table_name, c.ordinal_position",
+            "SELECT c.table_name, c.column_name, c.data_type FROM duckdb_columns() c "
+            "JOIN duckdb_tables() t ON t.table_oid = c.table_oid "
+            "WHERE c.database_name = current_database() AND c.schema_name = $schema "
+            "ORDER BY t.table_oid, c.column_index",
             {"schema": schema}).fetchall()
         constraints = connection.execute(
             "SELECT table_name, constraint_type, constraint_column_names, referenced_table, "

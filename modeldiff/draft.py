@@ -199,11 +199,12 @@ def _links(kept: dict[str, tuple[CatalogTable, DraftTable]], notes: list[str]) -
                     link.cardinality_reason = (f"{', '.join(from_columns)} is unique in {table.name} too, "
                                                f"so each row matches at most one {target_table.name} row and back")
                 else:
-                    link.cardinality_reason = f"from the foreign key onto {target_table.name}'s " + (
-                        "primary key" if wanted == frozenset(c.lower() for c in target_table.key) else "unique column")
+                    link.cardinality_reason = "from the foreign key onto the " + (
+                        "primary key" if wanted == frozenset(c.lower() for c in target_table.key) else "unique column"
+                    ) + f" of {target_table.name}"
             else:
-                notes.append(f"{shown} left out: it points at columns that are not {target_table.name}'s key or a "
-                             "single unique column, which the format cannot declare")
+                notes.append(f"{shown} left out: it points at columns that are neither the key of {target_table.name} "
+                             "nor a single unique column, which the format cannot declare")
                 continue
             links.append(link)
     return links
