@@ -109,6 +109,9 @@ def draft(catalog: Catalog, name: str) -> Draft:
         if not NAME.match(table.name):
             notes.append(f"table {table.name!r} left out: its name is not a model name (letters, digits, _)")
             continue
+        if table.name.lower() in kept:
+            notes.append(f"table {table.name!r} left out: its name differs from another table's only in case")
+            continue
         kept[table.name.lower()] = (table, _table(table))
     links = _links(kept, notes)
     linked = {t for link in links for t in (link.from_table.lower(), link.to_table.lower())}
@@ -136,15 +139,18 @@ def _column_names(table: CatalogTable, draft_table: DraftTable, columns: tuple[s
 
 
 def _table(table: CatalogTable) -> DraftTable:
-    columns, notes = [], []
+    columns, notes, seen = [], [], set()
     for name, database_type in table.columns:
         mapped = model_type(database_type)
         if not NAME.match(name):
             notes.append(f"column {name!r} left out: its name is not a model name")
+        elif name.lower() in seen:
+            notes.append(f"column {name!r} left out: its name differs from another column's only in case")
         elif mapped is None:
             notes.append(f"column {name} ({database_type or 'no type'}) left out: the format has no such type")
         else:
             columns.append((name, mapped))
+            seen.add(name.lower())
     out = DraftTable(table.name, columns, notes=notes)
     if table.primary_key:
         key = _column_names(table, out, table.primary_key)
