@@ -337,24 +337,32 @@ def _csv_column(connection, staged: str, table: Table, name: str, stored: str, o
     """The SELECT item converting one text column of a CSV file; raises on the first bad value."""
     model_type = table.columns[name].type
     value = q(stored)
-    if model_type == "decimal":
-        scale = connection.execute(
-            f"SELECT coalesce(max(length(regexp_extract(trim({value}), '\\.([0-9]+)$', 1))), 0) FROM {staged}"
-        ).fetchone()[0]
-        target = f"DECIMAL(38, {min(int(scale), 18)})"
-    else:
-        target = CSV_TYPES[model_type]
-    cast = f"TRY_CAST(trim({value}) AS {target})" if model_type != "text" else value
-    if model_type != "text":
-        bad = connection.execute(
-            f"SELECT _n, _v FROM (SELECT row_number() OVER () AS _n, {value} AS _v FROM {staged}) "
-            f"WHERE _v IS NOT NULL AND trim(_v) <> '' AND TRY_CAST(trim(_v) AS {target}) IS NULL ORDER BY _n LIMIT 1"
-        ).fetchone()
-        if bad is not None:
-            raise ModeldiffError(f"{origin.shown}: row {bad[0]} has {bad[1]!r} in column {name}, which is not "
-                                 f"{_a(model_type)}; fix the value or the column's type")
-        cast = f"CASE WHEN trim({value}) = '' THEN NULL ELSE {cast} END"
-    return f"{cast} AS {q(name)}"
+    if model_type == "text":
+        return f"{value} AS {q(name)}"
+    target = _csv_target(connection, staged, value, model_type)
+    bad = connection.execute(
+        f"SELECT _n, _v FROM (SELECT row_number() OVER () AS _n, {value} AS _v FROM {staged}) "
+        f"WHERE _v IS NOT NULL AND trim(_v) <> '' AND TRY_CAST(trim(_v) AS {target}) IS NULL ORDER BY _n LIMIT 1"
+    ).fetchone()
+    if bad is not None:
+        raise ModeldiffError(f"{origin.shown}: row {bad[0]} has {bad[1]!r} in column {name}, which is not "
+                             f"{_a(model_type)}; fix the value or the column's type")
+    return f"{_csv_cast(value, target)} AS {q(name)}"
+
+
+def _csv_target(connection, staged: str, value: str, model_type: str) -> str:
+    """The DuckDB type a CSV text column of `model_type` converts to (a decimal: with the largest scale found)."""
+    if model_type != "decimal":
+        return CSV_TYPES[model_type]
+    scale = connection.execute(
+        f"SELECT coalesce(max(length(regexp_extract(trim({value}), '\\.([0-9]+)$', 1))), 0) FROM {staged}"
+    ).fetchone()[0]
+    return f"DECIMAL(38, {min(int(scale), 18)})"
+
+
+def _csv_cast(value: str, target: str) -> str:
+    """A CSV text value converted to `target`: an empty field is NULL, a value that does not convert NULL too."""
+    return f"CASE WHEN trim({value}) = '' THEN NULL ELSE TRY_CAST(trim({value}) AS {target}) END"
 
 
 def _a(model_type: str) -> str:
@@ -541,13 +549,12 @@ class RawTables:
             if column is None or column.type == "text":
                 selects.append(value)
                 continue
-            cast = f"TRY_CAST(trim({value}) AS {_SQL_TYPES[column.type]})"
+            cast = _csv_cast(value, _csv_target(self.connection, staged, value, column.type))
             bad = self.connection.execute(
-                f"SELECT {value} FROM {staged} WHERE {value} IS NOT NULL AND trim({value}) <> '' "
-                f"AND {cast} IS NULL").fetchall()
+                f"SELECT {value} FROM {staged} WHERE trim({value}) <> '' AND {cast} IS NULL").fetchall()
             if bad:
                 self.bad_values[(table.name, column.name)] = (len(bad), [row[0] for row in bad[:_SAMPLE]])
-            selects.append(f"CASE WHEN trim({value}) = '' THEN NULL ELSE {cast} END AS {value}")
+            selects.append(f"{cast} AS {value}")
         self.connection.execute(f"CREATE TABLE {target} AS SELECT {', '.join(selects)} FROM {staged}")
         self.connection.execute(f"DROP TABLE {staged}")
         self.relations[table.name] = target

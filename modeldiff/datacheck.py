@@ -116,7 +116,7 @@ def _e_g(rows: Sequence[Any]) -> str:
 
 def _table_problems(table: Table, raw, found: list[Problem], examples: int) -> dict[str, str] | None:
     """Missing table, missing or mistyped columns; the stored names of the columns that fit (None: none usable)."""
-    from modeldiff.data import type_fits
+    from modeldiff.data import _a, type_fits
 
     stored = raw.columns(table.name)
     subject = f"tables.{table.name}"
@@ -147,10 +147,6 @@ def _table_problems(table: Table, raw, found: list[Problem], examples: int) -> d
             continue
         usable[name] = hit[0]
     return usable
-
-
-def _a(model_type: str) -> str:
-    return ("an " if model_type[0] in "aeiou" else "a ") + model_type
 
 
 def _key_problems(table: Table, raw, columns: dict[str, str], found: list[Problem], examples: int) -> None:
