@@ -22,7 +22,9 @@ comment starting `guess:` for the user to review:
   its key, nor unique, nor a foreign key; a boolean `*current*` column becomes
   its current flag.
 
-Tables with no foreign key from or to them are not drafted (nothing says
+Tables are written dimensions first, then bridges, then facts, each group by
+name; links by their `from` table's name and column order. Tables with no
+foreign key from or to them are not drafted (nothing says
 what they are): they are listed, commented out, at the end; tables with no
 primary key are drafted without `key` and listed in the header. The draft has
 no measures, roles or reports. It passes `modeldiff check` with no error.
@@ -54,6 +56,8 @@ _VALIDITY_PAIRS = (
     ("row_start", "row_end"), ("from_date", "to_date"), ("date_from", "date_to"), ("valid_start", "valid_end"),
 )
 _BUSINESS_KEY_ENDINGS = ("_id", "_code", "_number", "_no", "_num", "_nk", "_bk")
+# the draft lists dimensions, then bridges, then facts, each by name: the same order whatever the source's
+_KIND_ORDER = {"dimension": 0, "bridge": 1, "fact": 2}
 
 
 @dataclass
@@ -102,6 +106,8 @@ class Draft:
 def draft(catalog: Catalog, name: str) -> Draft:
     """The draft model of a catalog: see the module's docstring for what is read and what is guessed."""
     catalog = resolve_references(catalog)
+    catalog = Catalog(catalog.source, tuple(sorted(catalog.tables, key=lambda t: (t.name.lower(), t.name))),
+                      tuple(sorted(catalog.views)))  # the same draft whatever order the source lists them in
     notes: list[str] = []
     left_out: list[tuple[str, str, list[tuple[str, str]]]] = []
     kept: dict[str, tuple[CatalogTable, DraftTable]] = {}  # lower-case name -> (catalog table, draft table)
@@ -127,8 +133,8 @@ def draft(catalog: Catalog, name: str) -> Draft:
         if table.kind != "bridge":
             _guess_history(table, source)
     _standby_and_names(links, kept)
-    tables = [table for _, table in kept.values()]
-    return Draft(name, catalog.source, tables, links, left_out, notes)
+    tables = sorted((table for _, table in kept.values()), key=lambda t: (_KIND_ORDER[t.kind], t.name.lower()))
+    return Draft(name, catalog.source, tables, links, sorted(left_out, key=lambda t: t[0].lower()), notes)
 
 
 def _column_names(table: CatalogTable, draft_table: DraftTable, columns: tuple[str, ...]) -> tuple[str, ...] | None:
@@ -220,7 +226,7 @@ def _guess_kind(table: DraftTable, source: CatalogTable, referenced: bool) -> No
     fk_sets = [frozenset(c.lower() for c in fk.columns) for fk in source.foreign_keys]
     key = frozenset(c.lower() for c in table.key)
     pairs = [(a, b) for i, a in enumerate(fk_sets) for b in fk_sets[i + 1:] if a | b == key and not a & b]
-    if len(table.key) >= 2 and pairs and len(fk_sets) == 2:
+    if pairs:
         table.kind, table.kind_reason = "bridge", "its primary key is made of its two foreign keys"
     elif referenced:
         table.kind, table.kind_reason = "dimension", "other tables' foreign keys point at it"
@@ -259,11 +265,9 @@ def _guess_history(table: DraftTable, source: CatalogTable) -> None:
 
 def _standby_and_names(links: list[DraftLink], kept: dict[str, tuple[CatalogTable, DraftTable]]) -> None:
     """Names `<table>_<columns>`; of several links joining the same two tables, all but the first on standby."""
-    order = {lower: i for i, lower in enumerate(kept)}
-
     def position(link: DraftLink) -> tuple:
         columns = [name.lower() for name, _ in kept[link.from_table.lower()][1].columns]
-        return (order[link.from_table.lower()], columns.index(link.from_columns[0].lower()), link.from_columns)
+        return (link.from_table.lower(), columns.index(link.from_columns[0].lower()), link.from_columns)
 
     links.sort(key=position)
     by_pair: dict[frozenset[str], list[DraftLink]] = {}
@@ -317,6 +321,8 @@ def render(result: Draft) -> str:
         lines.append(f"# No primary key (no `key` written): {', '.join(no_key)}.")
     if result.left_out:
         lines.append(f"# Not drafted, listed commented out at the end: {', '.join(t for t, _, _ in result.left_out)}.")
+    if not result.tables and not result.left_out:
+        lines.append("# No tables found: check --schema (and, for a DDL script, that it creates tables).")
     for note in result.notes:
         lines.append(f"# Note: {note}.")
     lines += ["", f"model: {_name(result.name)}", "format: 1", "", "tables:"]

@@ -6,9 +6,9 @@ import os
 import random
 
 import pytest
-from draftkit import draft_ddl, errors, loaded, run
+from draftkit import catalog_ddl, catalog_facts, draft_ddl, duckdb_ready, errors, loaded, random_catalog, run
 
-from modeldiff.catalog import Catalog, CatalogTable, ForeignKey, model_type
+from modeldiff.catalog import model_type
 from modeldiff.draft import draft, model_name_of, render
 
 STAR = """
@@ -305,36 +305,6 @@ def test_alter_table_before_create_is_bad_input(tmp_path):
 
 # --- property: every catalog drafts a model that check passes with no error -------------------
 
-_TYPES = ("INTEGER", "BIGINT", "VARCHAR", "DECIMAL(9,2)", "DOUBLE", "DATE", "TIMESTAMP", "BOOLEAN", "BLOB")
-
-
-def random_catalog(rng: random.Random) -> Catalog:
-    """A random catalog: tables with keys or not, uniques, foreign keys of any shape, validity dates."""
-    tables: list[CatalogTable] = []
-    for t in range(rng.randint(1, 7)):
-        name = rng.choice([f"t{t}", f"T{t}", f"t {t}", "null" if t == 0 else f"x{t}"])
-        columns = [(f"c{i}", rng.choice(_TYPES)) for i in range(rng.randint(1, 6))]
-        if rng.random() < 0.3:
-            columns += [("valid_from", "DATE"), ("valid_to", "DATE"), (rng.choice(["m_code", "c0"]), "VARCHAR"),
-                        ("is_current", "BOOLEAN")]
-        names = [c for c, _ in columns]
-        pk = tuple(rng.sample(names, rng.randint(1, min(2, len(names))))) if rng.random() < 0.8 else ()
-        uniques = tuple(tuple(rng.sample(names, rng.randint(1, min(2, len(names))))) for _ in range(rng.randint(0, 2)))
-        tables.append(CatalogTable(name, tuple(columns), pk, uniques))
-    built = []
-    for table in tables:
-        fks = []
-        for _ in range(rng.randint(0, 3)):
-            target = rng.choice(tables)
-            width = rng.randint(1, 2)
-            ref = target.primary_key if target.primary_key and rng.random() < 0.8 else tuple(
-                c for c, _ in target.columns[:width])
-            if len(table.columns) >= len(ref) and ref:
-                fks.append(ForeignKey(tuple(c for c, _ in rng.sample(table.columns, len(ref))), target.name, ref))
-        built.append(CatalogTable(table.name, table.columns, table.primary_key, table.uniques, tuple(fks)))
-    return Catalog("random", tuple(built))
-
-
 def test_property_every_draft_passes_check_without_error():
     rng = random.Random(14)
     for case in range(300):
@@ -346,3 +316,25 @@ def test_property_every_draft_passes_check_without_error():
         for table in catalog.tables:
             assert table.name in model.tables or f"#  {table.name}:" in text or f"#  \"{table.name}\":" in text \
                 or f"table {table.name!r} left out" in text, (case, table.name, text)
+
+
+def test_property_duckdb_and_ddl_readers_read_the_same_catalog(tmp_path):
+    """Differential: random schemas created in DuckDB (its own catalog, duckdb_constraints()) and read back,
+    against the same DDL parsed by sqlglot: the same tables, columns, types, keys, uniques and foreign keys."""
+    import duckdb
+
+    from modeldiff.catalog import DdlCatalog, DuckDBCatalog
+
+    rng = random.Random(1414)
+    for case in range(40):
+        catalog = duckdb_ready(random_catalog(rng))
+        ddl = catalog_ddl(catalog)
+        path = tmp_path / f"case{case}.duckdb"
+        con = duckdb.connect(str(path))
+        con.execute(ddl)
+        con.close()
+        script = tmp_path / f"case{case}.sql"
+        script.write_text(ddl)
+        from_db, from_ddl = DuckDBCatalog(str(path)).read(), DdlCatalog(str(script)).read()
+        assert catalog_facts(from_db) == catalog_facts(from_ddl) == catalog_facts(catalog), (case, ddl)
+        assert render(draft(from_db, "m")).split("\n", 1)[1] == render(draft(from_ddl, "m")).split("\n", 1)[1]
