@@ -59,8 +59,9 @@ def write_db(path, tables=TABLES):
     con = duckdb.connect(str(path))
     for name, (columns, rows) in tables.items():
         con.execute(f"CREATE TABLE {name} ({columns})")
-        for row in rows:
-            con.execute(f"INSERT INTO {name} VALUES ({', '.join('?' for _ in row)})", list(row))
+        if rows:
+            marks = "(" + ", ".join("?" for _ in rows[0]) + ")"
+            con.execute(f"INSERT INTO {name} VALUES " + ", ".join(marks for _ in rows), [v for r in rows for v in r])
     con.close()
     return path
 
