@@ -272,3 +272,36 @@ def test_cli_check_data_bad_input_exits_2(tmp_path):
                  ["--data", str(tmp_path / "missing")], ["--db", str(fake), "--data", str(tmp_path)]):
         code, stdout, stderr = run("check", "--no-cache", str(model), *argv)
         assert code == 2 and stderr.count("\n") == 1 and "Traceback" not in stderr, (argv, stderr)
+
+
+def test_data_folder_is_copied_in_then_locked(tmp_path):
+    import duckdb
+
+    data = tmp_path / "data"
+    data.mkdir()
+    (data / "shop.csv").write_text("shop_key,shop_code,name\n1,N1,North\n")
+    (tmp_path / "outside.csv").write_text("a\n1\n")
+    model = load_files([("shop.model.yaml", MODEL)]).model
+    with RawTables.open(model, data_dir=str(data)) as raw:
+        assert raw.rows(f"SELECT count(*) FROM {raw.relations['shop']}") == [(1,)]
+        assert raw.columns("agent") is None  # no agent file: reported as data-table-missing
+        for statement in (f"SELECT * FROM read_csv('{tmp_path / 'outside.csv'}')",
+                          "SET enable_external_access = true", "INSTALL httpfs",
+                          f"COPY (SELECT 1) TO '{tmp_path / 'written.csv'}'"):
+            with pytest.raises(duckdb.Error):
+                raw.connection.execute(statement)
+    assert not (tmp_path / "written.csv").exists()
+
+
+def test_a_link_out_of_the_data_folder_is_not_followed(tmp_path):
+    data = tmp_path / "data"
+    data.mkdir()
+    (tmp_path / "secret.csv").write_text("shop_key,shop_code,name\n1,N1,North\n")
+    (data / "shop.csv").symlink_to(tmp_path / "secret.csv")
+    model = load_files([("shop.model.yaml", MODEL)]).model
+    with RawTables.open(model, data_dir=str(data)) as raw:
+        assert raw.columns("shop") is None
+    (data / "shop.csv").unlink()
+    (data / "shop.csv").write_text("shop_key,shop_code,name\n1,N1,North\n")
+    with RawTables.open(model, data_dir=str(data)) as raw:
+        assert raw.columns("shop") is not None
