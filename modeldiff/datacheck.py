@@ -3,7 +3,8 @@
 Compares a model with the tables it describes, read-only (modeldiff.data's
 `RawTables`: a DuckDB file opened read-only, or a data folder copied into
 memory, behind a locked connection). Each problem is a finding with a rule of
-its own, a count and a few examples, under `check`'s exit codes:
+its own, a count and a few examples (in the message, and as `count` and
+`examples` in JSON), under `check`'s exit codes:
 
 | rule                    | severity | what                                                          |
 |-------------------------|----------|---------------------------------------------------------------|
@@ -79,8 +80,28 @@ def check_data(model: Model, db_file: str | None = None, data_dir: str | None = 
         return [as_finding(model, p) for p in problems(model, raw)]
 
 
+@dataclass(frozen=True)
+class DataFinding(Finding):
+    """A finding about the data: a Finding with its count and examples (JSON gives both)."""
+
+    count: int = 0
+    examples: tuple[tuple[Any, ...], ...] = ()
+
+    def json_extra(self) -> dict:
+        return {"count": self.count, "examples": [[_plain(v) for v in e] for e in self.examples]}
+
+
+def _plain(value: Any) -> Any:
+    """A value as JSON holds it: numbers, text, booleans and null stay; dates and decimals become text."""
+    if value is None or isinstance(value, (bool, int, float, str)):
+        return value
+    return str(value)
+
+
 def as_finding(model: Model, problem: Problem) -> Finding:
-    return Finding(problem.rule, RULES[problem.rule], problem.subject, problem.message, (), model.pos(problem.subject))
+    examples = tuple(e if isinstance(e, tuple) else (e,) for e in problem.examples)
+    return DataFinding(problem.rule, RULES[problem.rule], problem.subject, problem.message, (),
+                       model.pos(problem.subject), problem.count, examples)
 
 
 def problems(model: Model, raw, examples: int = EXAMPLES) -> list[Problem]:

@@ -236,7 +236,8 @@ def test_cli_check_db_exit_codes_and_json(tmp_path):
     orphan.mkdir()
     write_db(orphan / "d.duckdb", changed(sale=(sale_cols, sale_rows + [(9, 7, 1, 1.0)])))
     code, stdout, _ = run("check", "--no-cache", str(model), "--db", str(orphan / "d.duckdb"), "--format", "json")
-    assert code == 0 and [f["rule"] for f in json.loads(stdout)["findings"]] == ["data-orphans"]
+    assert code == 0 and [(f["rule"], f["count"], f["examples"]) for f in json.loads(stdout)["findings"]] == [
+        ("data-orphans", 1, [[7]])]
     assert run("check", "--no-cache", str(model), "--db", str(orphan / "d.duckdb"), "--strict")[0] == 1
     dup = tmp_path / "dup"
     dup.mkdir()
@@ -258,8 +259,8 @@ def test_cli_check_data_folder_csv_values_of_another_type(tmp_path):
     (data / "sale.csv").write_text("sale_id,shop_key,agent_key,amount\n1,1,1,ten\n2,2,1,2.00\n3,2,1,n/a\n")
     code, stdout, _ = run("check", "--no-cache", str(model), "--data", str(data), "--format", "json")
     findings = json.loads(stdout)["findings"]
-    assert code == 3 and [(f["rule"], f["subject"]) for f in findings] == [
-        ("data-type-mismatch", "tables.sale.columns.amount")]
+    assert code == 3 and [(f["rule"], f["subject"], f["count"], f["examples"]) for f in findings] == [
+        ("data-type-mismatch", "tables.sale.columns.amount", 2, [["ten"], ["n/a"]])]
     assert "2 value(s) of sale.amount are not a decimal (e.g. 'ten', 'n/a')" in findings[0]["message"]
 
 
