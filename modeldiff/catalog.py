@@ -155,8 +155,11 @@ class DdlCatalog:
         import sqlglot
         from sqlglot import exp
 
+        from modeldiff.sql import _quiet_sqlglot
+
         try:
-            statements = [s for s in sqlglot.parse(text, read=self.dialect) if s is not None]
+            with _quiet_sqlglot():
+                statements = [s for s in sqlglot.parse(text, read=self.dialect) if s is not None]
         except (sqlglot.errors.SqlglotError, ValueError, RecursionError) as error:
             first = _parse_error_text(error)
             raise ModeldiffError(f"{self.path}: cannot parse the DDL ({first}); fix the script or give "
@@ -164,6 +167,11 @@ class DdlCatalog:
         tables: dict[str, dict] = {}
         views: list[str] = []
         for statement in statements:
+            if isinstance(statement, exp.Command) and str(statement.this).upper() in ("CREATE", "ALTER"):
+                shown = " ".join(f"{statement.this}{statement.args.get('expression') or ''}".split())
+                shown = shown if len(shown) <= 70 else shown[:67] + "..."
+                raise ModeldiffError(f"{self.path}: cannot read the statement `{shown}`; fix it, or give --dialect "
+                                     "if it is written for one database")
             if isinstance(statement, exp.Create) and (statement.args.get("kind") or "").upper() == "VIEW":
                 target = statement.this if isinstance(statement.this, exp.Table) else statement.find(exp.Table)
                 if target is not None and self._wanted(target):
@@ -189,7 +197,10 @@ class DdlCatalog:
                                          "TABLE of it; create the table first")
                 for action in statement.args.get("actions") or ():
                     for item in (action.expressions if isinstance(action, exp.AddConstraint) else [action]):
-                        _table_constraint(entry, item)
+                        if isinstance(item, exp.ColumnDef):  # ADD COLUMN
+                            self._column(entry, item)
+                        else:
+                            _table_constraint(entry, item)
         return tuple(CatalogTable(t["name"], tuple(t["columns"]), tuple(t["pk"]), tuple(t["uniques"]),
                                   tuple(t["fks"])) for t in tables.values()), tuple(views)
 

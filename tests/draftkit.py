@@ -137,3 +137,33 @@ def catalog_facts(catalog: Catalog) -> dict:
 
     return {t.name: ([(c, model_type(ty)) for c, ty in t.columns], t.primary_key, set(t.uniques), set(t.foreign_keys))
             for t in resolve_references(catalog).tables}
+
+
+_DDL_TOKENS = ("(", ")", ",", "REFERENCES", "PRIMARY KEY", "UNIQUE", "FOREIGN KEY", "CONSTRAINT c", "ALTER TABLE",
+               "ADD", ";", "x", '"q q"', "INTEGER", "NOT NULL", "CREATE TABLE", "VIEW", "AS SELECT 1", "DEFAULT 1",
+               "CHECK (a > 0)", "ADD COLUMN", "--", "/*", "'", "\r", "\u2028")
+
+
+def mutated_ddl(rng: random.Random, seeds) -> str:
+    """A DDL script with a few words deleted, inserted or replaced: mostly broken, sometimes still valid."""
+    words = rng.choice(seeds).split(" ")
+    for _ in range(rng.randint(1, 4)):
+        i = rng.randrange(len(words))
+        roll = rng.random()
+        if roll < 0.4:
+            del words[i]
+        elif roll < 0.8:
+            words.insert(i, rng.choice(_DDL_TOKENS))
+        else:
+            words[i] = rng.choice(_DDL_TOKENS)
+    return " ".join(words)
+
+
+def draft_or_refuse(path: str) -> str | None:
+    """The draft of a DDL file, or None when it is refused with a ModeldiffError (bad input, exit 2)."""
+    from modeldiff.errors import ModeldiffError
+
+    try:
+        return render(draft(DdlCatalog(path).read(), "m"))
+    except ModeldiffError:
+        return None

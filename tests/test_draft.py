@@ -6,7 +6,8 @@ import os
 import random
 
 import pytest
-from draftkit import catalog_ddl, catalog_facts, draft_ddl, duckdb_ready, errors, loaded, random_catalog, run
+from draftkit import (catalog_ddl, catalog_facts, draft_ddl, draft_or_refuse, duckdb_ready, errors, loaded,
+                      mutated_ddl, random_catalog, run)
 
 from modeldiff.catalog import model_type
 from modeldiff.draft import draft, model_name_of, render
@@ -219,6 +220,7 @@ def test_cli_never_overwrites_without_force(tmp_path):
 @pytest.mark.parametrize("content, what", [
     (None, "no such file"),
     ("CREATE TABLE (", "cannot parse the DDL"),
+    ("CREATE TABLE call INTEGER PRIMARY KEY, x INT);", "cannot read the statement `CREATE TABLE call INTEGER"),
     (b"\xff\xfe CREATE", "not UTF-8"),
 ])
 def test_cli_bad_ddl_exits_2_with_one_line_and_writes_nothing(tmp_path, content, what):
@@ -338,3 +340,33 @@ def test_property_duckdb_and_ddl_readers_read_the_same_catalog(tmp_path):
         from_db, from_ddl = DuckDBCatalog(str(path)).read(), DdlCatalog(str(script)).read()
         assert catalog_facts(from_db) == catalog_facts(from_ddl) == catalog_facts(catalog), (case, ddl)
         assert render(draft(from_db, "m")).split("\n", 1)[1] == render(draft(from_ddl, "m")).split("\n", 1)[1]
+
+
+def test_alter_table_adds_columns_and_constraints(tmp_path):
+    ddl = """
+    CREATE TABLE dim (k INTEGER);
+    CREATE TABLE fact (id INTEGER);
+    ALTER TABLE dim ADD CONSTRAINT dim_pk PRIMARY KEY (k);
+    ALTER TABLE fact ADD COLUMN k INTEGER;
+    ALTER TABLE fact ADD FOREIGN KEY (k) REFERENCES dim (k);
+    COMMENT ON TABLE dim IS 'ignored';
+    """
+    model, findings = loaded(draft_ddl(tmp_path, ddl))
+    assert errors(findings) == []
+    assert list(model.tables["fact"].columns) == ["id", "k"]
+    assert model.tables["dim"].key == ("k",)
+    assert [(l.from_table, l.to_table) for l in model.links.values()] == [("fact", "dim")]
+
+
+def test_property_mutated_ddl_is_drafted_or_refused_never_a_traceback(tmp_path):
+    """Broken scripts: either a draft that check passes with no error, or a ModeldiffError (exit 2)."""
+    rng = random.Random(2014)
+    script = tmp_path / "mutated.sql"
+    drafted = 0
+    for case in range(200):  # benchmarks/campaigns/draft_campaign.py runs many more
+        script.write_text(mutated_ddl(rng, (STAR, CARDINALITY, SCD)), encoding="utf-8")
+        text = draft_or_refuse(str(script))
+        if text is not None:
+            drafted += 1
+            assert errors(loaded(text)[1]) == [], (case, script.read_text())
+    assert 0 < drafted < 200  # some mutations break the script, some do not
