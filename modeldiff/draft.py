@@ -372,16 +372,21 @@ def write_atomically(path: str, text: str, force: bool = False) -> None:
     folder = os.path.dirname(os.path.abspath(path))
     if not os.path.isdir(folder):
         raise ModeldiffError(f"{folder}: no such folder; create it or give another -o")
-    handle, temporary = tempfile.mkstemp(prefix=".modeldiff-draft-", suffix=".tmp", dir=folder)
+    try:
+        handle, temporary = tempfile.mkstemp(prefix=".modeldiff-draft-", suffix=".tmp", dir=folder)
+    except OSError as error:
+        raise ModeldiffError(f"cannot write in {folder} ({error.strerror}); give -o a writable place") from None
     try:
         with os.fdopen(handle, "w", encoding="utf-8", newline="\n") as stream:
             stream.write(text)
         os.replace(temporary, path)
-    except BaseException:
+    except BaseException as error:
         try:
             os.unlink(temporary)
         except OSError:
             pass
+        if isinstance(error, OSError):
+            raise ModeldiffError(f"cannot write {path} ({error.strerror or error}); nothing was written") from None
         raise
 
 

@@ -10,6 +10,7 @@ from draftkit import (catalog_ddl, catalog_facts, draft_ddl, draft_or_refuse, du
                       mutated_ddl, random_catalog, run)
 
 from modeldiff.catalog import model_type
+from modeldiff.errors import ModeldiffError
 from modeldiff.draft import draft, model_name_of, render
 
 STAR = """
@@ -370,3 +371,39 @@ def test_property_mutated_ddl_is_drafted_or_refused_never_a_traceback(tmp_path):
             drafted += 1
             assert errors(loaded(text)[1]) == [], (case, script.read_text())
     assert 0 < drafted < 200  # some mutations break the script, some do not
+
+
+def test_write_is_atomic_nothing_half_written(tmp_path, monkeypatch):
+    from modeldiff import draft as draft_module
+
+    target = tmp_path / "m.model.yaml"
+    target.write_text("before\n")
+
+    def failing_replace(src, dst):
+        raise OSError("disk full")
+
+    monkeypatch.setattr(draft_module.os, "replace", failing_replace)
+    with pytest.raises(ModeldiffError, match="nothing was written"):
+        draft_module.write_atomically(str(target), "after\n", force=True)
+    assert target.read_text() == "before\n"
+    assert sorted(os.listdir(tmp_path)) == ["m.model.yaml"]  # the temporary file is gone
+
+
+def test_output_into_a_missing_folder_is_bad_input(tmp_path):
+    (tmp_path / "star.sql").write_text(STAR)
+    code, _, stderr = run("draft", "--ddl", str(tmp_path / "star.sql"), "-o", str(tmp_path / "no" / "m.yaml"))
+    assert code == 2 and "no such folder" in stderr and not (tmp_path / "no").exists()
+
+
+def test_unwritable_folder_is_bad_input(tmp_path):
+    if os.geteuid() == 0:
+        pytest.skip("root writes anywhere")
+    (tmp_path / "star.sql").write_text(STAR)
+    locked = tmp_path / "locked"
+    locked.mkdir()
+    locked.chmod(0o500)
+    try:
+        code, _, stderr = run("draft", "--ddl", str(tmp_path / "star.sql"), "-o", str(locked / "m.yaml"))
+    finally:
+        locked.chmod(0o700)
+    assert code == 2 and "cannot write" in stderr and os.listdir(locked) == []
