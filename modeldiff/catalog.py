@@ -164,6 +164,17 @@ class DdlCatalog:
             first = _parse_error_text(error)
             raise ModeldiffError(f"{self.path}: cannot parse the DDL ({first}); fix the script or give "
                                  "--dialect") from None
+        try:
+            return self._read_statements(statements)
+        except _Unreadable as error:
+            raise ModeldiffError(f"{self.path}: {error}; fix the script") from None
+        except (AttributeError, TypeError, KeyError, IndexError) as error:  # a tree of a shape not foreseen
+            raise ModeldiffError(f"{self.path}: cannot read a statement of the script ({type(error).__name__}); "
+                                 "fix it, or give --dialect if it is written for one database") from None
+
+    def _read_statements(self, statements) -> tuple[tuple[CatalogTable, ...], tuple[str, ...]]:
+        from sqlglot import exp
+
         tables: dict[str, dict] = {}
         views: list[str] = []
         for statement in statements:
@@ -238,6 +249,10 @@ def _parse_error_text(error: Exception) -> str:
     return text.splitlines()[0] if text else type(error).__name__
 
 
+class _Unreadable(Exception):
+    """A statement sqlglot parsed but whose constraints cannot be read (the message says what)."""
+
+
 def _entry(name: str) -> dict:
     return {"name": name, "columns": [], "pk": (), "uniques": [], "fks": []}
 
@@ -257,10 +272,12 @@ def _reference(reference) -> tuple[str, tuple[str, ...]]:
     """(table, columns) a REFERENCES clause names; no columns: the referenced table's primary key."""
     from sqlglot import exp
 
-    target = reference.this
-    if isinstance(target, exp.Schema):
+    target = reference.this if reference is not None else None
+    if isinstance(target, exp.Schema) and isinstance(target.this, exp.Table):
         return target.this.name, _names(target.expressions)
-    return target.name, ()
+    if isinstance(target, exp.Table):
+        return target.name, ()
+    raise _Unreadable("a foreign key names no table after REFERENCES")
 
 
 def _table_constraint(entry: dict, item) -> None:
@@ -276,7 +293,7 @@ def _table_constraint(entry: dict, item) -> None:
         target = item.this
         entry["uniques"].append(_names(target.expressions) if isinstance(target, exp.Schema) else ())
     elif isinstance(item, exp.ForeignKey):
-        table, columns = _reference(item.args["reference"])
+        table, columns = _reference(item.args.get("reference"))
         entry["fks"].append(ForeignKey(_names(item.expressions), table, columns))
 
 

@@ -295,6 +295,12 @@ def _standby_and_names(links: list[DraftLink], kept: dict[str, tuple[CatalogTabl
 # --- writing the YAML ---------------------------------------------------------------------
 
 
+def _one_line(text: str) -> str:
+    """Text that stays inside one YAML comment: every kind of line break and space run one space, other
+    characters YAML does not allow (controls) as `?`."""
+    return "".join(c if c.isprintable() else "?" for c in " ".join(text.split()))
+
+
 def _name(text: str) -> str:
     return f'"{text}"' if text in _YAML_WORDS else text
 
@@ -312,7 +318,7 @@ def _names_value(columns: tuple[str, ...]) -> str:
 def render(result: Draft) -> str:
     """The draft as YAML text: header notes, tables, links, and the tables left out, commented out."""
     lines = [
-        f"# Drafted by `modeldiff draft` from {result.source}.",
+        f"# Drafted by `modeldiff draft` from {_one_line(result.source)}.",
         "# Review every comment starting `guess:`; the rest is what the catalog says.",
         "# Measures, roles and reports are yours to add.",
     ]
@@ -324,7 +330,7 @@ def render(result: Draft) -> str:
     if not result.tables and not result.left_out:
         lines.append("# No tables found: check --schema (and, for a DDL script, that it creates tables).")
     for note in result.notes:
-        lines.append(f"# Note: {note}.")
+        lines.append(f"# Note: {_one_line(note)}.")
     lines += ["", f"model: {_name(result.name)}", "format: 1", "", "tables:"]
     if not result.tables:
         lines[-1] = "tables: {}"
@@ -342,7 +348,7 @@ def render(result: Draft) -> str:
             if table.history["current"]:
                 lines.append(f"      current: {_name(table.history['current'])}")
         for note in table.notes:
-            lines.append(f"    # note: {note}")
+            lines.append(f"    # note: {_one_line(note)}")
         lines.append("    columns:" if table.columns else "    columns: {}")
         for name, type_ in table.columns:
             value = f"{{type: {type_}, unique: true}}" if name in table.unique else type_

@@ -222,6 +222,7 @@ def test_cli_never_overwrites_without_force(tmp_path):
     (None, "no such file"),
     ("CREATE TABLE (", "cannot parse the DDL"),
     ("CREATE TABLE call INTEGER PRIMARY KEY, x INT);", "cannot read the statement `CREATE TABLE call INTEGER"),
+    ("CREATE TABLE f (a INT, FOREIGN KEY (a));", "names no table after REFERENCES"),
     (b"\xff\xfe CREATE", "not UTF-8"),
 ])
 def test_cli_bad_ddl_exits_2_with_one_line_and_writes_nothing(tmp_path, content, what):
@@ -407,3 +408,14 @@ def test_unwritable_folder_is_bad_input(tmp_path):
     finally:
         locked.chmod(0o700)
     assert code == 2 and "cannot write" in stderr and os.listdir(locked) == []
+
+
+def test_names_with_line_breaks_stay_inside_their_comments(tmp_path):
+    # found by the mutated-DDL campaign: a quoted name spanning lines broke the YAML of a note
+    ddl = (STAR.replace("REFERENCES day_dim (day_key),\n  shop_key", "REFERENCES \"day\n  dim\u2028x\" (day_key),\n  shop_key")
+           + 'CREATE TABLE "bell\x07" (k INTEGER REFERENCES shop);')
+    text = draft_ddl(tmp_path, ddl)
+    model, findings = loaded(text)
+    assert errors(findings) == []
+    assert "# Note: foreign key sales(ship_day_key) -> day dim x(day_key) left out" in text
+    assert "table 'bell\\x07' left out" in text
