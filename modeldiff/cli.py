@@ -34,6 +34,8 @@ EXTRA_COMMANDS = (
      "evaluate a model's reports on data (Parquet, CSV or a DuckDB file) and print their numbers"),
     ("verify", "modeldiff.verify",
      "evaluate OLD and NEW on the same data: which numbers really move, and whether the data meets the change's preconditions"),
+    ("draft", "modeldiff.draft",
+     "write a first model file from a database's catalog (a DuckDB file or a DDL script): tables, keys, links, guessed kinds"),
 )
 
 
@@ -77,6 +79,10 @@ def cmd_check(args, stdout: TextIO) -> int:
     from modeldiff.render import check_out
 
     label, model, findings = check_spec(args.model, use_cache=not args.no_cache)
+    if args.db is not None or args.data is not None:  # the data-aware check (modeldiff.datacheck)
+        from modeldiff.datacheck import with_data_findings
+
+        findings = with_data_findings(model, findings, args.db, args.data, args.schema)
     if args.format == "json":
         check_out.as_json(model.name, findings, stdout)
     elif args.format == "github":
@@ -153,6 +159,9 @@ def build_parser(argv: Sequence[str] = ()) -> argparse.ArgumentParser:
     p.add_argument("--format", choices=FORMATS + ("github",), default="text")
     p.add_argument("--strict", action="store_true", help="exit 1 when there are warnings")
     p.add_argument("--no-cache", action="store_true", help="read and check afresh, ignoring and not writing the cache")
+    p.add_argument("--db", metavar="FILE.duckdb", help="also check the model against this DuckDB file's tables (read-only)")
+    p.add_argument("--data", metavar="DIR", help="also check the model against <table>.parquet or <table>.csv in DIR")
+    p.add_argument("--schema", metavar="NAME", help="with --db: the schema holding the tables (default: main)")
     p.set_defaults(run=cmd_check)
 
     p = sub.add_parser("diff", help="compare two revisions: changes, and what could return different numbers")

@@ -337,24 +337,32 @@ def _csv_column(connection, staged: str, table: Table, name: str, stored: str, o
     """The SELECT item converting one text column of a CSV file; raises on the first bad value."""
     model_type = table.columns[name].type
     value = q(stored)
-    if model_type == "decimal":
-        scale = connection.execute(
-            f"SELECT coalesce(max(length(regexp_extract(trim({value}), '\\.([0-9]+)$', 1))), 0) FROM {staged}"
-        ).fetchone()[0]
-        target = f"DECIMAL(38, {min(int(scale), 18)})"
-    else:
-        target = CSV_TYPES[model_type]
-    cast = f"TRY_CAST(trim({value}) AS {target})" if model_type != "text" else value
-    if model_type != "text":
-        bad = connection.execute(
-            f"SELECT _n, _v FROM (SELECT row_number() OVER () AS _n, {value} AS _v FROM {staged}) "
-            f"WHERE _v IS NOT NULL AND trim(_v) <> '' AND TRY_CAST(trim(_v) AS {target}) IS NULL ORDER BY _n LIMIT 1"
-        ).fetchone()
-        if bad is not None:
-            raise ModeldiffError(f"{origin.shown}: row {bad[0]} has {bad[1]!r} in column {name}, which is not "
-                                 f"{_a(model_type)}; fix the value or the column's type")
-        cast = f"CASE WHEN trim({value}) = '' THEN NULL ELSE {cast} END"
-    return f"{cast} AS {q(name)}"
+    if model_type == "text":
+        return f"{value} AS {q(name)}"
+    target = _csv_target(connection, staged, value, model_type)
+    bad = connection.execute(
+        f"SELECT _n, _v FROM (SELECT row_number() OVER () AS _n, {value} AS _v FROM {staged}) "
+        f"WHERE _v IS NOT NULL AND trim(_v) <> '' AND TRY_CAST(trim(_v) AS {target}) IS NULL ORDER BY _n LIMIT 1"
+    ).fetchone()
+    if bad is not None:
+        raise ModeldiffError(f"{origin.shown}: row {bad[0]} has {bad[1]!r} in column {name}, which is not "
+                             f"{_a(model_type)}; fix the value or the column's type")
+    return f"{_csv_cast(value, target)} AS {q(name)}"
+
+
+def _csv_target(connection, staged: str, value: str, model_type: str) -> str:
+    """The DuckDB type a CSV text column of `model_type` converts to (a decimal: with the largest scale found)."""
+    if model_type != "decimal":
+        return CSV_TYPES[model_type]
+    scale = connection.execute(
+        f"SELECT coalesce(max(length(regexp_extract(trim({value}), '\\.([0-9]+)$', 1))), 0) FROM {staged}"
+    ).fetchone()[0]
+    return f"DECIMAL(38, {min(int(scale), 18)})"
+
+
+def _csv_cast(value: str, target: str) -> str:
+    """A CSV text value converted to `target`: an empty field is NULL, a value that does not convert NULL too."""
+    return f"CASE WHEN trim({value}) = '' THEN NULL ELSE TRY_CAST(trim({value}) AS {target}) END"
 
 
 def _a(model_type: str) -> str:
@@ -389,3 +397,204 @@ def _no_duplicates(connection, table: Table, columns, origin: _Origin, what: str
 
 def _names(columns) -> str:
     return columns[0] if len(columns) == 1 else "(" + ", ".join(columns) + ")"
+
+
+# --- a database's catalog and its tables as they are: read-only and locked ---------------
+#
+# For `modeldiff draft --db` (modeldiff.catalog) and the data-aware `modeldiff check
+# --db/--data` (modeldiff.datacheck). Nothing here refuses bad data: these readers hand
+# the catalog and the rows over as they are, and the callers turn what they find into a
+# draft or into findings. Every connection is opened read-only (a database file) or
+# in memory (a data folder, whose files are copied in first), and then locked: external
+# access off, extensions neither loaded nor installed, configuration locked, so neither
+# the file's stored views nor SQL built from a model can read or write anything else.
+
+LOCKED_CONFIG = {"autoload_known_extensions": False, "autoinstall_known_extensions": False}
+
+
+def _lock(connection) -> None:
+    """External access off and the configuration locked, from now on for this connection."""
+    connection.execute("SET enable_external_access = false")
+    connection.execute("SET lock_configuration = true")
+
+
+def open_locked_database(db_file: str):
+    """A DuckDB connection to `db_file`, read-only and locked; raises ModeldiffError (exit 2) if it cannot be opened."""
+    import duckdb
+
+    path = os.fspath(db_file)
+    if not os.path.isfile(path):
+        raise ModeldiffError(f"{path}: no such database file; give an existing DuckDB file")
+    try:
+        connection = duckdb.connect(path, read_only=True, config=dict(LOCKED_CONFIG))
+    except duckdb.Error as error:
+        raise ModeldiffError(f"{path}: cannot open it as a DuckDB database ({_first_line(error)}); "
+                             "give a DuckDB file") from None
+    try:
+        _lock(connection)
+    except BaseException:
+        connection.close()
+        raise
+    return connection
+
+
+def duckdb_catalog(db_file: str, schema: str = "main") -> tuple[list[tuple], list[tuple], list[str]]:
+    """The catalog of one schema of a DuckDB file, as plain rows.
+
+    Returns (columns, constraints, views): columns as (table, column, type)
+    in the order the tables were created, base tables only; constraints as (table,
+    type, columns, referenced table, referenced columns) for PRIMARY KEY,
+    UNIQUE and FOREIGN KEY, in the catalog's order; the names of the views.
+    """
+    import duckdb
+
+    connection = open_locked_database(db_file)
+    try:
+        columns = connection.execute(
+            "SELECT c.table_name, c.column_name, c.data_type FROM duckdb_columns() c "
+            "JOIN duckdb_tables() t ON t.table_oid = c.table_oid "
+            "WHERE c.database_name = current_database() AND c.schema_name = $schema "
+            "ORDER BY t.table_oid, c.column_index",
+            {"schema": schema}).fetchall()
+        constraints = connection.execute(
+            "SELECT table_name, constraint_type, constraint_column_names, referenced_table, "
+            "referenced_column_names FROM duckdb_constraints() "
+            "WHERE database_name = current_database() AND schema_name = $schema "
+            "AND constraint_type IN ('PRIMARY KEY', 'UNIQUE', 'FOREIGN KEY') "
+            "ORDER BY table_name, constraint_index", {"schema": schema}).fetchall()
+        views = [row[0] for row in connection.execute(
+            "SELECT table_name FROM information_schema.tables WHERE table_catalog = current_database() "
+            "AND table_schema = $schema AND table_type = 'VIEW' ORDER BY table_name", {"schema": schema}).fetchall()]
+    except duckdb.Error as error:
+        raise ModeldiffError(f"{db_file}: cannot read its catalog ({_first_line(error)})") from None
+    finally:
+        connection.close()
+    return ([(t, c, ty) for t, c, ty in columns],
+            [(t, kind, tuple(cols or ()), ref, tuple(ref_cols or ())) for t, kind, cols, ref, ref_cols in constraints],
+            views)
+
+
+def type_fits(model_type: str, duck_type: str) -> bool:
+    """Whether a column stored as `duck_type` holds values of the model's `model_type` (as `eval` accepts them)."""
+    return _compatible(model_type, duck_type)
+
+
+class RawTables:
+    """The tables of a DuckDB file or a data folder, as they are, behind a locked connection.
+
+    `open(tables, db_file=...)` reads the file's tables in place; `open(tables,
+    data_dir=...)` copies `<table>.parquet` or `<table>.csv` of each wanted
+    table into memory first (a CSV file is read as text, each column of the
+    model converted to its declared type; the values that do not convert are
+    kept in `bad_values`). `columns(table)` says which columns a table has
+    (None: no such table); `rows(sql)` runs a query. The SQL is the caller's:
+    identifiers quoted with `engine.q`, values passed as parameters.
+    """
+
+    def __init__(self, connection, relations: dict[str, str], shown: str) -> None:
+        self.connection = connection
+        self.relations = relations  # table name -> quoted relation, for the tables found
+        self.shown = shown
+        self.bad_values: dict[tuple[str, str], tuple[int, list[str]]] = {}
+        self._columns: dict[str, dict[str, tuple[str, str]]] = {}
+
+    @classmethod
+    def open(cls, model: Model, db_file: str | None = None, data_dir: str | None = None,
+             schema: str = "main") -> "RawTables":
+        import duckdb
+
+        if db_file is not None:
+            connection = open_locked_database(db_file)
+            try:
+                found = {name.lower(): name for (name,) in connection.execute(
+                    "SELECT table_name FROM information_schema.tables WHERE table_catalog = current_database() "
+                    "AND table_schema = $schema", {"schema": schema}).fetchall()}
+            except BaseException:
+                connection.close()
+                raise
+            relations = {t: f"{q(schema)}.{q(found[t.lower()])}" for t in model.tables if t.lower() in found}
+            return cls(connection, relations, os.fspath(db_file))
+        if data_dir is None or not os.path.isdir(data_dir):
+            raise ModeldiffError(f"{data_dir}: no such folder; give the folder holding <table>.parquet or <table>.csv")
+        connection = duckdb.connect(":memory:", config=dict(LOCKED_CONFIG))
+        raw = cls(connection, {}, os.fspath(data_dir))
+        try:
+            for name in sorted(model.tables):
+                path = _data_file(data_dir, name)
+                if path is not None:
+                    raw._copy_in(model.tables[name], path)
+            _lock(connection)
+        except duckdb.Error as error:
+            connection.close()
+            raise ModeldiffError(f"cannot read the data in {data_dir}: {_first_line(error)}") from None
+        except BaseException:
+            connection.close()
+            raise
+        return raw
+
+    def _copy_in(self, table: Table, path: str) -> None:
+        target = q(f"_raw_{table.name}")
+        if path.endswith(".parquet"):
+            self.connection.execute(f"CREATE TABLE {target} AS SELECT * FROM read_parquet({_literal(path)})")
+            self.relations[table.name] = target
+            return
+        staged = q(f"_csv_{table.name}")
+        self.connection.execute(f"CREATE TABLE {staged} AS SELECT * FROM "
+                                f"read_csv({_literal(path)}, header = true, all_varchar = true)")
+        stored = {row[0].lower(): row[0] for row in self.connection.execute(f"DESCRIBE {staged}").fetchall()}
+        selects = []
+        for lower, name in stored.items():
+            column = next((c for c in table.columns.values() if c.name.lower() == lower), None)
+            value = q(name)
+            if column is None or column.type == "text":
+                selects.append(value)
+                continue
+            cast = _csv_cast(value, _csv_target(self.connection, staged, value, column.type))
+            bad = self.connection.execute(
+                f"SELECT {value} FROM {staged} WHERE trim({value}) <> '' AND {cast} IS NULL").fetchall()
+            if bad:
+                self.bad_values[(table.name, column.name)] = (len(bad), [row[0] for row in bad[:_SAMPLE]])
+            selects.append(f"{cast} AS {value}")
+        self.connection.execute(f"CREATE TABLE {target} AS SELECT {', '.join(selects)} FROM {staged}")
+        self.connection.execute(f"DROP TABLE {staged}")
+        self.relations[table.name] = target
+
+    def __enter__(self) -> "RawTables":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def close(self) -> None:
+        self.connection.close()
+
+    def columns(self, table: str) -> dict[str, tuple[str, str]] | None:
+        """Column name (lower case) -> (name as stored, DuckDB type) of a model table; None when it is missing."""
+        relation = self.relations.get(table)
+        if relation is None:
+            return None
+        if table not in self._columns:
+            rows = self.rows(f"DESCRIBE SELECT * FROM {relation}")
+            self._columns[table] = {row[0].lower(): (row[0], row[1]) for row in rows}
+        return self._columns[table]
+
+    def rows(self, sql: str, params: dict | None = None) -> list[tuple]:
+        import duckdb
+
+        try:
+            return self.connection.execute(sql, params or {}).fetchall()
+        except duckdb.Error as error:
+            raise ModeldiffError(f"cannot read {self.shown}: {_first_line(error)}") from None
+
+
+_SAMPLE = 5  # values kept as examples of a problem
+
+
+def _data_file(data_dir: str, name: str) -> str | None:
+    """`<name>.parquet` or `<name>.csv` in data_dir (Parquet first), a regular file inside the folder; else None."""
+    root = os.path.realpath(data_dir)
+    for suffix in ("parquet", "csv"):
+        path = os.path.join(data_dir, f"{name}.{suffix}")
+        if os.path.isfile(path) and os.path.dirname(os.path.realpath(path)) == root:
+            return path
+    return None

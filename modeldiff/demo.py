@@ -4,7 +4,8 @@
 2. build a throw-away git repository with two commits (the model, then the
    same model with one link flipped to two-way) and diff across them;
 3. generate the seeded bike-share data into a temporary folder and verify the
-   change on it: how the flipped link moves the stock numbers by day.
+   change on it: how the flipped link moves the stock numbers by day;
+4. check the model against that data (the data-aware check).
 """
 
 from __future__ import annotations
@@ -14,6 +15,7 @@ import shutil
 import subprocess
 import sys
 import tempfile
+from contextlib import contextmanager
 from pathlib import Path
 
 from modeldiff.cli import main as modeldiff
@@ -65,6 +67,7 @@ def run() -> int:
     finally:
         shutil.rmtree(work, ignore_errors=True)
     _verify_step(first, second)
+    _data_check_step(first)
     return 0
 
 
@@ -76,16 +79,31 @@ def _shown(path: Path) -> str:
 
 def _verify_step(first: Path, second: Path) -> None:
     """Step 3: both revisions evaluated on generated data (modeldiff.demo_data)."""
-    from modeldiff.demo_data import write_demo_data
-
-    data = Path(tempfile.mkdtemp(prefix="modeldiff-demo-data-"))
-    try:
-        write_demo_data(data)
+    with _generated_data() as data:
         _banner("3. modeldiff verify OLD NEW --data DIR   (on generated bike-share data, 60 days)")
         print("trips_start_station is now two-way, so a day reaches stations through its trips: a station's stock "
               "counts on a day only if a trip started there (the rest falls in '(no match)').", flush=True)
         code = modeldiff(["verify", _shown(first), _shown(second), "--data", str(data), "--limit", "3"])
         print(f"(exit code {code}: 0 nothing moved, 1 numbers moved, 3 a precondition fails or a role sees more rows)")
+
+
+def _data_check_step(model: Path) -> None:
+    """Step 4: the data-aware check of the model on the generated data (modeldiff.datacheck)."""
+    with _generated_data() as data:
+        _banner("4. modeldiff check MODEL --data DIR   (the model against the data: tables, types, keys, links, history)")
+        code = modeldiff(["check", _shown(model), "--data", str(data)])
+        print(f"(exit code {code}: 0 the data fits the model, 3 it does not)")
+
+
+@contextmanager
+def _generated_data():
+    """A temporary folder holding the seeded bike-share data (modeldiff.demo_data), removed afterwards."""
+    from modeldiff.demo_data import write_demo_data
+
+    data = Path(tempfile.mkdtemp(prefix="modeldiff-demo-data-"))
+    try:
+        write_demo_data(data)
+        yield data
     finally:
         shutil.rmtree(data, ignore_errors=True)
 

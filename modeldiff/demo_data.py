@@ -50,6 +50,44 @@ TABLE_COLUMNS: dict[str, tuple[str, ...]] = {
     "district_access": ("staff_email", "district_key"),
 }
 
+# The warehouse schema the demo data would live in: the tables of TABLE_COLUMNS with
+# their SQL types, primary keys, unique business keys and foreign keys (parents
+# first, so a database that enforces foreign keys can load the tables in this
+# order). `modeldiff draft --ddl` reads it; tests/test_draft_bikeshare.py loads
+# the generated CSV files into a DuckDB file created from it and drafts from that.
+WAREHOUSE_DDL = """\
+CREATE TABLE calendar (
+  day_key INTEGER PRIMARY KEY, date DATE, year INTEGER, month INTEGER, month_name VARCHAR,
+  week_start DATE, weekday VARCHAR, is_weekend BOOLEAN);
+CREATE TABLE districts (district_key INTEGER PRIMARY KEY, name VARCHAR, region VARCHAR);
+CREATE TABLE stations (
+  station_key INTEGER PRIMARY KEY, name VARCHAR,
+  district_key INTEGER REFERENCES districts (district_key), docks INTEGER);
+CREATE TABLE bikes (bike_key INTEGER PRIMARY KEY, serial_number VARCHAR UNIQUE, bike_type VARCHAR, commissioned_on DATE);
+CREATE TABLE riders (rider_key INTEGER PRIMARY KEY, plan VARCHAR, age_band VARCHAR, joined_on DATE);
+CREATE TABLE parts (part_key INTEGER PRIMARY KEY, part_code VARCHAR UNIQUE, name VARCHAR, category VARCHAR);
+CREATE TABLE mechanics (
+  mechanic_key INTEGER PRIMARY KEY, mechanic_code VARCHAR, display_name VARCHAR, grade VARCHAR,
+  depot_district_key INTEGER REFERENCES districts (district_key),
+  valid_from DATE, valid_to DATE, is_current BOOLEAN);
+CREATE TABLE trips (
+  trip_key INTEGER PRIMARY KEY,
+  start_day_key INTEGER REFERENCES calendar (day_key), end_day_key INTEGER REFERENCES calendar (day_key),
+  start_station_key INTEGER REFERENCES stations (station_key), bike_key INTEGER REFERENCES bikes (bike_key),
+  rider_key INTEGER REFERENCES riders (rider_key), minutes INTEGER, fare DECIMAL(10, 2), status VARCHAR);
+CREATE TABLE stock_levels (
+  day_key INTEGER REFERENCES calendar (day_key), station_key INTEGER REFERENCES stations (station_key),
+  part_key INTEGER REFERENCES parts (part_key), on_hand INTEGER, unit_cost DECIMAL(10, 2),
+  PRIMARY KEY (day_key, station_key, part_key));
+CREATE TABLE repairs (
+  repair_key INTEGER PRIMARY KEY, day_key INTEGER REFERENCES calendar (day_key),
+  bike_key INTEGER REFERENCES bikes (bike_key), mechanic_key INTEGER REFERENCES mechanics (mechanic_key),
+  current_mechanic_key INTEGER REFERENCES mechanics (mechanic_key), repair_type VARCHAR, cost DECIMAL(10, 2));
+CREATE TABLE district_access (
+  staff_email VARCHAR, district_key INTEGER REFERENCES districts (district_key),
+  PRIMARY KEY (staff_email, district_key));
+"""
+
 FIRST_DAY = date(2025, 4, 7)  # a Monday
 DAYS = 60
 TRIPS = 420

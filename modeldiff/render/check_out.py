@@ -12,6 +12,8 @@ def finding_json(f: Finding) -> dict:
            "paths": [list(p) for p in f.paths]}
     if f.pos is not None:
         out["location"] = {"file": f.pos.file, "line": f.pos.line, "column": f.pos.column}
+    if hasattr(f, "json_extra"):  # a finding about the data (modeldiff.datacheck): its count and examples
+        out.update(f.json_extra())
     return out
 
 
