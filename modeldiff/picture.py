@@ -9,8 +9,9 @@ inline SVG, and the diff reports (Markdown, HTML) call `diff_picture`.
 
 In a diff, changed links are drawn red (Mermaid `linkStyle <index>`, where
 the index is the arrow's 0-based definition order, counted here as the arrows
-are emitted), tables on new filter paths get the `newpath` class, and removed
-links are drawn red and dotted. A model of more than `NEIGHBOURHOOD_LIMIT`
+are emitted), the tables a filter now reaches along a new path (the ends of
+`path.added` pairs, not every table such a path passes) get the `newpath`
+class, and removed links are drawn red and dotted. A model of more than `NEIGHBOURHOOD_LIMIT`
 tables is cut down to the tables within one link of what changed, and the
 caption says so.
 """
@@ -135,11 +136,14 @@ def _neighbourhood(model, focus: set[str], removed: Sequence) -> set[str]:
 
 def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequence[str]] = (),
             removed_links: Iterable = (), setting=None, setting_label: str = "default setting",
-            focus_tables: Iterable[str] = (), limit: int = NEIGHBOURHOOD_LIMIT) -> Picture:
+            focus_tables: Iterable[str] = (), limit: int = NEIGHBOURHOOD_LIMIT,
+            reached: Iterable[str] = ()) -> Picture:
     """The picture of `model` (in `setting`, default: the model's own links).
 
     `highlight_links`: names of links drawn red. `new_paths`: filter paths (link
-    names) whose tables get the `newpath` class. `removed_links`: Link records
+    names) whose tables get the `newpath` class; `reached`: tables that get it
+    themselves (a diff marks only the tables a filter now reaches along a new
+    path, not every table such a path passes). `removed_links`: Link records
     of the old revision, drawn red and dotted (names are ignored: their tables
     are unknown). When the model has more than `limit` tables and something is
     highlighted, only the tables within one link of it are kept.
@@ -153,6 +157,7 @@ def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequ
                      key=lambda l: l.name)
     marked = {t for path in _paths(new_paths) for name in path if name in model.links
               for t in (model.links[name].from_table, model.links[name].to_table)}
+    marked |= {t for t in reached if t in model.tables}
 
     tables = set(model.tables)
     for link in list(model.links.values()) + removed:
@@ -183,8 +188,14 @@ def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequ
 
 
 def diff_picture(result, limit: int = NEIGHBOURHOOD_LIMIT) -> Picture | None:
-    """The new revision of a `DiffResult`, with what changed marked; None when no link or path changed."""
-    highlight, removed_names, new_paths, focus = set(), set(), [], set()
+    """The new revision of a `DiffResult`, with what changed marked; None when no link or path changed.
+
+    Changed links are red; the tables marked are the ends of the new filter
+    paths (`paths.S->T` of a `path.added` change marks T: a filter on S now
+    reaches it a new way), not every table those paths pass through, which
+    after one link changed can be the whole model.
+    """
+    highlight, removed_names, reached, focus = set(), set(), set(), set()
     for change in result.changes:
         section, _, rest = change.subject.partition(".")
         name = rest.split(".")[0]
@@ -192,14 +203,14 @@ def diff_picture(result, limit: int = NEIGHBOURHOOD_LIMIT) -> Picture | None:
             removed_names.add(name)
         elif change.kind.startswith("link."):
             highlight.add(name)
-        elif change.kind == "path.added" and isinstance(change.after, (list, tuple)):
-            new_paths += [p for p in change.after if isinstance(p, (list, tuple))]
+        elif change.kind == "path.added" and "->" in rest:
+            reached.add(rest.split("->", 1)[1])
         elif section == "tables" and change.kind.startswith("table."):
             focus.add(name)
     removed = [result.old.links[n] for n in sorted(removed_names) if n in result.old.links]
-    if not (highlight or removed or new_paths):
+    if not (highlight or removed or reached):
         return None
-    return picture(result.new, highlight, new_paths, removed, focus_tables=focus, limit=limit)
+    return picture(result.new, highlight, (), removed, focus_tables=focus, limit=limit, reached=reached)
 
 
 # --- Mermaid ------------------------------------------------------------------------------------

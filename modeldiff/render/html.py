@@ -102,7 +102,7 @@ _LEGEND = ('<p class="legend"><span><span class="swatch" style="background:#fff4
            '<span><span class="swatch" style="background:#e8f1fb;border-color:#3b6ea5;border-radius:5px"></span>dimension</span>'
            '<span><span class="swatch" style="background:#eaf6ea;border-color:#3f8f3f"></span>bridge</span>'
            '<span><span class="swatch" style="background:#f5ecfa;border-color:#7d4a9e"></span>access</span>'
-           '<span><span class="swatch" style="border-color:#d33;border-width:3px"></span>table on a new filter path</span>'
+           '<span><span class="swatch" style="border-color:#d33;border-width:3px"></span>table a filter now reaches along a new path</span>'
            '<span style="color:#d33">━ changed link</span><span>┅ standby or removed link</span>'
            "<span>arrows point the way a filter travels</span></p>")
 
