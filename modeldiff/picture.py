@@ -252,11 +252,11 @@ def mermaid(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequ
 
 # --- Graphviz dot and text ---------------------------------------------------------------------------
 
-_DOT_NODE = {"fact": 'shape=box, style=filled, fillcolor="#fff4e0"',
-             "dimension": 'shape=box, style="rounded,filled", fillcolor="#e8f1fb"',
-             "bridge": 'shape=hexagon, style=filled, fillcolor="#eaf6ea"',
-             "access": 'shape=parallelogram, style=filled, fillcolor="#f5ecfa"',
-             "missing": 'shape=box, style=dashed'}
+_DOT_NODE = {"fact": 'shape=box, style=filled, fillcolor="#fff4e0", color="#b7791f"',
+             "dimension": 'shape=box, style="rounded,filled", fillcolor="#e8f1fb", color="#3b6ea5"',
+             "bridge": 'shape=hexagon, style=filled, fillcolor="#eaf6ea", color="#3f8f3f"',
+             "access": 'shape=parallelogram, style=filled, fillcolor="#f5ecfa", color="#7d4a9e"',
+             "missing": 'shape=box, style=dashed, color="#999999"'}
 
 
 def _dot_string(text: str) -> str:
