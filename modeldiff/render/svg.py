@@ -47,6 +47,7 @@ _FILL = {"fact": "#fff4e0", "dimension": "#e8f1fb", "bridge": "#eaf6ea", "access
 _STROKE = {"fact": "#b7791f", "dimension": "#3b6ea5", "bridge": "#3f8f3f", "access": "#7d4a9e", "missing": "#999999"}
 RED = "#d33"
 GREY = "#555"
+PURPLE = "#6a1b9a"  # picture.ROLE_COLOUR: a role's tables and the links its filters travel
 
 
 @dataclass(frozen=True)
@@ -442,7 +443,7 @@ def _f(v: float) -> str:
 
 def _markers(prefix: str) -> str:
     out = []
-    for name, colour in (("grey", GREY), ("red", RED)):
+    for name, colour in (("grey", GREY), ("red", RED), ("role", PURPLE)):
         out.append(f'<marker id="{prefix}-{name}" viewBox="0 0 10 10" refX="9" refY="5" markerWidth="9" '
                    f'markerHeight="9" markerUnits="userSpaceOnUse" orient="auto-start-reverse"><path d="M0,0 L10,5 L0,10 z" fill="{colour}"/></marker>')
     return "<defs>" + "".join(out) + "</defs>"
@@ -470,17 +471,18 @@ def _label(a) -> str:
 
 def _arrow(a, segments, spot: tuple[float, float], prefix: str) -> str:
     """One arrow with its label, whose baseline centre is `spot`."""
-    colour = RED if a.red else GREY
-    marker = f"url(#{prefix}-{'red' if a.red else 'grey'})"
-    attrs = [f'd="{_path_d(segments)}"', 'fill="none"', f'stroke="{colour}"', f'stroke-width="{3 if a.red else 1.4}"',
-             f'marker-end="{marker}"']
+    tone = "red" if a.red else "role" if a.travelled else "grey"
+    colour = {"red": RED, "role": PURPLE, "grey": GREY}[tone]
+    marker = f"url(#{prefix}-{tone})"
+    attrs = [f'd="{_path_d(segments)}"', 'fill="none"', f'stroke="{colour}"',
+             f'stroke-width="{1.4 if tone == "grey" else 3}"', f'marker-end="{marker}"']
     if a.style == "two-way":
         attrs.append(f'marker-start="{marker}"')
     if a.style in ("standby", "removed"):
         attrs.append('stroke-dasharray="5 4"')
     what = {"one-way": "one-way", "two-way": "two-way", "standby": "carries no filter here",
             "removed": "removed"}[a.style]
-    cls = "edge changed" if a.red else "edge"
+    cls = "edge changed" if a.red else "edge travelled" if a.travelled else "edge"
     return (f'<g class="{cls}" data-link="{escape(a.link)}" data-index="{a.index}">'
             f"<title>{escape(a.link)}: a filter on {escape(a.src)} restricts {escape(a.dst)} ({what})</title>"
             f'<path {" ".join(attrs)}/>'
@@ -507,9 +509,12 @@ def _outline(kind: str, box: Box) -> str:
 
 def _node(n, box: Box) -> str:
     stroke, width = (RED, 3) if n.on_new_path else (_STROKE.get(n.kind, GREY), 1.5)
+    if n.role:
+        stroke, width = PURPLE, 5 if n.role == "filter" else 3
     dash = ' stroke-dasharray="4 4"' if n.kind == "missing" else ""
     title = f"{n.table} ({n.kind})" + (f": {n.description}" if n.description else "")
-    cls = "node newpath" if n.on_new_path else "node"
+    title += {"filter": "; the role filters it", "restricted": "; the role's filters restrict it"}.get(n.role, "")
+    cls = "node" + (" newpath" if n.on_new_path else "") + (f" role-{n.role}" if n.role else "")
     return (f'<g class="{cls}" data-table="{escape(n.table)}"><title>{escape(title)}</title>'
             + _outline(n.kind, box)
             + f'fill="{_FILL.get(n.kind, "#fff")}" stroke="{stroke}" stroke-width="{width}"{dash}/>'
