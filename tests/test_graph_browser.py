@@ -27,6 +27,7 @@ FIXTURES = Path(__file__).parent / "fixtures"
 EXAMPLE = ROOT / "examples" / "bikeshare.model.yaml"
 REVISION_2 = ROOT / "examples" / "revision-2" / "bikeshare.model.yaml"
 CLINIC = FIXTURES / "clinic.model.yaml"
+SCENARIOS = Path(__file__).parent / "impact_scenarios"
 FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
          "--disable-background-networking", "--disable-component-update", "--disable-sync"]
 
@@ -100,6 +101,8 @@ def pictures() -> dict[str, object]:
     found["bikeshare diff"] = picture.diff_picture(analyse(old, new, (), ()))
     clinic = load_path(str(CLINIC)).model
     found["clinic setting"] = picture.picture(clinic, setting=picture.resolve(clinic, "measure:appointment_count")[0])
+    found["clinic role"] = picture.role_picture(clinic, "clinic_staff")
+    found["clinic security"] = picture.picture(clinic, security=True)
     return found
 
 
@@ -138,18 +141,27 @@ def test_the_builtin_layout_keeps_every_table_in_view(tmp_path):
     assert found == {name: [] for name in found}
 
 
+def report_body(old: Path, new: Path) -> tuple[str, str]:
+    """(style element, body) of `diff OLD NEW --format html`."""
+    page = io.StringIO()
+    cli.main(["diff", str(old), str(new), "--format", "html"], stdout=page, stderr=io.StringIO())
+    report = page.getvalue()
+    css = report[report.index("<style>"):report.index("</style>") + len("</style>")]
+    return css, report[report.index("<body>") + len("<body>"):report.index("</body>")]
+
+
 def test_the_html_report_shows_every_table_within_the_page(tmp_path):
-    # a report in a window narrower than the drawing: the drawing shrinks to its frame instead of being cut off
+    # reports in a window narrower than the drawings: each drawing shrinks to its frame instead of being cut
+    # off, the role views too (two side by side)
     program("dot")
     text = CLINIC.read_text().replace("to: patients.patient_key}", "to: patients.patient_key, flow: two-way}")
     new_path = tmp_path / "clinic.model.yaml"
     new_path.write_text(text)
-    page = io.StringIO()
-    cli.main(["diff", str(CLINIC), str(new_path), "--format", "html"], stdout=page, stderr=io.StringIO())
-    report = page.getvalue()
-    css = report[report.index("<style>"):report.index("</style>") + len("</style>")]
-    body = report[report.index("<body>") + len("<body>"):report.index("</body>")]
-    drawings = measure(tmp_path, f'{css}<div data-name="report">{body}</div>', width=900)
-    assert len(drawings) >= 1
+    css, clinic = report_body(CLINIC, new_path)
+    security = SCENARIOS / "security_flow_one_way"
+    _, secured = report_body(security / "old.model.yaml", security / "new.model.yaml")
+    drawings = measure(tmp_path, f'{css}<div data-name="clinic">{clinic}</div><div data-name="security">{secured}</div>',
+                       width=900)
+    assert [d["name"] for d in drawings] == ["clinic", "security", "security", "security"]  # graph, before, after
     for d in drawings:
         assert d["box"][2] - d["box"][0] < 900 and problems(d) == [], d

@@ -72,7 +72,8 @@ def test_report_is_well_formed_with_summary_changes_impacts_and_graph():
     assert page.startswith("<!DOCTYPE html>")
     p = parsed(page)
     tags = [t for t, _ in p.seen]
-    assert tags.count("svg") == 1
+    assert [a.get("class") for t, a in p.seen if t == "svg"] == [
+        "modeldiff-graph", "swatch-fact", "swatch-dimension", "swatch-bridge", "swatch-access"]  # graph, legend
     tables = [a.get("class") for t, a in p.seen if t == "table"]
     assert tables == ["summary", "changes"]
     text = "".join(p.text)
@@ -81,6 +82,11 @@ def test_report_is_well_formed_with_summary_changes_impacts_and_graph():
     assert changed == ["trips_start_station"]
     assert "graph LR" in text  # the Mermaid source, folded in <details>
     assert tags.index("details") > tags.index("svg")
+    # the legend draws each kind's shape as the graph does: a hexagon for a bridge, a parallelogram for access
+    legend = page[page.index('<p class="legend">'):]
+    assert re.search(r'class="swatch-bridge".*?<polygon points="(\S+ ){5}\S+"', legend)
+    assert re.search(r'class="swatch-access".*?<polygon points="(\S+ ){3}\S+"', legend)
+    assert re.search(r'class="swatch-dimension".*?<rect [^>]*rx="6"', legend)
 
 
 def test_report_loads_nothing_from_the_network():
@@ -145,3 +151,26 @@ def test_report_renders_in_headless_chromium(tmp_path):
     dom = subprocess.run([*base, "--dump-dom", page.as_uri()], capture_output=True, text=True, timeout=120,
                          check=False).stdout
     assert "<svg" in dom and 'class="changes"' in dom and 'data-link="trips_start_station"' in dom
+
+
+def test_a_security_change_shows_its_role_before_and_after():
+    page = html_of(*(str(SCENARIOS / "security_flow_one_way" / f) for f in ("old.model.yaml", "new.model.yaml")))
+    p = parsed(page)
+    assert "Row security, role by role" in page
+    heads = re.findall(r'<h4 class="role-view">(.*?)</h4>', page)
+    assert heads == ["Role <code>depot_staff</code> (exposed: districts, mechanics, repairs, station_parts, stations, "
+                     "stock_levels, trips)"]
+    figures = [a.get("class") for t, a in p.seen if t == "figure"]
+    assert figures[-2:] == ["role-before", "role-after"]
+    before = page[page.index('class="role-before"'):page.index('class="role-after"')]
+    after = page[page.index('class="role-after"'):]
+    # before, the role's filter on district_access reached districts and on; after, it stops there
+    assert 'class="node role-restricted" data-table="districts"' in before
+    assert 'data-table="districts"' in after and 'class="node role-restricted" data-table="districts"' not in after
+    assert 'class="node role-filter" data-table="district_access"' in after
+    assert "which restrict 7 more tables" in before and "which restrict 0 more tables" in after
+
+
+def test_no_security_change_no_role_view():  # twin: a flow change that moves no role's rows
+    page = html_of(str(EXAMPLE), str(REVISION_2))
+    assert "Row security, role by role" not in page and "role-before" not in page and "role-view" not in page

@@ -493,18 +493,27 @@ def _arrow(a, segments, spot: tuple[float, float], prefix: str) -> str:
 SLANT = 10  # px: a hexagon's point, a parallelogram's lean
 
 
-def _outline(kind: str, box: Box) -> str:
+def _outline(kind: str, box: Box, slant: float = SLANT, round_rx: float = 12) -> str:
     """The shape of a table's kind (docs/graph.md): fact rectangle, dimension rounded, bridge hexagon, access parallelogram."""
     x, y, w, h = box.x, box.y, box.w, box.h
     if kind == "bridge":
-        corners = ((x + SLANT, y), (x + w - SLANT, y), (x + w, y + h / 2), (x + w - SLANT, y + h), (x + SLANT, y + h),
+        corners = ((x + slant, y), (x + w - slant, y), (x + w, y + h / 2), (x + w - slant, y + h), (x + slant, y + h),
                    (x, y + h / 2))
     elif kind == "access":
-        corners = ((x + SLANT, y), (x + w, y), (x + w - SLANT, y + h), (x, y + h))
+        corners = ((x + slant, y), (x + w, y), (x + w - slant, y + h), (x, y + h))
     else:
-        rx = 12 if kind == "dimension" else 3
+        rx = round_rx if kind == "dimension" else 3
         return f'<rect x="{_f(x)}" y="{_f(y)}" width="{_f(w)}" height="{_f(h)}" rx="{rx}" '
     return '<polygon points="' + " ".join(f"{_f(px)},{_f(py)}" for px, py in corners) + '" '
+
+
+def swatch(kind: str) -> str:
+    """A small inline drawing of a table kind's shape and colours, for a legend."""
+    box = Box("", 0, 1.5, 1.5, 30, 14)
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" class="swatch-{escape(kind)}" width="33" height="17" '
+            f'viewBox="0 0 33 17" style="vertical-align:-3px;margin-right:4px" aria-hidden="true">'
+            + _outline(kind, box, slant=5, round_rx=6)
+            + f'fill="{_FILL.get(kind, "#fff")}" stroke="{_STROKE.get(kind, GREY)}" stroke-width="1.5"/></svg>')
 
 
 def _node(n, box: Box) -> str:
