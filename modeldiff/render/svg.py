@@ -246,8 +246,16 @@ def dot_source(pic) -> str:
         w, h = label_size(_label(a))
         box = (f'<<TABLE BORDER="0" CELLBORDER="0" CELLSPACING="0" CELLPADDING="0"><TR>'
                f'<TD FIXEDSIZE="TRUE" WIDTH="{w:.0f}" HEIGHT="{h:.0f}"></TD></TR></TABLE>>')
-        both = ", dir=both" if a.style == "two-way" else ""
-        lines.append(f'  {ids[a.src]} -> {ids[a.dst]} [id="e{a.index}", label={box}{both}];')
+        two_way = a.style == "two-way"
+        if a.src == a.dst:
+            # dot does not keep a loop's label clear of others: the loop goes out to a point of its own and back,
+            # two edges dot routes (and labels) like any other; the drawing joins them
+            lines.append(f"  k{a.index} [shape=point, width=0.01, height=0.01];")
+            lines.append(f'  {ids[a.src]} -> k{a.index} [id="e{a.index}", label={box}, '
+                         f'dir={"back" if two_way else "none"}];')
+            lines.append(f'  k{a.index} -> {ids[a.dst]} [id="f{a.index}"];')
+            continue
+        lines.append(f'  {ids[a.src]} -> {ids[a.dst]} [id="e{a.index}", label={box}{", dir=both" if two_way else ""}];')
     lines.append("}")
     return "\n".join(lines) + "\n"
 
@@ -309,7 +317,8 @@ def dot_layout(pic, program: str = "dot", timeout: float | None = None) -> Layou
         by_id = {o["name"]: o for o in answer.get("objects", ())}
         centres = {n.table: _point(by_id[n.id]["pos"]) for n in pic.nodes}
         edges = {e["id"]: e for e in answer.get("edges", ()) if "id" in e}
-        raw_routes = {a.index: _spline(edges[f"e{a.index}"]["pos"]) for a in pic.arrows}
+        raw_routes = {a.index: _spline(edges[f"e{a.index}"]["pos"])
+                      + (_spline(edges[f"f{a.index}"]["pos"]) if a.src == a.dst else []) for a in pic.arrows}
         raw_labels = {a.index: _point(edges[f"e{a.index}"]["lp"]) for a in pic.arrows}
     except (KeyError, ValueError, TypeError, AttributeError) as exc:
         raise DotFailed(f"its answer lacks {exc}") from None
