@@ -378,11 +378,9 @@ def _files_of(root: str, r: prepush.PushRange) -> list[str]:
     return git.changed_files(root, r.base, r.head)
 
 
-POLICY_PATH = ".modeldiff.yaml"  # policy.POLICY_FILE, named here so the fast path imports nothing more
-
-
 def _gate(root: str, remote: str | None, updates, stdout: TextIO, stderr: TextIO) -> int:
     from modeldiff import git
+    from modeldiff.policy import POLICY_FILE  # a small module: the fast path stays light
 
     root = git.repo_root(root)
     ranges = plan_ranges(root, remote, updates, stderr)
@@ -392,7 +390,7 @@ def _gate(root: str, remote: str | None, updates, stdout: TextIO, stderr: TextIO
         paths = git.model_files_of_paths(files)
         if paths:
             touched.append((r, paths))
-        elif POLICY_PATH in files:
+        elif POLICY_FILE in files:
             policy_only.append(r)
     for r in policy_only:  # a policy pushed without a model: read now, not on the next push of a model
         _check_policy(root, r, stdout)
