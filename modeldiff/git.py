@@ -579,12 +579,16 @@ def list_models(repo_dir, rev: str | None) -> list[str]:
     `rev` None lists the working tree: tracked files still on disk and untracked
     files that are not ignored.
     """
+    return model_files_of_paths(list_files(repo_dir, rev))
+
+
+def list_files(repo_dir, rev: str | None) -> list[str]:
+    """Every file path in the repository at `rev` (None: the working tree, as `list_models` reads it)."""
     with _open(repo_dir) as repo:
         if rev is None:
-            return model_files_of_paths(_worktree_files(repo))
+            return list(_worktree_files(repo))
         sha = _resolve(repo, rev)
-        out = _run(repo, "ls-tree", "-r", "-z", "--name-only", "--full-tree", sha)
-        return model_files_of_paths(_split_lines_z(out))
+        return _split_lines_z(_run(repo, "ls-tree", "-r", "-z", "--name-only", "--full-tree", sha))
 
 
 _DIFF_OPTIONS = ("--name-only", "-z", "--no-renames", "--no-ext-diff", "--no-color")
@@ -596,6 +600,11 @@ def changed_models(repo_dir, base: str, head: str | None) -> list[str]:
     Added and removed models are included; a moved model file appears under its
     old and its new path. Untracked, not ignored files count as added.
     """
+    return model_files_of_paths(changed_files(repo_dir, base, head))
+
+
+def changed_files(repo_dir, base: str, head: str | None) -> list[str]:
+    """Every file path that differs between `base` and `head` (None = working tree), as `changed_models` reads it."""
     with _open(repo_dir) as repo:
         base_sha = _resolve(repo, base)
         if head is None:
@@ -604,4 +613,4 @@ def changed_models(repo_dir, base: str, head: str | None) -> list[str]:
         else:
             head_sha = _resolve(repo, head)
             changed = _split_lines_z(_run(repo, "diff", *_DIFF_OPTIONS, base_sha, head_sha, "--"))
-        return model_files_of_paths(changed)
+        return changed

@@ -369,22 +369,33 @@ def plan_ranges(root: str, remote: str | None, updates: Sequence[prepush.RefUpda
     return prepush.unique_ranges(ranges)
 
 
-def _models_of(root: str, r: prepush.PushRange) -> list[str]:
+def _files_of(root: str, r: prepush.PushRange) -> list[str]:
+    """The files the range changes (every file, for a range compared with nothing): one git call."""
     from modeldiff import git
 
     if r.base is None:
-        return git.list_models(root, r.head)
-    return git.changed_models(root, r.base, r.head)
+        return git.list_files(root, r.head)
+    return git.changed_files(root, r.base, r.head)
 
 
 def _gate(root: str, remote: str | None, updates, stdout: TextIO, stderr: TextIO) -> int:
     from modeldiff import git
+    from modeldiff.policy import POLICY_FILE  # a small module: the fast path stays light
 
     root = git.repo_root(root)
     ranges = plan_ranges(root, remote, updates, stderr)
-    touched = [(r, paths) for r in ranges for paths in [_models_of(root, r)] if paths]
+    touched, policy_only = [], []
+    for r in ranges:
+        files = _files_of(root, r)
+        paths = git.model_files_of_paths(files)
+        if paths:
+            touched.append((r, paths))
+        elif POLICY_FILE in files:
+            policy_only.append(r)
+    for r in policy_only:  # a policy pushed without a model: read now, not on the next push of a model
+        _check_policy(root, r, stdout)
     if not touched:
-        return 0  # the fast path: no model changed, nothing heavy was imported
+        return 0  # the fast path: no model and no policy changed, nothing heavy was imported
     code = 0
     for r, paths in touched:
         code = max(code, _check_range(root, r, paths, stdout, stderr))
@@ -414,9 +425,11 @@ def _check_range(root: str, r: prepush.PushRange, paths: list[str], stdout: Text
         return 0
     reviewed, refused = _reviewed(root, r)
     left = pol.unacknowledged(blocking, reviewed)
-    acknowledged = sorted({i.subject for i in blocking if i not in left})
+    acknowledged = sorted({i.subject for i in blocking if i.subject in reviewed})
     if acknowledged:
         stdout.write(f"acknowledged by {pol.TRAILER} trailers: {', '.join(acknowledged)}\n")
+    for line in pol.covered_lines(blocking, reviewed):
+        stdout.write(line + "\n")
     for entry, sha in refused:
         stderr.write(f"modeldiff: ignored '{pol.TRAILER}: {entry}' in commit {prepush.short(sha)}: "
                      f"{pol.WILDCARD_REFUSED}\n")
@@ -426,6 +439,16 @@ def _check_range(root: str, r: prepush.PushRange, paths: list[str], stdout: Text
     stdout.flush()
     stderr.write(_blocked_text(refs, r, left, policy))
     return EXIT_BLOCKED
+
+
+def _check_policy(root: str, r: prepush.PushRange, stdout: TextIO) -> None:
+    """Read the pushed `.modeldiff.yaml` (a PolicyError blocks the push with where and what); say it reads."""
+    from modeldiff import policy as pol
+
+    policy = pol.read_policy(root, r.head, prepush.short(r.head))
+    stdout.write(f"modeldiff: {', '.join(r.refs)}: {policy.source or pol.POLICY_FILE} changed and reads correctly "
+                 f"(blocks {' and '.join(policy.block) or 'nothing'}; {len(policy.accept)} accepted, "
+                 f"{len(policy.owners)} owner pattern{'s' if len(policy.owners) != 1 else ''})\n")
 
 
 def _range_label(r: prepush.PushRange) -> str:
@@ -494,10 +517,13 @@ def _blocked_text(refs: str, r: prepush.PushRange, left, policy) -> str:
              f"{'s' if count != 1 else ''} ({_range_label(r)}):"]
     for item in left:
         lines.append(f"  {item.model}: {item.subject} ({item.kind}, {item.severity}): {item.message}")
+    standing = sorted({c for i in left for c in i.causes})
     lines += [
         "After reviewing them, acknowledge them in a commit message of this push, for example",
         "  git commit --allow-empty -m 'Review model changes' "
         + " ".join(f"--trailer '{line}'" for line in pol.trailer_lines(left)),
+        *([f"(a trailer naming {' or '.join(standing)} also acknowledges the path and ambiguity changes that "
+           "link changes alone cause)"] if standing else []),
         "or accept them for good under accept: in .modeldiff.yaml. " + SKIP_HINT + ".",
         "",
     ]

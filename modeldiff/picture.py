@@ -9,8 +9,9 @@ inline SVG, and the diff reports (Markdown, HTML) call `diff_picture`.
 
 In a diff, changed links are drawn red (Mermaid `linkStyle <index>`, where
 the index is the arrow's 0-based definition order, counted here as the arrows
-are emitted), tables on new filter paths get the `newpath` class, and removed
-links are drawn red and dotted. A model of more than `NEIGHBOURHOOD_LIMIT`
+are emitted), the tables a filter now reaches along a new path (the ends of
+`path.added` pairs, not every table such a path passes) get the `newpath`
+class, and removed links are drawn red and dotted. A model of more than `NEIGHBOURHOOD_LIMIT`
 tables is cut down to the tables within one link of what changed, and the
 caption says so.
 """
@@ -25,6 +26,8 @@ from typing import Iterable, Sequence
 FORMATS = ("mermaid", "dot", "svg", "text")
 NEIGHBOURHOOD_LIMIT = 60  # tables; above it a diff's picture shows only what is near the change
 HIGHLIGHT = "stroke:#d33,stroke-width:3px"
+ROLE_COLOUR = "#6a1b9a"  # a role's filtered and restricted tables, and the links its filters travel
+ROLE_HIGHLIGHT = f"stroke:{ROLE_COLOUR},stroke-width:3px"
 
 ONE_WAY, TWO_WAY, STANDBY, REMOVED = "one-way", "two-way", "standby", "removed"
 KIND_ORDER = ("fact", "dimension", "bridge", "access", "missing")
@@ -39,6 +42,8 @@ _CLASS_DEFS = {
     "access": "fill:#f5ecfa,stroke:#7d4a9e,color:#222",
     "missing": "fill:#ffffff,stroke:#999999,stroke-dasharray:4 4,color:#666",
     "newpath": "stroke:#d33,stroke-width:3px",
+    "rolefilter": f"stroke:{ROLE_COLOUR},stroke-width:5px",
+    "restricted": f"stroke:{ROLE_COLOUR},stroke-width:3px",
 }
 _ARROWS = {ONE_WAY: "-->", TWO_WAY: "<-->", STANDBY: "-.->", REMOVED: "-.->"}
 
@@ -55,6 +60,7 @@ class Node:
     kind: str  # fact | dimension | bridge | access | missing (named by a link, not defined)
     on_new_path: bool = False
     description: str | None = None
+    role: str = ""  # in a role's picture: "filter" (the role filters it) | "restricted" (its filter reaches it) | ""
 
 
 @dataclass(frozen=True)
@@ -68,6 +74,8 @@ class Arrow:
     style: str  # one-way | two-way | standby | removed
     changed: bool = False
     off: bool = False  # style standby because the setting turned the link off (`flow: off`, a twin's `via`)
+    travelled: bool = False  # in a role's picture: the role's filter travels along it
+    words: str = ""  # more to say in the label, e.g. " (one way for roles)"
 
     @property
     def red(self) -> bool:
@@ -77,8 +85,8 @@ class Arrow:
     def label(self) -> str:
         """The link's name, with in words what dashes and arrowheads show (for readers without them)."""
         if self.style == STANDBY:
-            return self.link + (" (no filter here)" if self.off else " (standby)")
-        return self.link + {TWO_WAY: " (both ways)", REMOVED: " (removed)"}.get(self.style, "")
+            return self.link + (" (no filter here)" if self.off else " (standby)") + self.words
+        return self.link + {TWO_WAY: " (both ways)", REMOVED: " (removed)"}.get(self.style, "") + self.words
 
 
 @dataclass(frozen=True)
@@ -94,6 +102,11 @@ class Picture:
     @property
     def highlighted(self) -> tuple[int, ...]:
         return tuple(a.index for a in self.arrows if a.red)
+
+    @property
+    def travelled(self) -> tuple[int, ...]:
+        """Arrows a role's filter travels along (not also red: a change's red wins)."""
+        return tuple(a.index for a in self.arrows if a.travelled and not a.red)
 
 
 # --- building the picture ---------------------------------------------------------------------
@@ -125,6 +138,33 @@ def _link_style(link, setting) -> str:
     return TWO_WAY if flow == TWO_WAY or link.cardinality == "one-to-one" else ONE_WAY
 
 
+def _security_style(link) -> str:
+    from modeldiff import graph
+
+    if link.standby:
+        return STANDBY
+    return TWO_WAY if len(graph.security_edges(link)) == 2 else ONE_WAY
+
+
+def _security_words(link) -> str:
+    """A link whose filters flow both ways while row security flows one way says so."""
+    if not link.standby and link.flow == TWO_WAY and _security_style(link) == ONE_WAY:
+        return " (one way for roles)"
+    return ""
+
+
+def role_reach(model, role: str) -> tuple[dict, set[str]]:
+    """(restricted table -> path from a filtered table, tables the role filters) over the security graph."""
+    from modeldiff import graph
+    from modeldiff.errors import ModeldiffError
+
+    if role not in model.roles:
+        known = ", ".join(sorted(model.roles)[:8]) or "none"
+        raise ModeldiffError(f"--role {role}: model {model.name} has no role {role!r} (its roles: {known})")
+    restricted = graph.role_restricted(model, model.roles[role])
+    return restricted, {t for t in model.roles[role].filters if t in model.tables}
+
+
 def _neighbourhood(model, focus: set[str], removed: Sequence) -> set[str]:
     keep = set(focus)
     for link in list(model.links.values()) + list(removed):
@@ -135,47 +175,63 @@ def _neighbourhood(model, focus: set[str], removed: Sequence) -> set[str]:
 
 def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequence[str]] = (),
             removed_links: Iterable = (), setting=None, setting_label: str = "default setting",
-            focus_tables: Iterable[str] = (), limit: int = NEIGHBOURHOOD_LIMIT) -> Picture:
+            focus_tables: Iterable[str] = (), limit: int = NEIGHBOURHOOD_LIMIT,
+            reached: Iterable[str] = (), security: bool = False, role: str | None = None) -> Picture:
     """The picture of `model` (in `setting`, default: the model's own links).
 
     `highlight_links`: names of links drawn red. `new_paths`: filter paths (link
-    names) whose tables get the `newpath` class. `removed_links`: Link records
+    names) whose tables get the `newpath` class; `reached`: tables that get it
+    themselves (a diff marks only the tables a filter now reaches along a new
+    path, not every table such a path passes). `removed_links`: Link records
     of the old revision, drawn red and dotted (names are ignored: their tables
     are unknown). When the model has more than `limit` tables and something is
     highlighted, only the tables within one link of it are kept.
+
+    `security`: draw the security graph instead (semantics.md section 3: the
+    links row security travels, standby links dotted, `setting` ignored).
+    `role`: the security graph with that role's reach: the tables it filters
+    and the tables its filters restrict get the `rolefilter` / `restricted`
+    marks, the links they travel along are `travelled`.
     """
     from modeldiff import graph
 
     if setting is None:
         setting = graph.default_setting(model)
+    restricted, filtered = role_reach(model, role) if role is not None else ({}, set())
+    security = security or role is not None
     highlight = {name for name in highlight_links if name in model.links}
     removed = sorted((l for l in removed_links if not isinstance(l, str) and l.name not in model.links),
                      key=lambda l: l.name)
     marked = {t for path in _paths(new_paths) for name in path if name in model.links
               for t in (model.links[name].from_table, model.links[name].to_table)}
+    marked |= {t for t in reached if t in model.tables}
 
     tables = set(model.tables)
     for link in list(model.links.values()) + removed:
         tables |= {link.from_table, link.to_table}
-    focus = {t for name in highlight for t in model.links[name].tables} | marked \
+    focus = {t for name in highlight for t in model.links[name].tables} | marked | set(restricted) \
         | {t for l in removed for t in l.tables} | {t for t in focus_tables if t in tables}
     caption = None
     if len(model.tables) > limit and focus:
         kept = _neighbourhood(model, focus, removed)
         caption = (f"{model.name} has {len(model.tables)} tables: showing the {len(kept)} within one link "
-                   f"of what changed.")
+                   f"of what is marked.")
         tables = kept
 
     ids = node_ids(tables)
     nodes = tuple(Node(ids[t], t, model.tables[t].kind if t in model.tables else "missing", t in marked,
-                       model.tables[t].description if t in model.tables else None) for t in sorted(tables))
+                       model.tables[t].description if t in model.tables else None,
+                       "filter" if t in filtered else "restricted" if t in restricted else "")
+                  for t in sorted(tables))
     arrows: list[Arrow] = []
     for name in sorted(model.links):
         link = model.links[name]
         if link.from_table in tables and link.to_table in tables:
-            style = _link_style(link, setting)
+            style = _security_style(link) if security else _link_style(link, setting)
+            travelled = not link.standby and any(e.src in restricted for e in graph.security_edges(link))
             arrows.append(Arrow(len(arrows), name, link.to_table, link.from_table, style, name in highlight,
-                                style == STANDBY and not link.standby))
+                                style == STANDBY and not link.standby and not security, travelled,
+                                _security_words(link) if security else ""))
     for link in removed:
         if link.from_table in tables and link.to_table in tables:
             arrows.append(Arrow(len(arrows), link.name, link.to_table, link.from_table, REMOVED, True))
@@ -183,8 +239,14 @@ def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequ
 
 
 def diff_picture(result, limit: int = NEIGHBOURHOOD_LIMIT) -> Picture | None:
-    """The new revision of a `DiffResult`, with what changed marked; None when no link or path changed."""
-    highlight, removed_names, new_paths, focus = set(), set(), [], set()
+    """The new revision of a `DiffResult`, with what changed marked; None when no link or path changed.
+
+    Changed links are red; the tables marked are the ends of the new filter
+    paths (`paths.S->T` of a `path.added` change marks T: a filter on S now
+    reaches it a new way), not every table those paths pass through, which
+    after one link changed can be the whole model.
+    """
+    highlight, removed_names, reached, focus = set(), set(), set(), set()
     for change in result.changes:
         section, _, rest = change.subject.partition(".")
         name = rest.split(".")[0]
@@ -192,14 +254,29 @@ def diff_picture(result, limit: int = NEIGHBOURHOOD_LIMIT) -> Picture | None:
             removed_names.add(name)
         elif change.kind.startswith("link."):
             highlight.add(name)
-        elif change.kind == "path.added" and isinstance(change.after, (list, tuple)):
-            new_paths += [p for p in change.after if isinstance(p, (list, tuple))]
+        elif change.kind == "path.added" and "->" in rest:
+            reached.add(rest.split("->", 1)[1])
         elif section == "tables" and change.kind.startswith("table."):
             focus.add(name)
     removed = [result.old.links[n] for n in sorted(removed_names) if n in result.old.links]
-    if not (highlight or removed or new_paths):
+    if not (highlight or removed or reached):
         return None
-    return picture(result.new, highlight, new_paths, removed, focus_tables=focus, limit=limit)
+    return picture(result.new, highlight, (), removed, focus_tables=focus, limit=limit, reached=reached)
+
+
+def role_picture(model, role: str, highlight_links: Iterable[str] = (), limit: int = NEIGHBOURHOOD_LIMIT) -> Picture:
+    """The security graph with `role`'s reach marked (see `picture`), its label saying what the role restricts."""
+    restricted, filtered = role_reach(model, role)
+    more = len(set(restricted) - filtered)
+    label = (f"row security of role {role}: filters {_words(sorted(filtered)) or 'no table'}, which restrict "
+             f"{more} more table{'s' if more != 1 else ''}")
+    return picture(model, highlight_links, setting_label=label, limit=limit, role=role)
+
+
+def _words(names) -> str:
+    from modeldiff.words import and_list
+
+    return and_list(names)
 
 
 # --- Mermaid ------------------------------------------------------------------------------------
@@ -221,13 +298,18 @@ def mermaid_of(pic: Picture) -> str:
     for a in pic.arrows:
         lines.append(f'  {ids[a.src]} {_ARROWS[a.style]}|"{mermaid_label(a.label)}"| {ids[a.dst]}')
     used = [k for k in KIND_ORDER if any(n.kind == k for n in pic.nodes)]
-    marked = [n.id for n in pic.nodes if n.on_new_path]
-    for kind in used + (["newpath"] if marked else []):
+    marks = {"newpath": [n.id for n in pic.nodes if n.on_new_path],
+             "rolefilter": [n.id for n in pic.nodes if n.role == "filter"],
+             "restricted": [n.id for n in pic.nodes if n.role == "restricted"]}
+    for kind in used + [mark for mark, ids_ in marks.items() if ids_]:
         lines.append(f"  classDef {kind} {_CLASS_DEFS[kind]}")
     for kind in used:
         lines.append(f"  class {','.join(n.id for n in pic.nodes if n.kind == kind)} {kind}")
-    if marked:
-        lines.append(f"  class {','.join(marked)} newpath")
+    for mark, marked in marks.items():
+        if marked:
+            lines.append(f"  class {','.join(marked)} {mark}")
+    for index in pic.travelled:
+        lines.append(f"  linkStyle {index} {ROLE_HIGHLIGHT}")
     for index in pic.highlighted:
         lines.append(f"  linkStyle {index} {HIGHLIGHT}")
     return "\n".join(lines) + "\n"
@@ -241,11 +323,11 @@ def mermaid(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequ
 
 # --- Graphviz dot and text ---------------------------------------------------------------------------
 
-_DOT_NODE = {"fact": 'shape=box, style=filled, fillcolor="#fff4e0"',
-             "dimension": 'shape=box, style="rounded,filled", fillcolor="#e8f1fb"',
-             "bridge": 'shape=hexagon, style=filled, fillcolor="#eaf6ea"',
-             "access": 'shape=parallelogram, style=filled, fillcolor="#f5ecfa"',
-             "missing": 'shape=box, style=dashed'}
+_DOT_NODE = {"fact": 'shape=box, style=filled, fillcolor="#fff4e0", color="#b7791f"',
+             "dimension": 'shape=box, style="rounded,filled", fillcolor="#e8f1fb", color="#3b6ea5"',
+             "bridge": 'shape=hexagon, style=filled, fillcolor="#eaf6ea", color="#3f8f3f"',
+             "access": 'shape=parallelogram, style=filled, fillcolor="#f5ecfa", color="#7d4a9e"',
+             "missing": 'shape=box, style=dashed, color="#999999"'}
 
 
 def _dot_string(text: str) -> str:
@@ -259,6 +341,8 @@ def dot_of(pic: Picture) -> str:
         lines.append(f"  label={_dot_string(pic.caption)};")
     for n in pic.nodes:
         extra = ', color="#d33", penwidth=3' if n.on_new_path else ""
+        if n.role:
+            extra += f', color="{ROLE_COLOUR}", penwidth={5 if n.role == "filter" else 3}'
         lines.append(f"  {n.id} [label={_dot_string(n.table)}, {_DOT_NODE.get(n.kind, _DOT_NODE['missing'])}{extra}];")
     ids = {n.table: n.id for n in pic.nodes}
     for a in pic.arrows:
@@ -269,6 +353,8 @@ def dot_of(pic: Picture) -> str:
             attrs.append("style=dashed")
         if a.red:
             attrs.append('color="#d33", penwidth=3')
+        elif a.travelled:
+            attrs.append(f'color="{ROLE_COLOUR}", penwidth=3')
         lines.append(f"  {ids[a.src]} -> {ids[a.dst]} [{', '.join(attrs)}];")
     lines.append("}")
     return "\n".join(lines) + "\n"
@@ -286,12 +372,16 @@ def text_of(pic: Picture) -> str:
         names = [n.table for n in pic.nodes if n.kind == kind]
         if names:
             lines.append(f"  {kind + ':':<11}{', '.join(names)}")
+    for role, words in (("filter", "the role filters"), ("restricted", "its filters restrict")):
+        names = [n.table for n in pic.nodes if n.role == role]
+        if names:
+            lines.append(f"  {words}: {', '.join(names)}")
     lines += ["", "links (a filter on the left table restricts the right one; <-> both ways, ..> carries no filter here)"]
     width = max((len(a.src) for a in pic.arrows), default=0)
     width_dst = max((len(a.dst) for a in pic.arrows), default=0)
     for a in pic.arrows:
-        mark = "  * changed" if a.changed else ""
-        lines.append(f"  {a.src:<{width}} {_TEXT_ARROWS[a.style]} {a.dst:<{width_dst}}  {a.link}{mark}")
+        mark = "  * changed" if a.changed else "  * the role's filter travels here" if a.travelled else ""
+        lines.append(f"  {a.src:<{width}} {_TEXT_ARROWS[a.style]} {a.dst:<{width_dst}}  {a.link}{a.words}{mark}")
     return "\n".join(lines) + "\n"
 
 
@@ -303,6 +393,11 @@ def configure(parser) -> None:
     parser.add_argument("--format", choices=FORMATS, default="mermaid")
     parser.add_argument("--setting", metavar="measure:NAME|report:NAME",
                         help="draw the links as they carry filters for one measure or report (default: the model's own links)")
+    parser.add_argument("--security", action="store_true",
+                        help="draw the security graph: the links row security travels (security_flow, no standby)")
+    parser.add_argument("--role", metavar="ROLE",
+                        help="the security graph with one role's reach: the tables it filters and restricts, "
+                             "the links its filters travel")
 
 
 def resolve(model, spec: str | None):
@@ -329,10 +424,20 @@ def resolve(model, spec: str | None):
 def run(args, stdout) -> int:
     from modeldiff.compare import read_model
 
+    from modeldiff.errors import UsageError
+
+    if args.setting is not None and (args.security or args.role is not None):
+        raise UsageError("--setting draws filters for a measure or report; --security and --role draw row "
+                         "security, which no setting changes: give one or the other")
     _, result = read_model(args.model)
     model = result.model
-    setting, label = resolve(model, args.setting)
-    pic = picture(model, setting=setting, setting_label=label)
+    if args.role is not None:
+        pic = role_picture(model, args.role)
+    elif args.security:
+        pic = picture(model, setting_label="security graph", security=True)
+    else:
+        setting, label = resolve(model, args.setting)
+        pic = picture(model, setting=setting, setting_label=label)
     if args.format == "dot":
         stdout.write(dot_of(pic))
     elif args.format == "svg":

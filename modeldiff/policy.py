@@ -17,6 +17,13 @@ broken policy must never let a push through silently, so the hook blocks with th
 Acknowledging one push: a commit message in the pushed range carries `Model-Reviewed: SUBJECT`
 trailers (several trailers, or several subjects separated by commas or spaces). A trailer names
 exact subjects; wildcards are refused there (see `reviewed_subjects`).
+
+Acknowledging a link's change also acknowledges the derived changes (`path.*`, `ambiguity.*`) that
+link changes alone cause: a derived change whose `details.links` (the links with a changed edge on
+its added or removed paths) are all links changed in the same push, and all acknowledged, needs no
+trailer of its own (`Item.causes`). A derived change with several causes needs every one of them; one
+whose path listing stopped early (`complete: false`), or of a model added whole, is never covered
+this way; `security.*` changes always need their own acknowledgement.
 """
 
 from __future__ import annotations
@@ -185,6 +192,21 @@ class Item:
     kind: str  # a change kind (link.flow_widened) or "error:<rule>" for a finding
     severity: str
     message: str
+    causes: tuple[str, ...] = ()  # link subjects whose acknowledgement, all together, acknowledges this item too
+
+
+DERIVED_FROM_LINKS = ("path.added", "path.removed", "ambiguity.introduced", "ambiguity.resolved")
+
+
+def causes_of(change, changed: frozenset[str]) -> tuple[str, ...]:
+    """The `links.L` subjects that alone cause a derived change, when all of them changed in the same diff."""
+    details = getattr(change, "details", None)
+    details = details if isinstance(details, dict) else {}
+    links = details.get("links")
+    if change.kind not in DERIVED_FROM_LINKS or not links or details.get("complete") is False:
+        return ()
+    causes = tuple(sorted(f"links.{name}" for name in links))
+    return causes if all(c in changed for c in causes) else ()
 
 
 def items_of(diffs: Sequence) -> list[Item]:
@@ -193,8 +215,10 @@ def items_of(diffs: Sequence) -> list[Item]:
     for md in diffs:
         result = md.result
         model = result.new.name or result.old.name
+        changed = frozenset(c.subject for c in result.changes)
         for change in result.changes:
-            out.add(Item(model, change.subject, change.kind, change.severity, change.message))
+            out.add(Item(model, change.subject, change.kind, change.severity, change.message,
+                         causes_of(change, changed)))
         for finding in result.new_errors:
             out.add(Item(model, finding.subject, f"error:{finding.rule}", "breaking", finding.message))
     return sorted(out, key=lambda i: (-rank(i.severity), i.model, i.subject, i.kind, i.message))
@@ -226,13 +250,41 @@ def trailer_values(trailers: dict[str, list[str]]) -> list[str]:
     return [v for key, values in trailers.items() if key.strip().lower() == TRAILER.lower() for v in values]
 
 
+def through_causes(item: Item, reviewed: frozenset[str]) -> bool:
+    """True when `item` is acknowledged only because every link change causing it is."""
+    return item.subject not in reviewed and bool(item.causes) and all(c in reviewed for c in item.causes)
+
+
 def unacknowledged(items: Iterable[Item], reviewed: frozenset[str]) -> list[Item]:
-    return [i for i in items if i.subject not in reviewed]
+    return [i for i in items if i.subject not in reviewed and not through_causes(i, reviewed)]
+
+
+def covered(items: Iterable[Item], reviewed: frozenset[str]) -> list[tuple[tuple[str, ...], tuple[str, ...]]]:
+    """(causes, subjects) of the items acknowledged through their causes alone, grouped by causes, sorted."""
+    groups: dict[tuple[str, ...], set[str]] = {}
+    for item in items:
+        if through_causes(item, reviewed):
+            groups.setdefault(item.causes, set()).add(item.subject)
+    return [(causes, tuple(sorted(subjects))) for causes, subjects in sorted(groups.items())]
+
+
+def covered_lines(items: Iterable[Item], reviewed: frozenset[str]) -> list[str]:
+    """`covered by Model-Reviewed: links.L (what its change alone causes): paths.a->b, ...` per group."""
+    from modeldiff.words import and_list
+
+    return [f"covered by {TRAILER}: {and_list(causes)} (what {'its change' if len(causes) == 1 else 'their changes'} "
+            f"alone {'causes' if len(causes) == 1 else 'cause'}): {', '.join(subjects)}"
+            for causes, subjects in covered(items, reviewed)]
+
+
+def trailer_subjects(items: Iterable[Item]) -> list[str]:
+    """The fewest subjects whose trailers acknowledge `items`: a derived change's causes stand for it."""
+    return sorted({s for i in items for s in (i.causes or (i.subject,))})
 
 
 def trailer_lines(items: Iterable[Item]) -> list[str]:
     """The trailers that would acknowledge `items`, one per subject, sorted."""
-    return [f"{TRAILER}: {s}" for s in sorted({i.subject for i in items})]
+    return [f"{TRAILER}: {s}" for s in trailer_subjects(items)]
 
 
 # --- whom to tell --------------------------------------------------------------------------------

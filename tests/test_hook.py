@@ -8,6 +8,7 @@ lines git would write, which is the same code minus the process start.
 from __future__ import annotations
 
 import io
+import re
 import os
 import shutil
 import stat
@@ -410,6 +411,83 @@ def test_a_pushed_model_that_cannot_be_read_blocks_with_where(world):
     assert code == hook.EXIT_UNDECIDED and f"push blocked: {head}:{MODEL}:2:1: malformed YAML" in err
 
 
+# --- a policy pushed on its own ---------------------------------------------------------------------------
+
+
+def test_a_push_changing_only_the_policy_is_checked_and_a_typo_blocks(world):
+    base = sha(world.work, "HEAD")
+    head = commit(world.work, "policy", {".modeldiff.yaml": "block: [breaking]\nacept: [links.trips_bike]\n"})
+    code, out, err = in_process(world.work, line(head, base))
+    assert code == hook.EXIT_UNDECIDED
+    assert f"push blocked: {head[:12]}:.modeldiff.yaml:2:1: unknown key 'acept'" in err
+
+
+def test_a_push_changing_only_a_valid_policy_says_it_reads(world):  # twin
+    base = sha(world.work, "HEAD")
+    head = commit(world.work, "policy", {".modeldiff.yaml": "block: [breaking]\naccept: [links.trips_bike]\n"})
+    code, out, err = in_process(world.work, line(head, base))
+    assert (code, err) == (0, "")
+    assert out == (f"modeldiff: refs/heads/main: {head[:12]}:.modeldiff.yaml changed and reads correctly "
+                   "(blocks breaking; 1 accepted, 0 owner patterns)\n")
+
+
+def test_a_push_touching_neither_model_nor_policy_says_nothing(world):  # twin
+    base = sha(world.work, "HEAD")
+    head = commit(world.work, "docs", {"README.md": "bike share, again\n"})
+    assert in_process(world.work, line(head, base)) == (0, "", "")
+
+
+def test_a_policy_typo_blocks_a_real_push_too(gated):
+    before = gated.remote_sha()
+    commit(gated.work, "policy", {".modeldiff.yaml": "acept: []\n"})
+    pushed = gated.push("origin", "main")
+    assert pushed.code != 0 and gated.remote_sha() == before and "unknown key 'acept'" in pushed.out
+
+
+# --- acknowledging a link covers what its change alone causes ---------------------------------------------
+
+CLINIC_PATH = "models/clinic.model.yaml"
+CLINIC = (ROOT / "tests" / "fixtures" / "clinic.model.yaml").read_text()
+DOCTORS = "doctors_clinic: {from: doctors.clinic_key, to: clinics.clinic_key, standby: true}"
+PATIENT = "appointments_patient: {from: appointments.patient_key, to: patients.patient_key}"
+DOCTORS_LIVE = CLINIC.replace(DOCTORS, DOCTORS.replace(", standby: true", ""))
+BOTH = DOCTORS_LIVE.replace(PATIENT, PATIENT[:-1] + ", flow: two-way}")
+DERIVED = ("paths.clinic_access->appointment_diagnoses", "paths.clinic_access->appointments",
+           "paths.clinics->appointment_diagnoses", "paths.clinics->appointments")
+
+
+def clinic_push(world, new_text: str, *trailers: str) -> tuple[int, str, str]:
+    base = commit(world.work, "clinic model", {CLINIC_PATH: CLINIC})
+    head = commit(world.work, "change the clinic", {CLINIC_PATH: new_text}, trailers=trailers)
+    return in_process(world.work, line(head, base))
+
+
+def test_a_link_trailer_acknowledges_the_paths_its_change_alone_causes(world):
+    code, out, err = clinic_push(world, DOCTORS_LIVE, "Model-Reviewed: links.doctors_clinic")
+    assert (code, err) == (0, "")
+    assert ("covered by Model-Reviewed: links.doctors_clinic (what its change alone causes): " + ", ".join(DERIVED)
+            in out)
+    assert "refs/heads/main: push allowed" in out
+
+
+def test_without_the_link_trailer_the_derived_changes_block_and_one_trailer_is_suggested(world):  # twin
+    code, out, err = clinic_push(world, DOCTORS_LIVE, "Model-Reviewed: links.appointments_clinic")
+    assert code == hook.EXIT_BLOCKED and "covered by" not in out
+    assert "brings 4 unacknowledged breaking changes" in err
+    assert "--trailer 'Model-Reviewed: links.doctors_clinic'\n" in err and "--trailer 'Model-Reviewed: paths." not in err
+    assert "a trailer naming links.doctors_clinic also acknowledges the path and ambiguity changes" in err
+
+
+def test_a_derived_change_of_two_links_needs_both_trailers(world):
+    code, out, err = clinic_push(world, BOTH, "Model-Reviewed: links.doctors_clinic")
+    assert code == hook.EXIT_BLOCKED
+    assert "paths.clinics->patients (ambiguity.introduced" in err  # doctors_clinic and appointments_patient
+    assert "paths.clinics->appointments (" not in err  # doctors_clinic alone: covered
+    assert "--trailer 'Model-Reviewed: links.appointments_patient'" in err
+    both = clinic_push(world, BOTH, "Model-Reviewed: links.doctors_clinic, links.appointments_patient")
+    assert both[0] == 0 and "covered by Model-Reviewed: links.appointments_patient and links.doctors_clinic" in both[1]
+
+
 # --- input git would never write -------------------------------------------------------------------------
 
 
@@ -637,4 +715,24 @@ def test_the_framework_manifest_declares_the_pre_push_hook():
     (entry,) = yaml.safe_load((ROOT / ".pre-commit-hooks.yaml").read_text())
     assert entry == {**entry, "id": "modeldiff-pre-push", "entry": "modeldiff hook run --from-env",
                      "language": "python", "stages": ["pre-push"], "always_run": True,
-                     "pass_filenames": False, "minimum_pre_commit_version": "3.2.0"}
+                     "pass_filenames": False, "minimum_pre_commit_version": "3.2.0", "verbose": True}
+
+
+def test_a_passing_framework_run_keeps_the_tell_lines_visible():
+    # the framework prints a passing hook's output only for a verbose hook: the owners' lines need it
+    import yaml
+
+    (entry,) = yaml.safe_load((ROOT / ".pre-commit-hooks.yaml").read_text())
+    assert entry["verbose"] is True
+    doc = (ROOT / "docs" / "hook.md").read_text()
+    assert "verbose: true" in doc and "verbose: false" in doc
+
+
+def test_the_docs_pin_the_framework_hook_to_this_release_tag():
+    from modeldiff import __version__
+
+    tag = f"v{__version__}"
+    doc = (ROOT / "docs" / "hook.md").read_text()
+    assert re.search(rf"^\s+rev: {re.escape(tag)}\s*(#.*)?$", doc, re.M), "docs/hook.md pins another tag"
+    assert f"rev: {tag}" in (ROOT / ".pre-commit-hooks.yaml").read_text()
+    assert "git tag -a" in (ROOT / "DEVELOPERS.md").read_text()  # how releases get their tag

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import io
 import re
-import shutil
 import struct
 import subprocess
 from html.parser import HTMLParser
@@ -16,6 +15,7 @@ from modeldiff import cli, impact
 from modeldiff.compare import ModelDiff, Side
 from modeldiff.render.html import document
 from modelkit import bikeshare, edit, link, table
+from toolkit import program
 
 ROOT = Path(__file__).parent.parent
 EXAMPLE = ROOT / "examples" / "bikeshare.model.yaml"
@@ -72,7 +72,8 @@ def test_report_is_well_formed_with_summary_changes_impacts_and_graph():
     assert page.startswith("<!DOCTYPE html>")
     p = parsed(page)
     tags = [t for t, _ in p.seen]
-    assert tags.count("svg") == 1
+    assert [a.get("class") for t, a in p.seen if t == "svg"] == [
+        "modeldiff-graph", "swatch-fact", "swatch-dimension", "swatch-bridge", "swatch-access"]  # graph, legend
     tables = [a.get("class") for t, a in p.seen if t == "table"]
     assert tables == ["summary", "changes"]
     text = "".join(p.text)
@@ -81,6 +82,11 @@ def test_report_is_well_formed_with_summary_changes_impacts_and_graph():
     assert changed == ["trips_start_station"]
     assert "graph LR" in text  # the Mermaid source, folded in <details>
     assert tags.index("details") > tags.index("svg")
+    # the legend draws each kind's shape as the graph does: a hexagon for a bridge, a parallelogram for access
+    legend = page[page.index('<p class="legend">'):]
+    assert re.search(r'class="swatch-bridge".*?<polygon points="(\S+ ){5}\S+"', legend)
+    assert re.search(r'class="swatch-access".*?<polygon points="(\S+ ){3}\S+"', legend)
+    assert re.search(r'class="swatch-dimension".*?<rect [^>]*rx="6"', legend)
 
 
 def test_report_loads_nothing_from_the_network():
@@ -120,7 +126,6 @@ def test_no_changes_says_so_and_draws_nothing():
 
 # --- in a browser -------------------------------------------------------------------------------------
 
-CHROMIUM = shutil.which("chromium")
 CHROMIUM_FLAGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-quic", "--no-first-run",
                   "--disable-background-networking", "--disable-component-update", "--disable-sync"]
 
@@ -131,13 +136,12 @@ def png_size(data: bytes) -> tuple[int, int]:
     return struct.unpack(">II", data[16:24])
 
 
-@pytest.mark.skipif(CHROMIUM is None, reason="chromium is not installed (apt-get install -y chromium): "
-                                             "the HTML report is not rendered in a browser here")
 def test_report_renders_in_headless_chromium(tmp_path):
+    chromium = program("chromium")  # skipped where missing, failed under CI=true
     page = tmp_path / "report.html"
     page.write_text(html_of(str(EXAMPLE), str(REVISION_2)), encoding="utf-8")
     shot = tmp_path / "report.png"
-    base = [CHROMIUM, *CHROMIUM_FLAGS, f"--user-data-dir={tmp_path / 'profile'}"]
+    base = [chromium, *CHROMIUM_FLAGS, f"--user-data-dir={tmp_path / 'profile'}"]
     subprocess.run([*base, f"--screenshot={shot}", "--window-size=1280,2000", page.as_uri()],
                    capture_output=True, timeout=120, check=False)
     assert shot.exists(), "chromium wrote no screenshot"
@@ -147,3 +151,26 @@ def test_report_renders_in_headless_chromium(tmp_path):
     dom = subprocess.run([*base, "--dump-dom", page.as_uri()], capture_output=True, text=True, timeout=120,
                          check=False).stdout
     assert "<svg" in dom and 'class="changes"' in dom and 'data-link="trips_start_station"' in dom
+
+
+def test_a_security_change_shows_its_role_before_and_after():
+    page = html_of(*(str(SCENARIOS / "security_flow_one_way" / f) for f in ("old.model.yaml", "new.model.yaml")))
+    p = parsed(page)
+    assert "Row security, role by role" in page
+    heads = re.findall(r'<h4 class="role-view">(.*?)</h4>', page)
+    assert heads == ["Role <code>depot_staff</code> (exposed: districts, mechanics, repairs, station_parts, stations, "
+                     "stock_levels, trips)"]
+    figures = [a.get("class") for t, a in p.seen if t == "figure"]
+    assert figures[-2:] == ["role-before", "role-after"]
+    before = page[page.index('class="role-before"'):page.index('class="role-after"')]
+    after = page[page.index('class="role-after"'):]
+    # before, the role's filter on district_access reached districts and on; after, it stops there
+    assert 'class="node role-restricted" data-table="districts"' in before
+    assert 'data-table="districts"' in after and 'class="node role-restricted" data-table="districts"' not in after
+    assert 'class="node role-filter" data-table="district_access"' in after
+    assert "which restrict 7 more tables" in before and "which restrict 0 more tables" in after
+
+
+def test_no_security_change_no_role_view():  # twin: a flow change that moves no role's rows
+    page = html_of(str(EXAMPLE), str(REVISION_2))
+    assert "Row security, role by role" not in page and "role-before" not in page and "role-view" not in page

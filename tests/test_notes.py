@@ -276,3 +276,39 @@ def test_outside_a_repository_exits_2(tmp_path):
 def test_per_commit_and_squash_together_exit_2(history):
     root, _ = history
     assert_one_line_error(*run("notes", "v1..HEAD", "--per-commit", "--squash", "--repo", str(root)))
+
+
+# --- what the diagram marks ---------------------------------------------------------------------
+
+CLINIC = (Path(__file__).parent / "fixtures" / "clinic.model.yaml").read_text()
+PATIENT_LINK = "appointments_patient: {from: appointments.patient_key, to: patients.patient_key}"
+
+
+def newpath_tables(block: str) -> set[str]:
+    return {t for line in block.splitlines() if line.strip().startswith("class ") and line.endswith(" newpath")
+            for t in line.split()[1].removeprefix("t_").replace(",t_", ",").split(",")}
+
+
+def clinic_notes(tmp_path: Path, new_text: str) -> str:
+    root = new_repo(tmp_path / "repo")
+    commit(root, "clinic", {"models/clinic.model.yaml": CLINIC})
+    git(root, "tag", "v1")
+    commit(root, "change", {"models/clinic.model.yaml": new_text})
+    return notes(root, "v1..HEAD")
+
+
+def test_the_diagram_marks_only_the_tables_a_filter_now_reaches(tmp_path):
+    # appointments -> patients made two-way: every table that filters appointments now reaches patients, and
+    # through patients the invoices. The new paths pass through all nine tables; only two are reached anew.
+    widened = CLINIC.replace(PATIENT_LINK, PATIENT_LINK[:-1] + ", flow: two-way}")
+    out = clinic_notes(tmp_path, widened)
+    (block,) = mermaid_blocks(out)
+    assert newpath_tables(block) == {"patients", "invoices"}
+    assert "calendar → patients" in out and "clinic_access → invoices" in out  # the new paths are listed
+
+
+def test_a_change_without_new_paths_marks_no_table(tmp_path):  # twin: a removed link, no path added
+    removed = CLINIC.replace("  " + PATIENT_LINK + "\n", "")
+    (block,) = mermaid_blocks(clinic_notes(tmp_path, removed))
+    assert newpath_tables(block) == set() and "newpath" not in block
+    assert "appointments_patient (removed)" in block

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from pathlib import Path
 from types import SimpleNamespace
 
 import pytest
@@ -170,3 +171,69 @@ def test_with_several_models_reports_are_named_with_their_model():
     two = diff_with_reports("workshop", {"weekly_fares": "breaking"}, {"weekly_fares": "finance"})
     assert pol.tell_lines([one, two], Policy()) == [
         "tell: finance: bikeshare:weekly_fares (numbers), workshop:weekly_fares (breaking)"]
+
+
+# --- acknowledging a link acknowledges what its change alone causes ----------------------------------
+
+CLINIC = (Path(__file__).parent / "fixtures" / "clinic.model.yaml").read_text()
+PATIENT = "appointments_patient: {from: appointments.patient_key, to: patients.patient_key}"
+DOCTORS = "doctors_clinic: {from: doctors.clinic_key, to: clinics.clinic_key, standby: true}"
+PATIENT_TWO_WAY = CLINIC.replace(PATIENT, PATIENT[:-1] + ", flow: two-way}")
+DOCTORS_LIVE = CLINIC.replace(DOCTORS, DOCTORS.replace(", standby: true", ""))
+BOTH = PATIENT_TWO_WAY.replace(DOCTORS, DOCTORS.replace(", standby: true", ""))
+
+
+def clinic_items(new_text: str) -> list[Item]:
+    from modeldiff.impact import analyse
+    from modeldiff.load import load_files
+
+    old, new = (load_files([("clinic.model.yaml", t)]).model for t in (CLINIC, new_text))
+    return pol.items_of([SimpleNamespace(result=analyse(old, new, (), ()))])
+
+
+def test_a_link_acknowledged_covers_the_paths_and_ambiguities_its_change_alone_causes():
+    items = clinic_items(DOCTORS_LIVE)  # doctors_clinic off standby: clinics now reach appointments twice
+    blocking = pol.blocking(items, Policy())
+    derived = {i.subject for i in blocking}
+    assert derived == {"paths.clinic_access->appointment_diagnoses", "paths.clinic_access->appointments",
+                       "paths.clinics->appointment_diagnoses", "paths.clinics->appointments"}
+    assert {i.causes for i in blocking} == {("links.doctors_clinic",)}
+    reviewed = frozenset({"links.doctors_clinic"})
+    assert pol.unacknowledged(blocking, reviewed) == []
+    assert pol.covered(blocking, reviewed) == [(("links.doctors_clinic",), tuple(sorted(derived)))]
+    (line,) = pol.covered_lines(blocking, reviewed)
+    assert line == ("covered by Model-Reviewed: links.doctors_clinic (what its change alone causes): "
+                    + ", ".join(sorted(derived)))
+    assert pol.trailer_lines(blocking) == ["Model-Reviewed: links.doctors_clinic"]
+
+
+def test_another_link_acknowledged_covers_nothing():  # twin
+    blocking = pol.blocking(clinic_items(DOCTORS_LIVE), Policy())
+    reviewed = frozenset({"links.appointments_patient", "links.appointments_clinic"})
+    assert pol.unacknowledged(blocking, reviewed) == blocking and pol.covered(blocking, reviewed) == []
+
+
+def test_a_derived_change_with_two_causes_needs_both():
+    blocking = pol.blocking(clinic_items(BOTH), Policy())
+    two = [i for i in blocking if i.causes == ("links.appointments_patient", "links.doctors_clinic")]
+    one = [i for i in blocking if i.causes == ("links.doctors_clinic",)]
+    assert {i.subject for i in two} == {"paths.clinics->patients", "paths.clinic_access->patients",
+                                        "paths.clinics->invoices", "paths.clinic_access->invoices"}
+    left = pol.unacknowledged(blocking, frozenset({"links.doctors_clinic"}))
+    # what doctors_clinic alone causes is covered; what appointments_patient causes, alone or with it, is not
+    assert left == [i for i in blocking if "links.appointments_patient" in i.causes]
+    assert set(two) <= set(left) and not set(one) & set(left)
+    assert pol.unacknowledged(blocking, frozenset({"links.doctors_clinic", "links.appointments_patient"})) == []
+    assert one and not pol.unacknowledged(one, frozenset({"links.doctors_clinic"}))
+
+
+def test_security_and_incomplete_path_changes_are_never_covered_by_a_link():
+    change = SimpleNamespace(subject="paths.a->b", kind="path.added", severity="numbers", message="m",
+                             details={"links": ["l"], "complete": False})
+    assert pol.causes_of(change, frozenset({"links.l"})) == ()
+    complete = SimpleNamespace(**{**vars(change), "details": {"links": ["l"]}})
+    assert pol.causes_of(complete, frozenset({"links.l"})) == ("links.l",)
+    assert pol.causes_of(complete, frozenset()) == ()  # the link itself did not change in this push
+    exposed = SimpleNamespace(subject="roles.r.tables.t", kind="security.exposed", severity="breaking", message="m",
+                              details={"links": ["l"]})
+    assert pol.causes_of(exposed, frozenset({"links.l"})) == ()

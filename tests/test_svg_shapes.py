@@ -89,3 +89,28 @@ def test_text_lists_tables_under_their_kind(pic):
     for kind in ("fact", "dimension", "bridge", "access"):
         line = next(l for l in text.splitlines() if l.strip().startswith(kind + ":"))
         assert sorted(t for t, k in KINDS.items() if k == kind) == sorted(line.split(":", 1)[1].replace(",", " ").split())
+
+
+def test_graphviz_draws_the_dot_source_in_the_same_shapes(pic):
+    # the `--format dot` output as Graphviz itself renders it (dot -Tsvg): each kind's outline
+    import subprocess
+
+    from toolkit import program
+
+    drawn = subprocess.run([program("dot"), "-Tsvg"], input=picture.dot_of(pic), capture_output=True, text=True,
+                           timeout=60, check=True).stdout
+    ids = {n.id: n.table for n in pic.nodes}
+    shapes = {}
+    for node_id, body in re.findall(r'<g id="node\d+" class="node">\s*<title>(\w+)</title>\s*(<\w+[^>]*>)', drawn):
+        shapes[ids[node_id]] = body
+    assert sorted(shapes) == sorted(KINDS)
+    assert shapes["sales"].startswith("<polygon") and len(corners(shapes["sales"])) == 5  # closed: first point again
+    xs = {x for x, _ in corners(shapes["sales"])}
+    assert len(xs) == 2  # upright rectangle
+    assert shapes["products"].startswith("<path") and shapes["accounts"].startswith("<path")  # rounded corners
+    assert len(corners(shapes["account_groups"])) == 7  # a hexagon, closed
+    para = corners(shapes["viewers"])
+    assert len(para) == 5 and len({x for x, _ in para}) == 4  # four corners, none above another: leaning
+    for table, kind in KINDS.items():  # each outline in its kind's colour, as in the other formats
+        colour = {"fact": "#b7791f", "dimension": "#3b6ea5", "bridge": "#3f8f3f", "access": "#7d4a9e"}[kind]
+        assert f'stroke="{colour}"' in shapes[table], table

@@ -201,7 +201,7 @@ def _md_diagrams(diffs: Sequence[ModelDiff]) -> list[str]:
             continue
         name = md.result.new.name or md.result.old.name
         lines += ["", f"**Filter graph of `{name}`**: arrows point the way a filter travels; changed links are red, "
-                  "tables on new filter paths are outlined in red, dotted links carry no filter.", "",
+                  "tables a filter now reaches along a new path are outlined in red, dotted links carry no filter.", "",
                   "```mermaid", mermaid_of(pic).rstrip("\n"), "```"]
         if pic.caption:
             lines += ["", f"_{_md(pic.caption)}_"]

@@ -98,13 +98,14 @@ def _impacts(title: str, impacts, kinds: dict[str, str]) -> list[str]:
     return out
 
 
-_LEGEND = ('<p class="legend"><span><span class="swatch" style="background:#fff4e0;border-color:#b7791f"></span>fact</span>'
-           '<span><span class="swatch" style="background:#e8f1fb;border-color:#3b6ea5;border-radius:5px"></span>dimension</span>'
-           '<span><span class="swatch" style="background:#eaf6ea;border-color:#3f8f3f"></span>bridge</span>'
-           '<span><span class="swatch" style="background:#f5ecfa;border-color:#7d4a9e"></span>access</span>'
-           '<span><span class="swatch" style="border-color:#d33;border-width:3px"></span>table on a new filter path</span>'
-           '<span style="color:#d33">━ changed link</span><span>┅ standby or removed link</span>'
-           "<span>arrows point the way a filter travels</span></p>")
+def _legend() -> str:
+    from modeldiff.render.svg import swatch
+
+    kinds = "".join(f"<span>{swatch(kind)}{kind}</span>" for kind in ("fact", "dimension", "bridge", "access"))
+    return ('<p class="legend">' + kinds +
+            '<span><span class="swatch" style="border-color:#d33;border-width:3px"></span>table a filter now reaches along a new path</span>'
+            '<span style="color:#d33">━ changed link</span><span>┅ standby or removed link</span>'
+            "<span>arrows point the way a filter travels</span></p>")
 
 
 def _diagram(md: ModelDiff, number: int) -> list[str]:
@@ -116,9 +117,45 @@ def _diagram(md: ModelDiff, number: int) -> list[str]:
         return []
     caption = pic.caption or "The new revision's filter graph; what changed is drawn in red."
     return ["<h3>Filter graph</h3>", "<figure>", svg_of(pic, prefix=f"mdg{number}"),
-            f"<figcaption>{escape(caption)}</figcaption>", "</figure>", _LEGEND,
+            f"<figcaption>{escape(caption)}</figcaption>", "</figure>", _legend(),
             "<details><summary>Mermaid source (paste into Markdown between <code>```mermaid</code> fences)</summary>",
             f"<pre>{escape(mermaid_of(pic))}</pre>", "</details>"]
+
+
+def _role_views(md: ModelDiff, number: int) -> list[str]:
+    """Each role a `security.*` change names, drawn before and after side by side (picture.role_picture)."""
+    from modeldiff.picture import role_picture
+    from modeldiff.render.svg import svg_of
+
+    r = md.result
+    named: dict[str, dict[str, list[str]]] = {}
+    for c in r.changes:
+        if c.kind.startswith("security.") and c.subject.startswith("roles."):
+            role, _, table = c.subject.removeprefix("roles.").partition(".tables.")
+            named.setdefault(role, {}).setdefault(c.kind.removeprefix("security."), []).append(table)
+    if not named:
+        return []
+    changed_links = {c.subject.removeprefix("links.") for c in r.changes if c.kind.startswith("link.")}
+    out = ["<h3>Row security, role by role</h3>",
+           "<p>The tables each role filters (thick purple outline) and restricts (purple outline), and the links its "
+           "filters travel (purple), before and after; changed links in red.</p>"]
+    for k, (role, tables) in enumerate(sorted(named.items())):
+        old_role = next((c.before for c in r.changes if c.kind == "role.renamed" and c.subject == f"roles.{role}"
+                         and isinstance(c.before, str)), role)
+        what = "; ".join(f"{kind}: {', '.join(names)}" for kind, names in sorted(tables.items()))
+        out.append(f'<h4 class="role-view">Role <code>{escape(role)}</code> ({escape(what)})</h4>')
+        out.append('<div class="role-views" style="display:flex;gap:12px;align-items:flex-start">')
+        for side, model, name in (("before", r.old, old_role), ("after", r.new, role)):
+            out.append(f'<figure class="role-{side}" style="flex:1 1 0;min-width:0">')
+            if name in model.roles:
+                pic = role_picture(model, name, changed_links)
+                out += [svg_of(pic, prefix=f"mdg{number}r{k}{side[0]}"),
+                        f"<figcaption>{escape(side.capitalize())}: {escape(pic.setting)}.</figcaption>"]
+            else:
+                out.append(f"<figcaption>{escape(side.capitalize())}: no role {escape(name)}.</figcaption>")
+            out.append("</figure>")
+        out.append("</div>")
+    return out
 
 
 def _model_section(md: ModelDiff, number: int) -> list[str]:
@@ -142,6 +179,7 @@ def _model_section(md: ModelDiff, number: int) -> list[str]:
                 for f in r.new_errors]
         out.append("</ul>")
     out += _diagram(md, number)
+    out += _role_views(md, number)
     for title, impacts in (("measures", r.measures), ("roles", r.roles), ("reports", r.reports)):
         if impacts:
             out += _impacts(title, impacts, kinds)

@@ -1,14 +1,28 @@
-"""A `Picture` (modeldiff.picture) drawn as SVG with a simple layered layout, computed here.
+"""A `Picture` (modeldiff.picture) drawn as SVG; laid out by Graphviz `dot` where it is installed.
 
-No browser script and no layout library: tables go in columns by depth along
-the arrows (a filter's direction; cycles broken where a depth-first search
-meets them), each column is ordered by a few barycentre sweeps to cut
-crossings, and arrows are cubic curves with arrowheads. Every text is escaped.
+The layout: `layout(pic)` asks Graphviz's layered layout (`dot -Tjson`, run as
+a subprocess with a timeout) where each table, each arrow's curve and each
+label goes; dot keeps labels apart because it sizes each one as a box of its
+own. Only identifiers (`t_...`, `e<index>`) and numbers go into dot's input:
+node and label boxes are sized here from the texts and left empty, so no
+model text reaches dot. When dot is not installed, fails, times out or
+answers something unreadable, or when `MODELDIFF_LAYOUT=builtin` (or
+`engine="builtin"`), the layout is computed here: tables in columns by depth
+along the arrows (a filter's direction; cycles broken where a depth-first
+search meets them), each column ordered by a few barycentre sweeps to cut
+crossings, labels placed where they overlap least. A failure of dot is said
+in the drawing's `<desc>` (Layout.note). Either way the drawing itself
+(shapes, colours, arrowheads, texts, all escaped) is done here, with no
+browser script.
 """
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+import json
+import os
+import shutil
+import subprocess
+from dataclasses import dataclass, field
 from typing import Iterable
 from html import escape
 
@@ -23,11 +37,17 @@ MAX_GAP = 520
 LABEL_TRIES = (0.5, 0.38, 0.62, 0.28, 0.72, 0.2, 0.8)  # where along a curve a label may go, first choice first
 LABEL_H = 13
 LABEL_CHAR_W = 6.2
+LAYOUT_ENV = "MODELDIFF_LAYOUT"  # "builtin" forces the layout computed here; "dot" (or unset): dot where installed
+DOT_TIMEOUT = 20.0  # seconds; past it the layout computed here is used
+DOT_NODESEP = 0.3  # inches between neighbours in a rank
+DOT_RANKSEP = 0.6  # inches between ranks
+LABEL_PAD = 8  # px of room around a label's estimated text, so a wider font still fits
 
 _FILL = {"fact": "#fff4e0", "dimension": "#e8f1fb", "bridge": "#eaf6ea", "access": "#f5ecfa", "missing": "#ffffff"}
 _STROKE = {"fact": "#b7791f", "dimension": "#3b6ea5", "bridge": "#3f8f3f", "access": "#7d4a9e", "missing": "#999999"}
 RED = "#d33"
 GREY = "#555"
+PURPLE = "#6a1b9a"  # picture.ROLE_COLOUR: a role's tables and the links its filters travel
 
 
 @dataclass(frozen=True)
@@ -57,6 +77,10 @@ class Layout:
     bends: dict  # arrow index -> the Boxes (dummy slots) it passes through in the columns it crosses
     width: float
     height: float
+    routes: dict = field(default_factory=dict)  # arrow index -> cubic segments, when dot routed the arrows
+    labels: dict = field(default_factory=dict)  # arrow index -> (x, baseline y) of its label, when dot placed it
+    engine: str = "builtin"  # "dot" or "builtin"
+    note: str | None = None  # why dot's layout was not used, when it was asked for and failed
 
 
 def layers(tables: list[str], edges: list[tuple[str, str]]) -> dict[str, int]:
@@ -120,7 +144,32 @@ def _order(cols: list[list[str]], near: dict[str, set[str]]) -> list[list[str]]:
     return cols
 
 
-def layout(pic) -> Layout:
+def layout(pic, engine: str | None = None) -> Layout:
+    """Where everything goes: dot's layout where dot is installed (see the module docstring), else `builtin_layout`.
+
+    `engine`: "builtin" or "dot" (default: the environment's MODELDIFF_LAYOUT, else dot when installed). A dot
+    that cannot be run or fails gives the builtin layout with a `note` saying why.
+    """
+    choice = engine or os.environ.get(LAYOUT_ENV, "").strip().lower() or "dot"
+    if choice == "builtin" or not pic.nodes:
+        return builtin_layout(pic)
+    program = shutil.which("dot")
+    if program is None:
+        note = None if engine is None and LAYOUT_ENV not in os.environ else "Graphviz dot is not installed"
+        return _with_note(builtin_layout(pic), note)
+    try:
+        return dot_layout(pic, program)
+    except DotFailed as exc:
+        return _with_note(builtin_layout(pic), f"Graphviz dot failed ({exc}); laid out by modeldiff itself")
+
+
+def _with_note(lay: Layout, note: str | None) -> Layout:
+    from dataclasses import replace
+
+    return lay if note is None else replace(lay, note=note)
+
+
+def builtin_layout(pic) -> Layout:
     """Tables in columns by depth; an arrow that crosses columns gets a slot in each, so it passes between tables."""
     tables = [n.table for n in pic.nodes]
     depth = layers(tables, [(a.src, a.dst) for a in pic.arrows])
@@ -167,6 +216,139 @@ def layout(pic) -> Layout:
     width = 2 * MARGIN + len(cols) * node_w + sum(gaps[:-1])
     bends = {index: tuple(slots[k] for k in chain) for index, chain in chains.items()}
     return Layout({t: slots[t] for t in tables}, bends, max(width, 2 * MARGIN), max(2 * MARGIN + tallest, 2 * MARGIN))
+
+
+# --- Graphviz dot --------------------------------------------------------------------------------
+
+
+class DotFailed(Exception):
+    """dot could not be run, failed, timed out or answered something this module cannot read."""
+
+
+def node_width(table: str) -> float:
+    return len(table) * CHAR_W + 28
+
+
+def label_size(text: str) -> tuple[float, float]:
+    """The room a label needs (px): its estimated text width and height, plus LABEL_PAD on every side."""
+    return len(text) * LABEL_CHAR_W + 2 * LABEL_PAD, LABEL_H + LABEL_PAD
+
+
+def dot_source(pic) -> str:
+    """dot's input for the layout: identifiers and sizes only (no model text), in points (1 pt drawn as 1 px)."""
+    lines = ["digraph modeldiff {",
+             f"  graph [rankdir=LR, nodesep={DOT_NODESEP}, ranksep={DOT_RANKSEP}, margin=0, pad=0];",
+             '  node [shape=box, fixedsize=true, label=""];', "  edge [arrowsize=0.9];"]
+    for n in pic.nodes:
+        lines.append(f"  {n.id} [width={node_width(n.table) / 72:.4f}, height={NODE_H / 72:.4f}];")
+    ids = {n.table: n.id for n in pic.nodes}
+    for a in pic.arrows:
+        w, h = label_size(_label(a))
+        box = (f'<<TABLE BORDER="0" CELLBORDER="0" CELLSPACING="0" CELLPADDING="0"><TR>'
+               f'<TD FIXEDSIZE="TRUE" WIDTH="{w:.0f}" HEIGHT="{h:.0f}"></TD></TR></TABLE>>')
+        two_way = a.style == "two-way"
+        if a.src == a.dst:
+            # dot does not keep a loop's label clear of others: the loop goes out to a point of its own and back,
+            # two edges dot routes (and labels) like any other; the drawing joins them
+            lines.append(f"  k{a.index} [shape=point, width=0.01, height=0.01];")
+            lines.append(f'  {ids[a.src]} -> k{a.index} [id="e{a.index}", label={box}, '
+                         f'dir={"back" if two_way else "none"}];')
+            lines.append(f'  k{a.index} -> {ids[a.dst]} [id="f{a.index}"];')
+            continue
+        lines.append(f'  {ids[a.src]} -> {ids[a.dst]} [id="e{a.index}", label={box}{", dir=both" if two_way else ""}];')
+    lines.append("}")
+    return "\n".join(lines) + "\n"
+
+
+def run_dot(source: str, program: str = "dot", timeout: float | None = None) -> dict:
+    """dot's JSON answer for `source` (within `timeout` s, default DOT_TIMEOUT); DotFailed with the reason."""
+    timeout = DOT_TIMEOUT if timeout is None else timeout
+    try:
+        done = subprocess.run([program, "-Tjson"], input=source.encode(), capture_output=True, timeout=timeout,
+                              check=False)
+    except subprocess.TimeoutExpired:
+        raise DotFailed(f"no answer within {timeout:g} s") from None
+    except OSError as exc:
+        raise DotFailed(exc.strerror or str(exc)) from None
+    if done.returncode != 0:
+        first = (done.stderr.decode("utf-8", "replace").strip().splitlines() or ["no message"])[0]
+        raise DotFailed(f"exit code {done.returncode}: {first[:200]}")
+    try:
+        return json.loads(done.stdout)
+    except ValueError:
+        raise DotFailed("its output is not JSON") from None
+
+
+def _point(text: str) -> tuple[float, float]:
+    x, y = text.split(",")[-2:]
+    return float(x), float(y)
+
+
+def _spline(pos: str) -> list[tuple[tuple[float, float], ...]]:
+    """Cubic segments of dot's `pos` ("e,x,y s,x,y p0 p1 ... p3k"), the arrowhead stretches included."""
+    start = end = None
+    points = []
+    for token in pos.split(";")[0].split():
+        if token.startswith("e,"):
+            end = _point(token)
+        elif token.startswith("s,"):
+            start = _point(token)
+        else:
+            points.append(_point(token))
+    if len(points) < 4 or (len(points) - 1) % 3:
+        raise DotFailed(f"an edge position of {len(points)} points")
+    segments = [tuple(points[i:i + 4]) for i in range(0, len(points) - 1, 3)]
+
+    def straight(p, q):
+        return p, (p[0] + (q[0] - p[0]) / 3, p[1] + (q[1] - p[1]) / 3), (p[0] + 2 * (q[0] - p[0]) / 3,
+                                                                        p[1] + 2 * (q[1] - p[1]) / 3), q
+
+    if start is not None:
+        segments.insert(0, straight(start, points[0]))
+    if end is not None:
+        segments.append(straight(points[-1], end))
+    return segments
+
+
+def dot_layout(pic, program: str = "dot", timeout: float | None = None) -> Layout:
+    """Tables, arrows and labels where dot puts them (its y axis turned to point down, everything inside margins)."""
+    answer = run_dot(dot_source(pic), program, timeout)
+    try:
+        by_id = {o["name"]: o for o in answer.get("objects", ())}
+        centres = {n.table: _point(by_id[n.id]["pos"]) for n in pic.nodes}
+        edges = {e["id"]: e for e in answer.get("edges", ()) if "id" in e}
+        raw_routes = {a.index: _spline(edges[f"e{a.index}"]["pos"])
+                      + (_spline(edges[f"f{a.index}"]["pos"]) if a.src == a.dst else []) for a in pic.arrows}
+        raw_labels = {a.index: _point(edges[f"e{a.index}"]["lp"]) for a in pic.arrows}
+    except (KeyError, ValueError, TypeError, AttributeError) as exc:
+        raise DotFailed(f"its answer lacks {exc}") from None
+    xs, ys = [], []
+    for n in pic.nodes:
+        (x, y), w = centres[n.table], node_width(n.table)
+        xs += [x - w / 2, x + w / 2]
+        ys += [y - NODE_H / 2, y + NODE_H / 2]
+    for a in pic.arrows:
+        for segment in raw_routes[a.index]:
+            xs += [p[0] for p in segment]
+            ys += [p[1] for p in segment]
+        (x, y), (w, h) = raw_labels[a.index], label_size(_label(a))
+        xs += [x - w / 2, x + w / 2]
+        ys += [y - h / 2, y + h / 2]
+    left, top = min(xs) - MARGIN, max(ys) + MARGIN  # dot's y grows upwards; the drawing's downwards
+
+    def at(p: tuple[float, float]) -> tuple[float, float]:
+        return p[0] - left, top - p[1]
+
+    boxes = {}
+    for n in pic.nodes:
+        (x, y), w = at(centres[n.table]), node_width(n.table)
+        boxes[n.table] = Box(n.table, 0, x - w / 2, y - NODE_H / 2, w, NODE_H)
+    routes = {i: [tuple(at(p) for p in segment) for segment in segments] for i, segments in raw_routes.items()}
+    labels = {}
+    for i, p in raw_labels.items():
+        x, y = at(p)
+        labels[i] = (x, y + 4)  # the baseline of an 11 px text centred on dot's label box
+    return Layout(boxes, {}, max(xs) + MARGIN - left, top - min(ys) + MARGIN, routes, labels, "dot")
 
 
 def _segment(x0: float, y0: float, x3: float, y3: float, offset: float = 0.0) -> tuple[tuple[float, float], ...]:
@@ -270,7 +452,7 @@ def _f(v: float) -> str:
 
 def _markers(prefix: str) -> str:
     out = []
-    for name, colour in (("grey", GREY), ("red", RED)):
+    for name, colour in (("grey", GREY), ("red", RED), ("role", PURPLE)):
         out.append(f'<marker id="{prefix}-{name}" viewBox="0 0 10 10" refX="9" refY="5" markerWidth="9" '
                    f'markerHeight="9" markerUnits="userSpaceOnUse" orient="auto-start-reverse"><path d="M0,0 L10,5 L0,10 z" fill="{colour}"/></marker>')
     return "<defs>" + "".join(out) + "</defs>"
@@ -297,46 +479,60 @@ def _label(a) -> str:
 
 
 def _arrow(a, segments, spot: tuple[float, float], prefix: str) -> str:
-    colour = RED if a.red else GREY
-    marker = f"url(#{prefix}-{'red' if a.red else 'grey'})"
-    attrs = [f'd="{_path_d(segments)}"', 'fill="none"', f'stroke="{colour}"', f'stroke-width="{3 if a.red else 1.4}"',
-             f'marker-end="{marker}"']
+    """One arrow with its label, whose baseline centre is `spot`."""
+    tone = "red" if a.red else "role" if a.travelled else "grey"
+    colour = {"red": RED, "role": PURPLE, "grey": GREY}[tone]
+    marker = f"url(#{prefix}-{tone})"
+    attrs = [f'd="{_path_d(segments)}"', 'fill="none"', f'stroke="{colour}"',
+             f'stroke-width="{1.4 if tone == "grey" else 3}"', f'marker-end="{marker}"']
     if a.style == "two-way":
         attrs.append(f'marker-start="{marker}"')
     if a.style in ("standby", "removed"):
         attrs.append('stroke-dasharray="5 4"')
     what = {"one-way": "one-way", "two-way": "two-way", "standby": "carries no filter here",
             "removed": "removed"}[a.style]
-    cls = "edge changed" if a.red else "edge"
+    cls = "edge changed" if a.red else "edge travelled" if a.travelled else "edge"
     return (f'<g class="{cls}" data-link="{escape(a.link)}" data-index="{a.index}">'
             f"<title>{escape(a.link)}: a filter on {escape(a.src)} restricts {escape(a.dst)} ({what})</title>"
             f'<path {" ".join(attrs)}/>'
-            f'<text x="{_f(spot[0])}" y="{_f(spot[1] - 4)}" text-anchor="middle" font-size="11" fill="{colour}" '
+            f'<text class="label" x="{_f(spot[0])}" y="{_f(spot[1])}" text-anchor="middle" font-size="11" fill="{colour}" '
             f'stroke="#ffffff" stroke-width="3" paint-order="stroke">{escape(_label(a))}</text></g>')
 
 
 SLANT = 10  # px: a hexagon's point, a parallelogram's lean
 
 
-def _outline(kind: str, box: Box) -> str:
+def _outline(kind: str, box: Box, slant: float = SLANT, round_rx: float = 12) -> str:
     """The shape of a table's kind (docs/graph.md): fact rectangle, dimension rounded, bridge hexagon, access parallelogram."""
     x, y, w, h = box.x, box.y, box.w, box.h
     if kind == "bridge":
-        corners = ((x + SLANT, y), (x + w - SLANT, y), (x + w, y + h / 2), (x + w - SLANT, y + h), (x + SLANT, y + h),
+        corners = ((x + slant, y), (x + w - slant, y), (x + w, y + h / 2), (x + w - slant, y + h), (x + slant, y + h),
                    (x, y + h / 2))
     elif kind == "access":
-        corners = ((x + SLANT, y), (x + w, y), (x + w - SLANT, y + h), (x, y + h))
+        corners = ((x + slant, y), (x + w, y), (x + w - slant, y + h), (x, y + h))
     else:
-        rx = 12 if kind == "dimension" else 3
+        rx = round_rx if kind == "dimension" else 3
         return f'<rect x="{_f(x)}" y="{_f(y)}" width="{_f(w)}" height="{_f(h)}" rx="{rx}" '
     return '<polygon points="' + " ".join(f"{_f(px)},{_f(py)}" for px, py in corners) + '" '
 
 
+def swatch(kind: str) -> str:
+    """A small inline drawing of a table kind's shape and colours, for a legend."""
+    box = Box("", 0, 1.5, 1.5, 30, 14)
+    return (f'<svg xmlns="http://www.w3.org/2000/svg" class="swatch-{escape(kind)}" width="33" height="17" '
+            f'viewBox="0 0 33 17" style="vertical-align:-3px;margin-right:4px" aria-hidden="true">'
+            + _outline(kind, box, slant=5, round_rx=6)
+            + f'fill="{_FILL.get(kind, "#fff")}" stroke="{_STROKE.get(kind, GREY)}" stroke-width="1.5"/></svg>')
+
+
 def _node(n, box: Box) -> str:
     stroke, width = (RED, 3) if n.on_new_path else (_STROKE.get(n.kind, GREY), 1.5)
+    if n.role:
+        stroke, width = PURPLE, 5 if n.role == "filter" else 3
     dash = ' stroke-dasharray="4 4"' if n.kind == "missing" else ""
     title = f"{n.table} ({n.kind})" + (f": {n.description}" if n.description else "")
-    cls = "node newpath" if n.on_new_path else "node"
+    title += {"filter": "; the role filters it", "restricted": "; the role's filters restrict it"}.get(n.role, "")
+    cls = "node" + (" newpath" if n.on_new_path else "") + (f" role-{n.role}" if n.role else "")
     return (f'<g class="{cls}" data-table="{escape(n.table)}"><title>{escape(title)}</title>'
             + _outline(n.kind, box)
             + f'fill="{_FILL.get(n.kind, "#fff")}" stroke="{stroke}" stroke-width="{width}"{dash}/>'
@@ -344,21 +540,33 @@ def _node(n, box: Box) -> str:
             f'fill="#222">{escape(n.table)}</text></g>')
 
 
-def svg_of(pic, prefix: str = "mdg", standalone: bool = False) -> str:
-    """The picture as one <svg> element (with an XML namespace, so it also stands alone as a file)."""
-    lay = layout(pic)
+def svg_of(pic, prefix: str = "mdg", standalone: bool = False, engine: str | None = None) -> str:
+    """The picture as one <svg> element (with an XML namespace, so it also stands alone as a file).
+
+    Inside a page (not `standalone`) it shrinks to the width it is given rather than being cut off.
+    `engine`: see `layout`.
+    """
+    lay = layout(pic, engine)
     width, height = lay.width, lay.height
-    offsets = _offsets(pic)
+    fit = "" if standalone else ' style="max-width:100%;height:auto"'
     parts = [f'<svg xmlns="http://www.w3.org/2000/svg" class="modeldiff-graph" width="{_f(width)}" '
-             f'height="{_f(height)}" viewBox="0 0 {_f(width)} {_f(height)}" role="img" '
+             f'height="{_f(height)}" viewBox="0 0 {_f(width)} {_f(height)}"{fit} role="img" '
+             f'data-layout="{lay.engine}" '
              f'font-family="system-ui, -apple-system, Segoe UI, Helvetica, Arial, sans-serif">',
-             f"<title>Filter graph of {escape(pic.model)} ({escape(pic.setting)})</title>", _markers(prefix)]
-    routes = {a.index: route(lay.boxes[a.src], lay.boxes[a.dst], lay.bends[a.index], offsets[a.index])
-              for a in pic.arrows}
-    # red labels first, so the changed links keep the best spots
-    order = sorted(pic.arrows, key=lambda a: (not a.red, a.index))
-    spots = dict(zip((a.index for a in order),
-                     place_labels([(_label(a), routes[a.index]) for a in order], lay.boxes.values())))
+             f"<title>Filter graph of {escape(pic.model)} ({escape(pic.setting)})</title>"]
+    if lay.note:
+        parts.append(f'<desc class="layout-note">{escape(lay.note)}</desc>')
+    parts.append(_markers(prefix))
+    if lay.routes:
+        routes, spots = lay.routes, lay.labels
+    else:
+        offsets = _offsets(pic)
+        routes = {a.index: route(lay.boxes[a.src], lay.boxes[a.dst], lay.bends[a.index], offsets[a.index])
+                  for a in pic.arrows}
+        # red labels first, so the changed links keep the best spots
+        order = sorted(pic.arrows, key=lambda a: (not a.red, a.index))
+        placed = place_labels([(_label(a), routes[a.index]) for a in order], lay.boxes.values())
+        spots = {a.index: (x, y - 4) for a, (x, y) in zip(order, placed)}  # the text's baseline above the spot
     parts += [_arrow(a, routes[a.index], spots[a.index], prefix) for a in pic.arrows]
     parts += [_node(n, lay.boxes[n.table]) for n in pic.nodes]
     parts.append("</svg>")
