@@ -41,11 +41,13 @@ class _Context:
     """One revision being checked, with the memos its rules share."""
 
     model: Model
+    warning_positions: bool = True  # False: warnings carry no position (reading positions costs a second pass)
     _clean: dict = field(default_factory=dict, repr=False)
 
     def finding(self, rule: str, subject: str, message: str, paths=(), at: str | None = None) -> Finding:
-        return Finding(rule, RULES[rule], subject, message, tuple(tuple(p) for p in paths),
-                       self.model.pos(at or subject))
+        severity = RULES[rule]
+        pos = self.model.pos(at or subject) if self.warning_positions or severity == ERROR else None
+        return Finding(rule, severity, subject, message, tuple(tuple(p) for p in paths), pos)
 
     @cached_property
     def measure_names_lower(self) -> frozenset[str]:
@@ -612,6 +614,10 @@ RECORD_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (
 )
 # Rules that walk the flow and security graphs (warnings only).
 GRAPH_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (rule_ambiguous_paths, rule_security)
+# The rules whose findings a diff reads: errors (which make it breaking) and warnings new in the new revision
+# (shown as `warning.added`). The ambiguity walk is left out: a new ambiguous pair is an `ambiguity.introduced`
+# change of the diff already, and the walk over every setting is the check's most costly part.
+DIFF_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = RECORD_RULES + (rule_security,)
 
 
 # What each record rule reads: a section's records, or only the names in it. A rule whose inputs are
@@ -629,21 +635,26 @@ RULE_INPUTS: dict[Callable[[_Context], Iterable[Finding]], tuple[str, ...]] = {
     rule_measure_cycle: ("measures",),
     rule_history_incomplete: ("tables",),
     rule_standby: ("measures", "variants", "reports", "links"),
+    rule_security: ("roles", "links", "tables"),
 }
 
 
 def check_model(model: Model, load_findings: Iterable[Finding] = (), graph_rules: bool = True) -> list[Finding]:
     """All findings for one revision, sorted errors first, then by rule and subject.
 
-    `graph_rules=False` skips the graph walks, which raise only warnings: the
-    diff uses it to learn a revision's errors cheaply.
+    `graph_rules=False` runs only DIFF_RULES (it skips the ambiguity walk,
+    which raises only warnings): the diff uses it to learn a revision's errors
+    and the warnings it compares cheaply. Its warnings carry no position (a
+    model's positions are read in a second pass over its text, which a diff
+    pays only when it shows one: `diff.warning_changes` asks the model for
+    the few warnings that are new).
     """
     from modeldiff.load import paused_gc
 
-    ctx = _Context(model)
+    ctx = _Context(model, warning_positions=graph_rules)
     findings = list(load_findings)
     with paused_gc():  # many small records, no cycles: the collector would only walk the model again and again
-        for rule in RECORD_RULES + (GRAPH_RULES if graph_rules else ()):
+        for rule in (RECORD_RULES + GRAPH_RULES) if graph_rules else DIFF_RULES:
             findings.extend(rule(ctx))
     return _sorted_unique(findings)
 
@@ -659,11 +670,11 @@ def check_pair(old: Model, old_load_findings: Iterable[Finding], new: Model,
     """
     from modeldiff.load import paused_gc
 
-    old_ctx, new_ctx = _Context(old), _Context(new)
+    old_ctx, new_ctx = _Context(old, False), _Context(new, False)
     old_found, new_found = list(old_load_findings), list(new_load_findings)
     same: dict[str, bool] = {}
     with paused_gc():
-        for rule in RECORD_RULES:
+        for rule in DIFF_RULES:
             found = list(rule(old_ctx))
             old_found += found
             if found or not all(_same_input(old, new, what, same) for what in RULE_INPUTS[rule]):
@@ -676,25 +687,25 @@ def check_new_side(old: Model, old_load_findings: Iterable[Finding], new: Model,
     """(the old revision's findings as far as a diff reads them, `check_model(new, ..., graph_rules=False)`).
 
     Without a cache, a diff reads the old revision's findings only to tell
-    which of the new revision's broken references are new
-    (`impact._reference_changes`: their rule, subject and message). So every
-    record rule runs on the new revision; on the old one a rule runs only when
-    it found a broken reference in the new revision and what it reads
-    (RULE_INPUTS) differs. When its inputs are equal, its findings in the new
+    which of the new revision's broken references and warnings are new
+    (`impact._reference_changes`, `diff.warning_changes`: their rule, subject
+    and message). So every rule of DIFF_RULES runs on the new revision; on the
+    old one a rule runs only when it found a broken reference or a warning in
+    the new revision and what it reads (RULE_INPUTS) differs. When its inputs are equal, its findings in the new
     revision stand for those of the old one (equal but for their positions).
     The first list holds the old load findings and these; the second list is
     exactly `check_model`'s.
     """
     from modeldiff.load import paused_gc
 
-    old_ctx, new_ctx = _Context(old), _Context(new)
+    old_ctx, new_ctx = _Context(old, False), _Context(new, False)
     old_found, new_found = list(old_load_findings), list(new_load_findings)
     same: dict[str, bool] = {}
     with paused_gc():
-        for rule in RECORD_RULES:
+        for rule in DIFF_RULES:
             found = list(rule(new_ctx))
             new_found += found
-            if not any(f.rule == "broken-reference" for f in found):
+            if not any(f.rule == "broken-reference" or f.severity == WARNING for f in found):
                 continue
             if all(_same_input(old, new, what, same) for what in RULE_INPUTS[rule]):
                 old_found += found

@@ -1359,6 +1359,70 @@ def reference_changes(old_findings: Iterable, new_findings: Iterable, structural
     return out
 
 
+# --- check warnings new in the new revision -------------------------------------------------------
+
+# Rules whose subject alone says what a warning is about (their messages list what they reach, which can
+# change while the warning stays the same one).
+_WHOLE_SUBJECT_RULES = frozenset({"role-reaches-no-fact", "standby-unused", "two-way-drops-unmatched"})
+
+
+def _renames_of(structural: Iterable[Change]) -> dict[str, dict[str, str]]:
+    out: dict[str, dict[str, str]] = defaultdict(dict)
+    for change in structural:
+        noun, _, what = change.kind.partition(".")
+        if what == "renamed" and f"{noun}s" in _NOUNS:
+            out[f"{noun}s"][change.before] = change.after
+    return out
+
+
+def _subject_in_new_names(subject: str, renames: Mapping[str, Mapping[str, str]]) -> str:
+    """A finding's subject of the old revision in new names (`paths.a->b` and `roles.R.tables.T` included)."""
+    parts = subject.split(".")
+    if len(parts) < 2:
+        return subject
+    section, name, rest = parts[0], parts[1], parts[2:]
+    tables = renames.get("tables", {})
+    if section == "paths":
+        name = "->".join(tables.get(t, t) for t in name.split("->"))
+    else:
+        name = renames.get(section, {}).get(name, name)
+    if section == "roles" and len(rest) == 2 and rest[0] == "tables":
+        rest = ["tables", tables.get(rest[1], rest[1])]
+    return ".".join([section, name, *rest])
+
+
+def warning_changes(old_findings: Iterable, new_findings: Iterable, structural: Iterable[Change] = (),
+                    new_model: Model | None = None) -> list[Change]:
+    """One `warning.added` change (severity `safe`) per warning of the new revision that the old one lacks.
+
+    A warning is the same one when the old revision has the same rule on the
+    same subject (read in new names) with the same message; for rules whose
+    subject alone says what they are about (_WHOLE_SUBJECT_RULES), and for an
+    item that was renamed, the rule and subject suffice. Warnings alone move
+    no number (DEVELOPERS.md, "New warnings in a diff"): the change that
+    caused one carries its own severity. A finding without a position (the
+    diff's checks read none) is placed at its subject in `new_model`.
+    """
+    renames = _renames_of(structural)
+    seen: set[tuple] = set()
+    for f in old_findings:
+        if f.severity != "warning":
+            continue
+        subject = _subject_in_new_names(f.subject, renames)
+        seen.add((f.rule, subject, f.message))
+        if subject != f.subject or f.rule in _WHOLE_SUBJECT_RULES:
+            seen.add((f.rule, subject))
+    out = []
+    for f in new_findings:
+        if f.severity != "warning" or (f.rule, f.subject, f.message) in seen or (f.rule, f.subject) in seen:
+            continue
+        pos = f.pos if f.pos is not None or new_model is None else new_model.pos(f.subject)
+        out.append(Change("warning.added", f.subject, SAFE, f"New check warning ({f.rule}): {f.message}",
+                          details={"rule": f.rule} | ({"location": str(pos)} if pos else {})
+                          | ({"paths": [list(p) for p in f.paths]} if f.paths else {})))
+    return out
+
+
 def diff_models(old: Model, new: Model) -> list[Change]:
     """Every structural change from `old` to `new`, sorted by Change.sort_key (ids not yet assigned)."""
     ctx = DiffContext(old, new)

@@ -1063,6 +1063,7 @@ def _analyse(old: Model, new: Model, old_findings: Iterable[Finding], new_findin
     if new_checked is None:
         new_checked = check.check_model(new, new_findings, graph_rules=False)
     derived = _derived_graph_changes(a) + _security_changes(a) + _reference_changes(old_checked, new_checked, structural)
+    derived += diff.warning_changes(old_checked, new_checked, structural, new)
     changes = sorted(structural + derived, key=Change.sort_key)
     changes = [replace(c, id=f"c{i}") for i, c in enumerate(changes, 1)]
     impacts = _Impacts(a, changes)

@@ -278,7 +278,7 @@ class _Planner:
             if "." in change.kind and change.kind.split(".")[0] in (*_NOUN_SECTION, "column"):
                 self.structural(change)
         for change in self.result.changes:
-            if change.kind.split(".")[0] in ("path", "ambiguity", "security", "reference"):
+            if change.kind.split(".")[0] in ("path", "ambiguity", "security", "reference", "warning"):
                 self.derived(change)
         for change in self.result.changes:
             self.data_checks(change)
@@ -382,6 +382,11 @@ class _Planner:
         targets: list[_Draft] = []
         if kind.startswith("security."):
             targets = self.security_causes(change)
+        elif kind == "warning.added":  # the step editing the item it is about, else a review of the warning
+            targets = self.edits_of(_item_subject(change)) or [self.step(
+                "review", change.subject, f"Review the new {change.details.get('rule', 'check')} warning on "
+                f"{_display(change.subject)}: fix what it says, or accept it as intended",
+                "Nothing to undo: this step only reviews what the other steps do.")]
         else:
             targets = self.link_steps(change.details.get("links", ()))
         if not targets:

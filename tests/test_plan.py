@@ -370,7 +370,9 @@ def test_the_bike_share_example_tells_operations_then_widens_the_flow():
     assert (code, err) == (0, "")
     doc = json.loads(out)
     assert [(s["kind"], s["subject"]) for s in doc["steps"]] == [
-        ("tell-owners", "owners.operations"), ("change-link", "links.trips_start_station")]
+        ("tell-owners", "owners.operations"), ("change-link", "links.trips_start_station"),
+        ("review", "roles.student_programme_analyst")]  # the new security-stops warning the widened flow raises
+    assert doc["steps"][2]["title"].startswith("Review the new security-stops warning on student_programme_analyst")
     link_step = doc["steps"][1]
     assert link_step["after"] == ["s1"]
     assert any("decide which route" in p for p in link_step["preconditions"])
