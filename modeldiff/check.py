@@ -640,7 +640,7 @@ RULE_INPUTS: dict[Callable[[_Context], Iterable[Finding]], tuple[str, ...]] = {
 
 
 def check_model(model: Model, load_findings: Iterable[Finding] = (), graph_rules: bool = True) -> list[Finding]:
-    """All findings for one revision, sorted errors first, then by rule and subject.
+    """All findings for one revision, sorted errors first, root causes first (`_CAUSE_ORDER`), then by rule and subject.
 
     `graph_rules=False` runs only DIFF_RULES (it skips the ambiguity walk,
     which raises only warnings): the diff uses it to learn a revision's errors
@@ -727,9 +727,16 @@ def _same_input(old: Model, new: Model, what: str, memo: dict[str, bool]) -> boo
     return found
 
 
+# Root causes first: a value the reader could not take (`standby: yes`, read as text, hence false) comes
+# before a name that points nowhere, and both before what follows from them (a duplicate live link, an
+# ambiguity); then by rule. Errors before warnings throughout.
+_CAUSE_ORDER = {"invalid-model": 0, "broken-reference": 1}
+
+
 def _sorted_unique(findings: list[Finding]) -> list[Finding]:
     unique = {(f.rule, f.subject, f.message): f for f in findings}
-    return sorted(unique.values(), key=lambda f: (f.severity != ERROR, f.rule, f.subject, f.message))
+    return sorted(unique.values(), key=lambda f: (f.severity != ERROR, _CAUSE_ORDER.get(f.rule, 2), f.rule,
+                                                  f.subject, f.message))
 
 
 def exit_code(findings: Iterable[Finding], strict: bool = False) -> int:
