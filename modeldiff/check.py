@@ -51,6 +51,15 @@ class _Context:
         return Finding(rule, severity, subject, message, tuple(tuple(p) for p in paths), pos)
 
     @cached_property
+    def measures_by_home(self) -> dict[str, list[str]]:
+        """Home table -> the base measures on it."""
+        out: dict[str, list[str]] = {}
+        for measure in self.model.measures.values():
+            if measure.table is not None:
+                out.setdefault(measure.table, []).append(measure.name)
+        return out
+
+    @cached_property
     def measure_names_lower(self) -> frozenset[str]:
         return frozenset(name.lower() for name in self.model.measures)
 
@@ -622,10 +631,10 @@ def _fix_link(model: Model, fg, default_edges: frozenset | None, source: str, fi
     return pool[0], against(pool[0])
 
 
-def _readers(model: Model, fg, target: str, homes: frozenset[str]) -> str:
-    """"measure a reads it", "measures a, b and 3 more read them": the measures whose home `target` reaches."""
-    reached = fg.reach(target)
-    names = sorted(m.name for m in model.measures.values() if m.table in homes and m.table in reached)
+def _readers(ctx: _Context, fg, target: str, homes: frozenset[str]) -> str:
+    """"measure a reads it", "measures a, b and 3 more read it": the measures whose home `target` reaches."""
+    by_home = ctx.measures_by_home
+    names = sorted(name for home in fg.reach(target) if home in homes for name in by_home.get(home, ()))
     if len(names) == 1:
         return f"measure {names[0]} reads it"
     shown = ", ".join(names[:3]) + (f" and {len(names) - 3} more" if len(names) > 3 else "")
@@ -674,7 +683,7 @@ def _ambiguity_finding(ctx: _Context, candidate: _Candidate, fg, default_edges, 
     where = "" if candidate.item is None else f" in {candidate.label}"
     head = (f"A filter on {source} reaches {target} along more than one route{where} "
             f"({' / '.join(first)} and {' / '.join(second)}); numbers on {target} then depend on the data along each "
-            f"route, and {_readers(model, fg, target, candidate.homes)}. ")
+            f"route, and {_readers(ctx, fg, target, candidate.homes)}. ")
     if candidate.item is None:
         at = f"links.{link}"
         fix = (f"Make link {link} one-way, or put it on standby (naming it in `use` where it is needed), so one "
