@@ -162,3 +162,72 @@ def test_the_check_of_the_new_revision_still_finds_the_left_behind_reference():
     # the diff rewords the reference; the new revision itself is still broken, and the verdict says so
     _, new = _measure_half_renamed()
     assert [f.subject for f in check_model(new, ()) if f.rule == "broken-reference"] == ["reports.east_count"]
+
+
+# --- seeded property: whatever follows, the rename is one change and each item left behind one reference.broken
+
+
+def _follow(m, section: str, old: str, new: str, subject: str):
+    """`m` with item `subject` naming `new` where it named `old` (a report's measures/variant/role, or a
+    derived measure's expression)."""
+    kind, _, name = subject.partition(".")
+    if kind == "reports":
+        r = m.reports[name]
+        if section == "measures":
+            r = dataclasses.replace(r, measures=tuple(new if x == old else x for x in r.measures))
+        elif section == "variants":
+            r = dataclasses.replace(r, variant={(new if v == old else v): o for v, o in r.variant.items()})
+        else:
+            r = dataclasses.replace(r, role=new)
+        return edit(m, r)
+    import re
+
+    d = m.measures[name]
+    return edit(m, dataclasses.replace(d, expr=re.sub(rf"\b{old}\b", new, d.expr)))
+
+
+def _richer_base():
+    extra = [report(f"extra_{i}", ["fare_revenue", "trip_count", "repair_cost"][i % 3], "districts.name",
+                    variant={"attribution": "current"} if i % 2 else {}, role="east_district_lead" if i % 3 else None)
+             for i in range(5)]
+    return edit(BASE, *extra, measure("trips_twice", "trip_count + trip_count"))
+
+
+def test_renames_with_any_subset_of_references_left_behind_seeded():
+    import random
+
+    from modeldiff.diff import References
+
+    rng = random.Random(20261203)
+    base = _richer_base()
+    refs = References(base)
+    cases = [("measures", n) for n in ("fare_revenue", "trip_count", "repair_cost")] + \
+            [("variants", "attribution"), ("roles", "east_district_lead")]
+    checked = 0
+    for _ in range(60):
+        section, old = rng.choice(cases)
+        new_name = f"{old}_v2"
+        users = list(refs.referrers(section, old))
+        if section == "measures":
+            users = [u for u in users if u.startswith(("reports.", "measures."))]
+        left = sorted(u for u in users if rng.random() < 0.4)
+        changed = rename(base, section, old, new_name)
+        for user in users:
+            if user not in left:
+                changed = _follow(changed, section, old, new_name, user)
+        r = analyse(base, changed)
+        noun = section[:-1]
+        structural = [(c.kind, c.subject) for c in r.changes if not c.kind.startswith(("path.", "security.",
+                                                                                       "ambiguity.", "warning."))]
+        renamed = only(r, f"{noun}.renamed", f"{section}.{new_name}")
+        broken = sorted(c.subject for c in r.changes if c.kind == "reference.broken")
+        assert broken == left, (section, old, left, broken)
+        assert sorted(structural) == sorted([(f"{noun}.renamed", f"{section}.{new_name}")]
+                                            + [("reference.broken", s) for s in left]), structural
+        if left:
+            assert renamed.severity == "breaking"
+        elif section != "measures":  # (a measure a report shows is breaking when renamed: changes.md, Severity)
+            assert renamed.severity == "safe"
+        assert renamed.details.get("left_behind", []) == left
+        checked += 1
+    assert checked == 60
