@@ -65,12 +65,13 @@ def test_a_new_warning_is_a_safe_change_in_json_and_leaves_the_verdict_alone(tmp
     assert warning["details"]["location"].startswith(str(tmp_path / "new.model.yaml"))
     assert "Standby link trips_end is used by no measure" in warning["message"]
     assert (code, doc["summary"]["verdict"]) == (0, "safe")
+    assert (doc["summary"]["new_warnings"], doc["summary"]["safe"]) == (1, 2)
 
 
 def test_a_warning_present_in_both_revisions_is_not_new(tmp_path):
     code, doc = json_changes(tmp_path, V2, V2.replace("expr: count(*)}", "expr: count(*), description: Trips.}"))
     assert [c["kind"] for c in doc["changes"]] == ["measure.metadata_changed"]
-    assert code == 0
+    assert code == 0 and doc["summary"]["new_warnings"] == 0
 
 
 def test_a_warning_that_follows_a_renamed_item_is_not_new(tmp_path):
