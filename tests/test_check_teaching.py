@@ -12,6 +12,17 @@ from modeldiff.load import load_files
 
 NAME = "clinic.model.yaml"
 
+
+def _follow_key() -> str:
+    """The key that makes a standby link carry filters: `via` where the format reads it (its first spelling
+    `use` is then a deprecated alias that warns), else `use`."""
+    probe = ("model: p\nformat: 1\ntables: {t: {kind: fact, key: k, columns: {k: integer}}}\n"
+             "measures: {m: {table: t, expr: count(*), via: []}}\n")
+    return "via" if not load_files([("p.model.yaml", probe.encode())]).findings else "use"
+
+
+VIA = _follow_key()
+
 CLINIC = """\
 model: clinic
 format: 1
@@ -28,10 +39,10 @@ links:
   appointments_clinic: {from: appointments.clinic_key, to: clinics.clinic_key}
 measures:
   appointment_count: {table: appointments, expr: count(*)}
-  ended_count: {table: appointments, expr: count(*), use: [appointments_end_day]}
+  ended_count: {table: appointments, expr: count(*), VIA: [appointments_end_day]}
 reports:
   visits_by_city: {measures: [appointment_count, ended_count], by: [clinics.city]}
-"""
+""".replace("VIA:", f"{VIA}:")
 
 
 def findings(text: str):
@@ -135,7 +146,7 @@ links:
     "clinic_key: integer, minutes: integer}", "clinic_key: integer, staff_key: integer, minutes: integer}").replace(
     "  appointments_clinic:", "  appointments_staff: {from: appointments.staff_key, to: staff.staff_key}\n"
                               "  appointments_clinic:")
-OVERRIDES = "use: [staff_clinic], flow: {appointments_clinic: two-way, appointments_staff: two-way}"
+OVERRIDES = f"{VIA}: [staff_clinic], flow: {{appointments_clinic: two-way, appointments_staff: two-way}}"
 
 
 def test_an_ambiguity_of_a_measure_s_setting_is_placed_at_that_measure_with_its_fix():
