@@ -35,6 +35,7 @@ RULES = {
     "standby-unused": WARNING,
     "via-not-standby": WARNING,
     "deprecated-key": WARNING,  # ours: a key in its first spelling (load.DEPRECATED_KEYS), read as the new one
+    "two-way-drops-unmatched": WARNING,  # extension (docs/check-rules.md)
 }
 
 
@@ -43,11 +44,22 @@ class _Context:
     """One revision being checked, with the memos its rules share."""
 
     model: Model
+    warning_positions: bool = True  # False: warnings carry no position (reading positions costs a second pass)
     _clean: dict = field(default_factory=dict, repr=False)
 
     def finding(self, rule: str, subject: str, message: str, paths=(), at: str | None = None) -> Finding:
-        return Finding(rule, RULES[rule], subject, message, tuple(tuple(p) for p in paths),
-                       self.model.pos(at or subject))
+        severity = RULES[rule]
+        pos = self.model.pos(at or subject) if self.warning_positions or severity == ERROR else None
+        return Finding(rule, severity, subject, message, tuple(tuple(p) for p in paths), pos)
+
+    @cached_property
+    def measures_by_home(self) -> dict[str, list[str]]:
+        """Home table -> the base measures on it."""
+        out: dict[str, list[str]] = {}
+        for measure in self.model.measures.values():
+            if measure.table is not None:
+                out.setdefault(measure.table, []).append(measure.name)
+        return out
 
     @cached_property
     def measure_names_lower(self) -> frozenset[str]:
@@ -490,65 +502,202 @@ def _default_options(model: Model) -> tuple[Overrides, ...]:
     return graph.setting_layers(model, variant_defaults=True)
 
 
-def _settings(model: Model):
-    """Every distinct setting the model can be evaluated in, with a label for messages.
+@dataclass(frozen=True)
+class _Candidate:
+    """One setting the ambiguity rule looks at: whose it is, and the tables its measures read."""
 
-    Yields (label, Setting): the default setting (the model's own links), then
-    each variant option's, measure's and report's (and each report measure's)
-    own, skipping repeats. A measure is checked alone and after the variants'
-    default options; a report with the options it picks or defaults to.
+    label: str  # for messages: "the default setting", "measure m's setting", ...
+    layers: tuple[Overrides, ...]
+    item: str | None  # the subject whose overrides make this setting (None: the model's own links)
+    own: Overrides  # that item's overrides: where a fix can go
+    homes: frozenset[str]  # home tables of the base measures computed in this setting
+
+
+def _bases(model: Model, name: str) -> frozenset[str]:
+    """The base measures a measure reaches (itself when it is one); names that do not exist are left out."""
+    refs = sql.derived_measure_refs(model.measures)
+    found: set[str] = set()
+    todo, seen = [name], set()
+    while todo:
+        current = todo.pop()
+        measure = model.measures.get(current)
+        if measure is None or current in seen:
+            continue
+        seen.add(current)
+        if measure.table is not None:
+            found.add(current)
+        else:
+            todo.extend(refs.get(current, ()))
+    return frozenset(found)
+
+
+def _homes(model: Model, names: Iterable[str]) -> frozenset[str]:
+    measures = model.measures
+    return frozenset(measures[b].table for name in names for b in _bases(model, name))
+
+
+def _settings(model: Model):
+    """Every distinct setting the model can be evaluated in, with whose it is and what is read in it.
+
+    Yields (_Candidate, Setting): the default setting (the model's own links,
+    read by every measure), then each variant option's, measure's and
+    report's (and each report measure's) own, skipping repeats. A measure is
+    checked alone and after the variants' default options; a report with the
+    options it picks or defaults to. An option's setting is read by the
+    measures of the reports that pick it (every measure, for a default
+    option); a measure's by that measure; a report's by its measures.
     """
 
     resolver = graph.SettingResolver(model)
     defaults = _default_options(model)
-    candidates: list[tuple[str, tuple[Overrides, ...]]] = [("the default setting", ())]
+    every = frozenset(m.table for m in model.measures.values() if m.table is not None)
+    candidates: list[_Candidate] = [_Candidate("the default setting", (), None, NO_OVERRIDES, every)]
     for variant in model.variants.values():
         for option in variant.options.values():
             if option.overrides:
-                candidates.append((f"option {option.name} of variant {variant.name}", (option.overrides,)))
+                readers = [m for r in model.reports.values()
+                           if r.variant.get(variant.name, variant.default) == option.name for m in r.measures]
+                homes = every if option.name == variant.default else _homes(model, readers)
+                candidates.append(_Candidate(f"option {option.name} of variant {variant.name}", (option.overrides,),
+                                             f"variants.{variant.name}.options.{option.name}", option.overrides, homes))
     for measure in model.measures.values():
         if measure.overrides:
-            label = f"measure {measure.name}'s setting"
-            candidates += [(label, (measure.overrides,)), (label, defaults + (measure.overrides,))]
+            label, homes = f"measure {measure.name}'s setting", _homes(model, [measure.name])
+            for layers in ((measure.overrides,), defaults + (measure.overrides,)):
+                candidates.append(_Candidate(label, layers, f"measures.{measure.name}", measure.overrides, homes))
     for report in model.reports.values():
-        candidates.append((f"report {report.name}'s setting",
-                           graph.setting_layers(model, report=report, variant_defaults=True)))
+        candidates.append(_Candidate(f"report {report.name}'s setting",
+                                     graph.setting_layers(model, report=report, variant_defaults=True),
+                                     f"reports.{report.name}", report.overrides, _homes(model, report.measures)))
         for name in report.measures:
             measure = model.measures.get(name)
             if measure is not None and measure.overrides:
-                candidates.append((f"measure {name} in report {report.name}",
-                                   graph.setting_layers(model, measure=measure, report=report, variant_defaults=True)))
+                candidates.append(_Candidate(
+                    f"measure {name} in report {report.name}",
+                    graph.setting_layers(model, measure=measure, report=report, variant_defaults=True),
+                    f"measures.{name}", measure.overrides, _homes(model, [name])))
     seen: set[Setting] = set()
-    for label, layers in candidates:
-        setting = resolver.resolve(*layers)
+    for candidate in candidates:
+        setting = resolver.resolve(*candidate.layers)
         if setting not in seen:
             seen.add(setting)
-            yield label, setting
+            yield candidate, setting
+
+
+def _reaching_any(fg, targets: Iterable[str]) -> set[str]:
+    """Tables from which a filter reaches any of `targets` (the targets included)."""
+    found = {t for t in targets if t in fg.tables}
+    todo = list(found)
+    while todo:
+        for edge in fg.in_edges(todo.pop()):
+            if edge.src not in found:
+                found.add(edge.src)
+                todo.append(edge.src)
+    return found
+
+
+def _steps(fg, source: str, path) -> list:
+    """The edges a witness path crosses from `source`."""
+    out, here = [], source
+    for link in path:
+        edge = next((e for e in fg.out_edges(here) if e.link == link and e.dst != here), None)
+        if edge is None:
+            break
+        out.append(edge)
+        here = edge.dst
+    return out
+
+
+def _fix_link(model: Model, fg, default_edges: frozenset | None, source: str, first, second,
+              wanted: Iterable[str]) -> tuple[str, bool]:
+    """(link, whether a route crosses it against its declared direction): the link the fix names.
+
+    A link on one witness route only; preferably one whose edge this setting
+    brought (absent from the default setting's graph) and that the item does
+    not ask for in `via`.
+    """
+    crossed = {e.link: e for e in _steps(fg, source, first) + _steps(fg, source, second)}
+
+    def against(link: str) -> bool:
+        edge, declared = crossed.get(link), model.links.get(link)
+        return (edge is not None and declared is not None and edge.src == declared.from_table
+                and declared.cardinality != "one-to-one")
+
+    only = [x for x in second if x not in first] + [x for x in first if x not in second]
+    wanted = set(wanted)
+    if default_edges is None:  # the default setting: a link crossed against its direction opens the extra route
+        brought = {x for x in only if against(x)}
+    else:
+        brought = {x for x in only if x in crossed and crossed[x] not in default_edges}
+    pool = ([x for x in only if x in brought and x not in wanted] or [x for x in only if x not in wanted] or only
+            or list(second))
+    return pool[0], against(pool[0])
+
+
+def _readers(ctx: _Context, fg, target: str, homes: frozenset[str]) -> str:
+    """"measure a reads it", "measures a, b and 3 more read it": the measures whose home `target` reaches."""
+    by_home = ctx.measures_by_home
+    names = sorted(name for home in fg.reach(target) if home in homes for name in by_home.get(home, ()))
+    if len(names) == 1:
+        return f"measure {names[0]} reads it"
+    shown = ", ".join(names[:3]) + (f" and {len(names) - 3} more" if len(names) > 3 else "")
+    return f"measures {shown} read it"
+
+
+def _item_words(item: str) -> str:
+    parts = item.split(".")
+    if parts[0] == "variants":
+        return f"option {parts[3]} of variant {parts[1]}"
+    return f"{parts[0][:-1]} {parts[1]}"
 
 
 def rule_ambiguous_paths(ctx: _Context) -> Iterator[Finding]:
+    """Ambiguous pairs whose target some measure computed in that setting reads (its home is the target or is
+    reached from it), placed at the item whose setting it is (a link, for the default setting), with the fix
+    that applies there. Each pair once, in the first setting that shows it."""
 
+    model = ctx.model
     reported: set[tuple[str, str]] = set()
-    default = None
-    for label, setting in _settings(ctx.model):  # the default setting first
-        fg = graph.flow_graph(ctx.model, setting)
+    default = default_edges = None
+    for candidate, setting in _settings(model):  # the default setting first
+        fg = graph.flow_graph(model, setting)
         sources = None
         if default is None:
-            default = fg
+            default, default_edges = fg, frozenset(fg.edges)
         else:
             sources = _sources_of_new_routes(default, fg)
             if not sources:
                 continue
-        for source, target, first, second in fg.ambiguous_pairs(sources=sources):
+        targets = _reaching_any(fg, candidate.homes)
+        if not targets:
+            continue
+        for source, target, first, second in fg.ambiguous_pairs(sources=sources, targets=targets):
             if (source, target) in reported:
                 continue
             reported.add((source, target))
-            where = "" if label == "the default setting" else f" in {label}"
-            yield ctx.finding("ambiguous-paths", f"paths.{source}->{target}",
-                              f"A filter on {source} reaches {target} along more than one route{where} "
-                              f"({' / '.join(first)} and {' / '.join(second)}); numbers on {target} then depend on the data along each route. "
-                              f"Put one of the links on standby, or make the flow one-way, so one route remains.",
-                              paths=(first, second), at=f"tables.{target}")
+            yield _ambiguity_finding(ctx, candidate, fg, None if fg is default else default_edges, source, target,
+                                     first, second)
+
+
+def _ambiguity_finding(ctx: _Context, candidate: _Candidate, fg, default_edges, source: str, target: str,
+                       first, second) -> Finding:
+    model = ctx.model
+    link, against = _fix_link(model, fg, default_edges, source, first, second, candidate.own.via)
+    where = "" if candidate.item is None else f" in {candidate.label}"
+    head = (f"A filter on {source} reaches {target} along more than one route{where} "
+            f"({' / '.join(first)} and {' / '.join(second)}); numbers on {target} then depend on the data along each "
+            f"route, and {_readers(ctx, fg, target, candidate.homes)}. ")
+    if candidate.item is None:
+        at = f"links.{link}"
+        fix = (f"Make link {link} one-way, or put it on standby (naming it in `via` where it is needed), so one "
+               f"route remains." if against else
+               f"Put link {link} on standby (naming it in `via` where it is needed), or turn it off where it is not "
+               f"wanted (`flow: {{{link}: off}}`), so one route remains.")
+    else:
+        at = candidate.item
+        also = f" (or `one-way`: the route crosses {link} against its declared direction)" if against else ""
+        fix = f"Set `flow: {{{link}: off}}` on {_item_words(candidate.item)}{also}, so one route remains there."
+    return ctx.finding("ambiguous-paths", f"paths.{source}->{target}", head + fix, paths=(first, second), at=at)
 
 
 def _sources_of_new_routes(default, fg) -> set[str]:
@@ -586,6 +735,70 @@ def rule_security(ctx: _Context) -> Iterator[Finding]:
                               f"its members see every fact row. Filter a table whose links lead to the facts, or check the links' flow.")
 
 
+_DROPPING_KINDS = ("bridge", "access")
+
+
+def rule_two_way_drops_unmatched(ctx: _Context) -> Iterator[Finding]:
+    """A link that flows both ways out of a bridge or access table (its `from` side) into table T: once a
+    report's filter or grouping reaches that table, T keeps only the rows that have a row there, so every
+    measure whose table T reaches loses the rows without one from each group (they fall into `(no match)`).
+    Said once per link, naming the reports and measures that lose rows (extension; docs/check-rules.md).
+
+    An access table's link that carries row security (`security_flow: two-way`, which needs the flow both
+    ways) is the row-security pattern itself: it is left out (docs/check-rules.md says why)."""
+    model = ctx.model
+    links = [link for link in model.links.values()
+             if link.from_table in model.tables and link.to_table in model.tables
+             and model.tables[link.from_table].kind in _DROPPING_KINDS
+             and model.tables[link.to_table].kind not in _DROPPING_KINDS
+             and not (model.tables[link.from_table].kind == "access" and link.security_flow == "two-way")]
+    if not links or not model.reports:
+        return
+    resolver = graph.SettingResolver(model)
+    graphs: dict[Setting, object] = {}
+    losses: dict[str, dict[str, list[str]]] = {link.name: {} for link in links}  # link -> report -> measures
+    for report in model.reports.values():
+        filtered = {item.partition(".")[0] for item in report.by} | set(report.where)
+        filtered |= {t for v, o in report.variant.items() if v in model.variants
+                     for t in getattr(model.variants[v].options.get(o), "where", {})}
+        filtered = {t for t in filtered if t in model.tables}
+        if not filtered:
+            continue  # no group and no condition: nothing is constrained, nothing drops
+        for base in sorted({b for name in report.measures for b in _bases(model, name)}):
+            measure = model.measures[base]
+            setting = resolver.resolve(*graph.setting_layers(model, measure=measure, report=report,
+                                                             variant_defaults=True))
+            fg = graphs.get(setting)
+            if fg is None:
+                fg = graphs[setting] = graph.flow_graph(model, setting)
+            reached = set().union(*(fg.reach(t) for t in filtered))
+            for link in links:
+                both_ways = setting.flows.get(link.name) == "two-way" or (
+                    link.name in setting.flows and link.cardinality == "one-to-one")
+                if both_ways and link.from_table in reached and measure.table != link.from_table \
+                        and measure.table in fg.reach(link.to_table):
+                    losses[link.name].setdefault(report.name, []).append(base)
+    for link in links:
+        found = losses[link.name]
+        if found:
+            yield _drops_finding(ctx, link, found)
+
+
+def _drops_finding(ctx: _Context, link, found: dict[str, list[str]]) -> Finding:
+    bridge, target = link.from_table, link.to_table
+    kind = ctx.model.tables[bridge].kind
+    names = sorted(found)
+    shown = "; ".join(f"report {r} ({', '.join(found[r])})" for r in names[:4])
+    if len(names) > 4:
+        shown += f"; and {len(names) - 4} more reports"
+    message = (f"Link {link.name} flows both ways out of {kind} table {bridge} into {target}: once a report's grouping "
+               f"or filter reaches {bridge}, {target} keeps only the rows that have a {bridge} row, so the rows "
+               f"without one leave every group and fall into `(no match)`. Measures that lose rows: {shown}. ")
+    message += (f"Keep {link.name} one-way if {bridge} should not filter {target}, or set "
+                f"`flow: {{{link.name}: one-way}}` on the reports that must keep every row.")
+    return ctx.finding("two-way-drops-unmatched", f"links.{link.name}", message)
+
+
 def rule_standby(ctx: _Context) -> Iterator[Finding]:
     model = ctx.model
     users: dict[str, list[str]] = {}
@@ -614,7 +827,13 @@ RECORD_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (
     rule_type_mismatch, rule_measure_cycle, rule_history_incomplete, rule_standby,
 )
 # Rules that walk the flow and security graphs (warnings only).
-GRAPH_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (rule_ambiguous_paths, rule_security)
+GRAPH_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (rule_ambiguous_paths, rule_security,
+                                                                    rule_two_way_drops_unmatched)
+# The rules whose findings a diff reads: errors (which make it breaking) and warnings new in the new revision
+# (shown as `warning.added`). The ambiguity walk is left out: a new ambiguous pair is an `ambiguity.introduced`
+# change of the diff already, and the walk over every setting is the check's most costly part.
+DIFF_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = RECORD_RULES + (rule_security,
+                                                                                  rule_two_way_drops_unmatched)
 
 
 # What each record rule reads: a section's records, or only the names in it. A rule whose inputs are
@@ -632,21 +851,27 @@ RULE_INPUTS: dict[Callable[[_Context], Iterable[Finding]], tuple[str, ...]] = {
     rule_measure_cycle: ("measures",),
     rule_history_incomplete: ("tables",),
     rule_standby: ("measures", "variants", "reports", "links"),
+    rule_security: ("roles", "links", "tables"),
+    rule_two_way_drops_unmatched: ("links", "tables", "reports", "measures", "variants"),
 }
 
 
 def check_model(model: Model, load_findings: Iterable[Finding] = (), graph_rules: bool = True) -> list[Finding]:
-    """All findings for one revision, sorted errors first, then by rule and subject.
+    """All findings for one revision, sorted errors first, root causes first (`_CAUSE_ORDER`), then by rule and subject.
 
-    `graph_rules=False` skips the graph walks, which raise only warnings: the
-    diff uses it to learn a revision's errors cheaply.
+    `graph_rules=False` runs only DIFF_RULES (it skips the ambiguity walk,
+    which raises only warnings): the diff uses it to learn a revision's errors
+    and the warnings it compares cheaply. Its warnings carry no position (a
+    model's positions are read in a second pass over its text, which a diff
+    pays only when it shows one: `diff.warning_changes` asks the model for
+    the few warnings that are new).
     """
     from modeldiff.load import paused_gc
 
-    ctx = _Context(model)
+    ctx = _Context(model, warning_positions=graph_rules)
     findings = list(load_findings)
     with paused_gc():  # many small records, no cycles: the collector would only walk the model again and again
-        for rule in RECORD_RULES + (GRAPH_RULES if graph_rules else ()):
+        for rule in (RECORD_RULES + GRAPH_RULES) if graph_rules else DIFF_RULES:
             findings.extend(rule(ctx))
     return _sorted_unique(findings)
 
@@ -662,11 +887,11 @@ def check_pair(old: Model, old_load_findings: Iterable[Finding], new: Model,
     """
     from modeldiff.load import paused_gc
 
-    old_ctx, new_ctx = _Context(old), _Context(new)
+    old_ctx, new_ctx = _Context(old, False), _Context(new, False)
     old_found, new_found = list(old_load_findings), list(new_load_findings)
     same: dict[str, bool] = {}
     with paused_gc():
-        for rule in RECORD_RULES:
+        for rule in DIFF_RULES:
             found = list(rule(old_ctx))
             old_found += found
             if found or not all(_same_input(old, new, what, same) for what in RULE_INPUTS[rule]):
@@ -679,25 +904,25 @@ def check_new_side(old: Model, old_load_findings: Iterable[Finding], new: Model,
     """(the old revision's findings as far as a diff reads them, `check_model(new, ..., graph_rules=False)`).
 
     Without a cache, a diff reads the old revision's findings only to tell
-    which of the new revision's broken references are new
-    (`impact._reference_changes`: their rule, subject and message). So every
-    record rule runs on the new revision; on the old one a rule runs only when
-    it found a broken reference in the new revision and what it reads
-    (RULE_INPUTS) differs. When its inputs are equal, its findings in the new
+    which of the new revision's broken references and warnings are new
+    (`impact._reference_changes`, `diff.warning_changes`: their rule, subject
+    and message). So every rule of DIFF_RULES runs on the new revision; on the
+    old one a rule runs only when it found a broken reference or a warning in
+    the new revision and what it reads (RULE_INPUTS) differs. When its inputs are equal, its findings in the new
     revision stand for those of the old one (equal but for their positions).
     The first list holds the old load findings and these; the second list is
     exactly `check_model`'s.
     """
     from modeldiff.load import paused_gc
 
-    old_ctx, new_ctx = _Context(old), _Context(new)
+    old_ctx, new_ctx = _Context(old, False), _Context(new, False)
     old_found, new_found = list(old_load_findings), list(new_load_findings)
     same: dict[str, bool] = {}
     with paused_gc():
-        for rule in RECORD_RULES:
+        for rule in DIFF_RULES:
             found = list(rule(new_ctx))
             new_found += found
-            if not any(f.rule == "broken-reference" for f in found):
+            if not any(f.rule == "broken-reference" or f.severity == WARNING for f in found):
                 continue
             if all(_same_input(old, new, what, same) for what in RULE_INPUTS[rule]):
                 old_found += found
@@ -719,9 +944,16 @@ def _same_input(old: Model, new: Model, what: str, memo: dict[str, bool]) -> boo
     return found
 
 
+# Root causes first: a value the reader could not take (`standby: yes`, read as text, hence false) comes
+# before a name that points nowhere, and both before what follows from them (a duplicate live link, an
+# ambiguity); then by rule. Errors before warnings throughout.
+_CAUSE_ORDER = {"invalid-model": 0, "broken-reference": 1}
+
+
 def _sorted_unique(findings: list[Finding]) -> list[Finding]:
     unique = {(f.rule, f.subject, f.message): f for f in findings}
-    return sorted(unique.values(), key=lambda f: (f.severity != ERROR, f.rule, f.subject, f.message))
+    return sorted(unique.values(), key=lambda f: (f.severity != ERROR, _CAUSE_ORDER.get(f.rule, 2), f.rule,
+                                                  f.subject, f.message))
 
 
 def exit_code(findings: Iterable[Finding], strict: bool = False) -> int:

@@ -208,6 +208,11 @@ def _analyse(old, new, old_checked, new_checked):
                           new_checked=new_checked if new_result else None)
 
 
+def spec_path(spec: str) -> str:
+    """The path of a spec: the spec itself, or PATH of `REV:PATH` (where a model's `source:` files are found)."""
+    return _split_side(spec)[1]
+
+
 def _split_side(spec: str) -> tuple[str | None, str]:
     if not os.path.exists(spec) and ":" in spec:
         rev, _, path = spec.partition(":")

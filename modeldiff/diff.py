@@ -2,8 +2,10 @@
 
 Identity is the name. `keyed_diff` splits every section into added, removed and
 kept names. A removed and an added item with the same definition (everything
-but the name and metadata), whose references in the new revision all follow the
-new name, become one `*.renamed` change. Before two items are compared, the old
+but the name and metadata) become one `*.renamed` change; when something in the
+new revision still names the old name, the rename is `breaking` and lists what
+it left behind (`reference_changes` turns each into a `reference.broken`).
+Before two items are compared, the old
 one is translated into the new revision's names (renamed tables, columns,
 links, measures, variants, roles), so a rename that every reference follows
 yields that one change and nothing else.
@@ -458,34 +460,55 @@ class References:
 
 @dataclass
 class Renames:
-    """Old name -> new name, per section; columns per (new) table, keyed by the lowercased old name."""
+    """Old name -> new name, per section; columns per (new) table, keyed by the lowercased old name.
+
+    `stale` holds the half-followed renames: section -> old name -> the subjects
+    (in new names) that still name the old one. Those items are read as
+    written: the old name stays the old name there, so a left-behind reference
+    is not mistaken for a change of that item (it is a `reference.broken`).
+    """
 
     sections: dict[str, dict[str, str]] = field(default_factory=lambda: {
         s: {} for s in ("tables", "links", "measures", "variants", "roles", "reports")})
     columns: dict[str, dict[str, str]] = field(default_factory=dict)
+    stale: dict[str, dict[str, frozenset[str]]] = field(default_factory=lambda: {
+        s: {} for s in ("tables", "links", "measures", "variants", "roles", "reports")})
 
-    def name(self, section: str, old: str) -> str:
-        return self.sections[section].get(old, old)
+    def name(self, section: str, old: str, subject: str | None = None) -> str:
+        """The new name of `old`; as written where `subject` still names the old one."""
+        renames = self.sections[section]
+        if old not in renames or (subject is not None and subject in self.stale[section].get(old, ())):
+            return old
+        return renames[old]
+
+    def followed(self, section: str, subject: str | None) -> dict[str, str]:
+        """The renames of `section` that `subject` follows (all of them when it is None)."""
+        renames = self.sections[section]
+        stale = self.stale[section]
+        if subject is None or not stale:
+            return renames
+        return {o: n for o, n in renames.items() if subject not in stale.get(o, ())}
 
     def column(self, table: str, old: str) -> str:
         """`table` is the new table name."""
         mapping = self.columns.get(table)
         return mapping.get(old.lower(), old) if mapping else old
 
-    def table_column(self, item: str) -> str:
+    def table_column(self, item: str, subject: str | None = None) -> str:
         """A "table.column" string of the old revision, in new names."""
         table, dot, column = item.partition(".")
-        table = self.name("tables", table)
+        table = self.name("tables", table, subject)
         return f"{table}{dot}{self.column(table, column)}" if dot else table
 
-    def overrides(self, o: Overrides) -> Overrides:
+    def overrides(self, o: Overrides, subject: str | None = None) -> Overrides:
         links = self.sections["links"]
         if not links or not o:
             return o
-        return Overrides(tuple(links.get(n, n) for n in o.via), {links.get(n, n): v for n, v in o.flow.items()})
+        name = lambda n: self.name("links", n, subject)  # noqa: E731
+        return Overrides(tuple(map(name, o.via)), {name(n): v for n, v in o.flow.items()})
 
-    def tables_keyed(self, by_table: Mapping[str, str]) -> dict[str, str]:
-        return {self.name("tables", t): text for t, text in by_table.items()}
+    def tables_keyed(self, by_table: Mapping[str, str], subject: str | None = None) -> dict[str, str]:
+        return {self.name("tables", t, subject): text for t, text in by_table.items()}
 
     def subject(self, subject: str) -> str:
         """An item subject ("links.x") of the old revision, in new names."""
@@ -508,31 +531,40 @@ class Renames:
                        columns=columns, history=history)
 
     def link(self, link: Link) -> Link:
-        from_table, to_table = self.name("tables", link.from_table), self.name("tables", link.to_table)
-        return replace(link, name=self.name("links", link.name),
+        name = self.name("links", link.name)
+        subject = f"links.{name}"
+        from_table, to_table = self.name("tables", link.from_table, subject), self.name("tables", link.to_table, subject)
+        return replace(link, name=name,
                        from_table=from_table, from_columns=tuple(self.column(from_table, c) for c in link.from_columns),
                        to_table=to_table, to_columns=tuple(self.column(to_table, c) for c in link.to_columns))
 
     def measure(self, m: Measure) -> Measure:
-        table = self.name("tables", m.table) if m.table is not None else None
-        return replace(m, name=self.name("measures", m.name), table=table, overrides=self.overrides(m.overrides))
+        name = self.name("measures", m.name)
+        subject = f"measures.{name}"
+        table = self.name("tables", m.table, subject) if m.table is not None else None
+        return replace(m, name=name, table=table, overrides=self.overrides(m.overrides, subject))
 
     def variant(self, v: Variant) -> Variant:
-        options = {n: replace(o, overrides=self.overrides(o.overrides), where=self.tables_keyed(o.where))
+        name = self.name("variants", v.name)
+        subject = f"variants.{name}"
+        options = {n: replace(o, overrides=self.overrides(o.overrides, subject), where=self.tables_keyed(o.where, subject))
                    for n, o in v.options.items()}
-        return replace(v, name=self.name("variants", v.name), options=options)
+        return replace(v, name=name, options=options)
 
     def role(self, r: Role) -> Role:
-        return replace(r, name=self.name("roles", r.name), filters=self.tables_keyed(r.filters))
+        name = self.name("roles", r.name)
+        return replace(r, name=name, filters=self.tables_keyed(r.filters, f"roles.{name}"))
 
     def report(self, p: Report) -> Report:
-        return replace(p, name=self.name("reports", p.name),
-                       measures=tuple(self.name("measures", m) for m in p.measures),
-                       by=tuple(self.table_column(b) for b in p.by),
-                       where=self.tables_keyed(p.where),
-                       variant={self.name("variants", v): o for v, o in p.variant.items()},
-                       role=self.name("roles", p.role) if p.role is not None else None,
-                       overrides=self.overrides(p.overrides))
+        name = self.name("reports", p.name)
+        subject = f"reports.{name}"
+        return replace(p, name=name,
+                       measures=tuple(self.name("measures", m, subject) for m in p.measures),
+                       by=tuple(self.table_column(b, subject) for b in p.by),
+                       where=self.tables_keyed(p.where, subject),
+                       variant={self.name("variants", v, subject): o for v, o in p.variant.items()},
+                       role=self.name("roles", p.role, subject) if p.role is not None else None,
+                       overrides=self.overrides(p.overrides, subject))
 
 
 # --- the comparison context -------------------------------------------------------------------
@@ -551,19 +583,22 @@ class DiffContext:
 
     # SQL seen through the renames
 
-    def _sql_maps(self, scope) -> tuple[dict[str, str], dict[str, str], str | None]:
+    def _sql_maps(self, scope, subject: str | None) -> tuple[dict[str, str], dict[str, str], str | None]:
         if scope is DERIVED:
-            return {o.lower(): n for o, n in self.renames.sections["measures"].items()}, {}, None
+            return {o.lower(): n for o, n in self.renames.followed("measures", subject).items()}, {}, None
         if scope is None:
             return {}, {}, None
-        tables = {o.lower(): n for o, n in self.renames.sections["tables"].items()}
+        tables = {o.lower(): n for o, n in self.renames.followed("tables", subject).items()}
         return self.renames.columns.get(scope, {}), tables, scope
 
-    def old_sql(self, text: str | None, scope) -> str | None:
-        """An old SQL text spelled in new names (rewritten only when it names something renamed)."""
+    def old_sql(self, text: str | None, scope, subject: str | None = None) -> str | None:
+        """An old SQL text spelled in new names (rewritten only when it names something renamed).
+
+        `subject`: the item (new names) the text belongs to; renames it left behind are not applied.
+        """
         if text is None:
             return None
-        columns, tables, table = self._sql_maps(scope)
+        columns, tables, table = self._sql_maps(scope, subject)
         if not columns and not tables:
             return text
         words = _words(text)
@@ -572,22 +607,22 @@ class DiffContext:
         rewritten = rename_in_sql(text, columns, tables, table)
         return text if rewritten is None else rewritten
 
-    def compare_sql(self, old: str | None, new: str | None, scope) -> str:
+    def compare_sql(self, old: str | None, new: str | None, scope, subject: str | None = None) -> str:
         """SAME, COSMETIC or LOGIC; a difference explained by renames alone counts as SAME."""
         if old == new:
             return SAME
-        seen = self.old_sql(old, scope)
+        seen = self.old_sql(old, scope, subject)
         verdict = sql_verdict(seen, new, None if scope is DERIVED else scope)
         if seen is not old and verdict == COSMETIC:
             return SAME
         return verdict
 
-    def sql_key(self, text: str | None, scope, old: bool, deep: bool) -> Hashable:
+    def sql_key(self, text: str | None, scope, old: bool, deep: bool, subject: str | None = None) -> Hashable:
         """A text's part of a signature: as written (old ones in new names), or its normal form."""
         if text is None:
             return None
         if old:
-            text = self.old_sql(text, scope)
+            text = self.old_sql(text, scope, subject)
         if deep:
             normal = _normal_form(text, None if scope is DERIVED else scope)
             return ("normal", normal) if normal is not None else ("text", text)
@@ -894,8 +929,9 @@ def _measure_scope(m: Measure):
 def _measure_signature(ctx: DiffContext, m: Measure, old: bool, deep: bool) -> Hashable:
     if old:
         m = ctx.renames.measure(m)
-    scope = _measure_scope(m)
-    return (m.table, ctx.sql_key(m.expr, scope, old, deep), ctx.sql_key(m.where, scope, old, deep), _frozen(m.overrides))
+    scope, subject = _measure_scope(m), f"measures.{m.name}"
+    return (m.table, ctx.sql_key(m.expr, scope, old, deep, subject), ctx.sql_key(m.where, scope, old, deep, subject),
+            _frozen(m.overrides))
 
 
 def _measure_added(ctx: DiffContext, m: Measure) -> Change:
@@ -917,6 +953,9 @@ def _measure_removed(ctx: DiffContext, m: Measure) -> Change:
 
 def _measure_renamed(ctx: DiffContext, old: str, new: str) -> Change:
     reports = tuple(r for r in ctx.new_refs.referrers("measures", new) if r.startswith("reports."))
+    if ctx.renames.stale["measures"].get(old):
+        change = _renamed_change(ctx, "measures", "measure", old, new)
+        return replace(change, details={**change.details, "used_by": list(reports)}) if reports else change
     if reports:
         return ctx.change("measure.renamed", f"measures.{new}", BREAKING,
                           f"Measure {old} was renamed to {new}, and it is shown by {_list(reports)}: their output now names a different measure.",
@@ -934,7 +973,7 @@ def compare_measures(ctx: DiffContext, old_raw: Measure, new: Measure) -> Iterat
     scope = _measure_scope(old)
     for fld in ("expr", "where"):
         a, b = getattr(old, fld), getattr(new, fld)
-        verdict = ctx.compare_sql(a, b, scope)
+        verdict = ctx.compare_sql(a, b, scope, subject)
         if verdict == LOGIC:
             logic_before[fld], logic_after[fld] = a, b
         elif verdict == COSMETIC:
@@ -960,15 +999,16 @@ def compare_measures(ctx: DiffContext, old_raw: Measure, new: Measure) -> Iterat
 # --- variants --------------------------------------------------------------------------------------
 
 
-def _option_signature(ctx: DiffContext, o: VariantOption, old: bool, deep: bool) -> Hashable:
-    where = tuple(sorted((t, ctx.sql_key(text, t, old, deep)) for t, text in o.where.items()))
+def _option_signature(ctx: DiffContext, o: VariantOption, old: bool, deep: bool, subject: str) -> Hashable:
+    where = tuple(sorted((t, ctx.sql_key(text, t, old, deep, subject)) for t, text in o.where.items()))
     return (_frozen(o.overrides), where)
 
 
 def _variant_signature(ctx: DiffContext, v: Variant, old: bool, deep: bool) -> Hashable:
     if old:
         v = ctx.renames.variant(v)
-    return (v.default, tuple(sorted((n, _option_signature(ctx, o, old, deep)) for n, o in v.options.items())))
+    subject = f"variants.{v.name}"
+    return (v.default, tuple(sorted((n, _option_signature(ctx, o, old, deep, subject)) for n, o in v.options.items())))
 
 
 def _variant_added(ctx: DiffContext, v: Variant) -> Change:
@@ -989,12 +1029,13 @@ def _variant_removed(ctx: DiffContext, v: Variant) -> Change:
     return ctx.change("variant.removed", subject, NUMBERS, f"Variant {v.name} was removed.", v.name, None)
 
 
-def _where_verdicts(ctx: DiffContext, old: Mapping[str, str], new: Mapping[str, str]) -> tuple[dict, dict, dict, dict]:
+def _where_verdicts(ctx: DiffContext, old: Mapping[str, str], new: Mapping[str, str],
+                    subject: str) -> tuple[dict, dict, dict, dict]:
     """Predicates keyed by table: (logic before, logic after, cosmetic before, cosmetic after)."""
     lb, la, cb, ca = {}, {}, {}, {}
     for table in sorted(set(old) | set(new)):
         a, b = old.get(table), new.get(table)
-        verdict = ctx.compare_sql(a, b, table)
+        verdict = ctx.compare_sql(a, b, table, subject)
         if verdict == LOGIC:
             lb[table], la[table] = a, b
         elif verdict == COSMETIC:
@@ -1033,7 +1074,7 @@ def compare_variants(ctx: DiffContext, old_raw: Variant, new: Variant) -> Iterat
             before["via"], after["via"] = list(a.overrides.via), list(b.overrides.via)
         if a.overrides.flow != b.overrides.flow:
             before["flow"], after["flow"] = _plain(a.overrides.flow), _plain(b.overrides.flow)
-        lb, la, cb, ca = _where_verdicts(ctx, a.where, b.where)
+        lb, la, cb, ca = _where_verdicts(ctx, a.where, b.where, subject)
         if lb:
             before["where"], after["where"] = lb, la
         if before:
@@ -1062,7 +1103,7 @@ def _option_chosen(ctx: DiffContext, variant: str, option: str) -> bool:
 def _role_signature(ctx: DiffContext, r: Role, old: bool, deep: bool) -> Hashable:
     if old:
         r = ctx.renames.role(r)
-    return tuple(sorted((t, ctx.sql_key(text, t, old, deep)) for t, text in r.filters.items()))
+    return tuple(sorted((t, ctx.sql_key(text, t, old, deep, f"roles.{r.name}")) for t, text in r.filters.items()))
 
 
 def _role_added(ctx: DiffContext, r: Role) -> Change:
@@ -1086,7 +1127,7 @@ def _role_removed(ctx: DiffContext, r: Role) -> Change:
 def compare_roles(ctx: DiffContext, old_raw: Role, new: Role) -> Iterator[Change]:
     old = ctx.renames.role(old_raw)
     subject, name = f"roles.{new.name}", new.name
-    lb, la, cb, ca = _where_verdicts(ctx, old.filters, new.filters)
+    lb, la, cb, ca = _where_verdicts(ctx, old.filters, new.filters, subject)
     if lb:
         yield ctx.change("role.filter_changed", subject, NUMBERS,
                          f"The filter of role {name} on {_and(sorted(lb))} changed: the rows its members see can change.",
@@ -1110,7 +1151,7 @@ _REPORT_FIELD_WORDS = {"measures": "measures", "by": "grouping (`by`)", "variant
 def _report_signature(ctx: DiffContext, p: Report, old: bool, deep: bool) -> Hashable:
     if old:
         p = ctx.renames.report(p)
-    where = tuple(sorted((t, ctx.sql_key(text, t, old, deep)) for t, text in p.where.items()))
+    where = tuple(sorted((t, ctx.sql_key(text, t, old, deep, f"reports.{p.name}")) for t, text in p.where.items()))
     return (p.measures, p.by, where, _frozen(p.variant), p.role, _frozen(p.overrides))
 
 
@@ -1130,7 +1171,7 @@ def compare_reports(ctx: DiffContext, old_raw: Report, new: Report) -> Iterator[
     before, after = _changed_fields(old, new, _REPORT_DEFINITION)
     if old.overrides != new.overrides:
         before["overrides"], after["overrides"] = _plain(old.overrides), _plain(new.overrides)
-    lb, la, cb, ca = _where_verdicts(ctx, old.where, new.where)
+    lb, la, cb, ca = _where_verdicts(ctx, old.where, new.where, subject)
     if lb:
         before["where"], after["where"] = lb, la
     if before:
@@ -1165,7 +1206,29 @@ class Section:
     renamed: Callable[[DiffContext, str, str], Change] | None = None
 
 
+_NOUNS = {"tables": "table", "links": "link", "measures": "measure", "variants": "variant", "roles": "role",
+          "reports": "report"}
+
+
+def readable(subject: str) -> str:
+    """"reports.weekly_fares" -> "report weekly_fares" (other subjects as they are)."""
+    section, dot, name = subject.partition(".")
+    return f"{_NOUNS[section]} {name}" if dot and section in _NOUNS else subject
+
+
+def left_behind_text(users: Iterable[str]) -> str:
+    """"report r still uses the old name", "reports a and b still use the old name"."""
+    users = sorted(users)
+    return f"{_and([readable(u) for u in users])} still {'uses' if len(users) == 1 else 'use'} the old name"
+
+
 def _renamed_change(ctx: DiffContext, section: str, noun: str, old: str, new: str) -> Change:
+    left = sorted(ctx.renames.stale[section].get(old, ()))
+    if left:
+        return ctx.change(f"{noun}.renamed", f"{section}.{new}", BREAKING,
+                          f"{noun.capitalize()} {old} was renamed to {new}, but {left_behind_text(left)}: "
+                          f"name {new} there too (each is a broken reference until it does).",
+                          old, new, left_behind=left)
     return ctx.change(f"{noun}.renamed", f"{section}.{new}", SAFE,
                       f"{noun.capitalize()} {old} was renamed to {new}; its definition is unchanged and every reference follows it.",
                       old, new)
@@ -1183,22 +1246,40 @@ SECTIONS: dict[str, Section] = {
 }
 
 
-def find_renames(ctx: DiffContext, section: str, removed: list[str], added: list[str]) -> list[tuple[str, str]]:
-    """Removed/added pairs of one section with the same definition, whose references follow."""
+def _pair_section(ctx: DiffContext, section: str, removed: list[str], added: list[str],
+                  confirm: Callable[[str, str], bool]) -> list[tuple[str, str]]:
+    """Removed/added pairs of one section with the same definition (as written, then normalised) that `confirm` accepts."""
     if not removed or not added:
         return []
     spec = SECTIONS[section]
     old_items, new_items = getattr(ctx.old, section), getattr(ctx.new, section)
-    confirm = _references_follow(ctx, section)
     pairs = pair_renames({n: spec.signature(ctx, old_items[n], True, False) for n in removed},
                          {n: spec.signature(ctx, new_items[n], False, False) for n in added}, confirm)
     if spec.has_sql:  # second chance: SQL spelled differently but the same after normalising
-        paired_old, paired_new = {o for o, _ in pairs}, {n for _, n in pairs}
-        rest_old = [n for n in removed if n not in paired_old]
-        rest_new = [n for n in added if n not in paired_new]
+        rest_old, rest_new = _unpaired(removed, added, pairs)
         if rest_old and rest_new:
             pairs += pair_renames({n: spec.signature(ctx, old_items[n], True, True) for n in rest_old},
                                   {n: spec.signature(ctx, new_items[n], False, True) for n in rest_new}, confirm)
+    return pairs
+
+
+def _unpaired(removed: list[str], added: list[str], pairs: list[tuple[str, str]]) -> tuple[list[str], list[str]]:
+    paired_old, paired_new = {o for o, _ in pairs}, {n for _, n in pairs}
+    return [n for n in removed if n not in paired_old], [n for n in added if n not in paired_new]
+
+
+def find_renames(ctx: DiffContext, section: str, removed: list[str], added: list[str]) -> list[tuple[str, str]]:
+    """Removed/added pairs of one section with the same definition, one-to-one.
+
+    First the renames whose references all follow; then, among what is left,
+    the half-followed ones: the same definition under a new name while
+    something in the new revision still names the old one. Those are renames
+    too (not a removal and an addition); each reference left behind is a
+    `reference.broken` (see `rename_references`).
+    """
+    pairs = _pair_section(ctx, section, removed, added, _references_follow(ctx, section))
+    rest_old, rest_new = _unpaired(removed, added, pairs)
+    pairs += _pair_section(ctx, section, rest_old, rest_new, lambda old, new: True)
     return sorted(pairs)
 
 
@@ -1208,6 +1289,10 @@ def diff_section(ctx: DiffContext, section: str) -> Iterator[Change]:
     added, removed, kept = keyed_diff(old_items, new_items)
     pairs = find_renames(ctx, section, removed, added)
     ctx.renames.sections[section].update(pairs)
+    for old, _ in pairs:
+        left = ctx.new_refs.referrers(section, old)
+        if left:
+            ctx.renames.stale[section][old] = frozenset(left)
     paired_old, paired_new = {o for o, _ in pairs}, {n for _, n in pairs}
     for name in removed:
         if name not in paired_old:
@@ -1222,6 +1307,118 @@ def diff_section(ctx: DiffContext, section: str) -> Iterator[Change]:
         old_item, new_item = old_items[name], new_items[name]
         if old_item is not new_item and old_item != new_item:  # a record shared by splicing equals itself
             yield from spec.compare(ctx, old_item, new_item)
+
+
+# --- references a rename left behind -------------------------------------------------------------
+
+
+def _names_quoted(message: str, name: str) -> bool:
+    """Whether a broken-reference message quotes `name` (as 'name' or 'name.column'), case aside."""
+    return re.search(rf"'{re.escape(name)}(\.[^']*)?'", message, re.IGNORECASE) is not None
+
+
+def _left_behind_change(rename: Change, subject: str, pos) -> Change:
+    noun = rename.kind.partition(".")[0]
+    return Change("reference.broken", subject, BREAKING,
+                  f"{noun.capitalize()} {rename.before} was renamed to {rename.after}; {left_behind_text([subject])}: "
+                  f"write {rename.after} there.",
+                  rename.before, None, {"renamed": rename.subject, "old_name": rename.before, "new_name": rename.after}
+                  | ({"location": str(pos)} if pos else {}))
+
+
+def reference_changes(old_findings: Iterable, new_findings: Iterable, structural: Iterable[Change] = ()) -> list[Change]:
+    """The `reference.broken` changes: broken-reference findings new in the new revision.
+
+    A reference that a rename left behind (its subject is in a `*.renamed`
+    change's `left_behind`) is said as such: "Measure a was renamed to b;
+    report r still uses the old name", one per (rename, subject), in place of
+    the check's generic wording for that name.
+    """
+    left: dict[str, list[Change]] = defaultdict(list)
+    for change in structural:
+        for subject in change.details.get("left_behind", ()):
+            left[subject].append(change)
+    before = {(f.subject, f.message) for f in old_findings if f.rule == "broken-reference"}
+    out: list[Change] = []
+    told: set[tuple[str, str]] = set()
+    for f in new_findings:
+        if f.rule != "broken-reference" or (f.subject, f.message) in before:
+            continue
+        item = ".".join(f.subject.split(".")[:2])  # variants.V.options.O -> variants.V
+        rename = next((c for c in left.get(item, ()) if _names_quoted(f.message, c.before)), None)
+        if rename is None:
+            out.append(Change("reference.broken", f.subject, BREAKING, f.message,
+                              details={"location": str(f.pos)} if f.pos else {}))
+        elif (item, rename.subject) not in told:
+            told.add((item, rename.subject))
+            out.append(_left_behind_change(rename, item, f.pos))
+    for subject, renames in sorted(left.items()):
+        out += [_left_behind_change(c, subject, None) for c in renames if (subject, c.subject) not in told]
+    return out
+
+
+# --- check warnings new in the new revision -------------------------------------------------------
+
+# Rules whose subject alone says what a warning is about (their messages list what they reach, which can
+# change while the warning stays the same one).
+_WHOLE_SUBJECT_RULES = frozenset({"role-reaches-no-fact", "standby-unused", "two-way-drops-unmatched"})
+
+
+def _renames_of(structural: Iterable[Change]) -> dict[str, dict[str, str]]:
+    out: dict[str, dict[str, str]] = defaultdict(dict)
+    for change in structural:
+        noun, _, what = change.kind.partition(".")
+        if what == "renamed" and f"{noun}s" in _NOUNS:
+            out[f"{noun}s"][change.before] = change.after
+    return out
+
+
+def _subject_in_new_names(subject: str, renames: Mapping[str, Mapping[str, str]]) -> str:
+    """A finding's subject of the old revision in new names (`paths.a->b` and `roles.R.tables.T` included)."""
+    parts = subject.split(".")
+    if len(parts) < 2:
+        return subject
+    section, name, rest = parts[0], parts[1], parts[2:]
+    tables = renames.get("tables", {})
+    if section == "paths":
+        name = "->".join(tables.get(t, t) for t in name.split("->"))
+    else:
+        name = renames.get(section, {}).get(name, name)
+    if section == "roles" and len(rest) == 2 and rest[0] == "tables":
+        rest = ["tables", tables.get(rest[1], rest[1])]
+    return ".".join([section, name, *rest])
+
+
+def warning_changes(old_findings: Iterable, new_findings: Iterable, structural: Iterable[Change] = (),
+                    new_model: Model | None = None) -> list[Change]:
+    """One `warning.added` change (severity `safe`) per warning of the new revision that the old one lacks.
+
+    A warning is the same one when the old revision has the same rule on the
+    same subject (read in new names) with the same message; for rules whose
+    subject alone says what they are about (_WHOLE_SUBJECT_RULES), and for an
+    item that was renamed, the rule and subject suffice. Warnings alone move
+    no number (DEVELOPERS.md, "New warnings in a diff"): the change that
+    caused one carries its own severity. A finding without a position (the
+    diff's checks read none) is placed at its subject in `new_model`.
+    """
+    renames = _renames_of(structural)
+    seen: set[tuple] = set()
+    for f in old_findings:
+        if f.severity != "warning":
+            continue
+        subject = _subject_in_new_names(f.subject, renames)
+        seen.add((f.rule, subject, f.message))
+        if subject != f.subject or f.rule in _WHOLE_SUBJECT_RULES:
+            seen.add((f.rule, subject))
+    out = []
+    for f in new_findings:
+        if f.severity != "warning" or (f.rule, f.subject, f.message) in seen or (f.rule, f.subject) in seen:
+            continue
+        pos = f.pos if f.pos is not None or new_model is None else new_model.pos(f.subject)
+        out.append(Change("warning.added", f.subject, SAFE, f"New check warning ({f.rule}): {f.message}",
+                          details={"rule": f.rule} | ({"location": str(pos)} if pos else {})
+                          | ({"paths": [list(p) for p in f.paths]} if f.paths else {})))
+    return out
 
 
 def diff_models(old: Model, new: Model) -> list[Change]:

@@ -29,7 +29,7 @@ NO_MATCH_TEXT = "(no match)"
 
 
 def configure(parser) -> None:
-    parser.add_argument("model", metavar="MODEL", help="model file or NAME.model/ folder")
+    parser.add_argument("model", metavar="MODEL", help="model file, NAME.model/ folder, or REV:PATH")
     parser.add_argument("--data", metavar="DIR|FILE",
                         help="folder of <table>.parquet/.csv files, or a DuckDB database file "
                              "(default: each table's source: in the model)")
@@ -64,20 +64,23 @@ def run(args, stdout: TextIO) -> int:
         else:
             raise ModeldiffError(f"{args.data}: no such folder or file; give a folder of <table>.parquet/.csv "
                                  "files or a DuckDB database file")
-    with Database.open(model, args.model, data_dir=data_dir, db_file=db_file) as db:
+    from modeldiff.compare import spec_path
+
+    with Database.open(model, spec_path(args.model), data_dir=data_dir, db_file=db_file) as db:
         results = [evaluate_report(model, name, db, user=args.user) for name in names]
-    render = {"json": as_json, "csv": as_csv}.get(args.format, as_text)
-    stdout.write(render(results))
+    text = as_text(results, stdout) if args.format == "text" else {"json": as_json, "csv": as_csv}[args.format](results)
+    stdout.write(text)
     return 0
 
 
 def read_checked_model(path: str):
-    """The model at `path`, refused with its first error finding when `check` finds errors."""
+    """The model at `path` (a file, a NAME.model/ folder or REV:PATH), refused with its first error finding
+    when `check` finds errors."""
     from modeldiff.check import check_model
+    from modeldiff.compare import read_model
     from modeldiff.errors import ModeldiffError
-    from modeldiff.load import load_path
 
-    result = load_path(path)
+    _, result = read_model(path)
     errors = [f for f in check_model(result.model, result.findings, graph_rules=False) if f.severity == "error"]
     if errors:
         first = errors[0]
@@ -163,7 +166,9 @@ def _csv_value(value: Any) -> str:
     return text_value(value)
 
 
-def as_text(results: Sequence) -> str:
+def as_text(results: Sequence, stream: TextIO | None = None) -> str:
+    """Each report as a table, for `stream`: on a terminal at its width; anywhere else (a pipe, a file, a
+    buffer) at the full width the rows need, so no header or value is cut."""
     import io
 
     from rich.markup import escape
@@ -171,24 +176,24 @@ def as_text(results: Sequence) -> str:
 
     from modeldiff.render import console
 
-    buffer = io.StringIO()
-    out = console(buffer)
-    for n, result in enumerate(results):
-        if n:
-            out.print()
-        out.print(f"[bold]report {escape(result.report)}[/]")
-        table = Table()
-        for i, column in enumerate(result.columns):
-            numeric = i >= result.groups and any(_is_number(row[i]) for row in result.rows)
-            table.add_column(escape(column), justify="right" if numeric else "left")
-        for row in result.rows:
-            table.add_row(*(escape(text_value(v)) for v in row))
-        out.print(table)
-        rows = len(result.rows)
-        out.print(f"{rows} row{'s' if rows != 1 else ''}")
-        for note in result.notes:
-            out.print(escape(note))
-    return buffer.getvalue()
+    out = console(stream if stream is not None else io.StringIO(), fit_tables=True)
+    with out.capture() as captured:
+        for n, result in enumerate(results):
+            if n:
+                out.print()
+            out.print(f"[bold]report {escape(result.report)}[/]")
+            table = Table()
+            for i, column in enumerate(result.columns):
+                numeric = i >= result.groups and any(_is_number(row[i]) for row in result.rows)
+                table.add_column(escape(column), justify="right" if numeric else "left")
+            for row in result.rows:
+                table.add_row(*(escape(text_value(v)) for v in row))
+            out.print(table)
+            rows = len(result.rows)
+            out.print(f"{rows} row{'s' if rows != 1 else ''}")
+            for note in result.notes:
+                out.print(escape(note))
+    return captured.get()
 
 
 def _is_number(value: Any) -> bool:

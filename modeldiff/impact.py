@@ -457,14 +457,11 @@ def _role_paths_text(paths) -> str:
     return "; ".join(" / ".join(p) or "own filter" for p in sorted(paths)) or "none"
 
 
-def _reference_changes(old_findings: Iterable[Finding], new_findings: Iterable[Finding]) -> list[Change]:
-    before = {(f.subject, f.message) for f in old_findings if f.rule == "broken-reference"}
-    changes = []
-    for f in new_findings:
-        if f.rule == "broken-reference" and (f.subject, f.message) not in before:
-            changes.append(Change("reference.broken", f.subject, "breaking", f.message,
-                                  details={"location": str(f.pos)} if f.pos else {}))
-    return changes
+def _reference_changes(old_findings: Iterable[Finding], new_findings: Iterable[Finding],
+                       structural: Iterable[Change] = ()) -> list[Change]:
+    from modeldiff import diff
+
+    return diff.reference_changes(old_findings, new_findings, structural)
 
 
 def _plural(n: int, word: str) -> str:
@@ -1065,7 +1062,8 @@ def _analyse(old: Model, new: Model, old_findings: Iterable[Finding], new_findin
         old_checked = check.check_model(old, old_findings, graph_rules=False)
     if new_checked is None:
         new_checked = check.check_model(new, new_findings, graph_rules=False)
-    derived = _derived_graph_changes(a) + _security_changes(a) + _reference_changes(old_checked, new_checked)
+    derived = _derived_graph_changes(a) + _security_changes(a) + _reference_changes(old_checked, new_checked, structural)
+    derived += diff.warning_changes(old_checked, new_checked, structural, new)
     changes = sorted(structural + derived, key=Change.sort_key)
     changes = [replace(c, id=f"c{i}") for i, c in enumerate(changes, 1)]
     impacts = _Impacts(a, changes)

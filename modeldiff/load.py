@@ -67,6 +67,9 @@ FOLDER_SUFFIX = ".model"
 RULE = "invalid-model"
 DEPRECATED_RULE = "deprecated-key"  # a warning: a key read under its first spelling in format 1
 DEPRECATED_KEYS = {"use": "via"}  # old spelling -> the key it is read as
+# Booleans of YAML 1.1 that YAML 1.2 (this format) reads as text: what the writer meant, for the message.
+_YAML11_BOOLEANS = {word: meant for words, meant in ((("y", "yes", "on"), "true"), (("n", "no", "off"), "false"))
+                    for spelled in words for word in (spelled, spelled.capitalize(), spelled.upper())}
 
 _NAME_PATTERN = "[A-Za-z][A-Za-z0-9_]*"
 _NAME = re.compile(_NAME_PATTERN + r"\Z")
@@ -1399,6 +1402,12 @@ class _RecordBuilder:
             return default
         if value is True or value is False:
             return value
+        meant = _YAML11_BOOLEANS.get(value) if isinstance(value, str) else None
+        if meant is not None:  # YAML 1.1 spellings: YAML 1.2 reads them as text
+            self._bad(f"{subject}.{key}", pos, f"{subject}.{key}: {value} is not a boolean in this format; write "
+                                               f"{meant} (YAML 1.2 reads {value} as text, so it counts as "
+                                               f"{str(default).lower()})")
+            return default
         self._expected(f"{subject}.{key}", pos, "true or false", value, f"read as {str(default).lower()}")
         return default
 

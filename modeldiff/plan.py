@@ -280,7 +280,7 @@ class _Planner:
             if "." in change.kind and change.kind.split(".")[0] in (*_NOUN_SECTION, "column"):
                 self.structural(change)
         for change in self.result.changes:
-            if change.kind.split(".")[0] in ("path", "ambiguity", "security", "reference"):
+            if change.kind.split(".")[0] in ("path", "ambiguity", "security", "reference", "warning"):
                 self.derived(change)
         for change in self.result.changes:
             self.data_checks(change)
@@ -383,8 +383,12 @@ class _Planner:
             return
         targets: list[_Draft] = []
         if kind.startswith("security."):
-            role = ".".join(change.subject.split(".")[:2])
-            targets = self.edits_of(role) or self.link_steps(_path_links(change))
+            targets = self.security_causes(change)
+        elif kind == "warning.added":  # the step editing the item it is about, else a review of the warning
+            targets = self.edits_of(_item_subject(change)) or [self.step(
+                "review", change.subject, f"Review the new {change.details.get('rule', 'check')} warning on "
+                f"{_display(change.subject)}: fix what it says, or accept it as intended",
+                "Nothing to undo: this step only reviews what the other steps do.")]
         else:
             targets = self.link_steps(change.details.get("links", ()))
         if not targets:
@@ -398,6 +402,22 @@ class _Planner:
     def link_steps(self, links: Iterable[str]) -> list[_Draft]:
         return [d for link in sorted(set(links)) for d in self.edits_of(f"links.{link}")]
 
+    def security_causes(self, change) -> list[_Draft]:
+        """The edits that cause a `security.*` change: a change of the role's filter, and the links that moved
+        an edge of the security graph on a path that appeared or disappeared (a link merely lying on such a
+        path, or changed only in its description, is not a cause)."""
+        from modeldiff.impact import EDGE_KINDS
+
+        moving = (*EDGE_KINDS, "link.security_flow_changed")
+        role = ".".join(change.subject.split(".")[:2])
+        causes = [d for d in self.edits_of(role) if self._covers(d, ("role.filter_changed",))]
+        causes += [d for d in self.link_steps(_changed_path_links(change)) if self._covers(d, moving)]
+        return causes
+
+    def _covers(self, d: _Draft, kinds: Iterable[str]) -> bool:
+        kinds = tuple(kinds)
+        return any(self.changes[cid].kind in kinds for cid in d.changes)
+
     def exposure(self, change) -> None:
         role = ".".join(change.subject.split(".")[:2])
 
@@ -407,7 +427,7 @@ class _Planner:
         if not draft.preconditions:
             draft.preconditions.append("the security review has this step's changes: which rows become visible to "
                                        "the role's members, and through which link")
-        causes = self.edits_of(role) + self.link_steps(_path_links(change))
+        causes = self.security_causes(change)
         if not causes:  # cannot tell which edit exposes the rows: all of them wait for the review
             causes = [d for d in self.steps.values() if d.kind not in _GUARD_KINDS]
         for target in causes:
@@ -606,14 +626,18 @@ def unique_sides(change, link) -> tuple[bool, bool]:
     return strict and side == "to", one_to_one and side == "from"
 
 
-def _path_links(change) -> set[str]:
-    """Link names on the paths of a security change's before/after values."""
-    out: set[str] = set()
-    for value in (change.before, change.after):
-        if isinstance(value, list):
-            for item in value:
-                out.update(item if isinstance(item, list) else [item])
-    return out
+def _paths_of(value) -> set[tuple[str, ...]]:
+    """The paths a security change's before/after holds: one path (a list of links) or a list of paths."""
+    if not isinstance(value, list):
+        return set()
+    if value and all(isinstance(item, list) for item in value):
+        return {tuple(item) for item in value}
+    return {tuple(value)}
+
+
+def _changed_path_links(change) -> set[str]:
+    """Links on the paths of a security change that are in only one of its before and after values."""
+    return {link for path in _paths_of(change.before) ^ _paths_of(change.after) for link in path}
 
 
 def _default_check(d: _Draft) -> Check:

@@ -181,8 +181,9 @@ def test_every_rule_of_section_7_has_its_severity():
     errors = {"invalid-model", "broken-reference", "duplicate-live-link", "key-not-unique", "type-mismatch",
               "measure-cycle", "history-incomplete"}
     warnings = {"ambiguous-paths", "security-stops", "role-reaches-no-fact", "standby-unused", "via-not-standby"}
-    warnings.add("deprecated-key")  # ours (docs/model-format-extensions.md): `use` read as `via`
-    assert RULES == {**{r: "error" for r in errors}, **{r: "warning" for r in warnings}}
+    extensions = {"deprecated-key": "warning",  # ours (docs/model-format-extensions.md): `use` read as `via`
+                  "two-way-drops-unmatched": "warning"}  # beyond section 7: docs/check-rules.md
+    assert RULES == {**{r: "error" for r in errors}, **{r: "warning" for r in warnings}, **extensions}
 
 
 # --- invalid-model ----------------------------------------------------------------------
@@ -639,9 +640,9 @@ def test_two_way_link_makes_new_routes():
 
 
 SETTING_ONLY = {  # holder -> (edit with FLOW to fill in, the setting the message names)
-    "measure": (("trip_count: {table: trips, expr: count(*)}",
-                 "trip_count: {table: trips, expr: count(*), flow: {trips_bike: FLOW}}"),
-                "measure trip_count's setting"),
+    "measure": (("repair_cost: {table: repairs, expr: sum(cost)}",
+                 "repair_cost: {table: repairs, expr: sum(cost), flow: {trips_bike: FLOW}}"),
+                "measure repair_cost's setting"),
     "variant-option": (("historical: {}", "historical: {flow: {trips_bike: FLOW}}"),
                        "option historical of variant attribution"),
     "report": (("role: east_lead\n", "role: east_lead\n    flow: {trips_bike: FLOW}\n"),
@@ -703,16 +704,16 @@ NARROW_BY_DEFAULT = (("historical: {}", "historical: {}\n      " + NARROW), ("de
 
 def test_default_option_applies_to_measures_outside_reports():
     found = findings_of(edited(*NARROW_BY_DEFAULT, (
-        "trip_count: {table: trips, expr: count(*)}",
-        "trip_count: {table: trips, expr: count(*), flow: {repairs_day: one-way}}")))
+        "repair_cost: {table: repairs, expr: sum(cost)}",
+        "repair_cost: {table: repairs, expr: sum(cost), flow: {repairs_day: one-way}}")))
     assert [(f.rule, f.subject) for f in found] == [("ambiguous-paths", "paths.calendar->repairs")]
-    assert "measure trip_count's setting" in found[0].message
+    assert "measure repair_cost's setting" in found[0].message
 
 
 def test_default_option_applies_to_reports_that_do_not_choose():
     found = findings_of(edited(*NARROW_BY_DEFAULT, (
         "weekly_fares: {measures: [fare_revenue, trip_count], by: [calendar.year, stations.name]}",
-        "weekly_fares: {measures: [trip_count], by: [calendar.year], flow: {repairs_day: one-way}}")))
+        "weekly_fares: {measures: [repair_cost], by: [calendar.year], flow: {repairs_day: one-way}}")))
     assert [(f.rule, f.subject) for f in found] == [("ambiguous-paths", "paths.calendar->repairs")]
     assert "report weekly_fares's setting" in found[0].message
 
@@ -720,7 +721,7 @@ def test_default_option_applies_to_reports_that_do_not_choose():
 def test_default_option_does_not_apply_to_reports_that_choose_another():
     assert expect(*NARROW_BY_DEFAULT, (
         "weekly_fares: {measures: [fare_revenue, trip_count], by: [calendar.year, stations.name]}",
-        "weekly_fares: {measures: [trip_count], by: [calendar.year], flow: {repairs_day: one-way}, "
+        "weekly_fares: {measures: [repair_cost], by: [calendar.year], flow: {repairs_day: one-way}, "
         "variant: {attribution: historical}}")) == []
 
 
@@ -734,8 +735,8 @@ def test_measure_overrides_apply_after_the_reports():
 
 
 def test_ambiguous_pair_is_reported_once_across_settings():
-    text = edited(REPAIRS_STATION, ("trip_count: {table: trips, expr: count(*)}",
-                                    "trip_count: {table: trips, expr: count(*), flow: {trips_bike: two-way}}"))
+    text = edited(REPAIRS_STATION, ("repair_cost: {table: repairs, expr: sum(cost)}",
+                                    "repair_cost: {table: repairs, expr: sum(cost), flow: {trips_bike: two-way}}"))
     subjects = [s for r, s in pairs(text) if r == "ambiguous-paths"]
     assert len(subjects) == len(set(subjects))
     assert "paths.calendar->repairs" in subjects and "paths.districts->repairs" in subjects
@@ -784,10 +785,12 @@ def test_security_does_not_stop_where_the_role_restricts_the_far_side_anyway():
 
 def test_row_security_does_not_cross_the_reverse_of_a_two_way_link_by_default():
     # depot_staff filters district_access; with security_flow one-way its filter
-    # stays there and restricts no fact at all.
+    # stays there and restricts no fact at all. The link then flows both ways out of the access table for
+    # filters only, so report repair_costs (grouped by districts) loses districts without an access row.
     assert expect(("    flow: two-way\n    security_flow: two-way\n", "    flow: two-way\n")) == [
         ("role-reaches-no-fact", "roles.depot_staff"),
         ("security-stops", "roles.depot_staff"),
+        ("two-way-drops-unmatched", "links.district_access_district"),
     ]
 
 

@@ -11,7 +11,7 @@ from __future__ import annotations
 import sys
 from pathlib import Path
 
-from modeldiff import check, impact, load
+from modeldiff import check, diff, impact, load
 
 from scenariokit import ROOT, SMALL, scenario_pairs, synthetic_model_text  # noqa: F401
 
@@ -33,6 +33,7 @@ def _assert_same_as_full_check(old_result, new_result):
     assert new_found == new_full
     assert [f.pos for f in new_found] == [f.pos for f in new_full]
     assert impact._reference_changes(old_part, new_found) == impact._reference_changes(old_full, new_full)
+    assert diff.warning_changes(old_part, new_found) == diff.warning_changes(old_full, new_full)
     return old_part, new_found
 
 
@@ -82,8 +83,19 @@ def test_a_reference_broken_in_both_revisions_is_not_reported_new():
             assert not impact._reference_changes(old_part, new_found), after
 
 
-def test_nothing_is_read_of_the_old_side_when_nothing_breaks():
+def test_nothing_is_read_of_the_old_side_when_nothing_breaks_and_no_warning_appears():
+    text = synthetic_model_text(**SMALL)
+    old_result, new_result = _edited(text, text.replace("    expr: sum(qty)", "    expr: SUM(qty)", 1))
+    assert old_result.model != new_result.model
+    old_part, new_found = _assert_same_as_full_check(old_result, new_result)
+    assert not old_part and not new_found
+
+
+def test_the_old_side_is_read_for_a_rule_that_warns_in_the_new_revision():
+    # l0 made two-way stops role r2's filter (security-stops): the rule runs on the old side too, finds
+    # nothing there, so the warning is new
     text = synthetic_model_text(**SMALL)
     old_result, new_result = _edited(text, synthetic_model_text(flip="l0", **SMALL))
     old_part, new_found = _assert_same_as_full_check(old_result, new_result)
-    assert not old_part and not new_found
+    assert not old_part and {f.rule for f in new_found} == {"security-stops"}
+    assert len(diff.warning_changes(old_part, new_found)) == len(new_found)

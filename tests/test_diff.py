@@ -153,13 +153,14 @@ def test_a_table_rename_that_every_reference_follows_is_one_change():
     assert (changes[0].before, changes[0].after, changes[0].severity) == ("stations", "docks", "safe")
 
 
-def test_a_table_rename_that_a_reference_does_not_follow_is_a_removal_and_an_addition():
+def test_a_table_rename_that_a_reference_does_not_follow_is_a_breaking_rename_that_names_it():
     old = edit(BASE, role("dock_staff", {"stations": "name = 'Harbour'"}))
     new = edit(_rename_stations(BASE), role("dock_staff", {"stations": "name = 'Harbour'"}))
     changes = diff_models(old, new)
-    assert ("table.renamed", "tables.docks") not in pairs(changes)
-    removed = only(changes, "table.removed")
-    assert removed.severity == "breaking" and "roles.dock_staff" in removed.message
+    assert pairs(changes) == [("report.added", "reports.dock_trips"), ("table.renamed", "tables.docks")]
+    renamed = only(changes, "table.renamed")
+    assert renamed.severity == "breaking" and renamed.details["left_behind"] == ["roles.dock_staff"]
+    assert "role dock_staff still uses the old name" in renamed.message
 
 
 def test_a_rename_with_a_new_description_reports_the_rename_and_the_metadata():
@@ -430,7 +431,7 @@ def test_scenario(name):
 TWINS = {
     "table.added": ("table_added", "table_renamed"),
     "table.removed": ("table_removed", "table_renamed"),
-    "table.renamed": ("table_renamed", "table_rename_not_followed"),
+    "table.renamed": ("table_renamed", "table_replaced"),
     "table.kind_changed": ("table_kind_changed", "table_description_changed"),
     "table.key_changed": ("table_key_changed", "column_renamed_key"),
     "table.natural_key_changed": ("table_natural_key_changed", "table_key_changed"),
@@ -444,7 +445,7 @@ TWINS = {
     "column.metadata_changed": ("column_description_changed", "column_type_changed"),
     "link.added": ("link_added", "link_renamed"),
     "link.removed": ("link_removed", "link_renamed"),
-    "link.renamed": ("link_renamed", "link_rename_not_followed"),
+    "link.renamed": ("link_renamed", "link_removed"),
     "link.flow_widened": ("link_flow_widened", "link_flow_narrowed"),
     "link.flow_narrowed": ("link_flow_narrowed", "link_flow_widened"),
     "link.security_flow_changed": ("link_security_flow_changed", "link_flow_narrowed"),
@@ -455,7 +456,7 @@ TWINS = {
     "link.metadata_changed": ("link_description_changed", "link_flow_widened"),
     "measure.added": ("measure_added", "measure_renamed"),
     "measure.removed": ("measure_removed", "measure_renamed"),
-    "measure.renamed": ("measure_renamed", "measure_rename_not_followed"),
+    "measure.renamed": ("measure_renamed", "measure_removed"),
     "measure.logic_changed": ("measure_logic_changed", "measure_cosmetic_changed"),
     "measure.cosmetic_changed": ("measure_cosmetic_changed", "measure_logic_changed"),
     "measure.overrides_changed": ("measure_overrides_changed", "link_renamed"),

@@ -254,7 +254,7 @@ def test_markdown_starts_with_the_summary_table():
     out = markdown(*pair("flow_widened"))
     tables = [line for line in out.splitlines() if line.startswith("|")]
     assert tables[0].startswith("| model | verdict |")
-    assert re.match(r"\| `bikeshare` \| \*\*breaking\*\* \| 1 \| 13 \| 0 \| 3 \| 0 \| 1 \|", tables[2])
+    assert re.match(r"\| `bikeshare` \| \*\*breaking\*\* \| 1 \| 13 \| 1 \| 3 \| 0 \| 1 \|", tables[2])
 
 
 def test_markdown_folds_long_lists_into_details_and_repeats_the_table_header(tmp_path):

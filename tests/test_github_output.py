@@ -85,12 +85,12 @@ def test_revision_2_errors_first_then_warnings_pointing_at_the_link():
     diff = ModelDiff(Side(None, str(EXAMPLE)), Side(None, str(REVISION_2)), impact.analyse(old, new, (), ()))
     out = render([diff], {"GITHUB_WORKSPACE": str(ROOT)})
     found = commands(out)
-    assert [level for level, _, _ in found] == ["error"] + ["warning"] * 9
+    assert [level for level, _, _ in found] == ["error"] + ["warning"] * 9 + ["notice"]  # notice: a new check warning
     link_line = next(n for n, line in enumerate(REVISION_2.read_text().splitlines(), 1) if line == "  trips_start_station:")
     level, props, message = next(c for c in found if "links.trips_start_station" in c[2])
     assert props["file"] == "examples/revision-2/bikeshare.model.yaml" and props["line"] == str(link_line)
     assert "ambiguity.introduced" in found[0][1]["title"]
-    assert out.splitlines()[-1] == "modeldiff: bikeshare: breaking (1 breaking, 9 can move numbers, 0 safe)"
+    assert out.splitlines()[-1] == "modeldiff: bikeshare: breaking (1 breaking, 9 can move numbers, 1 safe)"
 
 
 def test_most_severe_first_whatever_the_order_of_changes():

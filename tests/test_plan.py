@@ -236,6 +236,61 @@ def test_a_security_exposure_needs_sign_off_before_the_change_that_causes_it():
     assert doc["security"] is True and "organisation's own security review decides" in doc["security_caution"]
 
 
+def _security_ids(old, new) -> set[str]:
+    return {c.id for c in impact.analyse(old, new).changes if c.kind.startswith("security.")}
+
+
+def test_security_changes_are_credited_to_the_link_that_moved_them_not_to_another_link_on_their_paths():
+    # issue 9, point 10: trips_bike made two-way for security reroutes depot_staff's and east_district_lead's
+    # restriction of repairs over a new path that also crosses stations_district, whose description changed.
+    base = bikeshare()
+    new = edit(with_link(base, "trips_bike", flow="two-way", security_flow="two-way"),
+               replace(base.links["stations_district"], description="Where a station is."))
+    p = plan_of(base, new)
+    security = _security_ids(base, new)
+    assert len(security) == 4  # two tightened (bikes), two rerouted (repairs)
+    assert security <= set(step(p, "change-link", "links.trips_bike").changes)
+    assert not security & set(step(p, "change-link", "links.stations_district").changes)
+    assert_well_formed(p, {c.id for c in impact.analyse(base, new).changes})
+
+
+def test_a_link_whose_change_opens_the_new_path_is_credited_with_the_reroute():
+    # twin: when stations_district's own change is the one that moves an edge on the new path, it is credited
+    base = with_link(bikeshare(), "trips_bike", flow="two-way", security_flow="two-way")
+    old = with_link(base, "stations_district", standby=True)
+    p = plan_of(old, base)
+    security = _security_ids(old, base)
+    assert security and security <= set(step(p, "change-link", "links.stations_district").changes)
+
+
+def test_a_role_whose_description_changed_is_not_credited_with_a_link_s_security_change():
+    base = bikeshare()
+    new = edit(with_link(base, "trips_bike", flow="two-way", security_flow="two-way"),
+               replace(base.roles["east_district_lead"], description="East of the river."))
+    p = plan_of(base, new)
+    role_step = step(p, "change-role", "roles.east_district_lead")
+    assert not _security_ids(base, new) & set(role_step.changes)
+
+
+def test_a_role_whose_filter_changed_is_credited_with_its_security_changes():
+    base = bikeshare()
+    new = edit(base, replace(base.roles["east_district_lead"], filters={"districts": "region = 'East'",
+                                                                          "bikes": "bike_type = 'cargo'"}))
+    p = plan_of(base, new)
+    security = _security_ids(base, new)
+    assert security and security <= set(step(p, "change-role", "roles.east_district_lead").changes)
+
+
+def test_a_security_exposure_waits_for_sign_off_only_in_the_step_that_causes_it():
+    base = bikeshare()
+    new = edit(with_link(base, "district_access_district", security_flow="one-way"),
+               replace(base.links["stations_district"], description="Where a station is."))
+    p = plan_of(base, new)
+    sign = step(p, "sign-off", "roles.depot_staff")
+    assert sign.id in step(p, "change-link", "links.district_access_district").after
+    assert sign.id not in step(p, "change-link", "links.stations_district").after
+
+
 def test_no_sign_off_without_an_exposure():
     base = bikeshare()
     p = plan_of(base, with_link(base, "trips_bike", flow="two-way"))
@@ -315,7 +370,9 @@ def test_the_bike_share_example_tells_operations_then_widens_the_flow():
     assert (code, err) == (0, "")
     doc = json.loads(out)
     assert [(s["kind"], s["subject"]) for s in doc["steps"]] == [
-        ("tell-owners", "owners.operations"), ("change-link", "links.trips_start_station")]
+        ("tell-owners", "owners.operations"), ("change-link", "links.trips_start_station"),
+        ("review", "roles.student_programme_analyst")]  # the new security-stops warning the widened flow raises
+    assert doc["steps"][2]["title"].startswith("Review the new security-stops warning on student_programme_analyst")
     link_step = doc["steps"][1]
     assert link_step["after"] == ["s1"]
     assert any("decide which route" in p for p in link_step["preconditions"])

@@ -23,16 +23,24 @@ def styled(stream: TextIO) -> bool:
     return bool(os.environ.get("FORCE_COLOR")) or bool(getattr(stream, "isatty", None) and stream.isatty())
 
 
-def console(stream: TextIO):
+# Off a terminal, a table is as wide as its widest row needs: no value cut or wrapped inside a cell.
+UNBOUNDED = 1_000_000
+
+
+def console(stream: TextIO, fit_tables: bool = False):
     """A rich console for `stream`: styles only on a terminal, none at all (not even bold) under NO_COLOR.
 
-    Off a terminal (CI logs, files, pipes) the width is COLUMNS or 100.
+    Off a terminal (CI logs, files, pipes) the width is COLUMNS or 100; with
+    `fit_tables` it has no bound, so a table takes the full width its rows
+    need (headers and values whole, never cut nor wrapped inside a cell) and
+    a line of text is never wrapped: for output read by programs and in files
+    (eval, verify). On a terminal the terminal's width rules.
     """
     from rich.console import Console
 
     width = None
     if not (hasattr(stream, "isatty") and stream.isatty()):
-        width = _plain_width()
+        width = UNBOUNDED if fit_tables else _plain_width()
     options = {"color_system": None} if os.environ.get("NO_COLOR") else {}
     return Console(file=stream, width=width, highlight=False, emoji=False, **options)
 

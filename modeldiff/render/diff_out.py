@@ -58,7 +58,9 @@ def model_json(md: ModelDiff) -> dict:
             "reports": [impact_json(i) for i in r.reports],
         },
         "findings": [{"rule": f.rule, "severity": f.severity, "subject": f.subject, "message": f.message} for f in r.new_errors],
-        "summary": {**counts, "errors": len(r.new_errors), "verdict": r.verdict, "exit_code": r.exit_code},
+        "summary": {**counts, "errors": len(r.new_errors),
+                    "new_warnings": sum(c.kind == "warning.added" for c in r.changes),  # among the safe changes
+                    "verdict": r.verdict, "exit_code": r.exit_code},
     }
 
 
@@ -72,7 +74,8 @@ def as_json(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
         doc = model_json(diffs[0])
     else:
         docs = [model_json(d) for d in diffs]
-        summary = {k: sum(d["summary"][k] for d in docs) for k in ("breaking", "numbers", "safe", "errors")}
+        summary = {k: sum(d["summary"][k] for d in docs) for k in ("breaking", "numbers", "safe", "errors",
+                                                                     "new_warnings")}
         verdict = verdict_of(diffs)
         doc = {"format": 1, "models": docs, "summary": {**summary, "verdict": verdict, "exit_code": EXIT_CODES[verdict]}}
     import json

@@ -183,7 +183,7 @@ def as_text(v: Verification, stream: TextIO, limit: int = 0) -> None:
 
     from modeldiff.render import console as make_console
 
-    out = make_console(stream)
+    out = make_console(stream, fit_tables=True)  # off a terminal: tables as wide as their rows, values whole
     md = v.diff
     s = summary(v)
 
