@@ -103,7 +103,7 @@ def test_a_broken_reference_comes_before_other_errors_and_after_reading_problems
     assert any(r.startswith("duplicate-") for r in found[2:])
 
 
-# --- ambiguity: only where read, at the item that causes it, with the fix that applies there -----------
+# --- ambiguity: who reads it, at the item that causes it, with the fix that applies there -----------
 
 # Shifts are staffed at a clinic: a filter on clinics reaches shifts directly and through staff. No measure
 # reads shifts (none has it as home, and shifts reaches no measure's home).
@@ -122,8 +122,12 @@ def ambiguities(text: str):
     return [f for f in findings(text) if f.rule == "ambiguous-paths"]
 
 
-def test_an_ambiguous_pair_no_measure_reads_is_not_reported():
-    assert ambiguities(SHIFTS) == []
+def test_an_ambiguous_pair_no_measure_reads_is_reported_and_says_so():
+    # The contract (docs/meaning.md, check rules) reports every ambiguous pair of every setting; the message
+    # tells the reviewer that no number depends on it yet, rather than hiding it.
+    (found,) = ambiguities(SHIFTS)
+    assert found.subject == "paths.clinics->shifts"
+    assert "no measure computed in this setting reads it yet" in found.message and "reads it." not in found.message
 
 
 def test_an_ambiguous_pair_a_measure_reads_is_reported_at_a_link_of_its_routes():
@@ -160,10 +164,12 @@ def test_an_ambiguity_of_a_measure_s_setting_is_placed_at_that_measure_with_its_
         assert f.pos == model.pos("measures.clinics_seen")
 
 
-def test_the_same_setting_on_a_measure_that_does_not_read_the_target_raises_nothing():
+def test_the_same_setting_on_a_measure_that_does_not_read_the_target_says_no_measure_reads_it():
     text = STAFFED.replace("measures:\n", f"measures:\n  days_seen: {{table: days, expr: count(*), {OVERRIDES}}}\n")
-    assert ambiguities(text) == []
-    assert [r for r, _ in rules(text)] == []  # and nothing else either
+    found = ambiguities(text)
+    assert found and all("no measure computed in this setting reads it yet" in f.message for f in found)
+    assert not any("measure days_seen reads it" in f.message for f in found)
+    assert {r for r, _ in rules(text)} == {"ambiguous-paths"}  # and nothing else
 
 
 # --- two-way out of a bridge or an access table -------------------------------------------------------

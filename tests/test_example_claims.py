@@ -62,8 +62,10 @@ def test_the_structural_and_derived_changes_are_those_the_readme_lists(diff):
     assert "`link.flow_widened` on `links.trips_start_station`" in text
     assert "`ambiguity.introduced` on\n  `paths.calendar->stock_levels`" in text
     kinds = {(c["kind"], c["subject"]) for c in diff["changes"]}
-    structural = {k for k in kinds if not k[0].startswith(("path.", "ambiguity.", "security.", "reference."))}
+    structural = {k for k in kinds if not k[0].startswith(("path.", "ambiguity.", "security.", "reference.", "warning."))}
     assert structural == {("link.flow_widened", "links.trips_start_station")}
+    assert "`warning.added` on\n  `roles.student_programme_analyst`" in text
+    assert {k for k in kinds if k[0] == "warning.added"} == {("warning.added", "roles.student_programme_analyst")}
     # "new filter paths into `stations` and `stock_levels` (from `calendar`, `bikes`, `riders`, `trips`)"
     sources = re.search(r"new filter paths into `stations` and `stock_levels` \(from ([^)]*)\)", " ".join(text.split()))
     named = re.findall(r"`(\w+)`", sources.group(1))

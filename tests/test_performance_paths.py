@@ -85,13 +85,11 @@ TABLES = ["a", "b", "c", "d", "e"]
 
 
 def _every_setting_pair(model) -> set[tuple[str, str, tuple, tuple]]:
-    """Reference: every setting analysed from every source, the first setting to report a pair wins; a pair
-    counts in a setting only where some measure computed there reads its target (its home is reached)."""
+    """Reference: every setting analysed from every source, the first setting to report a pair wins."""
     reported, out = set(), set()
-    for candidate, setting in check._settings(model):
-        fg = graph.flow_graph(model, setting)
-        for s, x, first, second in fg.ambiguous_pairs():
-            if (s, x) not in reported and not fg.reach(x).isdisjoint(candidate.homes):
+    for _, setting in check._settings(model):
+        for s, x, first, second in graph.flow_graph(model, setting).ambiguous_pairs():
+            if (s, x) not in reported:
                 reported.add((s, x))
                 out.add((s, x, first, second))
     return out
