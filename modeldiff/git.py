@@ -464,19 +464,17 @@ def _read_at_rev(repo: "gitpython.Repo", rev: str, path: str) -> ModelSource | N
 
 
 def _read_file(full: str, display: str) -> bytes:
-    try:
-        with open(full, "rb") as handle:
-            return handle.read()
-    except OSError as exc:
-        raise ModeldiffError(f"cannot read '{display}': {exc.strerror or exc}") from None
+    from modeldiff.load import read_file  # regular files only, within the size limit
+
+    return read_file(full, display)
 
 
 def _disk_files(full: str, display: str) -> tuple[tuple[str, bytes], ...] | None:
     """The file, or the folder's YAML files sorted by relative path; None when nothing is there."""
-    if os.path.isfile(full):
-        return ((display, _read_file(full, display)),)
-    if not os.path.isdir(full):
+    if not os.path.exists(full):
         return None
+    if not os.path.isdir(full):  # a file, or something else in its place: refused by _read_file
+        return ((display, _read_file(full, display)),)
     found = []
     for folder, subfolders, names in os.walk(full):
         subfolders.sort()
@@ -484,7 +482,7 @@ def _disk_files(full: str, display: str) -> tuple[tuple[str, bytes], ...] | None
             if not _is_yaml_name(name):
                 continue
             real = os.path.join(folder, name)
-            if not os.path.isfile(real):
+            if not os.path.exists(real):
                 continue
             relative = os.path.relpath(real, full).replace(os.sep, "/")
             found.append((relative, os.path.join(display, *relative.split("/")), real))

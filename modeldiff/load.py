@@ -170,15 +170,26 @@ def _fail(name: str, line: int | None, column: int | None, message: str) -> Mode
     return ModeldiffError(f"{where}: {message}")
 
 
-def _read_file(path: str) -> bytes:
+def read_file(path: str, display: str | None = None) -> bytes:
+    """A model file's bytes: a regular file (links followed) of at most MAX_FILE_BYTES, else one clear error.
+
+    Never reads more than the limit + 1 bytes, and never waits on a named pipe (files.read_regular).
+    """
+    from modeldiff.files import NotRegular, TooBig, read_regular
+
+    shown = path if display is None else display
     try:
-        size = os.path.getsize(path)
-        if size > MAX_FILE_BYTES:
-            raise _too_big(path, size)
-        with open(path, "rb") as handle:
-            return handle.read()
+        return read_regular(path, MAX_FILE_BYTES)
+    except NotRegular as exc:
+        raise _fail(shown, None, None, f"is {exc.kind}, not a regular file; a model is read from regular files only "
+                                       "(give the path of the model's file or folder)") from None
+    except TooBig as exc:
+        raise _too_big(shown, exc.size) from None
     except OSError as exc:
-        raise ModeldiffError(f"{path}: cannot be read ({exc.strerror or exc}); check the path and its permissions")
+        raise ModeldiffError(f"{shown}: cannot be read ({exc.strerror or exc}); check the path and its permissions") from None
+
+
+_read_file = read_file
 
 
 def _too_big(name: str, size: int) -> ModeldiffError:
@@ -207,7 +218,7 @@ def _folder_files(folder: str) -> list[tuple[str, bytes]]:
         subfolders.sort()
         for entry in names:
             path = os.path.join(parent, entry)
-            if entry.lower().endswith(YAML_SUFFIXES) and os.path.isfile(path):
+            if entry.lower().endswith(YAML_SUFFIXES) and os.path.exists(path):  # special files are refused on reading
                 found.append((os.path.relpath(path, folder).replace(os.sep, "/"), path))
     if not found:
         raise ModeldiffError(f"{folder}: holds no .yaml or .yml files; put the model's YAML files in it")
