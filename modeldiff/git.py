@@ -345,6 +345,12 @@ def merge_base(repo_dir, a: str, b: str) -> str | None:
         return lines[0] if lines else None
 
 
+def on_remote_branches(repo_dir, sha: str, remote: str) -> bool:
+    """Whether commit `sha` is reachable from a remote-tracking branch of `remote` (refs/remotes/REMOTE/*) here."""
+    with _open(repo_dir) as repo:  # no commit of sha's history outside them (none there: every commit is outside)
+        return not _run(repo, "rev-list", "-n", "1", _resolve(repo, sha), "--not", f"--remotes={remote}", "--").strip()
+
+
 def _range_ends(range_spec: str) -> tuple[str, str, str] | None:
     for operator in ("...", ".."):
         if operator in range_spec:
@@ -469,8 +475,11 @@ def _read_file(full: str, display: str) -> bytes:
     return read_file(full, display)
 
 
-def _disk_files(full: str, display: str) -> tuple[tuple[str, bytes], ...] | None:
-    """The file, or the folder's YAML files sorted by relative path; None when nothing is there."""
+def _disk_files(full: str, display: str, root: str | None = None) -> tuple[tuple[str, bytes], ...] | None:
+    """The file, or the folder's YAML files sorted by relative path; None when nothing is there.
+
+    With `root` (a repository's working tree), a folder's files that link out of it are left out.
+    """
     if not os.path.exists(full):
         return None
     if not os.path.isdir(full):  # a file, or something else in its place: refused by _read_file
@@ -482,7 +491,7 @@ def _disk_files(full: str, display: str) -> tuple[tuple[str, bytes], ...] | None
             if not _is_yaml_name(name):
                 continue
             real = os.path.join(folder, name)
-            if not os.path.exists(real):
+            if not os.path.exists(real) or (root is not None and not _inside(root, real)):
                 continue
             relative = os.path.relpath(real, full).replace(os.sep, "/")
             found.append((relative, os.path.join(display, *relative.split("/")), real))
@@ -490,14 +499,47 @@ def _disk_files(full: str, display: str) -> tuple[tuple[str, bytes], ...] | None
     return tuple((shown, _read_file(real, shown)) for _, shown, real in found) or None
 
 
+def _inside(root: str, full: str) -> bool:
+    """Whether `full`, links followed, is inside the folder `root`."""
+    real_root = os.path.realpath(root)
+    return os.path.commonpath([real_root, os.path.realpath(full)]) == real_root
+
+
 def _read_worktree(repo: "gitpython.Repo", path: str) -> ModelSource | None:
     root = repo.working_tree_dir
     if root is None:
         raise GitError(f"{repo.git_dir} is a bare repository without a working tree; name a revision to read from")
-    files = _disk_files(os.path.join(root, *path.split("/")), path)
+    full = os.path.join(root, *path.split("/"))
+    if not _inside(root, full):  # a link out of the repository is not followed, as in a revision (link_leaving)
+        return None
+    files = _disk_files(full, path, root)
     if files is None:
         return None
     return ModelSource(rev=None, path=path, files=files, blob_id=None)
+
+
+def link_leaving(repo_dir, rev: str | None, path: str) -> str | None:
+    """Where `path` points when it is a symbolic link (at `rev`, None: the working tree) leading out of the
+    repository, else None. Such a link is never followed: read_at answers None for it."""
+    clean = _clean_repo_path(path, "in the working tree" if rev is None else f"at revision '{rev}'")
+    with _open(repo_dir) as repo:
+        if rev is None:
+            root = repo.working_tree_dir
+            full = os.path.join(root or ".", *clean.split("/"))
+            if root is None or not os.path.lexists(full) or _inside(root, full):
+                return None
+            return os.readlink(full) if os.path.islink(full) else os.path.realpath(full)
+        tree = _commit(repo, _resolve(repo, rev), rev).tree
+        entry, here = _tree_entry(tree, clean), clean
+        for _ in range(_MAX_LINK_HOPS):
+            if entry is None or entry.type != "blob" or entry.mode != _SYMLINK_MODE:
+                return None
+            target = _blob_bytes(entry).decode("utf-8", "surrogateescape")
+            here = posixpath.normpath(posixpath.join(posixpath.dirname(here), target))
+            if target.startswith("/") or here == ".." or here.startswith("../"):
+                return target
+            entry = _tree_entry(tree, here)
+        return None
 
 
 def read_at(repo_dir, rev: str | None, path: str) -> ModelSource | None:

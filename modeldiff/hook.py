@@ -402,6 +402,13 @@ class _Facts:
             self._peeled[rev] = git.resolve_rev(self.root, rev) if git.rev_exists(self.root, rev) else None
         return self._peeled[rev]
 
+    def on_remote(self, head: str) -> bool:
+        """Whether every commit of `head` is already on a branch of the remote, as known here."""
+        from modeldiff import git
+
+        name = self.remote if self.remote and prepush.is_remote_name(self.remote) else "origin"
+        return git.on_remote_branches(self.root, head, name)
+
     def default_branch(self) -> tuple[str, str] | None:
         """(shown name, sha) of the remote's default branch as known here."""
         if self._default is False:
@@ -442,6 +449,8 @@ def plan_ranges(root: str, remote: str | None, updates: Sequence[prepush.RefUpda
             continue
         remote_base = None if update.new_on_remote else facts.peel(update.remote_sha)
         fallback_base = fallback_from = None
+        if remote_base is None and facts.on_remote(head):
+            continue  # e.g. a new tag of a commit already pushed on some branch: it brings no commit to check
         if remote_base is None:
             fallback_base, fallback_from = facts.fallback(head)
         decided = prepush.decide_range(update, head, remote_base, fallback_base, fallback_from)

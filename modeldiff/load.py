@@ -107,6 +107,8 @@ def load_files(files: Sequence[tuple[str, bytes | str]], shared: Mapping[str, Me
     """
     if not files:
         raise ModeldiffError("no model files were given; give a NAME.model.yaml file or a NAME.model/ folder")
+    for name, content in files:
+        _refuse_lfs_pointer(name, content)
     with paused_gc():
         return _fast_load(files, shared) or _exact_load(files)
 
@@ -190,6 +192,19 @@ def read_file(path: str, display: str | None = None) -> bytes:
 
 
 _read_file = read_file
+
+
+# Git LFS's pointer format (its spec, docs/spec.md): the first line names the spec; early pointers named hawser's.
+_LFS_POINTERS = ("version https://git-lfs.github.com/spec/", "version https://hawser.github.com/spec/")
+
+
+def _refuse_lfs_pointer(name: str, content: bytes | str) -> None:
+    """A Git LFS pointer (the few lines git keeps in place of a file stored with LFS) is not the model."""
+    start = content[:48]
+    text = start.decode("ascii", "replace") if isinstance(start, bytes) else start
+    if text.startswith(_LFS_POINTERS):
+        raise _fail(name, None, None, "this is a Git LFS pointer, not the model's text; run 'git lfs pull' "
+                                      "(with Git LFS installed) to fetch the file, then run modeldiff again")
 
 
 def _too_big(name: str, size: int) -> ModeldiffError:
