@@ -407,7 +407,13 @@ def _display(rev: str, path: str) -> str:
     return f"{rev}:{path}"
 
 
-def _blob_bytes(blob) -> bytes:
+def _blob_bytes(blob, shown: str | None = None) -> bytes:
+    """A blob's bytes; a model file over the size limit is refused before it is read (load._too_big)."""
+    if shown is not None:
+        from modeldiff import load
+
+        if blob.size > load.MAX_FILE_BYTES:
+            raise load._too_big(shown, blob.size)
     return blob.data_stream.read()
 
 
@@ -444,7 +450,8 @@ def _folder_files_at(tree, folder, rev: str, folder_path: str, shown_path: str) 
         _, target = _follow_links(tree, item.path, item)
         if target is None or target.type != "blob":
             continue
-        files.append((relative, _display(rev, posixpath.join(shown_path, relative)), _blob_bytes(target)))
+        shown = _display(rev, posixpath.join(shown_path, relative))
+        files.append((relative, shown, _blob_bytes(target, shown)))
     files.sort()
     return tuple((name, data) for _, name, data in files)
 
@@ -457,7 +464,7 @@ def _read_at_rev(repo: "gitpython.Repo", rev: str, path: str) -> ModelSource | N
         if entry is None:
             return None
         if entry.type == "blob":
-            files = ((_display(rev, path), _blob_bytes(entry)),)
+            files = ((_display(rev, path), _blob_bytes(entry, _display(rev, path))),)
         elif entry.type == "tree":
             files = _folder_files_at(tree, entry, rev, target, path)
         else:  # a submodule

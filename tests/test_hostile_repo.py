@@ -189,3 +189,18 @@ def test_a_tag_of_a_new_breaking_commit_is_still_blocked(pushed):
     git(pushed, "tag", "v2")
     done = push(pushed, "origin", "v2")
     assert done.returncode != 0 and "push blocked" in done.stderr
+
+
+# --- a model blob over the size limit ---------------------------------------------------------------------------
+
+
+@pytest.mark.parametrize("size, refused", [(64, False), (65, True)])
+def test_a_committed_model_over_the_limit_is_refused_before_it_is_read(repo, monkeypatch, size, refused):
+    from modeldiff import load
+
+    monkeypatch.setattr(load, "MAX_FILE_BYTES", 64)
+    (repo / "rides.model.yaml").write_text("model: rides\nformat: 1\ntables: {}\n" + "#" * (size - 34))
+    commit(repo, "one")
+    assert (repo / "rides.model.yaml").stat().st_size == size
+    code, out, err = run("check", "HEAD:rides.model.yaml", cwd=repo)
+    assert (code == 2 and "limit" in err) is refused, (code, err)
