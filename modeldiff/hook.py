@@ -288,7 +288,25 @@ def install(repo: str, stdout: TextIO, python: str | None = None) -> int:
                      f"{state.folder} now runs this hook\n")
     if state.exists:
         stdout.write(f"kept the hook that was there as {kept}; it runs first, and its failure stops the push\n")
+    chosen = python or sys.executable
+    if os.access(chosen, os.X_OK) and not _has_modeldiff_isolated(chosen):
+        stdout.write(f"note: {chosen} -I cannot import modeldiff (installed with --user, or through PYTHONPATH?); "
+                     "the hook runs Python isolated, so it will use the modeldiff command on PATH instead; "
+                     "install modeldiff into that Python's environment (a virtual environment) to use it\n")
     return 0
+
+
+def _has_modeldiff_isolated(python: str) -> bool:
+    """Whether `python -I` (as the hook runs it: no current folder, PYTHONPATH or user site) finds modeldiff."""
+    import subprocess
+
+    try:
+        done = subprocess.run([python, "-I", "-c", "import importlib.util, sys; "
+                               "sys.exit(importlib.util.find_spec('modeldiff') is None)"],
+                              capture_output=True, timeout=30, cwd="/")
+    except (OSError, subprocess.SubprocessError):
+        return False
+    return done.returncode == 0
 
 
 def _outside_repository(repo: str, folder: str) -> bool:

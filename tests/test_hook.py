@@ -646,6 +646,19 @@ def test_a_python_that_lost_the_package_blocks_only_model_changes(world, files, 
     assert "Traceback" not in pushed.out and "No module named" not in pushed.out
 
 
+@pytest.mark.skipif(_python_without_modeldiff() is None, reason="needs a Python without modeldiff")
+def test_install_says_when_its_python_cannot_import_modeldiff_isolated(world):
+    out = io.StringIO()
+    hook.install(str(world.work), out, python=_python_without_modeldiff())
+    assert "cannot import modeldiff" in out.getvalue()
+
+
+def test_install_says_nothing_more_when_its_python_has_modeldiff(world):
+    out = io.StringIO()
+    hook.install(str(world.work), out, python=sys.executable)
+    assert "cannot import" not in out.getvalue() and out.getvalue().startswith("installed ")
+
+
 # --- the repository's own code never runs (issue 16) -----------------------------------------------------------
 
 PLANTED = "open({marker!r}, 'a').write('ran from the repository\\n')\n"
