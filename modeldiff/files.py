@@ -74,3 +74,21 @@ def read_regular(path: str, limit: int, follow_links: bool = True) -> bytes:
         return data
     finally:
         os.close(descriptor)
+
+
+def enclosing_work_tree(path: str) -> str | None:
+    """The folder holding `.git` (a folder or a file) above where `path` is written, links not followed; or None."""
+    here = os.path.dirname(os.path.abspath(path))
+    while True:
+        if os.path.lexists(os.path.join(here, ".git")):
+            return here
+        parent = os.path.dirname(here)
+        if parent == here:
+            return None
+        here = parent
+
+
+def leaves(root: str, path: str) -> bool:
+    """Whether `path`, symbolic links followed, is outside the folder `root` (links in `root` itself followed too)."""
+    real_root = os.path.realpath(root)
+    return os.path.commonpath([real_root, os.path.realpath(path)]) != real_root

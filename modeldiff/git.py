@@ -508,8 +508,9 @@ def _disk_files(full: str, display: str, root: str | None = None) -> tuple[tuple
 
 def _inside(root: str, full: str) -> bool:
     """Whether `full`, links followed, is inside the folder `root`."""
-    real_root = os.path.realpath(root)
-    return os.path.commonpath([real_root, os.path.realpath(full)]) == real_root
+    from modeldiff.files import leaves
+
+    return not leaves(root, full)
 
 
 def _read_worktree(repo: "gitpython.Repo", path: str) -> ModelSource | None:

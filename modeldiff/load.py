@@ -93,9 +93,26 @@ def path_files(path: str | os.PathLike) -> list[tuple[str, bytes]]:
         raise ModeldiffError(
             f"{shown}: no such file or folder; give the path of a NAME.model.yaml file or a NAME.model/ folder"
         )
+    _refuse_link_out_of_repository(shown, shown)
     if os.path.isdir(shown):
         return _folder_files(shown)
     return [(shown, _read_file(shown))]
+
+
+def _refuse_link_out_of_repository(path: str, shown: str) -> None:
+    """A model path inside a git work tree that links out of it (a committed link to /etc/passwd) is not read.
+
+    Its content could otherwise end up quoted in an error message (a CI log). Naming the target itself
+    reads it (the person running the command chose it).
+    """
+    from modeldiff.files import enclosing_work_tree, leaves
+
+    root = enclosing_work_tree(path)
+    if root is not None and leaves(root, path):
+        target = os.readlink(path) if os.path.islink(path) else os.path.realpath(path)
+        raise ModeldiffError(f"{shown}: is a symbolic link to {target!r}, outside the repository it is in "
+                             f"({root}); a model is read from inside its repository only; to read that file, "
+                             "give its own path")
 
 
 def load_files(files: Sequence[tuple[str, bytes | str]], shared: Mapping[str, Measure] | None = None) -> LoadResult:
@@ -234,6 +251,7 @@ def _folder_files(folder: str) -> list[tuple[str, bytes]]:
         for entry in names:
             path = os.path.join(parent, entry)
             if entry.lower().endswith(YAML_SUFFIXES) and os.path.exists(path):  # special files are refused on reading
+                _refuse_link_out_of_repository(path, path)
                 found.append((os.path.relpath(path, folder).replace(os.sep, "/"), path))
     if not found:
         raise ModeldiffError(f"{folder}: holds no .yaml or .yml files; put the model's YAML files in it")

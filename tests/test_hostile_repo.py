@@ -204,3 +204,35 @@ def test_a_committed_model_over_the_limit_is_refused_before_it_is_read(repo, mon
     assert (repo / "rides.model.yaml").stat().st_size == size
     code, out, err = run("check", "HEAD:rides.model.yaml", cwd=repo)
     assert (code == 2 and "limit" in err) is refused, (code, err)
+
+
+# --- a model path on disk that links out of its repository ------------------------------------------------------
+
+
+@pytest.mark.parametrize("command", ["check", "diff"])
+@pytest.mark.parametrize("where", ["file", "in a folder"])
+def test_a_model_on_disk_linking_out_of_its_repository_is_refused_without_its_content(repo, command, where):
+    (repo.parent / "outside.txt").write_text("TOKEN=very-secret-value\nroot:x:0:0:root:/root:/bin/bash\n")
+    if where == "file":
+        os.symlink("../outside.txt", repo / "secrets.model.yaml")
+        target = "secrets.model.yaml"
+    else:
+        (repo / "more.model").mkdir()
+        (repo / "more.model" / "a.yaml").write_text(SMALL)
+        os.symlink("../../outside.txt", repo / "more.model" / "b.yaml")
+        target = "more.model"
+    argv = ["check", target] if command == "check" else ["diff", "rides.model.yaml", target]
+    code, out, err = run(*argv, cwd=repo)
+    assert code == 2 and err.count("\n") == 1 and "outside the repository" in err, err
+    assert "very-secret" not in out + err and "root:x" not in out + err
+
+
+def test_the_same_file_named_by_its_own_path_is_read(repo, tmp_path):
+    # the twin: the person running the command names a model outside the repository on purpose
+    outside = tmp_path / "elsewhere.model.yaml"
+    outside.write_text(SMALL)
+    code, out, err = run("check", str(outside), cwd=repo)
+    assert code == 0 and err == ""
+    os.symlink("bikeshare.model.yaml", repo / "alias.model.yaml")  # and a link inside the repository is followed
+    code, out, err = run("check", "alias.model.yaml", cwd=repo)
+    assert code in (0, 3) and "outside" not in err
