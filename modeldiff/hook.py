@@ -108,7 +108,7 @@ NO_TOOL = r"""no_tool() {
         else
             paths=$(git -c core.quotePath=false diff --name-only "$3" "$1" -- 2>/dev/null) || paths=unknown.model.yaml
         fi
-        if printf '%s\n' "$paths" | grep -Eiq '[^/]\.model\.ya?ml"?$|[^/]\.model/(.*/)?[^/]+\.ya?ml"?$'; then
+        if printf '%s\n' "$paths" | grep -Eiq '[^/]\.model\.ya?ml"?$|[^/]\.model/(.*/)?[^/]*\.ya?ml"?$'; then
             changed=yes
         fi
     done <"$input"

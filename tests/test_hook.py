@@ -746,3 +746,23 @@ def test_the_framework_manifest_declares_the_pre_push_hook():
     assert entry == {**entry, "id": "modeldiff-pre-push", "entry": "modeldiff hook run --from-env",
                      "language": "python", "stages": ["pre-push"], "always_run": True,
                      "pass_filenames": False, "minimum_pre_commit_version": "3.2.0"}
+
+
+def test_the_scripts_idea_of_a_model_file_agrees_with_git_model_path_of():
+    # Without modeldiff, the script decides "this push changes a model" with grep; it must say yes exactly
+    # where git.model_path_of does (seeded, 600 generated paths, through the real grep).
+    import random
+    import re
+
+    from modeldiff import git as gitmod
+
+    pattern = re.search(r"grep -Eiq '([^']+)'", hook.NO_TOOL).group(1)
+    rng = random.Random(16)
+    pieces = ["a", "b.model", ".model", "x.model.yaml", "y.yml", "z.YAML", "M.Model", "c.txt", "model", ".yaml",
+              "p.model.yml", "q.MODEL.YAML", "r.model.json", "s.model.yaml.bak", "t u.model.yaml", "é.model.yml"]
+    paths = sorted({"/".join(rng.choice(pieces) for _ in range(rng.randrange(1, 5))) for _ in range(600)})
+    done = subprocess.run(["grep", "-Ein", pattern], input="\n".join(paths) + "\n", capture_output=True, text=True)
+    matched = {int(line.split(":", 1)[0]) for line in done.stdout.splitlines()}
+    for number, path in enumerate(paths, 1):
+        assert (number in matched) is (gitmod.model_path_of(path) is not None), path
+    assert matched and len(matched) < len(paths)  # both answers occur
