@@ -112,3 +112,38 @@ def test_read_regular_reads_at_most_the_limit_plus_one(tmp_path):
     with pytest.raises(files.NotRegular) as caught:
         files.read_regular(str(tmp_path / "pipe"), 10)  # opened without waiting for a writer
     assert caught.value.kind == "a named pipe (FIFO)"
+
+
+TINY = """\
+model: tiny
+format: 1
+tables:
+  trips: {kind: fact, key: trip_id, source: trips.csv, columns: {trip_id: integer, fare: decimal}}
+measures:
+  fare_revenue: {table: trips, expr: sum(fare)}
+reports:
+  fares: {measures: [fare_revenue]}
+"""
+
+
+@pytest.mark.parametrize("what", ["zero", "fifo"])
+@pytest.mark.parametrize("how", ["source", "--data DIR", "--data FILE"])
+def test_eval_refuses_a_data_file_that_is_not_a_regular_file(tmp_path, what, how):
+    # Data files are opened by DuckDB; data.py passes it regular files only (os.path.isfile), so a FIFO or
+    # a link to /dev/zero in their place is one line and exit 2, at once.
+    model = tmp_path / "tiny.model.yaml"
+    model.write_text(TINY)
+    data = tmp_path / ("trips.csv" if how != "--data FILE" else "all.duckdb")
+    plant(data, what)
+    argv = ["eval", str(model)] + ([] if how == "source" else ["--data", str(tmp_path if how == "--data DIR" else data)])
+    done = program(*argv)
+    assert done.returncode == 2 and "Traceback" not in done.stderr, done.stderr
+    assert len(done.stderr.strip().splitlines()) == 1
+
+
+def test_eval_reads_the_twin_regular_data_file(tmp_path):
+    model = tmp_path / "tiny.model.yaml"
+    model.write_text(TINY)
+    (tmp_path / "trips.csv").write_text("trip_id,fare\n1,2.5\n2,4\n")
+    done = program("eval", str(model), "--format", "json")
+    assert done.returncode == 0 and "6.5" in done.stdout, done.stderr
