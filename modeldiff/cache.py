@@ -24,32 +24,54 @@ repository the files come from (found by walking up from the working
 folder, without running git); else the user's cache folder
 (`$XDG_CACHE_HOME/modeldiff`, `~/.cache/modeldiff`).
 
-Safety: an entry is a header line (magic word, cache format, tool
-fingerprint, SHA-256 of the payload) and a pickled payload of modeldiff's
-own records, written to a temporary file in the same folder and moved into
-place with `os.replace`, so concurrent runs never see half an entry. An
-entry whose header or checksum does not match is removed and rebuilt, never
-trusted; payloads are read by an unpickler that builds only modeldiff's
-records and plain containers. Beyond `MAX_ENTRIES` entries or `MAX_BYTES`
-the least recently used are removed, and so are temporary files left by a
-writer that was stopped half-way. Off: `use_cache=False` in compare.py's
-functions, or `MODELDIFF_NO_CACHE=1`. Any error of the cache itself (a
-read-only folder, a full disk) only turns the cache off for that call.
+Safety (docs/security.md, "The cache"): the cache is data, never code, and
+an entry nobody but this user's modeldiff wrote is never believed.
+
+- The folder is created with mode 0700. An existing folder that another user
+  owns, or that its group or others may write, is not used: one line on
+  stderr says so and the run goes on without the cache.
+- An entry is plain JSON of modeldiff's records (`Change`, `Impact`,
+  `Reason`, `Finding`, `Pos`), typed containers and JSON scalars, decoded by
+  a reader that builds nothing else and checks every field's type (a wrong
+  shape is a miss, and the entry is removed). No pickle, no names resolved.
+- Its header carries an HMAC-SHA-256 of the entry's kind, key, the tool's
+  fingerprint and the payload, under a secret of this user: 32 random bytes
+  in the folder's `key` file (mode 0600, owned by the user, refused and made
+  afresh otherwise), or the SHA-256 of `$MODELDIFF_CACHE_KEY` when set (for
+  CI, where a cache folder travels between jobs: give it a secret the jobs
+  that run untrusted code do not get). An entry written by anyone without the
+  secret, or copied from another key (a "no changes" comparison under a
+  breaking one's name), fails the check and is a miss. So a forged entry can
+  at worst cost a recomputation; changing a verdict takes the secret, that
+  is, this user's account (or whoever wrote the folder it came from).
+- Entries, and the key file, are read as regular files only (a FIFO or a
+  device in their place is a miss, without waiting), at most MAX_ENTRY_BYTES.
+- Entries are written to a temporary file in the same folder and moved into
+  place with `os.replace`, so concurrent runs never see half an entry.
+  Beyond `MAX_ENTRIES` entries or `MAX_BYTES` the least recently used are
+  removed, and so are temporary files left by a writer that was stopped
+  half-way. Off: `use_cache=False` in compare.py's functions, or
+  `MODELDIFF_NO_CACHE=1`. Any error of the cache itself (a read-only folder,
+  a full disk) only turns the cache off for that call.
 """
 
 from __future__ import annotations
 
-import io
 import os
+import sys
 from collections.abc import Mapping
-from typing import Any, Iterator, Sequence
+from typing import Any, Callable, Iterator, Sequence
 
-FORMAT = 1
+FORMAT = 2
 MAGIC = b"modeldiff-cache"
 MAX_ENTRIES = 500
 MAX_BYTES = 200 * 1024 * 1024
+MAX_ENTRY_BYTES = 64 * 1024 * 1024  # one entry; a bigger file in the folder is not read
 NO_CACHE_ENV = "MODELDIFF_NO_CACHE"
 DIR_ENV = "MODELDIFF_CACHE_DIR"
+KEY_ENV = "MODELDIFF_CACHE_KEY"
+KEY_FILE = "key"
+KEY_BYTES = 32
 SUFFIX = ".entry"
 STALE_SECONDS = 3600  # a temporary file this old belongs to a writer that was stopped
 
@@ -155,58 +177,299 @@ def pair_key(old_key: str | None, new_key: str | None) -> str:
     return hashlib.sha256(f"pair {old_key or '-'} {new_key or '-'}".encode()).hexdigest()
 
 
+# --------------------------------------------------------------------------- the folder and its secret
+
+
+_SECRETS: dict[str, bytes | None] = {}  # folder -> its secret, or None: not usable (said once)
+
+
+def _say_refused(folder: str, why: str) -> None:
+    sys.stderr.write(f"modeldiff: not using the cache folder {folder}: {why}; running without the cache "
+                     f"(fix it with 'chmod 700' as its owner, or set {DIR_ENV} to a folder of your own)\n")
+
+
+def _folder_problem(folder: str) -> str | None:
+    """Why the existing folder may not hold entries (another user's, or others may write it), or None."""
+    import stat
+
+    info = os.stat(folder)
+    if not stat.S_ISDIR(info.st_mode):
+        return "it is not a folder"
+    owner = getattr(os, "geteuid", lambda: None)()
+    if owner is not None and info.st_uid != owner:
+        return f"it is owned by another user (uid {info.st_uid})"
+    if info.st_mode & 0o022:
+        return f"its group or others may write it (mode {stat.S_IMODE(info.st_mode):o})"
+    return None
+
+
+def _usable_folder(folder: str, create: bool) -> bool:
+    """Whether entries may live in `folder`: made with mode 0700 when `create`, checked when it exists."""
+    try:
+        if create and not os.path.isdir(folder):
+            parent = os.path.dirname(os.path.abspath(folder))
+            os.makedirs(parent, exist_ok=True)
+            try:
+                os.mkdir(folder, 0o700)
+            except FileExistsError:
+                pass
+        problem = _folder_problem(folder)
+    except OSError:
+        return False  # absent, or cannot be made: no cache, nothing to say
+    if problem is not None:
+        _SECRETS[folder] = None
+        _say_refused(folder, problem)
+        return False
+    return True
+
+
+def _secret(folder: str, create: bool) -> bytes | None:
+    """The key that signs this folder's entries, or None when the folder is not usable (see the docstring)."""
+    if folder in _SECRETS:
+        return _SECRETS[folder]
+    if not _usable_folder(folder, create):
+        return None
+    given = os.environ.get(KEY_ENV, "")
+    if given:
+        import hashlib
+
+        secret: bytes | None = hashlib.sha256(given.encode("utf-8", "surrogateescape")).digest()
+    else:
+        secret = _key_file(os.path.join(folder, KEY_FILE), create)
+    if secret is not None:
+        _SECRETS[folder] = secret
+    return secret
+
+
+def _read_key(path: str) -> bytes | None:
+    """The key file's bytes when it is ours, a regular file, readable by us alone and whole; else None."""
+    import stat
+
+    from modeldiff.files import read_regular
+
+    try:
+        data = read_regular(path, KEY_BYTES, follow_links=False)
+        info = os.stat(path, follow_symlinks=False)
+    except OSError:
+        return None
+    owner = getattr(os, "geteuid", lambda: None)()
+    if len(data) != KEY_BYTES or info.st_mode & 0o077 or (owner is not None and info.st_uid != owner):
+        return None
+    if not stat.S_ISREG(info.st_mode):
+        return None
+    return data
+
+
+def _key_file(path: str, create: bool) -> bytes | None:
+    """This folder's key: read, or made (32 random bytes, mode 0600) when absent or not fit to trust."""
+    found = _read_key(path)
+    if found is not None or not create:
+        return found
+    import secrets
+    import tempfile
+
+    try:
+        handle, temporary = tempfile.mkstemp(prefix=".tmp-key-", dir=os.path.dirname(path))  # mode 0600
+        try:
+            with os.fdopen(handle, "wb") as out:
+                out.write(secrets.token_bytes(KEY_BYTES))
+            if os.path.lexists(path):
+                os.replace(temporary, path)  # a key we cannot trust: a new one (every entry becomes a miss)
+            else:
+                try:
+                    os.link(temporary, path)  # first writer wins; the others read its key
+                except FileExistsError:
+                    pass
+        finally:
+            _remove(temporary)
+    except OSError:
+        return None
+    return _read_key(path)
+
+
 # --------------------------------------------------------------------------- entries on disk
+#
+# The payload is JSON. A JSON object is a dict with text keys; every other container is a JSON array
+# whose first item says what it is: "t" tuple, "l" list, "f" frozenset, "s" set, "d" a dict of other
+# keys (key, value, key, value, ...), or the name of one of modeldiff's records followed by its fields
+# in order. Scalars are JSON's own (text, whole and decimal numbers, true, false, null).
 
 
-def _unpickle(payload: bytes) -> Any:
-    """The payload's value, built by an unpickler that makes only modeldiff's own records and plain containers."""
-    import pickle
+class _Unfit(ValueError):
+    """The payload is not what an entry holds."""
 
-    allowed = frozenset({"frozenset", "set", "tuple", "list", "dict", "str", "bytes", "int", "float", "bool",
-                         "complex", "NoneType"})
 
-    class Unpickler(pickle.Unpickler):
-        def find_class(self, module: str, name: str) -> Any:
-            if module == "builtins" and name in allowed:
-                return super().find_class(module, name)
-            if module == "copyreg" and name in ("_reconstructor", "__newobj__"):
-                return super().find_class(module, name)
-            if module.startswith("modeldiff.") and not name.startswith("_") or (module, name) == ("modeldiff.load", "_Positions"):
-                return super().find_class(module, name)
-            raise pickle.UnpicklingError(f"{module}.{name} is not a record of modeldiff")
+def _records() -> dict[str, tuple[type, tuple[Callable[[Any], bool], ...]]]:
+    from modeldiff.changes import SEVERITIES, Change
+    from modeldiff.impact import Impact, Reason
+    from modeldiff.model import Finding, Pos
 
-    return Unpickler(io.BytesIO(payload)).load()
+    def text(v):
+        return type(v) is str
+
+    def whole(v):
+        return type(v) is int
+
+    def text_or_none(v):
+        return v is None or type(v) is str
+
+    def severity(v):
+        return v in SEVERITIES
+
+    def texts(v):
+        return type(v) is tuple and all(type(x) is str for x in v)
+
+    def paths(v):
+        return type(v) is tuple and all(texts(x) for x in v)
+
+    def anything(v):
+        return True
+
+    def mapping(v):
+        return type(v) is dict
+
+    def reasons(v):
+        return type(v) is tuple and all(type(x) is Reason for x in v)
+
+    def pos(v):
+        return v is None or type(v) is Pos
+
+    return {
+        "Change": (Change, (text, text, severity, text, anything, anything, mapping, text)),
+        "Impact": (Impact, (text, severity, reasons, texts, texts, texts)),
+        "Reason": (Reason, (text, text, text_or_none, paths, paths, text_or_none)),
+        "Finding": (Finding, (text, text, text, text, paths, pos)),
+        "Pos": (Pos, (text, whole, whole)),
+    }
+
+
+_RECORDS: dict[str, tuple[type, tuple[Callable[[Any], bool], ...]]] | None = None
+_FIELDS: dict[type, tuple[str, tuple[str, ...]]] = {}
+
+
+def _record_table():
+    global _RECORDS
+    if _RECORDS is None:
+        import dataclasses
+
+        _RECORDS = _records()
+        for name, (record, checks) in _RECORDS.items():
+            names = tuple(f.name for f in dataclasses.fields(record))
+            assert len(names) == len(checks), name  # a record gained a field: teach the cache its type
+            _FIELDS[record] = (name, names)
+    return _RECORDS
+
+
+def _encode(value: Any) -> Any:
+    """`value` in the JSON shape above; TypeError for anything that is not data (it is then not stored)."""
+    kind = type(value)
+    if value is None or kind in (str, int, float, bool):
+        return value
+    if kind is tuple:
+        return ["t", *map(_encode, value)]
+    if kind is list:
+        return ["l", *map(_encode, value)]
+    if kind is dict:
+        if all(type(k) is str for k in value):
+            return {k: _encode(v) for k, v in value.items()}
+        return ["d", *(x for k, v in value.items() for x in (_encode(k), _encode(v)))]
+    if kind in (frozenset, set):
+        return ["f" if kind is frozenset else "s", *map(_encode, sorted(value, key=repr))]
+    if kind in _FIELDS:
+        name, names = _FIELDS[kind]
+        return [name, *(_encode(getattr(value, field)) for field in names)]
+    if isinstance(value, Mapping):
+        return _encode(dict(value))
+    raise TypeError(f"{kind.__name__} is not stored in the cache")
+
+
+def _decode(value: Any, depth: int = 0) -> Any:
+    """The value `_encode` made; _Unfit for anything else (unknown tags, wrong field types, depth)."""
+    kind = type(value)
+    if kind is str or kind is int or kind is float or kind is bool or value is None:
+        return value
+    if depth > 200:
+        raise _Unfit("nested too deep")
+    if kind is dict:
+        return {k: _decode(v, depth + 1) for k, v in value.items()}
+    if kind is not list or not value or type(value[0]) is not str:
+        raise _Unfit("not an entry's value")
+    tag, items = value[0], [_decode(item, depth + 1) for item in value[1:]]
+    if tag == "t":
+        return tuple(items)
+    if tag == "l":
+        return items
+    if tag == "d":
+        if len(items) % 2:
+            raise _Unfit("a dict without a value")
+        try:
+            return dict(zip(items[::2], items[1::2]))
+        except TypeError:
+            raise _Unfit("a key that is not a key") from None
+    if tag in ("f", "s"):
+        try:
+            return frozenset(items) if tag == "f" else set(items)
+        except TypeError:
+            raise _Unfit("a member that is not hashable") from None
+    found = _record_table().get(tag)
+    if found is None:
+        raise _Unfit(f"{tag!r} is not a record of modeldiff")
+    record, checks = found
+    if len(items) != len(checks) or not all(check(item) for check, item in zip(checks, items)):
+        raise _Unfit(f"a {tag} with fields of the wrong kind")
+    return record(*items)
 
 
 def _path(folder: str, kind: str, key: str) -> str:
     return os.path.join(folder, f"{kind}-{key}{SUFFIX}")
 
 
-def _header(payload: bytes) -> bytes:
+def _mac(secret: bytes, kind: str, key: str, payload: bytes) -> bytes:
     import hashlib
+    import hmac
 
-    return b" ".join((MAGIC, str(FORMAT).encode(), fingerprint().encode(),
-                      hashlib.sha256(payload).hexdigest().encode())) + b"\n"
+    signed = hmac.new(secret, f"{MAGIC.decode()} {FORMAT} {kind} {key} {fingerprint()}\n".encode(), hashlib.sha256)
+    signed.update(payload)
+    return signed.hexdigest().encode()
 
 
-def read(folder: str, kind: str, key: str) -> Any | None:
-    """The value stored under (kind, key), or None; a damaged or foreign entry is removed."""
+def _header(secret: bytes, kind: str, key: str, payload: bytes) -> bytes:
+    return b" ".join((MAGIC, str(FORMAT).encode(), _mac(secret, kind, key, payload))) + b"\n"
+
+
+def read(folder: str, kind: str, key: str, fit: Callable[[Any], bool] | None = None) -> Any | None:
+    """The value stored under (kind, key), or None; an entry that fails the checks (or `fit`) is removed."""
+    import hmac
+
+    from modeldiff.files import read_regular
+
+    if not os.path.isdir(folder):
+        return None
+    secret = _secret(folder, create=False)
+    if secret is None:
+        return None
     path = _path(folder, kind, key)
     try:
-        with open(path, "rb") as handle:
-            blob = handle.read()
-    except OSError:
+        blob = read_regular(path, MAX_ENTRY_BYTES, follow_links=False)
+    except FileNotFoundError:
+        return None
+    except OSError:  # not a regular file, too big, unreadable: never trusted
+        _remove(path)
         return None
     header, newline, payload = blob.partition(b"\n")
-    if not newline or header + b"\n" != _header(payload):
+    if not newline or not hmac.compare_digest(header + b"\n", _header(secret, kind, key, payload)):
         _remove(path)
         return None
     try:
+        import json
+
         from modeldiff.load import paused_gc
 
         with paused_gc():
-            value = _unpickle(payload)
-    except Exception:  # noqa: BLE001 - whatever is wrong with it, it is rebuilt
+            value = _decode(json.loads(payload))
+        if fit is not None and not fit(value):
+            raise _Unfit("not the shape of this kind of entry")
+    except (ValueError, TypeError, RecursionError):  # the MAC matched, yet it is not ours: rebuilt
         _remove(path)
         return None
     try:
@@ -218,22 +481,28 @@ def read(folder: str, kind: str, key: str) -> Any | None:
 
 def write(folder: str, kind: str, key: str, value: Any) -> bool:
     """Store `value` under (kind, key) atomically; False when the cache folder cannot be written."""
-    import pickle
+    import json
     import tempfile
 
     try:
-        payload = pickle.dumps(value, protocol=pickle.HIGHEST_PROTOCOL)
-        os.makedirs(folder, exist_ok=True)
+        _record_table()
+        payload = json.dumps(_encode(value), separators=(",", ":")).encode("utf-8", "surrogatepass")
+    except (TypeError, ValueError, RecursionError):
+        return False
+    secret = _secret(folder, create=True)
+    if secret is None:
+        return False
+    try:
         handle, temporary = tempfile.mkstemp(prefix=".tmp-", suffix=SUFFIX, dir=folder)
         try:
             with os.fdopen(handle, "wb") as out:
-                out.write(_header(payload))
+                out.write(_header(secret, kind, key, payload))
                 out.write(payload)
             os.replace(temporary, _path(folder, kind, key))
         except BaseException:
             _remove(temporary)
             raise
-    except (OSError, pickle.PicklingError, TypeError, AttributeError, RecursionError):
+    except OSError:
         return False
     evict(folder)
     return True
@@ -355,23 +624,47 @@ def deferred_model(name: str, fmt: int, files: Files):
     return Model(name=name, format=fmt, positions=_Section(source, "positions"), **sections)
 
 
-# --------------------------------------------------------------------------- the two kinds of entry
+# --------------------------------------------------------------------------- the three kinds of entry
+
+
+def _all(kind: type, value: Any) -> bool:
+    return type(value) is tuple and all(type(item) is kind for item in value)
+
+
+def _identity(value: Any) -> bool:
+    """A model's (name, format) as stored."""
+    return type(value) is tuple and len(value) == 2 and type(value[0]) is str and type(value[1]) is int
 
 
 def load_revision(folder: str, key: str) -> tuple | None:
     """The record-rule findings of a revision seen before, or None."""
-    value = read(folder, "rev", key)
-    return value if isinstance(value, tuple) else None
+    from modeldiff.model import Finding
+
+    return read(folder, "rev", key, lambda value: _all(Finding, value))
 
 
 def store_revision(folder: str, key: str, checked: Sequence) -> bool:
     return write(folder, "rev", key, tuple(checked))
 
 
+_PAIR_FIELDS = ("format", "old", "new", "changes", "measures", "roles", "reports", "new_errors")
+
+
+def _fit_pair(value: Any) -> bool:
+    from modeldiff.changes import Change
+    from modeldiff.impact import Impact
+    from modeldiff.model import Finding
+
+    return (type(value) is dict and sorted(value) == sorted(_PAIR_FIELDS) and value["format"] == FORMAT
+            and _identity(value["old"]) and _identity(value["new"]) and _all(Change, value["changes"])
+            and all(_all(Impact, value[name]) for name in ("measures", "roles", "reports"))
+            and _all(Finding, value["new_errors"]))
+
+
 def load_pair(folder: str, key: str, old_files: Files | None, new_files: Files | None):
     """The DiffResult of a comparison seen before (models read from the files on first use), or None."""
-    value = read(folder, "pair", key)
-    if not (isinstance(value, dict) and value.get("format") == FORMAT):
+    value = read(folder, "pair", key, _fit_pair)
+    if value is None:
         return None
     from modeldiff.impact import DiffResult
     from modeldiff.model import Model
@@ -390,16 +683,23 @@ def store_pair(folder: str, key: str, result) -> bool:
         "format": FORMAT,
         "old": (result.old.name, result.old.format),
         "new": (result.new.name, result.new.format),
-        "changes": result.changes, "measures": result.measures, "roles": result.roles, "reports": result.reports,
-        "new_errors": result.new_errors,
+        "changes": tuple(result.changes), "measures": tuple(result.measures), "roles": tuple(result.roles),
+        "reports": tuple(result.reports), "new_errors": tuple(result.new_errors),
     }
     return write(folder, "pair", key, value)
 
 
 def load_check(folder: str, key: str, files: Files) -> tuple | None:
     """(Model read on first use, findings) of a revision checked before, or None."""
-    value = read(folder, "check", key)
-    if not (isinstance(value, dict) and value.get("format") == FORMAT):
+    from modeldiff.model import Finding
+
+    def fit(value: Any) -> bool:
+        return (type(value) is dict and sorted(value) == ["findings", "format", "model_format", "name"]
+                and value["format"] == FORMAT and type(value["name"]) is str and type(value["model_format"]) is int
+                and _all(Finding, value["findings"]))
+
+    value = read(folder, "check", key, fit)
+    if value is None:
         return None
     return deferred_model(value["name"], value["model_format"], files), list(value["findings"])
 

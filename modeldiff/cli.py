@@ -187,8 +187,42 @@ def build_parser(argv: Sequence[str] = ()) -> argparse.ArgumentParser:
     return parser
 
 
+class _ReaderMayLeave:
+    """The output stream of a command: once its reader has gone away (`modeldiff diff ... | head -1`), the
+    rest of the output is dropped and the command goes on to its verdict, which stays the exit code.
+
+    A gate's exit code must never turn into 0 because someone read only the first line.
+    """
+
+    def __init__(self, stream: TextIO) -> None:
+        self._stream = stream
+        self.gone = False
+
+    def write(self, text: str) -> int:
+        if not self.gone:
+            try:
+                return self._stream.write(text)
+            except BrokenPipeError:
+                self.gone = True
+        return len(text)
+
+    def writelines(self, lines) -> None:
+        for text in lines:
+            self.write(text)
+
+    def flush(self) -> None:
+        if not self.gone:
+            try:
+                self._stream.flush()
+            except BrokenPipeError:
+                self.gone = True
+
+    def __getattr__(self, name: str):
+        return getattr(self._stream, name)
+
+
 def main(argv: Sequence[str] | None = None, stdout: TextIO | None = None, stderr: TextIO | None = None) -> int:
-    stdout = stdout or sys.stdout
+    stdout = _ReaderMayLeave(stdout or sys.stdout)
     stderr = stderr or sys.stderr
     argv = list(sys.argv[1:] if argv is None else argv)
     if argv == ["--version"]:  # the fast path: no parser, no command modules
@@ -207,8 +241,8 @@ def main(argv: Sequence[str] | None = None, stdout: TextIO | None = None, stderr
     except ModeldiffError as exc:
         print(f"modeldiff: {exc}", file=stderr)
         return exc.exit_code
-    except BrokenPipeError:
-        return 0
+    except BrokenPipeError:  # a write that did not go through `stdout` met a closed pipe: the verdict is unknown
+        return 2
     except KeyboardInterrupt:
         print("modeldiff: interrupted", file=stderr)
         return 130

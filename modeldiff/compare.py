@@ -201,11 +201,33 @@ def _analyse(old, new, old_checked, new_checked):
     old_result = old.loaded() if old is not None else None
     new_result = new.loaded() if new is not None else None
     name = (new_result or old_result).model.name
-    return impact.analyse(old_result.model if old_result else _empty_model(name),
-                          new_result.model if new_result else _empty_model(name),
-                          old_result.findings if old_result else (), new_result.findings if new_result else (),
-                          old_checked=old_checked if old_result else None,
-                          new_checked=new_checked if new_result else None)
+    result = impact.analyse(old_result.model if old_result else _empty_model(name),
+                            new_result.model if new_result else _empty_model(name),
+                            old_result.findings if old_result else (), new_result.findings if new_result else (),
+                            old_checked=old_checked if old_result else None,
+                            new_checked=new_checked if new_result else None)
+    return removed_whole(result) if new_result is None else result
+
+
+# What people outside the model use: when the model is deleted whole, these go from under them.
+WHOLE_REMOVAL_KINDS = frozenset({"table.removed", "measure.removed", "report.removed"})
+
+
+def removed_whole(result):
+    """A model deleted whole is breaking: its tables, measures and reports were there for someone to use.
+
+    Inside a model that stays, removing an item nothing in it uses is `numbers` (changes.md); but no
+    model can name who used a model that is gone (reports elsewhere, dashboards, queries), so each of
+    its removals becomes `breaking` (DEVELOPERS.md, "Decisions where the spec is silent").
+    """
+    from dataclasses import replace
+
+    changes = tuple(
+        replace(c, severity="breaking", message=c.message + " The whole model was deleted, so whatever used it breaks.")
+        if c.kind in WHOLE_REMOVAL_KINDS and c.severity != "breaking" else c
+        for c in result.changes
+    )
+    return replace(result, changes=changes)
 
 
 def spec_path(spec: str) -> str:
@@ -231,6 +253,9 @@ def _diff_revisions(root: str, base: str, head: str | None, paths: list[str], us
     done: dict[tuple[str | None, str | None], object] = {}
     for path in paths:
         old_source, new_source = git.read_at(root, base, path), git.read_at(root, head, path)
+        if (old_source is None or new_source is None) and _say_links_leaving(root, path, base, head, old_source,
+                                                                               new_source) and old_source is new_source:
+            continue  # a link out of the repository on both sides: named, not read, and the others go on
         if old_source is None and new_source is None:
             raise ModeldiffError(f"{path}: not found at {base} nor at {head or 'the working tree'}; check the path")
         for side, source in (("old", old_source), ("new", new_source)):
@@ -266,6 +291,25 @@ def _diff_revisions(root: str, base: str, head: str | None, paths: list[str], us
             result = _compare_files(old.files if old else None, new.files if new else None, use_cache, root, old, new)
         out.append(ModelDiff(Side(base, old_path or new_path), Side(head, new_path or old_path), result))
     return out
+
+
+def _say_links_leaving(root: str, path: str, base: str, head: str | None, old_source, new_source) -> bool:
+    """One line on stderr when `path` is, where it was not read, a link out of the repository; whether it was.
+
+    The link's target is never read, so nothing of it (a secrets file, /etc/passwd) can be printed.
+    """
+    import sys
+
+    from modeldiff import git
+
+    leaving = [(rev or "the working tree", target) for rev, source in ((base, old_source), (head, new_source))
+               if source is None for target in [git.link_leaving(root, rev, path)] if target is not None]
+    if not leaving:
+        return False
+    where = " and ".join(f"at {label}" for label, _ in leaving)
+    sys.stderr.write(f"modeldiff: {path}: {where} it is a symbolic link to {leaving[0][1]!r}, outside the repository; "
+                     "links out of the repository are not followed, so it counts as absent there\n")
+    return True
 
 
 def repo_relative(root: str, path: str) -> str:

@@ -345,6 +345,12 @@ def merge_base(repo_dir, a: str, b: str) -> str | None:
         return lines[0] if lines else None
 
 
+def on_remote_branches(repo_dir, sha: str, remote: str) -> bool:
+    """Whether commit `sha` is reachable from a remote-tracking branch of `remote` (refs/remotes/REMOTE/*) here."""
+    with _open(repo_dir) as repo:  # no commit of sha's history outside them (none there: every commit is outside)
+        return not _run(repo, "rev-list", "-n", "1", _resolve(repo, sha), "--not", f"--remotes={remote}", "--").strip()
+
+
 def _range_ends(range_spec: str) -> tuple[str, str, str] | None:
     for operator in ("...", ".."):
         if operator in range_spec:
@@ -401,7 +407,13 @@ def _display(rev: str, path: str) -> str:
     return f"{rev}:{path}"
 
 
-def _blob_bytes(blob) -> bytes:
+def _blob_bytes(blob, shown: str | None = None) -> bytes:
+    """A blob's bytes; a model file over the size limit is refused before it is read (load._too_big)."""
+    if shown is not None:
+        from modeldiff import load
+
+        if blob.size > load.MAX_FILE_BYTES:
+            raise load._too_big(shown, blob.size)
     return blob.data_stream.read()
 
 
@@ -438,7 +450,8 @@ def _folder_files_at(tree, folder, rev: str, folder_path: str, shown_path: str) 
         _, target = _follow_links(tree, item.path, item)
         if target is None or target.type != "blob":
             continue
-        files.append((relative, _display(rev, posixpath.join(shown_path, relative)), _blob_bytes(target)))
+        shown = _display(rev, posixpath.join(shown_path, relative))
+        files.append((relative, shown, _blob_bytes(target, shown)))
     files.sort()
     return tuple((name, data) for _, name, data in files)
 
@@ -451,7 +464,7 @@ def _read_at_rev(repo: "gitpython.Repo", rev: str, path: str) -> ModelSource | N
         if entry is None:
             return None
         if entry.type == "blob":
-            files = ((_display(rev, path), _blob_bytes(entry)),)
+            files = ((_display(rev, path), _blob_bytes(entry, _display(rev, path))),)
         elif entry.type == "tree":
             files = _folder_files_at(tree, entry, rev, target, path)
         else:  # a submodule
@@ -464,19 +477,20 @@ def _read_at_rev(repo: "gitpython.Repo", rev: str, path: str) -> ModelSource | N
 
 
 def _read_file(full: str, display: str) -> bytes:
-    try:
-        with open(full, "rb") as handle:
-            return handle.read()
-    except OSError as exc:
-        raise ModeldiffError(f"cannot read '{display}': {exc.strerror or exc}") from None
+    from modeldiff.load import read_file  # regular files only, within the size limit
+
+    return read_file(full, display)
 
 
-def _disk_files(full: str, display: str) -> tuple[tuple[str, bytes], ...] | None:
-    """The file, or the folder's YAML files sorted by relative path; None when nothing is there."""
-    if os.path.isfile(full):
-        return ((display, _read_file(full, display)),)
-    if not os.path.isdir(full):
+def _disk_files(full: str, display: str, root: str | None = None) -> tuple[tuple[str, bytes], ...] | None:
+    """The file, or the folder's YAML files sorted by relative path; None when nothing is there.
+
+    With `root` (a repository's working tree), a folder's files that link out of it are left out.
+    """
+    if not os.path.exists(full):
         return None
+    if not os.path.isdir(full):  # a file, or something else in its place: refused by _read_file
+        return ((display, _read_file(full, display)),)
     found = []
     for folder, subfolders, names in os.walk(full):
         subfolders.sort()
@@ -484,7 +498,7 @@ def _disk_files(full: str, display: str) -> tuple[tuple[str, bytes], ...] | None
             if not _is_yaml_name(name):
                 continue
             real = os.path.join(folder, name)
-            if not os.path.isfile(real):
+            if not os.path.exists(real) or (root is not None and not _inside(root, real)):
                 continue
             relative = os.path.relpath(real, full).replace(os.sep, "/")
             found.append((relative, os.path.join(display, *relative.split("/")), real))
@@ -492,14 +506,48 @@ def _disk_files(full: str, display: str) -> tuple[tuple[str, bytes], ...] | None
     return tuple((shown, _read_file(real, shown)) for _, shown, real in found) or None
 
 
+def _inside(root: str, full: str) -> bool:
+    """Whether `full`, links followed, is inside the folder `root`."""
+    from modeldiff.files import leaves
+
+    return not leaves(root, full)
+
+
 def _read_worktree(repo: "gitpython.Repo", path: str) -> ModelSource | None:
     root = repo.working_tree_dir
     if root is None:
         raise GitError(f"{repo.git_dir} is a bare repository without a working tree; name a revision to read from")
-    files = _disk_files(os.path.join(root, *path.split("/")), path)
+    full = os.path.join(root, *path.split("/"))
+    if not _inside(root, full):  # a link out of the repository is not followed, as in a revision (link_leaving)
+        return None
+    files = _disk_files(full, path, root)
     if files is None:
         return None
     return ModelSource(rev=None, path=path, files=files, blob_id=None)
+
+
+def link_leaving(repo_dir, rev: str | None, path: str) -> str | None:
+    """Where `path` points when it is a symbolic link (at `rev`, None: the working tree) leading out of the
+    repository, else None. Such a link is never followed: read_at answers None for it."""
+    clean = _clean_repo_path(path, "in the working tree" if rev is None else f"at revision '{rev}'")
+    with _open(repo_dir) as repo:
+        if rev is None:
+            root = repo.working_tree_dir
+            full = os.path.join(root or ".", *clean.split("/"))
+            if root is None or not os.path.lexists(full) or _inside(root, full):
+                return None
+            return os.readlink(full) if os.path.islink(full) else os.path.realpath(full)
+        tree = _commit(repo, _resolve(repo, rev), rev).tree
+        entry, here = _tree_entry(tree, clean), clean
+        for _ in range(_MAX_LINK_HOPS):
+            if entry is None or entry.type != "blob" or entry.mode != _SYMLINK_MODE:
+                return None
+            target = _blob_bytes(entry).decode("utf-8", "surrogateescape")
+            here = posixpath.normpath(posixpath.join(posixpath.dirname(here), target))
+            if target.startswith("/") or here == ".." or here.startswith("../"):
+                return target
+            entry = _tree_entry(tree, here)
+        return None
 
 
 def read_at(repo_dir, rev: str | None, path: str) -> ModelSource | None:

@@ -76,6 +76,55 @@ def run(args, stdout: TextIO) -> int:
 # --- the installed script -----------------------------------------------------------------------
 
 
+# The installed tool, never the repository's code: `-I` (isolated mode) keeps the current folder (the
+# repository being pushed, which may hold a `modeldiff.py` or `modeldiff/`), PYTHONPATH and the user's
+# site folder off the import path. Exit 97 says "this Python has no modeldiff" (modeldiff's own exit
+# codes are 0-3), so the script can tell a lost package from a verdict.
+LOST = 97
+RUN_INSTALLED = (
+    "import sys\n"
+    "try:\n"
+    "    from modeldiff.cli import run\n"
+    "except ModuleNotFoundError as exc:\n"
+    '    if exc.name != "modeldiff":\n'
+    "        raise\n"
+    f"    sys.exit({LOST})\n"
+    'sys.argv[0] = "modeldiff"\n'
+    "run()\n"
+)
+
+# What the script does when no modeldiff can run: a push whose commits touch no model file goes on
+# (with one line on stderr); one that does is blocked, since nothing can say what it does. The model
+# paths are those of git.model_path_of: NAME.model.yaml/.yml files and YAML files under NAME.model/.
+NO_TOOL = r"""no_tool() {
+    # reads $input (git's pre-push lines) and says $missing (what could not run, in words)
+    changed=no
+    while read -r line; do
+        [ -n "$line" ] || continue
+        set -- $(printf '%s\n' "$line" | awk '{print $(NF-2), $(NF-1), $NF}')  # sha, remote ref, remote sha
+        case "$1" in *[!0]*) ;; *) continue ;; esac  # a deleted ref brings nothing
+        if case "$3" in *[!0]*) false ;; *) true ;; esac || ! git cat-file -e "$3^{commit}" 2>/dev/null; then
+            paths=$(git -c core.quotePath=false log --format= --name-only "$1" --not --remotes -- 2>/dev/null) || paths=unknown.model.yaml
+        else
+            paths=$(git -c core.quotePath=false diff --name-only "$3" "$1" -- 2>/dev/null) || paths=unknown.model.yaml
+        fi
+        if printf '%s\n' "$paths" | grep -Eiq '[^/]\.model\.ya?ml"?$|[^/]\.model/(.*/)?[^/]*\.ya?ml"?$'; then
+            changed=yes
+        fi
+    done <"$input"
+    if [ "$changed" = yes ]; then
+        echo "modeldiff: push blocked: this push changes a model but modeldiff cannot run ($missing); reinstall modeldiff (pip install modeldiff-cli), or run 'git push --no-verify' to skip the check (CI still checks the change)" >&2
+        exit 1
+    fi
+    echo "modeldiff: $missing; this push changes no model, so it goes on (reinstall modeldiff: pip install modeldiff-cli; or run 'modeldiff hook uninstall')" >&2
+    exit 0
+}"""
+
+
+def _shell_lines(text: str) -> list[str]:
+    return text.splitlines()
+
+
 def hook_script(python: str, chained: bool) -> str:
     """The script installed as pre-push: run the chained hook first, then modeldiff with the same input."""
     lines = [
@@ -83,43 +132,76 @@ def hook_script(python: str, chained: bool) -> str:
         MARKER,
         "# Shows what pushed model changes do and blocks unacknowledged breaking ones (docs/hook.md).",
         "# `modeldiff hook uninstall` removes it and puts back the hook that was here before.",
+        "# It runs the installed modeldiff only (isolated mode: never code from the repository being pushed).",
     ]
     if chained:
         lines.append(f"{CHAIN_MARKER}{CHAINED_NAME}")
-    lines += [f"{PYTHON_PREFIX}{shlex.quote(python)}", ""]
+    lines += [f"{PYTHON_PREFIX}{shlex.quote(python)}", f"RUN={shlex.quote(RUN_INSTALLED)}", ""]
+    lines += [
+        "# git writes the pushed refs on stdin once: keep them (for the chained hook, and to look at without modeldiff).",
+        'input=$(mktemp "${TMPDIR:-/tmp}/modeldiff-pre-push.XXXXXX") || exit 1',
+        "trap 'rm -f \"$input\"' EXIT",
+        'cat >"$input"',
+    ]
     if chained:
         lines += [
-            "# git writes the pushed refs on stdin once: keep them for both hooks.",
-            'input=$(mktemp "${TMPDIR:-/tmp}/modeldiff-pre-push.XXXXXX") || exit 1',
-            "trap 'rm -f \"$input\"' EXIT",
-            'cat >"$input"',
             f'previous="$(dirname "$0")/{CHAINED_NAME}"',
             'if [ -x "$previous" ]; then',
             '    "$previous" "$@" <"$input" || exit $?',
             "fi",
-            'if [ -x "$PYTHON" ]; then',
-            '    "$PYTHON" -m modeldiff hook run "$@" <"$input"',
-            "    exit $?",
-            "fi",
-            "if command -v modeldiff >/dev/null 2>&1; then",
-            '    modeldiff hook run "$@" <"$input"',
-            "    exit $?",
-            "fi",
         ]
-    else:
-        lines += [
-            'if [ -x "$PYTHON" ]; then',
-            '    exec "$PYTHON" -m modeldiff hook run "$@"',
-            "fi",
-            "if command -v modeldiff >/dev/null 2>&1; then",
-            '    exec modeldiff hook run "$@"',
-            "fi",
-            "cat >/dev/null",
-        ]
+    lines += _shell_lines(NO_TOOL)
     lines += [
-        'echo "modeldiff: push blocked: neither $PYTHON nor a modeldiff command on PATH was found;'
-        ' reinstall modeldiff (pip install modeldiff-cli) or run \'modeldiff hook uninstall\'" >&2',
-        "exit 1",
+        'missing="no modeldiff command on PATH"',
+        'if [ -x "$PYTHON" ]; then',
+        '    "$PYTHON" -I -c "$RUN" hook run "$@" <"$input"',
+        "    code=$?",
+        f'    [ "$code" -eq {LOST} ] || exit "$code"',
+        '    missing="$PYTHON has no modeldiff installed and $missing"',
+        "else",
+        '    missing="$PYTHON is gone and $missing"',
+        "fi",
+        "if command -v modeldiff >/dev/null 2>&1; then",
+        '    modeldiff hook run "$@" <"$input"',
+        "    exit $?",
+        "fi",
+        'no_tool',
+        "",
+    ]
+    return "\n".join(lines)
+
+
+def repository_script() -> str:
+    """hooks/pre-push, the script to copy by hand: the installed modeldiff command, else a Python that has it."""
+    lines = [
+        "#!/bin/sh",
+        MARKER,
+        "# modeldiff's pre-push hook: shows what pushed model changes do and blocks unacknowledged breaking ones.",
+        "# Copy it into .git/hooks/ (or the folder core.hooksPath names) and make it executable, or let",
+        "# `modeldiff hook install` do that (it also keeps and chains a hook already there). See docs/hook.md.",
+        "# It runs the installed modeldiff only: the command on PATH, else `python3 -I` (isolated mode keeps the",
+        "# repository being pushed off the import path, so a modeldiff.py committed there never runs).",
+        f"RUN={shlex.quote(RUN_INSTALLED)}",
+        "",
+        'input=$(mktemp "${TMPDIR:-/tmp}/modeldiff-pre-push.XXXXXX") || exit 1',
+        "trap 'rm -f \"$input\"' EXIT",
+        'cat >"$input"',
+    ]
+    lines += _shell_lines(NO_TOOL)
+    lines += [
+        "if command -v modeldiff >/dev/null 2>&1; then",
+        '    modeldiff hook run "$@" <"$input"',
+        "    exit $?",
+        "fi",
+        "for python in python3 python; do",
+        '    if command -v "$python" >/dev/null 2>&1; then',
+        '        "$python" -I -c "$RUN" hook run "$@" <"$input"',
+        "        code=$?",
+        f'        [ "$code" -eq {LOST} ] || exit "$code"',
+        "    fi",
+        "done",
+        'missing="no modeldiff command on PATH and no Python with modeldiff installed"',
+        "no_tool",
         "",
     ]
     return "\n".join(lines)
@@ -206,7 +288,25 @@ def install(repo: str, stdout: TextIO, python: str | None = None) -> int:
                      f"{state.folder} now runs this hook\n")
     if state.exists:
         stdout.write(f"kept the hook that was there as {kept}; it runs first, and its failure stops the push\n")
+    chosen = python or sys.executable
+    if os.access(chosen, os.X_OK) and not _has_modeldiff_isolated(chosen):
+        stdout.write(f"note: {chosen} -I cannot import modeldiff (installed with --user, or through PYTHONPATH?); "
+                     "the hook runs Python isolated, so it will use the modeldiff command on PATH instead; "
+                     "install modeldiff into that Python's environment (a virtual environment) to use it\n")
     return 0
+
+
+def _has_modeldiff_isolated(python: str) -> bool:
+    """Whether `python -I` (as the hook runs it: no current folder, PYTHONPATH or user site) finds modeldiff."""
+    import subprocess
+
+    try:
+        done = subprocess.run([python, "-I", "-c", "import importlib.util, sys; "
+                               "sys.exit(importlib.util.find_spec('modeldiff') is None)"],
+                              capture_output=True, timeout=30, cwd="/")
+    except (OSError, subprocess.SubprocessError):
+        return False
+    return done.returncode == 0
 
 
 def _outside_repository(repo: str, folder: str) -> bool:
@@ -258,7 +358,7 @@ def status(repo: str, stdout: TextIO) -> int:
         out.append(f"pre-push: {path}, not modeldiff's; 'modeldiff hook install' would keep it as "
                    f"{CHAINED_NAME} and run it first")
     else:
-        out.append(f"pre-push: modeldiff's, runs {state.python or '?'} -m modeldiff (else modeldiff on PATH)")
+        out.append(f"pre-push: modeldiff's, runs {state.python or '?'} -I (isolated) with modeldiff (else modeldiff on PATH)")
         if state.python and not os.access(state.python, os.X_OK):
             out.append(f"  warning: {state.python} is gone; the hook falls back to modeldiff on PATH")
         if state.chains:
@@ -320,6 +420,13 @@ class _Facts:
             self._peeled[rev] = git.resolve_rev(self.root, rev) if git.rev_exists(self.root, rev) else None
         return self._peeled[rev]
 
+    def on_remote(self, head: str) -> bool:
+        """Whether every commit of `head` is already on a branch of the remote, as known here."""
+        from modeldiff import git
+
+        name = self.remote if self.remote and prepush.is_remote_name(self.remote) else "origin"
+        return git.on_remote_branches(self.root, head, name)
+
     def default_branch(self) -> tuple[str, str] | None:
         """(shown name, sha) of the remote's default branch as known here."""
         if self._default is False:
@@ -360,6 +467,8 @@ def plan_ranges(root: str, remote: str | None, updates: Sequence[prepush.RefUpda
             continue
         remote_base = None if update.new_on_remote else facts.peel(update.remote_sha)
         fallback_base = fallback_from = None
+        if remote_base is None and facts.on_remote(head):
+            continue  # e.g. a new tag of a commit already pushed on some branch: it brings no commit to check
         if remote_base is None:
             fallback_base, fallback_from = facts.fallback(head)
         decided = prepush.decide_range(update, head, remote_base, fallback_base, fallback_from)

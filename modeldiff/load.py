@@ -100,9 +100,26 @@ def path_files(path: str | os.PathLike) -> list[tuple[str, bytes]]:
         raise ModeldiffError(
             f"{shown}: no such file or folder; give the path of a NAME.model.yaml file or a NAME.model/ folder"
         )
+    _refuse_link_out_of_repository(shown, shown)
     if os.path.isdir(shown):
         return _folder_files(shown)
     return [(shown, _read_file(shown))]
+
+
+def _refuse_link_out_of_repository(path: str, shown: str) -> None:
+    """A model path inside a git work tree that links out of it (a committed link to /etc/passwd) is not read.
+
+    Its content could otherwise end up quoted in an error message (a CI log). Naming the target itself
+    reads it (the person running the command chose it).
+    """
+    from modeldiff.files import enclosing_work_tree, leaves
+
+    root = enclosing_work_tree(path)
+    if root is not None and leaves(root, path):
+        target = os.readlink(path) if os.path.islink(path) else os.path.realpath(path)
+        raise ModeldiffError(f"{shown}: is a symbolic link to {target!r}, outside the repository it is in "
+                             f"({root}); a model is read from inside its repository only; to read that file, "
+                             "give its own path")
 
 
 def load_files(files: Sequence[tuple[str, bytes | str]], shared: Mapping[str, Measure] | None = None) -> LoadResult:
@@ -114,6 +131,8 @@ def load_files(files: Sequence[tuple[str, bytes | str]], shared: Mapping[str, Me
     """
     if not files:
         raise ModeldiffError("no model files were given; give a NAME.model.yaml file or a NAME.model/ folder")
+    for name, content in files:
+        _refuse_lfs_pointer(name, content)
     with paused_gc():
         return _fast_load(files, shared) or _exact_load(files)
 
@@ -177,15 +196,39 @@ def _fail(name: str, line: int | None, column: int | None, message: str) -> Mode
     return ModeldiffError(f"{where}: {message}")
 
 
-def _read_file(path: str) -> bytes:
+def read_file(path: str, display: str | None = None) -> bytes:
+    """A model file's bytes: a regular file (links followed) of at most MAX_FILE_BYTES, else one clear error.
+
+    Never reads more than the limit + 1 bytes, and never waits on a named pipe (files.read_regular).
+    """
+    from modeldiff.files import NotRegular, TooBig, read_regular
+
+    shown = path if display is None else display
     try:
-        size = os.path.getsize(path)
-        if size > MAX_FILE_BYTES:
-            raise _too_big(path, size)
-        with open(path, "rb") as handle:
-            return handle.read()
+        return read_regular(path, MAX_FILE_BYTES)
+    except NotRegular as exc:
+        raise _fail(shown, None, None, f"is {exc.kind}, not a regular file; a model is read from regular files only "
+                                       "(give the path of the model's file or folder)") from None
+    except TooBig as exc:
+        raise _too_big(shown, exc.size) from None
     except OSError as exc:
-        raise ModeldiffError(f"{path}: cannot be read ({exc.strerror or exc}); check the path and its permissions")
+        raise ModeldiffError(f"{shown}: cannot be read ({exc.strerror or exc}); check the path and its permissions") from None
+
+
+_read_file = read_file
+
+
+# Git LFS's pointer format (its spec, docs/spec.md): the first line names the spec; early pointers named hawser's.
+_LFS_POINTERS = ("version https://git-lfs.github.com/spec/", "version https://hawser.github.com/spec/")
+
+
+def _refuse_lfs_pointer(name: str, content: bytes | str) -> None:
+    """A Git LFS pointer (the few lines git keeps in place of a file stored with LFS) is not the model."""
+    start = content[:48]
+    text = start.decode("ascii", "replace") if isinstance(start, bytes) else start
+    if text.startswith(_LFS_POINTERS):
+        raise _fail(name, None, None, "this is a Git LFS pointer, not the model's text; run 'git lfs pull' "
+                                      "(with Git LFS installed) to fetch the file, then run modeldiff again")
 
 
 def _too_big(name: str, size: int) -> ModeldiffError:
@@ -214,7 +257,8 @@ def _folder_files(folder: str) -> list[tuple[str, bytes]]:
         subfolders.sort()
         for entry in names:
             path = os.path.join(parent, entry)
-            if entry.lower().endswith(YAML_SUFFIXES) and os.path.isfile(path):
+            if entry.lower().endswith(YAML_SUFFIXES) and os.path.exists(path):  # special files are refused on reading
+                _refuse_link_out_of_repository(path, path)
                 found.append((os.path.relpath(path, folder).replace(os.sep, "/"), path))
     if not found:
         raise ModeldiffError(f"{folder}: holds no .yaml or .yml files; put the model's YAML files in it")

@@ -112,10 +112,15 @@ def default_branch_candidates(remote: str | None) -> tuple[str, ...]:
     as the name when the user pushes to a URL), then origin's.
     """
     names = []
-    if remote and _REMOTE_NAME.fullmatch(remote) and ".." not in remote:
+    if remote and is_remote_name(remote):
         names += [f"refs/remotes/{remote}/{branch}" for branch in ("HEAD", "main", "master")]
     names += ["refs/remotes/origin/HEAD", "refs/remotes/origin/main", "refs/remotes/origin/master"]
     return tuple(dict.fromkeys(names))
+
+
+def is_remote_name(remote: str) -> bool:
+    """Whether git passed a remote's name (not a URL, as when the user pushes to a URL)."""
+    return bool(_REMOTE_NAME.fullmatch(remote)) and ".." not in remote
 
 
 def short(sha: str) -> str:

@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import io
 import os
-import pickle
 import subprocess
 import sys
 import threading
@@ -88,9 +87,9 @@ def test_a_damaged_entry_is_rebuilt_not_trusted(folder, damage):
         entry.write_bytes(blob[:-10] + bytes([blob[-10] ^ 0xFF]) + blob[-9:])
     elif damage == "header":
         entry.write_bytes(blob.replace(cache.MAGIC, b"something-else", 1))
-    else:  # a well-formed entry whose payload builds something that is not a modeldiff record
-        payload = pickle.dumps({"format": cache.FORMAT, "call": os.system})  # a function: refused by the unpickler
-        entry.write_bytes(cache._header(payload) + payload)
+    else:  # a correctly signed entry whose payload names something that is not a modeldiff record
+        payload = b'{"format":2,"call":["os.system","true"]}'
+        entry.write_bytes(cache._header(cache._secret(str(folder), False), "pair", entry.name[5:-6], payload) + payload)
     again = compare.compare_specs(str(OLD), str(NEW))
     assert not isinstance(again.result.new.tables, cache._Section)  # computed afresh
     assert _json(again) == _json(first)
@@ -104,17 +103,20 @@ def test_an_entry_of_another_tool_version_is_not_used(folder, monkeypatch):
     assert not isinstance(again.result.new.tables, cache._Section)
 
 
-def test_the_unpickler_builds_only_modeldiff_records():
-    with pytest.raises(pickle.UnpicklingError):
-        cache._unpickle(pickle.dumps(os.system))
+def test_the_reader_builds_only_modeldiff_records():
     from modeldiff.model import Pos
 
-    assert cache._unpickle(pickle.dumps({"p": Pos("f", 1, 2)})) == {"p": Pos("f", 1, 2)}
+    for foreign in (["os.system", "true"], ["Popen", "x"], ["t", {"a": ["eval", "1"]}], [], [1, 2], ["Pos", "f", 1]):
+        with pytest.raises(cache._Unfit):
+            cache._decode(foreign)
+    cache._record_table()
+    assert cache._decode(cache._encode({"p": Pos("f", 1, 2)})) == {"p": Pos("f", 1, 2)}
+    with pytest.raises(cache._Unfit):  # a record whose field has the wrong type
+        cache._decode(["Pos", "f", "1", 2])
 
 
-def test_a_diff_without_the_cache_loads_no_hashing_or_pickling():
+def test_a_diff_without_the_cache_loads_no_hashing():
     # MODELDIFF_NO_CACHE=1: the cache's libraries are never imported (start-up time, docs/performance.md).
-    # (pickle is not probed: rich imports it for its own styles.)
     code = ("import sys; from modeldiff.cli import main; main(['diff', sys.argv[1], sys.argv[2]]); "
             "print(sorted(m for m in ('hashlib', 'tempfile') if m in sys.modules), file=sys.stderr)")
     done = subprocess.run([sys.executable, "-c", code, str(OLD), str(NEW)], capture_output=True, text=True,
@@ -122,7 +124,7 @@ def test_a_diff_without_the_cache_loads_no_hashing_or_pickling():
     assert done.stderr.strip() == "[]", done.stderr
 
 
-def test_a_diff_with_the_cache_does_hash_and_pickle(tmp_path):
+def test_a_diff_with_the_cache_does_hash(tmp_path):
     # The twin of the test above: with the cache on, they are loaded (so the probe can see them).
     code = ("import sys; from modeldiff.cli import main; main(['diff', sys.argv[1], sys.argv[2]]); "
             "print(sorted(m for m in ('hashlib', 'tempfile') if m in sys.modules), file=sys.stderr)")
@@ -152,7 +154,7 @@ def test_concurrent_writers_leave_one_whole_entry(tmp_path):
     for thread in threads:
         thread.join()
     assert cache.read(str(tmp_path), "pair", "same") in values
-    assert [p.name for p in tmp_path.iterdir()] == [f"pair-same{cache.SUFFIX}"]  # no temporary file left
+    assert sorted(p.name for p in tmp_path.iterdir()) == [cache.KEY_FILE, f"pair-same{cache.SUFFIX}"]  # no temporary file left
 
 
 def test_an_unwritable_folder_only_turns_the_cache_off(tmp_path, monkeypatch):
@@ -251,3 +253,199 @@ def test_a_changed_model_is_checked_afresh(folder, tmp_path):
     assert not isinstance(model.tables, cache._Section)
     assert model.name == "bikeshare_two"
     assert len(_checks(folder)) == 2
+
+
+# --------------------------------------------------------------------------- hostile cache folders (issue 16)
+
+
+def _old_style_entry(payload: bytes) -> bytes:
+    """An entry as the pickle-based cache (format 1) wrote it: magic, format, fingerprint, SHA-256 of the payload."""
+    import hashlib
+
+    return b" ".join((cache.MAGIC, b"1", cache.fingerprint().encode(),
+                      hashlib.sha256(payload).hexdigest().encode())) + b"\n" + payload
+
+
+def _pickle_running(command: str) -> bytes:
+    """A pickle that calls os.system(command) through a dotted name of a modeldiff module (protocol 4)."""
+    import struct
+
+    def text(value: str) -> bytes:
+        data = value.encode()
+        return b"\x8c" + struct.pack("<B", len(data)) + data  # SHORT_BINUNICODE
+
+    return (b"\x80\x04" + text("modeldiff.cache") + text("os.system") + b"\x93"  # STACK_GLOBAL
+            + text(command) + b"\x85" + b"R" + b".")  # TUPLE1, REDUCE, STOP
+
+
+def test_a_planted_entry_runs_no_code(folder, tmp_path):
+    compare.compare_specs(str(OLD), str(NEW))
+    (entry,) = _pairs(folder)
+    marker = tmp_path / "ran"
+    payload = _pickle_running(f"touch {marker}")
+    for forged in (_old_style_entry(payload), payload, b"modeldiff-cache 2 0000\n" + payload):
+        entry.write_bytes(forged)
+        again = compare.compare_specs(str(OLD), str(NEW))
+        assert again.result.changes  # computed afresh
+        assert not marker.exists()
+    assert "import pickle" not in Path(cache.__file__).read_text()
+
+
+def test_an_entry_signed_without_the_secret_changes_no_verdict(folder):
+    fresh = compare.compare_specs(str(OLD), str(NEW))
+    assert fresh.result.verdict != "safe"
+    (entry,) = _pairs(folder)
+    key = entry.name[len("pair-"):-len(cache.SUFFIX)]
+    import json
+
+    forged = cache._encode({"format": cache.FORMAT, "old": ("bikeshare", 1), "new": ("bikeshare", 1),
+                            "changes": (), "measures": (), "roles": (), "reports": (), "new_errors": ()})
+    payload = json.dumps(forged).encode()
+    entry.write_bytes(cache._header(b"x" * cache.KEY_BYTES, "pair", key, payload) + payload)  # a guessed secret
+    again = compare.compare_specs(str(OLD), str(NEW))
+    assert again.result.verdict == fresh.result.verdict
+    assert _json(again) == _json(fresh)
+
+
+def test_a_valid_entry_moved_under_another_key_is_not_believed(folder, tmp_path):
+    # "no changes" of OLD against itself, renamed to the key of OLD against NEW: the MAC names its key.
+    compare.compare_specs(str(OLD), str(OLD))
+    (same,) = _pairs(folder)
+    fresh = compare.compare_specs(str(OLD), str(NEW))
+    target = [p for p in _pairs(folder) if p != same][0]
+    target.write_bytes(same.read_bytes())
+    again = compare.compare_specs(str(OLD), str(NEW))
+    assert again.result.verdict == fresh.result.verdict != "safe"
+    assert not isinstance(again.result.new.tables, cache._Section)
+
+
+def test_a_signed_entry_of_the_wrong_shape_is_a_miss_and_removed(folder):
+    compare.compare_specs(str(OLD), str(NEW))
+    (entry,) = _pairs(folder)
+    key = entry.name[len("pair-"):-len(cache.SUFFIX)]
+    secret = cache._secret(str(folder), False)
+    bad_change = ["Change", "table.added", "tables.x", "catastrophic", "m", None, None, {}, "c1"]
+    for payload in (b'{"format": 2}', b"[1, 2", b'["t"]', f'{{"format":2,"old":["t","m",1],"new":["t","m",1],'
+                    f'"changes":["t",{__import__("json").dumps(bad_change)}],"measures":["t"],"roles":["t"],'
+                    f'"reports":["t"],"new_errors":["t"]}}'.encode()):
+        entry.write_bytes(cache._header(secret, "pair", key, payload) + payload)
+        assert cache.load_pair(str(folder), key, None, None) is None
+        assert not entry.exists() or entry.read_bytes() != cache._header(secret, "pair", key, payload) + payload
+
+
+def test_a_fifo_or_a_link_to_a_device_as_entry_does_not_hang(folder):
+    compare.compare_specs(str(OLD), str(NEW))
+    (entry,) = _pairs(folder)
+    for plant in ("fifo", "zero"):
+        entry.unlink()
+        if plant == "fifo":
+            os.mkfifo(entry)
+        else:
+            os.symlink("/dev/zero", entry)
+        done = subprocess.run([sys.executable, "-m", "modeldiff", "diff", str(OLD), str(NEW)], capture_output=True,
+                              text=True, timeout=120, env={**os.environ, cache.DIR_ENV: str(folder)})
+        assert done.returncode == 3, done.stderr
+        assert "Traceback" not in done.stderr
+        assert entry.is_file() and not entry.is_symlink()  # replaced by a real entry
+
+
+def test_the_cache_folder_is_made_private(folder):
+    compare.compare_specs(str(OLD), str(NEW))
+    assert folder.stat().st_mode & 0o777 == 0o700
+    key = folder / cache.KEY_FILE
+    assert key.stat().st_mode & 0o777 == 0o600 and key.stat().st_size == cache.KEY_BYTES
+
+
+@pytest.mark.parametrize("problem", ["group-writable", "world-writable", "another-owner"])
+def test_a_folder_others_may_write_is_refused_with_a_note(folder, monkeypatch, capsys, problem):
+    folder.mkdir(mode=0o700)
+    if problem == "another-owner":
+        real = os.geteuid()
+        monkeypatch.setattr(os, "geteuid", lambda: real + 1)
+    else:
+        folder.chmod(0o770 if problem == "group-writable" else 0o707)
+    fresh = compare.compare_specs(str(OLD), str(NEW))
+    again = compare.compare_specs(str(OLD), str(NEW))
+    assert fresh.result.changes and _json(again) == _json(fresh)
+    assert not list(folder.iterdir())  # nothing written there, nothing read
+    notes = capsys.readouterr().err.splitlines()
+    assert len(notes) == 1 and str(folder) in notes[0] and "not using the cache folder" in notes[0], notes
+
+
+def test_a_private_folder_gets_no_note(folder, capsys):
+    folder.mkdir(mode=0o755)  # others may read but not write: fine
+    compare.compare_specs(str(OLD), str(NEW))
+    compare.compare_specs(str(OLD), str(NEW))
+    assert capsys.readouterr().err == ""
+    assert len(_pairs(folder)) == 1
+
+
+def test_a_key_file_others_may_read_is_replaced(folder):
+    compare.compare_specs(str(OLD), str(NEW))
+    key = folder / cache.KEY_FILE
+    before = key.read_bytes()
+    key.chmod(0o644)
+    cache._SECRETS.clear()
+    again = compare.compare_specs(str(OLD), str(NEW))
+    assert not isinstance(again.result.new.tables, cache._Section)  # old entries were signed by a shown key
+    assert key.read_bytes() != before and key.stat().st_mode & 0o777 == 0o600
+
+
+def test_a_key_from_the_environment_signs_instead(folder, monkeypatch):
+    monkeypatch.setenv(cache.KEY_ENV, "one secret")
+    compare.compare_specs(str(OLD), str(NEW))
+    cache._SECRETS.clear()
+    monkeypatch.setenv(cache.KEY_ENV, "another secret")
+    again = compare.compare_specs(str(OLD), str(NEW))
+    assert not isinstance(again.result.new.tables, cache._Section)
+    cache._SECRETS.clear()
+    monkeypatch.setenv(cache.KEY_ENV, "another secret")
+    third = compare.compare_specs(str(OLD), str(NEW))
+    assert isinstance(third.result.new.tables, cache._Section)
+
+
+def test_every_scenario_comes_back_from_an_entry_equal():
+    # The JSON form keeps every record, tuple, list, set and dict of a comparison as it was.
+    from scenariokit import scenario_pairs
+
+    cache._record_table()
+    for old, new in scenario_pairs():
+        result = compare.compare_specs(str(old), str(new), use_cache=False).result
+        for part in (result.changes, result.measures, result.roles, result.reports, result.new_errors):
+            import json
+
+            assert cache._decode(json.loads(json.dumps(cache._encode(tuple(part))))) == tuple(part), old
+
+
+def test_random_values_round_trip_and_foreign_json_never_raises_past_unfit():
+    import json
+    import random
+
+    rng = random.Random(16)
+    scalars = [None, True, False, 0, -1, 2**70, 1.5, float("inf"), "", "x", "\udcff", "t", "Change"]
+
+    def value(depth=0):
+        pick = rng.randrange(8 if depth < 4 else 1)
+        if pick == 0:
+            return rng.choice(scalars)
+        items = [value(depth + 1) for _ in range(rng.randrange(4))]
+        if pick == 1:
+            return tuple(items)
+        if pick == 2:
+            return items
+        if pick == 3:
+            return {str(rng.randrange(5)): v for v in items}
+        if pick == 4:
+            return {(1, str(i)): v for i, v in enumerate(items)}
+        if pick == 5:
+            return frozenset(x for x in items if x is None or isinstance(x, (str, int, float)))
+        return rng.choice(scalars)
+
+    for _ in range(300):
+        original = value()
+        assert cache._decode(json.loads(json.dumps(cache._encode(original)))) == original
+        garbage = json.loads(json.dumps(cache._encode(original)).replace('"t"', '"Impact"').replace('"l"', '"d"'))
+        try:
+            cache._decode(garbage)
+        except cache._Unfit:
+            pass

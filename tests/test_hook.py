@@ -546,7 +546,7 @@ def test_install_marks_its_script_and_refuses_to_install_twice(world):
     text = script.read_text()
     assert hook.MARKER in text.splitlines() and f"PYTHON={sys.executable}" in text
     assert os.access(script, os.X_OK)
-    assert f"runs {sys.executable} -m modeldiff" in status_of(world.work)
+    assert f"runs {sys.executable} -I (isolated)" in status_of(world.work)
     with pytest.raises(ModeldiffError, match="already installed"):
         hook.install(str(world.work), io.StringIO())
     hook.uninstall(str(world.work), io.StringIO())
@@ -681,11 +681,110 @@ def test_without_its_python_the_hook_falls_back_to_modeldiff_on_path(world):
     assert pushed.code == 0 and world.remote_sha() == head
 
 
-def test_without_its_python_nor_modeldiff_on_path_the_hook_blocks_and_says_so(world):
+def test_without_its_python_nor_modeldiff_on_path_a_push_changing_no_model_goes_through_and_says_so(world):
     hook.install(str(world.work), io.StringIO(), python=str(world.work / "gone" / "python"))
-    commit(world.work, "words", {"README.md": "bike share, documented\n"})
+    head = commit(world.work, "words", {"README.md": "bike share, documented\n"})
     pushed = world.push("origin", "main", env=path_env(with_modeldiff=False))
-    assert pushed.code != 0 and "nor a modeldiff command on PATH was found" in pushed.out
+    assert pushed.code == 0 and world.remote_sha() == head, pushed.out
+    notes = [x for x in pushed.out.splitlines() if x.startswith("modeldiff:")]
+    assert len(notes) == 1 and "changes no model" in notes[0], pushed.out
+
+
+@pytest.mark.parametrize("how", ["new-branch", "existing-branch", "model-folder"])
+def test_without_its_python_nor_modeldiff_on_path_a_push_changing_a_model_is_blocked_and_says_why(world, how):
+    hook.install(str(world.work), io.StringIO(), python=str(world.work / "gone" / "python"))
+    if how == "model-folder":
+        commit(world.work, "a folder model", {"more/rides.model/tables.yml": "tables: {}\n"})
+    else:
+        commit(world.work, "count by id", {MODEL: NUMBERS})  # even a change that would be allowed: cannot tell
+    target = "main:refs/heads/topic" if how == "new-branch" else "main"
+    before = world.remote_sha()
+    pushed = world.push("origin", target, env=path_env(with_modeldiff=False))
+    assert pushed.code != 0 and world.remote_sha() == before
+    assert "push blocked" in pushed.out and "changes a model" in pushed.out and "--no-verify" in pushed.out
+
+
+def _python_without_modeldiff() -> str | None:
+    """An interpreter that exists but cannot import modeldiff (the package was uninstalled from it)."""
+    for candidate in (getattr(sys, "_base_executable", None), shutil.which("python3", path="/usr/bin:/bin")):
+        if candidate and os.path.exists(candidate):
+            done = subprocess.run([candidate, "-I", "-c", "import modeldiff"], capture_output=True)
+            if done.returncode != 0:
+                return candidate
+    return None
+
+
+@pytest.mark.skipif(_python_without_modeldiff() is None, reason="needs a Python without modeldiff")
+@pytest.mark.parametrize("files, blocked", [({MODEL: BREAKING}, True), ({"README.md": "documented\n"}, False)])
+def test_a_python_that_lost_the_package_blocks_only_model_changes(world, files, blocked):
+    hook.install(str(world.work), io.StringIO(), python=_python_without_modeldiff())
+    head = commit(world.work, "change", files)
+    pushed = world.push("origin", "main", env=path_env(with_modeldiff=False))
+    assert (pushed.code != 0) is blocked and (world.remote_sha() == head) is not blocked, pushed.out
+    assert "Traceback" not in pushed.out and "No module named" not in pushed.out
+
+
+@pytest.mark.skipif(_python_without_modeldiff() is None, reason="needs a Python without modeldiff")
+def test_install_says_when_its_python_cannot_import_modeldiff_isolated(world):
+    out = io.StringIO()
+    hook.install(str(world.work), out, python=_python_without_modeldiff())
+    assert "cannot import modeldiff" in out.getvalue()
+
+
+def test_install_says_nothing_more_when_its_python_has_modeldiff(world):
+    out = io.StringIO()
+    hook.install(str(world.work), out, python=sys.executable)
+    assert "cannot import" not in out.getvalue() and out.getvalue().startswith("installed ")
+
+
+# --- the repository's own code never runs (issue 16) -----------------------------------------------------------
+
+PLANTED = "open({marker!r}, 'a').write('ran from the repository\\n')\n"
+
+
+def plant_impostors(world: World, tmp_path: Path) -> Path:
+    marker = tmp_path / "impostor-ran"
+    code = PLANTED.format(marker=str(marker))
+    commit(world.work, "impostors", {"modeldiff.py": code, "modeldiff/__init__.py": code,
+                                     "modeldiff/__main__.py": code})
+    git(world.work, "push", "-q", "--no-verify", "origin", "main")
+    return marker
+
+
+def python_only_env(tmp_path: Path) -> dict:
+    """PATH with a `python3` that is this test's Python (modeldiff installed) and no modeldiff command."""
+    folder = tmp_path / "pybin"
+    folder.mkdir(exist_ok=True)
+    wrapper = folder / "python3"
+    wrapper.write_text(f'#!/bin/sh\nexec {sys.executable} "$@"\n')
+    wrapper.chmod(0o755)
+    env = path_env(with_modeldiff=False)
+    env["PATH"] = str(folder) + os.pathsep + env["PATH"]
+    return env
+
+
+@pytest.mark.parametrize("files, blocked", [({MODEL: BREAKING}, True), ({"README.md": "documented\n"}, False)])
+def test_the_installed_hook_runs_the_installed_tool_not_the_repositorys_code(world, tmp_path, files, blocked):
+    marker = plant_impostors(world, tmp_path)
+    hook.install(str(world.work), io.StringIO(), python=sys.executable)
+    head = commit(world.work, "change", files)
+    pushed = world.push("origin", "main", env={**path_env(with_modeldiff=False), "PYTHONPATH": "."})
+    assert not marker.exists()
+    assert (pushed.code != 0) is blocked and (world.remote_sha() == head) is not blocked, pushed.out
+    assert ("push blocked: refs/heads/main" in pushed.out) is blocked
+
+
+@pytest.mark.parametrize("files, blocked", [({MODEL: BREAKING}, True), ({"README.md": "documented\n"}, False)])
+def test_the_repository_script_runs_the_installed_tool_not_the_repositorys_code(world, tmp_path, files, blocked):
+    marker = plant_impostors(world, tmp_path)
+    target = world.work / ".git" / "hooks" / "pre-push"
+    shutil.copyfile(ROOT / "hooks" / "pre-push", target)
+    target.chmod(0o755)
+    head = commit(world.work, "change", files)
+    pushed = world.push("origin", "main", env=python_only_env(tmp_path))
+    assert not marker.exists()
+    assert (pushed.code != 0) is blocked and (world.remote_sha() == head) is not blocked, pushed.out
+    assert ("push blocked: refs/heads/main" in pushed.out) is blocked
 
 
 # --- the script kept in the repository, and the framework manifest ----------------------------------------------
@@ -707,6 +806,15 @@ def test_the_repository_script_behaves_like_the_installed_one(world, files, bloc
 def test_the_repository_script_is_executable_and_marked():
     script = ROOT / "hooks" / "pre-push"
     assert os.access(script, os.X_OK) and hook.MARKER in script.read_text().splitlines()
+    assert script.read_text() == hook.repository_script()  # one source for both scripts' logic
+
+
+@pytest.mark.parametrize("script", ["installed", "repository"])
+def test_both_scripts_run_python_isolated_and_never_from_the_current_folder(script):
+    text = hook.hook_script("/opt/py/bin/python", chained=False) if script == "installed" else hook.repository_script()
+    runs = [x for x in text.splitlines() if "hook run" in x and "modeldiff hook run" not in x]
+    assert runs and all(" -I -c " in x for x in runs), runs
+    assert " -m modeldiff" not in text and "import modeldiff'" not in text
 
 
 def test_the_framework_manifest_declares_the_pre_push_hook():
@@ -736,3 +844,23 @@ def test_the_docs_pin_the_framework_hook_to_this_release_tag():
     assert re.search(rf"^\s+rev: {re.escape(tag)}\s*(#.*)?$", doc, re.M), "docs/hook.md pins another tag"
     assert f"rev: {tag}" in (ROOT / ".pre-commit-hooks.yaml").read_text()
     assert "git tag -a" in (ROOT / "DEVELOPERS.md").read_text()  # how releases get their tag
+
+
+def test_the_scripts_idea_of_a_model_file_agrees_with_git_model_path_of():
+    # Without modeldiff, the script decides "this push changes a model" with grep; it must say yes exactly
+    # where git.model_path_of does (seeded, 600 generated paths, through the real grep).
+    import random
+    import re
+
+    from modeldiff import git as gitmod
+
+    pattern = re.search(r"grep -Eiq '([^']+)'", hook.NO_TOOL).group(1)
+    rng = random.Random(16)
+    pieces = ["a", "b.model", ".model", "x.model.yaml", "y.yml", "z.YAML", "M.Model", "c.txt", "model", ".yaml",
+              "p.model.yml", "q.MODEL.YAML", "r.model.json", "s.model.yaml.bak", "t u.model.yaml", "é.model.yml"]
+    paths = sorted({"/".join(rng.choice(pieces) for _ in range(rng.randrange(1, 5))) for _ in range(600)})
+    done = subprocess.run(["grep", "-Ein", pattern], input="\n".join(paths) + "\n", capture_output=True, text=True)
+    matched = {int(line.split(":", 1)[0]) for line in done.stdout.splitlines()}
+    for number, path in enumerate(paths, 1):
+        assert (number in matched) is (gitmod.model_path_of(path) is not None), path
+    assert matched and len(matched) < len(paths)  # both answers occur

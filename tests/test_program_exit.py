@@ -81,3 +81,42 @@ def test_a_reader_that_stops_early_gets_no_traceback():
     err = proc.stderr.read().decode()
     proc.wait(timeout=60)
     assert "Traceback" not in err
+
+
+def _many_changes(folder: Path) -> tuple[Path, Path]:
+    """Two revisions whose diff is far longer than a pipe holds (64 KiB), so the writer meets a closed pipe."""
+    head = "model: wide\nformat: 1\ntables:\n  trips: {kind: fact, key: trip_id, columns: {trip_id: integer, fare: decimal}}\n"
+    old = head + "measures:\n" + "".join(f"  m{i}: {{table: trips, expr: sum(fare)}}\n" for i in range(3000))
+    new = head + "measures:\n" + "".join(f"  m{i}: {{table: trips, expr: max(fare)}}\n" for i in range(3000))
+    paths = folder / "old.model.yaml", folder / "new.model.yaml"
+    for path, text in zip(paths, (old, new)):
+        path.write_text(text)
+    return paths
+
+
+@pytest.mark.parametrize("pipefail", [False, True])
+@pytest.mark.parametrize("fmt", ["text", "json"])
+def test_a_closed_pipe_keeps_the_verdict_as_exit_code(tmp_path, pipefail, fmt):
+    # `modeldiff diff OLD NEW | head -1`, through a real shell: the program's own status is the verdict (1:
+    # numbers move), never 0 because the reader went away; and under pipefail the pipeline's status is too.
+    old, new = _many_changes(tmp_path)
+    expected = main(["diff", str(old), str(new), "--no-cache"], stdout=io.StringIO(), stderr=io.StringIO())
+    assert expected == 1
+    script = (("set -o pipefail; " if pipefail else "")
+              + f'"{sys.executable}" -m modeldiff diff "{old}" "{new}" --format {fmt} | head -1 >/dev/null; '
+              + 'echo "$? ${PIPESTATUS[0]}"')
+    done = subprocess.run(["bash", "-c", script], capture_output=True, text=True, timeout=120,
+                          env={**os.environ, "MODELDIFF_NO_CACHE": "1"})
+    pipeline, program_status = done.stdout.split()
+    assert program_status == "1", done.stderr
+    assert pipeline == ("1" if pipefail else "0")  # without pipefail the pipeline's status is head's
+    assert "Traceback" not in done.stderr
+
+
+def test_an_open_pipe_gets_the_whole_output_and_the_verdict(tmp_path):
+    old, new = _many_changes(tmp_path)
+    done = subprocess.run(["bash", "-c", f'"{sys.executable}" -m modeldiff diff "{old}" "{new}" | wc -l; '
+                                         'echo "${PIPESTATUS[0]}"'],
+                          capture_output=True, text=True, timeout=120, env={**os.environ, "MODELDIFF_NO_CACHE": "1"})
+    lines, status = done.stdout.split()
+    assert status == "1" and int(lines) > 3000
