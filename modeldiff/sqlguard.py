@@ -70,7 +70,7 @@ starts_with strip_accents strlen strpos substr substring suffix to_base64 base64
 translate trim ucase unicode upper url_decode url_encode
 age century current_date date_diff date_part date_sub date_trunc datediff datepart datesub datetrunc day
 dayname dayofmonth dayofweek dayofyear decade epoch epoch_ms epoch_ns epoch_us era hour isodow isoyear julian
-last_day make_date make_time make_timestamp microsecond millennium millisecond minute month monthname
+last_day make_date make_time make_timestamp microsecond millennium millisecond minute month monthname now
 nanosecond quarter second strftime strptime time_bucket to_days to_hours to_minutes to_months to_seconds
 to_timestamp to_weeks to_years today try_strptime week weekday weekofyear year yearweek
 coalesce ifnull nullif if
@@ -86,11 +86,11 @@ FUNCTION_NODES = frozenset("""
 Abs Acos Acosh ApproxDistinct ApproxQuantile AnyValue ArgMax ArgMin Array ArrayAgg ArrayConcat ArrayContains
 ArrayDistinct ArrayFilter ArrayOverlaps ArraySize ArraySlice ArraySort Ascii Asin Asinh Atan Atan2 Atanh Avg
 BitLength BitwiseAndAgg BitwiseOrAgg BitwiseXorAgg Cbrt Ceil Chr Coalesce Concat ConcatWs Contains Corr Cos
-Cosh Cot Count CountIf CovarPop CovarSamp CurrentDate DateBin DateDiff DateFromParts Day DayOfMonth DayOfWeek
+Cosh Cot Count CountIf CovarPop CovarSamp CurrentDate CurrentTimestamp DateBin DateDiff DateTrunc DateFromParts Day DayOfMonth DayOfWeek
 DayOfWeekIso DayOfYear Dayname Degrees EndsWith Exp Factorial First Floor Format FromBase64 Greatest
 GroupConcat Hex Hour If IsInf IsNan JarowinklerSimilarity Kurtosis Last LastDay Least Left Length Levenshtein
 Ln Log LogicalAnd LogicalOr Lower MD5 Max Median Min Minute Mode Month Monthname Nullif Pad PercentileCont
-PercentileDisc Pow Quantile Quarter Radians RegexpExtract RegexpFullMatch RegexpLike RegexpReplace RegrAvgx
+PercentileDisc Pi Pow Quantile Quarter Radians RegexpExtract RegexpFullMatch RegexpLike RegexpReplace RegrAvgx
 RegrAvgy RegrCount RegrIntercept RegrR2 RegrSlope RegrSxx RegrSxy RegrSyy Repeat Replace Reverse Right Round
 SHA SHA2 Second Sign Sin Sinh Skewness SplitPart Sqrt StartsWith Stddev StddevPop StddevSamp StrPosition
 StrToTime Substring Sum Tan Tanh TimeFromParts TimeToStr TimeToUnix TimestampFromParts TimestampTrunc
