@@ -15,14 +15,13 @@ error.
 
 from __future__ import annotations
 
-import io
 import json
 from pathlib import Path
 
 import pytest
+from clikit import run as _run
 
 from modeldiff import engine, load
-from modeldiff.cli import main
 from modeldiff.errors import ModeldiffError
 
 SECRET = "sentinel-4f1c9e-never-printed"
@@ -69,12 +68,6 @@ def _model(place: str, text_of) -> dict:  # noqa: ANN001
     elif place == "variant":
         model["variants"]["scope"]["options"]["all"]["where"] = {"trips": text_of("condition")}
     return model
-
-
-def _run(*args: str) -> tuple[int, str, str]:
-    out, err = io.StringIO(), io.StringIO()
-    code = main([*map(str, args)], stdout=out, stderr=err)
-    return code, out.getvalue(), err.getvalue()
 
 
 @pytest.fixture
