@@ -181,3 +181,34 @@ def test_constructs_inside_the_allow_list_pass_check_and_eval(site, expr):
     assert _run("check", path)[0] == 0
     code, out, err = _run("eval", path)
     assert (code, err) == (0, "")
+
+
+@pytest.mark.parametrize("place, text, construct", [
+    ("expr", "count(COLUMNS(*))", "COLUMNS(...)"),
+    ("expr", "sum(fare) + #1", "a positional reference (#n)"),
+    ("where", "fare > (select 1)", "a subquery"),
+    ("role", "rider = current_setting('home_directory')", "the function current_setting()"),
+    ("report", "status in (select content from read_text('x'))", "a subquery"),
+    ("variant", "glob('x') is not null", "the function glob()"),
+])
+def test_the_engine_refuses_before_any_query_naming_the_item_and_the_construct(site, place, text, construct):
+    # The engine does not rely on check having run: given the model directly, it refuses with one line.
+    model = _model(place, lambda kind: text)
+    path = site["repo"] / "refused.model.yaml"
+    path.write_text(json.dumps(model))
+    parsed = load.load_path(path).model
+    with pytest.raises(ModeldiffError) as raised:
+        engine.report_query(parsed, "overview", user="a@x")
+    message = str(raised.value)
+    assert construct in message and "\n" not in message
+    item = {"expr": "measure fare_revenue", "where": "measure fare_revenue's where", "role": "role riders",
+            "report": "report overview", "variant": "option all of variant scope"}[place]
+    assert message.startswith(item), message
+
+
+def test_the_engine_accepts_the_same_model_without_the_construct(site):
+    model = _model("expr", lambda kind: "sum(fare) + 1")
+    path = site["repo"] / "accepted.model.yaml"
+    path.write_text(json.dumps(model))
+    query = engine.report_query(load.load_path(path).model, "overview", user="a@x")
+    assert "SUM(fare) + 1" in query.sql

@@ -175,6 +175,9 @@ def campaign(count: int, seed: int, every: int) -> int:
             text = raw.replace(sqlcorpus.SENTINEL, str(sentinel)).replace(sqlcorpus.OUTSIDE, str(outside))
             place = PLACES[index % len(PLACES)]
             counts["texts"] += 1
+            if counts["texts"] % 10000 == 0:
+                print(f"  {counts['texts']} texts, {len(failures)} failure(s), {time.perf_counter() - started:.0f} s",
+                      flush=True)
             content = json.dumps(model_with(place, text))
             try:
                 result = load.load_files([("fuzz.model.yaml", content)])
@@ -220,8 +223,6 @@ def campaign(count: int, seed: int, every: int) -> int:
             problems += statement_problems(recorder.statements)
             if problems:
                 failures.append(f"{'; '.join(problems)}: {text!r} in {place} (exit {code}, {err.strip()[:200]})")
-            if counts["texts"] % 10000 == 0:
-                print(f"  {counts['texts']} texts, {time.perf_counter() - started:.0f} s", flush=True)
     print(json.dumps(counts, indent=1))
     print(f"{len(failures)} failure(s) in {time.perf_counter() - started:.0f} s")
     for failure in failures[:20]:
