@@ -10,7 +10,14 @@ Where each table's rows come from:
    `<table>.csv` (Parquet first);
 3. else the table's `source:` in the model (`.parquet` or `.csv`), a path
    relative to the folder of the model file (for a `NAME.model/` folder, to
-   that folder).
+   that folder), which must stay inside the model's repository: no absolute
+   path, no `..` or link leading out (`allow_outside` widens it; a file in
+   `data_dir` that is a link out of it is refused the same way).
+
+The connection is locked (`lock`) before any data is read: it may open only
+the data files, reach no other file, network or extension, and change no
+setting afterwards. A stored view of a database file runs under the lock.
+Every statement is checked to be one statement before it runs.
 
 Each model table becomes a relation of its name in an in-memory database,
 with the model's columns in the model's order and `_row`, a row number the

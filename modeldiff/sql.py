@@ -12,6 +12,10 @@ Names are compared the way DuckDB compares them: case-insensitively, quoted or
 not. Functions here return names as they were written; compare them with
 `.lower()`.
 
+A model's SQL is untrusted: it may hold only what the allow-list of
+modeldiff.sqlguard allows (`Facts.refused` names the rest), and it reaches the
+engine only through `engine_tree` / `engine_text`, never as the text written.
+
 Every answer is memoised by the text, so a model with tens of thousands of
 measures parses each distinct text once. sqlglot is imported on first use:
 importing this module is cheap.
