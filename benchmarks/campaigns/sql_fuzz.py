@@ -119,8 +119,9 @@ def statement_problems(statements: list[str]) -> list[str]:
             if token.token_type not in (TokenType.STRING, TokenType.IDENTIFIER) or not token.text:
                 if word in FORBIDDEN_WORDS and index == 0:
                     problems.append(f"a {word} statement: {statement[:160]!r}")
-            if token.text.lower() in FORBIDDEN_FUNCTIONS and token.token_type != TokenType.STRING:
-                problems.append(f"{token.text} reached DuckDB: {statement[:160]!r}")
+            called = index + 1 < len(tokens) and tokens[index + 1].token_type == TokenType.L_PAREN
+            if token.text.lower() in FORBIDDEN_FUNCTIONS and token.token_type != TokenType.STRING and called:
+                problems.append(f"{token.text}() reached DuckDB: {statement[:160]!r}")  # (GLOB the operator is fine)
     return problems
 
 
