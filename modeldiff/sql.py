@@ -746,7 +746,8 @@ def engine_tree(text: str, columns: Iterable[str] | None = None, table: str | No
             outside = qualifier is not None and (table is None or qualifier.lower() != table.lower())
             if outside or name.lower() not in allowed:
                 shown = f"{qualifier}.{name}" if qualifier else name
-                raise SqlError(f"{_describe(text)} reads {shown}, which is not one of its own columns", text)
+                raise SqlError(f"{_describe(text)} reads {shown}, which it may not read (only its own table's "
+                               "columns; in a derived measure, measures)", text)
     return tree.copy()
 
 
