@@ -120,7 +120,9 @@ def _sql_facts(ctx: _Context, subject: str, text: str, what: str, at: str):
 
 
 def _shape_problems(ctx: _Context, subject: str, found, what: str, at: str, allow_user: bool) -> Iterator[Finding]:
-    """Subqueries and parameters: shapes no model expression may take."""
+    """Constructs outside the allow-list, subqueries and parameters: shapes no model expression may take."""
+    for construct in found.refused:
+        yield ctx.finding("invalid-model", subject, f"{what} uses {construct}, {sql.REFUSED_ADVICE}.", at=at)
     if found.subquery:
         yield ctx.finding("invalid-model", subject,
                           f"{what} holds a subquery; write a condition on columns and let links carry filters.", at=at)
@@ -273,7 +275,7 @@ def _is_clean_base_text(field_name: str, text: str, table: Table) -> bool:
         return False
     if field_name == "where" and found.aggregates:
         return False
-    if found.subquery or found.parameters:
+    if found.subquery or found.parameters or found.refused:
         return False
     return all((qualifier is None or qualifier.lower() == table.name.lower()) and _column(table, column) is not None
                for qualifier, column in found.columns)
@@ -285,7 +287,7 @@ def _is_clean_derived_text(ctx: _Context, text: str) -> bool:
         found = sql.facts(text)
     except sql.SqlError:
         return False
-    if found.aggregates or found.subquery or found.parameters:
+    if found.aggregates or found.subquery or found.parameters or found.refused:
         return False
     measures = ctx.model.measures
     return all(qualifier is None and (name in measures or name.lower() in ctx.measure_names_lower)

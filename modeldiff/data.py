@@ -10,7 +10,14 @@ Where each table's rows come from:
    `<table>.csv` (Parquet first);
 3. else the table's `source:` in the model (`.parquet` or `.csv`), a path
    relative to the folder of the model file (for a `NAME.model/` folder, to
-   that folder).
+   that folder), which must stay inside the model's repository: no absolute
+   path, no `..` or link leading out (`allow_outside` widens it; a file in
+   `data_dir` that is a link out of it is refused the same way).
+
+The connection is locked (`lock`) before any data is read: it may open only
+the data files, reach no other file, network or extension, and change no
+setting afterwards. A stored view of a database file runs under the lock.
+Every statement is checked to be one statement before it runs.
 
 Each model table becomes a relation of its name in an in-memory database,
 with the model's columns in the model's order and `_row`, a row number the
@@ -30,7 +37,7 @@ from __future__ import annotations
 import os
 import re
 from dataclasses import dataclass
-from typing import Any
+from typing import Any, Sequence
 
 from modeldiff.engine import NO_MATCH_COLUMN, Loop, Query, q, report_notes, report_query
 from modeldiff.errors import ModeldiffError
@@ -93,16 +100,24 @@ class Database:
 
     @classmethod
     def open(cls, model: Model, model_path: str | None = None, data_dir: str | None = None,
-             db_file: str | None = None) -> "Database":
-        """Load every table of `model`; raises ModeldiffError on missing or bad data."""
+             db_file: str | None = None, allow_outside: bool = False) -> "Database":
+        """Load every table of `model` into a locked database; raises ModeldiffError on missing or bad data.
+
+        The connection is locked (`lock`) before anything is read: it can read
+        only the data files found here, and no setting can change after.
+        `source:` paths must stay inside the model's repository unless
+        `allow_outside` (see `_origin`).
+        """
         import duckdb
 
-        origins = {name: _origin(model, name, model_path, data_dir, db_file) for name in sorted(model.tables)}
+        origins = {name: _origin(model, name, model_path, data_dir, db_file, allow_outside)
+                   for name in sorted(model.tables)}
         connection = duckdb.connect(":memory:")
         db = cls(connection, model, origins)
         try:
+            lock(connection, _data_files(origins))
             if db_file is not None:
-                connection.execute(f"ATTACH {_literal(os.fspath(db_file))} AS _src (READ_ONLY)")
+                connection.execute(f"ATTACH {_literal(_real(db_file))} AS _src (READ_ONLY)")
             for name in sorted(model.tables):
                 _load(connection, model.tables[name], origins[name])
             for name in sorted(model.tables):
@@ -128,6 +143,8 @@ class Database:
         import duckdb
 
         connection = duckdb.connect(":memory:") if connection is None else connection
+        if connection.execute("SELECT current_setting('lock_configuration')").fetchone()[0] is not True:
+            lock(connection, ())
         for name in sorted(model.tables):
             table = model.tables[name]
             columns = ", ".join(f"{q(c)} {_SQL_TYPES[col.type]}" for c, col in table.columns.items())
@@ -178,9 +195,14 @@ class Database:
             before = after
 
     def _execute(self, sql: str, params: dict):
+        """Run one statement of the engine's; text holding several statements is refused, never run."""
+        statements = self.connection.extract_statements(sql)
+        if len(statements) != 1:
+            raise ModeldiffError(f"refusing to run {len(statements)} statements in one call; the engine writes one "
+                                 "statement per call (report this as a bug)")
         if not params:
             return self.connection.execute(sql)
-        used = _parameters_of(self.connection, sql)
+        used = _parameters_of(statements[0], sql)
         return self.connection.execute(sql, {k: v for k, v in params.items() if k in used})
 
     def table_counts(self) -> dict[str, int]:
@@ -209,18 +231,23 @@ def evaluate_report(model: Model, report_name: str, db: Database, user: str | No
 # --- finding the data -------------------------------------------------------------------
 
 
-def _origin(model: Model, name: str, model_path: str | None, data_dir: str | None, db_file: str | None) -> _Origin:
+def _origin(model: Model, name: str, model_path: str | None, data_dir: str | None, db_file: str | None,
+            allow_outside: bool = False) -> _Origin:
     if db_file is not None:
         if not os.path.isfile(db_file):
             raise ModeldiffError(f"{db_file}: no such database file; give an existing DuckDB file")
-        return _Origin("db", os.fspath(db_file), f"{db_file}: table {name}")
+        return _Origin("db", _real(db_file), f"{db_file}: table {name}")
     if data_dir is not None:
         if not os.path.isdir(data_dir):
             raise ModeldiffError(f"{data_dir}: no such folder; give the folder holding <table>.parquet or <table>.csv")
         for suffix in ("parquet", "csv"):
             path = os.path.join(data_dir, f"{name}.{suffix}")
             if os.path.isfile(path):
-                return _Origin(suffix, path, path)
+                place = _real(path)
+                if not allow_outside and not _inside(place, _real(data_dir)):
+                    raise ModeldiffError(f"{path} (table {name}) is a link to {place}, outside {data_dir}; put the "
+                                         f"file itself in the folder, or pass {ALLOW_OUTSIDE_OPTION} to read it")
+                return _Origin(suffix, place, path)
         raise ModeldiffError(f"{data_dir} has no {name}.parquet or {name}.csv; add the data of table {name}")
     table = model.tables[name]
     if table.source is None:
@@ -234,9 +261,53 @@ def _origin(model: Model, name: str, model_path: str | None, data_dir: str | Non
     suffix = os.path.splitext(path)[1].lower().lstrip(".")
     if suffix not in ("parquet", "csv"):
         raise ModeldiffError(f"{path} (source of table {name}): not a .parquet or .csv file; convert it to one")
+    if not allow_outside:
+        _confine(name, table.source, folder, path)
     if not os.path.isfile(path):
         raise ModeldiffError(f"{path} (source of table {name}): no such file; fix the source or give --data DIR")
-    return _Origin(suffix, path, path)
+    return _Origin(suffix, _real(path), path)
+
+
+ALLOW_OUTSIDE_OPTION = "--allow-data-outside"
+
+
+def _confine(name: str, source: str, folder: str, path: str) -> None:
+    """Refuse a `source:` that leads out of the model's repository: absolute, through `..`, or through a link.
+
+    The repository is the nearest folder above the model holding `.git`
+    (without one, the model's own folder). A model from a pull request must
+    not make `eval` or `verify` read files elsewhere on the machine.
+    """
+    what = f"the source of table {name} ({source})"
+    advice = f"keep the data inside the repository, give --data DIR, or pass {ALLOW_OUTSIDE_OPTION} to read it"
+    if os.path.isabs(source) or os.path.splitdrive(source)[0]:
+        raise ModeldiffError(f"{what} is an absolute path; write it relative to the model file; {advice}")
+    root = _repository_root(folder)
+    if not _inside(os.path.normpath(os.path.join(_real(folder), source)), root):
+        raise ModeldiffError(f"{what} leads out of the repository {root} through `..`; {advice}")
+    real = _real(path)
+    if not _inside(real, root):
+        raise ModeldiffError(f"{what} is a link leading out of the repository {root} (to {real}); {advice}")
+
+
+def _repository_root(folder: str) -> str:
+    """The nearest folder at or above `folder` holding `.git` (real path); `folder` itself when there is none."""
+    start = _real(folder)
+    current = start
+    while True:
+        if os.path.lexists(os.path.join(current, ".git")):
+            return current
+        parent = os.path.dirname(current)
+        if parent == current:
+            return start
+        current = parent
+
+
+def _inside(path: str, root: str) -> bool:
+    try:
+        return os.path.commonpath([path, root]) == root
+    except ValueError:  # different drives
+        return False
 
 
 # --- loading ----------------------------------------------------------------------------
@@ -251,11 +322,60 @@ def _first_line(error: Exception) -> str:
     return text.splitlines()[0] if text else type(error).__name__
 
 
-def _parameters_of(connection, sql: str) -> set[str]:
+def _parameters_of(statement, sql: str) -> set[str]:
     try:
-        return set(connection.extract_statements(sql)[0].named_parameters)
+        return set(statement.named_parameters)
     except AttributeError:  # an older DuckDB without named_parameters
         return set(re.findall(r"\$([A-Za-z_][A-Za-z0-9_]*)", sql))
+
+
+# --- the locked engine --------------------------------------------------------------------
+
+# Set in this order, before any data is read: the files the data lives in are the only ones the
+# connection may open; then no file, network or extension access beyond them, no extension
+# installed or loaded on demand, no progress bar on stdout, and no setting can change afterwards
+# (so SQL run later cannot undo any of it). Names from duckdb_settings() of duckdb 2.0.1.
+_LOCK = (
+    "SET enable_external_access = false",
+    "SET autoinstall_known_extensions = false",
+    "SET autoload_known_extensions = false",
+    "SET enable_progress_bar = false",
+    "SET lock_configuration = true",
+)
+
+
+def lock(connection, readable: Sequence[str]) -> None:
+    """Confine `connection` to reading the files `readable` (absolute paths) and lock its configuration.
+
+    After this, reading or writing any other file (read_text, read_csv, glob,
+    COPY, ATTACH, EXPORT), installing or loading an extension and changing
+    any setting fail on the connection itself, whatever SQL reaches it.
+    Raises ModeldiffError when this DuckDB cannot be locked (fails closed).
+    """
+    import duckdb
+
+    allowed = "[" + ", ".join(_literal(path) for path in sorted(set(readable))) + "]"
+    try:
+        connection.execute(f"SET allowed_paths = {allowed}")
+        for statement in _LOCK:
+            connection.execute(statement)
+    except duckdb.Error as error:
+        raise ModeldiffError(f"cannot lock DuckDB {duckdb.__version__} to the data files ({_first_line(error)}); "
+                             "install a DuckDB with allowed_paths and lock_configuration (1.2 or later)") from None
+
+
+def _data_files(origins: dict[str, "_Origin"]) -> list[str]:
+    """The files the data is read from: each Parquet or CSV file, or the database file and its write-ahead log."""
+    files = []
+    for origin in origins.values():
+        files.append(origin.place)
+        if origin.kind == "db":
+            files.append(origin.place + ".wal")
+    return files
+
+
+def _real(path: str | os.PathLike) -> str:
+    return os.path.realpath(os.fspath(path))
 
 
 def _relation(origin: _Origin, table: str, varchar: bool = False) -> str:
@@ -273,6 +393,10 @@ def _describe(connection, relation: str, origin: _Origin) -> dict[str, str]:
     try:
         rows = connection.execute(f"DESCRIBE SELECT * FROM {relation}").fetchall()
     except duckdb.Error as error:
+        if origin.kind == "db" and isinstance(error, duckdb.PermissionException):
+            raise ModeldiffError(f"{origin.shown}: a view that reads outside the database file "
+                                 f"({_first_line(error)}); a stored view runs its own SQL, so only views over the "
+                                 "file's own tables are read: store its rows as a table") from None
         if origin.kind == "db":
             raise ModeldiffError(f"{origin.shown}: not found or unreadable ({_first_line(error)}); "
                                  "add the table or give another database") from None

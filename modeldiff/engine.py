@@ -652,26 +652,36 @@ class _Compiler:
 
     # -- parameters and filters
 
-    def bind(self, text: str, where: str) -> str:
-        """SQL text with `:user` written as DuckDB's `$user`; other parameters are refused."""
+    def bind(self, text: str, where: str, table: str) -> str:
+        """The engine's text of a model's SQL on `table`: never the text as written.
+
+        sqlglot's tree of it, inside the allow-list and reading only `table`'s
+        columns (modeldiff.sql.engine_tree), rendered again from the tree
+        without comments, `:user` as DuckDB's `$user`. Other parameters and
+        anything outside the allow-list are refused before any query runs.
+        """
         from modeldiff import sql
 
         try:
             parameters = sql.facts(text).parameters
         except sql.SqlError as error:
             raise ModeldiffError(f"{where}: {error}") from None
-        if not parameters:
-            return text
         unknown = sorted(parameters - {USER})
         if unknown:
             raise ModeldiffError(f"{where} uses the parameter :{unknown[0]}; only :user can be given (--user)")
-        if self.user is None:
+        if parameters and self.user is None:
             raise ModeldiffError(f"{where} uses :user; give the viewer's e-mail with --user")
-        self.uses_user = True
-        return sql._protect_parameters(text).replace(sql._PARAMETER_PREFIX, "$")
+        columns = self.model.tables[table].columns if table in self.model.tables else ()
+        try:
+            rendered = sql.engine_text(text, columns, table)
+        except sql.SqlError as error:
+            raise ModeldiffError(f"{where}: {error}; fix the model (modeldiff check shows each case)") from None
+        if parameters:
+            self.uses_user = True
+        return rendered
 
     def bound_filters(self, filters: Mapping[str, Sequence[tuple[str, str]]]) -> dict[str, tuple[str, ...]]:
-        return {t: tuple(self.bind(text, where) for where, text in preds) for t, preds in filters.items()}
+        return {t: tuple(self.bind(text, where, t) for where, text in preds) for t, preds in filters.items()}
 
     @property
     def params(self) -> tuple:
@@ -734,8 +744,8 @@ class _Compiler:
         if home not in self.model.tables:
             raise ModeldiffError(f"measure {measure.name} is on table {home}, which model {self.model.name} "
                                  "does not have; fix the measure")
-        where = self.bind(measure.where, f"measure {measure.name}'s where") if measure.where else None
-        return _Bound(k, home, self.bind(measure.expr, f"measure {measure.name}"), where)
+        where = self.bind(measure.where, f"measure {measure.name}'s where", home) if measure.where else None
+        return _Bound(k, home, self.bind(measure.expr, f"measure {measure.name}", home), where)
 
     def unique_on(self, table: str, columns: tuple[str, ...]) -> bool:
         """Whether `columns` hold the table's key or a column declared unique (the data is checked for both)."""
@@ -793,7 +803,10 @@ class _Compiler:
         from modeldiff import sql
 
         refs = {r.lower(): r for r in _measure_refs(self.model, measure)}
-        tree = sql.parse(measure.expr).copy()
+        try:
+            tree = sql.engine_tree(measure.expr, self.model.measures)
+        except sql.SqlError as error:
+            raise ModeldiffError(f"measure {name}: {error}; fix the model (modeldiff check shows each case)") from None
         for column in list(tree.find_all(exp.Column)):
             if column.args.get("table") or not isinstance(column.this, exp.Identifier):
                 continue
@@ -807,7 +820,10 @@ class _Compiler:
                 tree = replacement
             else:
                 column.replace(replacement)
-        return tree.sql(dialect="duckdb")
+        try:
+            return sql.render_for_engine(tree)
+        except sql.SqlError as error:
+            raise ModeldiffError(f"measure {name}: {error}") from None
 
 
 @dataclass(frozen=True)

@@ -37,6 +37,14 @@ def configure(parser) -> None:
                         help="evaluate this report (repeat for several; default: every report)")
     parser.add_argument("--user", metavar="EMAIL", help="the viewer, bound to :user in a report's role")
     parser.add_argument("--format", choices=FORMATS, default="text")
+    add_allow_outside(parser)
+
+
+def add_allow_outside(parser) -> None:
+    """The option that lets a model's `source:` paths, or links in --data, lead outside (eval and verify)."""
+    parser.add_argument("--allow-data-outside", action="store_true",
+                        help="read a table's source: even when it leads outside the model's repository (an "
+                             "absolute path, `..`, a link), and files in --data that are links to elsewhere")
 
 
 def run(args, stdout: TextIO) -> int:
@@ -66,7 +74,8 @@ def run(args, stdout: TextIO) -> int:
                                  "files or a DuckDB database file")
     from modeldiff.compare import spec_path
 
-    with Database.open(model, spec_path(args.model), data_dir=data_dir, db_file=db_file) as db:
+    with Database.open(model, spec_path(args.model), data_dir=data_dir, db_file=db_file,
+                       allow_outside=args.allow_data_outside) as db:
         results = [evaluate_report(model, name, db, user=args.user) for name in names]
     text = as_text(results, stdout) if args.format == "text" else {"json": as_json, "csv": as_csv}[args.format](results)
     stdout.write(text)

@@ -12,6 +12,10 @@ Names are compared the way DuckDB compares them: case-insensitively, quoted or
 not. Functions here return names as they were written; compare them with
 `.lower()`.
 
+A model's SQL is untrusted: it may hold only what the allow-list of
+modeldiff.sqlguard allows (`Facts.refused` names the rest), and it reaches the
+engine only through `engine_tree` / `engine_text`, never as the text written.
+
 Every answer is memoised by the text, so a model with tens of thousands of
 measures parses each distinct text once. sqlglot is imported on first use:
 importing this module is cheap.
@@ -27,6 +31,7 @@ from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 from modeldiff import words
+from modeldiff import sqlguard  # light: its sqlglot imports are inside functions
 
 if TYPE_CHECKING:  # pragma: no cover
     from sqlglot import exp
@@ -47,6 +52,8 @@ EXTRA_AGGREGATES = frozenset(
 )  # fmt: skip
 
 _MAX_SHOWN = 80
+REFUSED_ADVICE = ("which a model's SQL may not use; write a plain expression over the table's columns "
+                  "(the functions and constructs allowed are listed in docs/security.md)")
 
 
 class SqlError(ValueError):
@@ -132,6 +139,9 @@ def _read(text: str, original: str) -> "exp.Expression | _Failure":
 # read as a plain name and turned back into a placeholder in the tree.
 _PARAMETER_PREFIX = "__modeldiff_parameter__"
 _PARAMETER_NAME = re.compile(_PARAMETER_PREFIX + r"([A-Za-z_][A-Za-z0-9_]*)")
+# A `--` comment ends at "\n" or "\r" in sqlglot (COMMENTS_TERMINATE_AT_NEWLINE_ONLY is off for DuckDB)
+# and in DuckDB (the PostgreSQL scanner's `non_newline [^\n\r]`); every other line break is inside it.
+_LINE_END = re.compile(r"[\n\r]")
 _SKIPPED = re.compile(r"--|/\*|'|\"|\$(?:[A-Za-z_][A-Za-z0-9_]*)?\$|:[A-Za-z_][A-Za-z0-9_]*")
 _NO_OPERAND_BEFORE = frozenset(":_\"')]}") | frozenset("abcdefghijklmnopqrstuvwxyzABCDEFGHIJKLMNOPQRSTUVWXYZ0123456789")
 
@@ -169,8 +179,8 @@ def _protect_parameters(text: str) -> str:
 def _skip_from(text: str, start: int, token: str) -> int:
     """Where a comment, string or quoted name that begins at `start` ends (or the text ends)."""
     if token == "--":
-        newline = text.find("\n", start)
-        return len(text) if newline < 0 else newline + 1
+        newline = _LINE_END.search(text, start)
+        return len(text) if newline is None else newline.end()
     if token == "/*":
         depth, pos = 0, start
         while pos < len(text):
@@ -309,10 +319,10 @@ def _unterminated(text: str) -> str | None:
             return None
         opener = match.group()
         if opener == "--":
-            newline = text.find("\n", match.end())
-            if newline < 0:
+            newline = _LINE_END.search(text, match.end())
+            if newline is None:
                 return None
-            pos = newline + 1
+            pos = newline.end()
         elif opener == "/*":
             close = text.find("*/", match.end())
             if close < 0:
@@ -473,6 +483,7 @@ class Facts:
     parameters: frozenset[str]  # parameter names, lower case; "?" for an anonymous one
     subquery: bool
     condition_like: bool  # False when the top node is plainly a value (number, arithmetic)
+    refused: tuple[str, ...] = ()  # constructs outside the allow-list (modeldiff.sqlguard), in reading order
 
 
 def facts(text: str) -> Facts:
@@ -502,8 +513,10 @@ def _facts(text: str) -> Facts | _Failure:
 
 
 def _tree_facts(tree: "exp.Expression") -> Facts:
-    """Facts from sqlglot's tree: one iterative walk."""
+    """Facts from sqlglot's tree: one iterative walk, and the allow-list's walk."""
     from sqlglot import exp
+
+    from modeldiff import sqlguard
 
     columns: set[tuple[str | None, str]] = set()
     outside: set[tuple[str | None, str]] = set()
@@ -537,6 +550,7 @@ def _tree_facts(tree: "exp.Expression") -> Facts:
         parameters=frozenset(parameters),
         subquery=subquery,
         condition_like=not _plainly_a_value(tree),
+        refused=sqlguard.refusals(tree),
     )
 
 
@@ -698,6 +712,63 @@ def uses_user_parameter(text: str) -> bool:
     return USER_PARAMETER in facts(text).parameters
 
 
+# ---------------------------------------------------------------- SQL for the engine
+
+
+def engine_tree(text: str, columns: Iterable[str] | None = None, table: str | None = None) -> "exp.Expression":
+    """A fresh copy of the tree of `text`, refused (SqlError naming the construct) unless it is allowed.
+
+    Allowed: one expression inside the allow-list (modeldiff.sqlguard), no
+    subquery, no parameter but `:user`; with `columns`, reading only those
+    columns (case-insensitively), unqualified or qualified by `table`.
+    Always parsed by sqlglot (never the fast reader): the engine runs what
+    sqlglot read.
+    """
+    from sqlglot import exp
+
+    tree = parse(text)
+    found = _tree_facts(tree)
+    if found.refused:
+        raise SqlError(f"{_describe(text)} uses {found.refused[0]}, which a model's SQL may not use", text)
+    if found.subquery:
+        raise SqlError(f"{_describe(text)} holds a subquery, which a model's SQL may not use", text)
+    others = sorted(found.parameters - {USER_PARAMETER})
+    if others:
+        shown = "?" if others[0] == "?" else f":{others[0]}"
+        raise SqlError(f"{_describe(text)} uses the parameter {shown}; the only parameter is :user", text)
+    if columns is not None:
+        allowed = frozenset(column.lower() for column in columns)
+        bound = _lambda_bound(tree)
+        for column in tree.find_all(exp.Column):
+            if id(column) in bound:
+                continue
+            qualifier = _qualifier(column)
+            name = column.name
+            outside = qualifier is not None and (table is None or qualifier.lower() != table.lower())
+            if outside or name.lower() not in allowed:
+                shown = f"{qualifier}.{name}" if qualifier else name
+                raise SqlError(f"{_describe(text)} reads {shown}, which it may not read (only its own table's "
+                               "columns; in a derived measure, measures)", text)
+    return tree.copy()
+
+
+def render_for_engine(tree: "exp.Expression") -> str:
+    """The DuckDB text of a tree from `engine_tree` (or built from such trees), without comments.
+
+    `:user` becomes DuckDB's `$user`. Raises SqlError when sqlglot's text does
+    not read back as the same allowed expression (modeldiff.sqlguard.render).
+    """
+    try:
+        return sqlguard.render(tree)
+    except sqlguard.RenderError as error:
+        raise SqlError(f"the SQL cannot be handed to the engine safely: {error}") from None
+
+
+def engine_text(text: str, columns: Iterable[str] | None = None, table: str | None = None) -> str:
+    """`render_for_engine(engine_tree(text, columns, table))`: the only text of a model's SQL the engine uses."""
+    return render_for_engine(engine_tree(text, columns, table))
+
+
 # ---------------------------------------------------------------- checks
 
 
@@ -840,7 +911,7 @@ def _column_problems(
 
 def _common_problems(subject: str, field: str | None, found: Facts, *, allow_user: bool) -> list[str]:
     prefix = f"{subject}: `{field}`" if field else subject
-    problems = []
+    problems = [f"{prefix} uses {what}, {REFUSED_ADVICE}" for what in found.refused]
     if found.subquery:
         problems.append(f"{prefix} holds a subquery; write a condition on columns and let links carry filters")
     for parameter in sorted(found.parameters):
@@ -903,7 +974,7 @@ _TOKEN = re.compile(  # spaces before a token are passed over in the same match;
     (?:
         (?P<word>[A-Za-z_][A-Za-z0-9_]*)
       | (?P<punct>[(),.])
-      | (?P<line_comment>--[^\n]*)
+      | (?P<line_comment>--[^\n\r]*)
       | (?P<block_comment>/\*)
       | (?P<op>[-+*/%=<>!]+)
       | (?P<number>\d+(?:\.\d*)?(?:[eE][+-]?\d+)?)
@@ -1452,8 +1523,8 @@ class _FastReader:
             if count < low or (high is not None and count > high):
                 raise _Unsure
             return "other"
-        if word in _reserved_words() or name.upper() in _known_functions():
-            raise _Unsure
+        if word in _reserved_words() or name.upper() in _known_functions() or word not in sqlguard.FUNCTIONS:
+            raise _Unsure  # (a function outside the allow-list is sqlglot's to read and the check's to refuse)
         aggregate = word in EXTRA_AGGREGATES
         self.arguments(inside or aggregate)
         if aggregate:

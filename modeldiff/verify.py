@@ -383,7 +383,7 @@ def loading_model(result):
     return replace(result.new, tables=tables)
 
 
-def open_data(md, data_dir: str | None, db_file: str | None) -> _Data:
+def open_data(md, data_dir: str | None, db_file: str | None, allow_outside: bool = False) -> _Data:
     """Both revisions' databases; one shared database when both read the same place with the same tables."""
     from modeldiff.data import Database
 
@@ -396,11 +396,11 @@ def open_data(md, data_dir: str | None, db_file: str | None) -> _Data:
         label = "the source: files named in the models"
     for_new = loading_model(result)
     shared = (data_dir is not None or db_file is not None) and result.old.tables == result.new.tables
-    new = Database.open(for_new, md.new.path, data_dir, db_file)
+    new = Database.open(for_new, md.new.path, data_dir, db_file, allow_outside)
     if shared:
         return _Data(new, new, label)
     try:
-        old = Database.open(result.old, md.old.path, data_dir, db_file)
+        old = Database.open(result.old, md.old.path, data_dir, db_file, allow_outside)
     except BaseException:
         new.close()
         raise
@@ -714,10 +714,10 @@ class _Progress:
 
 
 def verify(md, data_dir: str | None = None, db_file: str | None = None, user: str | None = None,
-           progress_stream: TextIO | None = None) -> Verification:
+           progress_stream: TextIO | None = None, allow_outside: bool = False) -> Verification:
     """Evaluate what `md` (a compare.ModelDiff) says is impacted, on the data; raises ModeldiffError on bad input."""
     result = md.result
-    data = open_data(md, data_dir, db_file)
+    data = open_data(md, data_dir, db_file, allow_outside)
     try:
         items = [item for impact in result.measures for item in measure_items(result, impact)]
         tests = precondition_tests(md)
@@ -752,6 +752,9 @@ def configure(parser) -> None:
     parser.add_argument("--user", metavar="EMAIL", help="the person viewing, for roles and reports filtering on :user")
     parser.add_argument("--limit", metavar="N", type=int, default=DEFAULT_LIMIT,
                         help=f"differences listed per report or measure (default {DEFAULT_LIMIT}; 0: all)")
+    from modeldiff.evaluate import add_allow_outside
+
+    add_allow_outside(parser)
 
 
 def run(args, stdout: TextIO) -> int:
@@ -762,7 +765,7 @@ def run(args, stdout: TextIO) -> int:
     if args.limit is not None and args.limit < 0:
         raise ModeldiffError(f"--limit {args.limit}: give 0 (list every difference) or a positive number")
     md = compare.compare_specs(args.old, args.new)
-    verification = verify(md, args.data, args.db, args.user)
+    verification = verify(md, args.data, args.db, args.user, allow_outside=args.allow_data_outside)
     render = {"json": verify_out.as_json, "markdown": verify_out.as_markdown}.get(args.format, verify_out.as_text)
     render(verification, stdout, limit=args.limit)
     return verification.exit_code
