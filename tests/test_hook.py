@@ -464,7 +464,7 @@ def clinic_push(world, new_text: str, *trailers: str) -> tuple[int, str, str]:
 
 def test_a_link_trailer_acknowledges_the_paths_its_change_alone_causes(world):
     code, out, err = clinic_push(world, DOCTORS_LIVE, "Model-Reviewed: links.doctors_clinic")
-    assert (code, err) == (0, "")
+    assert (code, err) == (0, ""), out + err
     assert ("covered by Model-Reviewed: links.doctors_clinic (what its change alone causes): " + ", ".join(DERIVED)
             in out)
     assert "refs/heads/main: push allowed" in out
