@@ -175,6 +175,20 @@ def visible_rows_query(model: Model, table: str, role: str | None = None, where:
     return compiler.visible_rows(table, filters, role)
 
 
+def role_rows_query(model: Model, role: str, user: str | None = None) -> Query:
+    """Which rows of every table a role may see, in one query: columns `_table`, `_row` (row numbers).
+
+    The role's cut over the security graph (semantics.md section 3), as
+    `visible_rows_query(model, table, role)` counts them table by table.
+    """
+    compiler = _Compiler(model, user)
+    base = compiler.role_base(role)
+    # table names are plain names ([A-Za-z][A-Za-z0-9_]*, model-format.md): safe inside quotes
+    parts = [f"SELECT '{t}' AS _table, _row FROM {q(base.get(t, t))}" for t in sorted(model.tables)]
+    final = "\nUNION ALL\n".join(parts) + "\nORDER BY 1, 2"
+    return compiler.plan.query(final, ("_table", "_row"), compiler.params)
+
+
 def report_notes(model: Model, report_name: str) -> tuple[str, ...]:
     """Sentences to print beside a report's numbers (section 5: groups need not add up)."""
     from modeldiff import graph

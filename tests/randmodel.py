@@ -448,9 +448,13 @@ def _convert(value: Any, ctype: str) -> Any:
 
 
 def database(model, rows: dict[str, list[dict]]):
+    """A modeldiff.data.Database holding the rows (one DuckDB thread: the tables are tiny)."""
+    import duckdb
+
     from modeldiff.data import Database
 
-    return Database.from_rows(model, tuples(model, rows))
+    connection = duckdb.connect(":memory:", config={"threads": 1})
+    return Database.from_rows(model, tuples(model, rows), connection)
 
 
 def uses_user(doc: dict, role: str | None) -> bool:
@@ -764,7 +768,8 @@ def _role(rng, doc) -> str:
 
 
 def m_role_filter(rng, doc):
-    role = doc["roles"][_role(rng, doc)]
+    name = _role(rng, doc)
+    role = doc["roles"][name]
     t = rng.choice(sorted(doc["tables"]))
     if t in role["filters"] and len(role["filters"]) > 1 and rng.random() < 0.3:
         del role["filters"][t]
@@ -789,7 +794,7 @@ def m_role_removed(rng, doc):
     del doc["roles"][name]
 
 
-def _report(rng, doc) -> dict:
+def _report(rng, doc) -> dict:  # noqa: D103
     return doc["reports"][_pick(rng, doc["reports"])]
 
 
@@ -826,6 +831,8 @@ def m_report_role(rng, doc):
     r = _report(rng, doc)
     roles = sorted(doc.get("roles", {}))
     choices = [x for x in roles + [None] if x != r.get("role")]
+    if not choices:
+        raise _Skip
     pick = rng.choice(choices)
     if pick is None:
         if "role" not in r:

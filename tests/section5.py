@@ -60,9 +60,10 @@ def setting(model, layers: Iterable) -> dict[str, LinkState]:
             state[name].carries = True
             switched_off.discard(name)
             link = model.links[name]
-            for other, o in model.links.items():
-                if other != name and not o.standby and o.tables == link.tables:
+            for other, o in model.links.items():  # every other link between the two tables goes on standby
+                if other not in via and o.tables == link.tables:
                     state[other].carries = False
+                    switched_off.discard(other)  # on standby now: a later flow does not bring it back
         for name, value in flow:
             if name not in model.links:
                 continue
