@@ -166,6 +166,18 @@ def shrink(seed: int, stream=sys.stdout) -> dict | None:
             "missed": [[m.kind, m.name, m.evidence] for m in found], "listed": listed, "changes": changes}
 
 
+def markdown(found: dict) -> str:
+    """One shrunk false negative as a Markdown section: models before and after, data, what moved, what was listed."""
+    rows = "\n".join(f"{t}: {json.dumps(rs)}" for t, rs in found["rows"].items()) or "(every table empty)"
+    listed = ", ".join(f"{k} {n}" for k, n in found["listed"]) or "nothing"
+    moved = "\n".join(f"- {k} {n}: {e}" for k, n, e in found["missed"])
+    return (f"## seed {found['seed']}: {found['kind']}\n\n"
+            f"Changes the diff found: {', '.join(found['changes']) or 'none'}\n\n"
+            f"Listed as impacted: {listed}\n\nMoved on the data but not listed:\n{moved}\n\n"
+            f"Old model:\n```yaml\n{found['old']}```\nNew model:\n```yaml\n{found['new']}```\n"
+            f"Data (rows per table; tables not named are empty):\n```\n{rows}\n```\n")
+
+
 def main(argv=None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("-n", type=int, default=10_000, help="cases (default 10,000)")
@@ -174,12 +186,19 @@ def main(argv=None) -> int:
     parser.add_argument("--out", default=os.path.join(ROOT, "out", "impact_soundness.jsonl"),
                         help="JSON lines file the results are appended to (resumed from)")
     parser.add_argument("--fresh", action="store_true", help="forget earlier results in --out")
-    parser.add_argument("--shrink", type=int, metavar="SEED", help="print the smallest reproducer of one case")
+    parser.add_argument("--shrink", type=int, nargs="+", metavar="SEED", help="print the smallest reproducer of cases")
+    parser.add_argument("--append", metavar="FILE", help="with --shrink: append the reproducers to FILE as Markdown")
     args = parser.parse_args(argv)
     if args.shrink is not None:
-        found = shrink(args.shrink)
-        if found:
-            print(json.dumps(found, indent=2, default=str))
+        for seed in args.shrink:
+            found = shrink(seed)
+            if not found:
+                continue
+            text = markdown(found)
+            print(text)
+            if args.append:
+                with open(args.append, "a") as f:
+                    f.write(text + "\n")
         return 0
     os.makedirs(os.path.dirname(os.path.abspath(args.out)), exist_ok=True)
     if args.fresh and os.path.exists(args.out):
