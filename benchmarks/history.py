@@ -29,7 +29,6 @@ import argparse
 import json
 import os
 import random
-import re
 import subprocess
 import sys
 import tempfile
@@ -40,7 +39,7 @@ ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT))
 sys.path.insert(0, str(Path(__file__).resolve().parent))
 
-from synth import synthetic_model_text  # noqa: E402
+from synth import EDITS, synthetic_model_text  # noqa: E402
 
 MODEL_PATH = "models/synthetic.model.yaml"
 GOAL_SECONDS_50 = 5.0
@@ -48,34 +47,6 @@ GOAL_PEAK_MB = 300.0
 
 
 # --- the history ------------------------------------------------------------------------------
-
-
-def _flip_link(text: str, rng: random.Random) -> tuple[str, str]:
-    found = list(re.finditer(r"^  (l\d+):\n    from: [^\n]+\n    to: [^\n]+(\n    flow: two-way)?$", text, flags=re.M))
-    match = rng.choice(found)
-    name = match.group(1)
-    if match.group(2):
-        return text[:match.start(2)] + text[match.end(2):], f"link {name} back to one-way"
-    return text[:match.end()] + "\n    flow: two-way" + text[match.end():], f"link {name} made two-way"
-
-
-def _edit_condition(text: str, rng: random.Random) -> tuple[str, str]:
-    found = re.findall(r"^  (m\d+):\n    table: \S+\n    expr: [^\n]+\n", text, flags=re.M)
-    name = rng.choice(found)
-    match = re.search(rf"^  {name}:\n    table: \S+\n    expr: [^\n]+\n(    where: [^\n]+\n)?", text, flags=re.M)
-    where = f"    where: amount > {rng.randint(1, 500)}\n"
-    head = match.group(0)[: match.start(1) - match.start()] if match.group(1) else match.group(0)
-    return text[:match.start()] + head + where + text[match.end():], f"measure {name}: condition edited"
-
-
-def _touch_description(text: str, rng: random.Random) -> tuple[str, str]:
-    found = [m for m in re.finditer(r"^    description: ([^\n]+)$", text, flags=re.M)]
-    match = rng.choice(found)
-    return (text[:match.start(1)] + match.group(1) + " (reworded)" + text[match.end(1):],
-            "description touched")
-
-
-EDITS = (_flip_link, _edit_condition, _touch_description)
 
 
 def build_history(folder: str, commits: int, sizes: tuple[int, int, int, int], seed: int = 5) -> None:

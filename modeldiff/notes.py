@@ -198,6 +198,7 @@ def severity_lines(result) -> list[str]:
 
 def model_section(md, level: int) -> list[str]:
     """One model's part of the notes, its title at Markdown heading `level`."""
+    from modeldiff.render import causes_out
     from modeldiff.render.diff_out import SECURITY_CAUTION
 
     r = md.result
@@ -210,6 +211,8 @@ def model_section(md, level: int) -> list[str]:
         lines += ["", f"> **SECURITY:** {_md(who)}. {SECURITY_CAUTION}"]
     if not r.changes and not r.new_errors:
         return lines + ["", "No change to what the model means (only layout or comments)."]
+    by_cause = causes_out.markdown_lines(r)
+    lines += [""] + by_cause if by_cause else []
     lines += severity_lines(r)
     owners = {name: (rep.owner or "") for name, rep in {**r.old.reports, **r.new.reports}.items()}
     impacted = [("measures", r.measures, None), ("roles", r.roles, None), ("reports", r.reports, owners)]

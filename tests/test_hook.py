@@ -638,3 +638,12 @@ def test_the_framework_manifest_declares_the_pre_push_hook():
     assert entry == {**entry, "id": "modeldiff-pre-push", "entry": "modeldiff hook run --from-env",
                      "language": "python", "stages": ["pre-push"], "always_run": True,
                      "pass_filenames": False, "minimum_pre_commit_version": "3.2.0"}
+
+
+def test_the_hooks_message_groups_what_follows_under_its_cause(gated):
+    commit(gated.work, "drop fare revenue", {MODEL: BREAKING})
+    pushed = gated.push("origin", "main")
+    assert pushed.code != 0
+    head, _, rest = pushed.out.partition("by cause (most severe first)")
+    assert rest and "verdict: breaking" in head  # the summary by cause follows the verdict
+    assert " report" in rest.split("\n\n")[0]  # the impacted report is counted under its cause

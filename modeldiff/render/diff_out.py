@@ -117,7 +117,7 @@ def _role_extras(i: Impact) -> str:
 
 
 def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
-    from modeldiff.render import TextOut
+    from modeldiff.render import TextOut, causes_out
 
     out = TextOut(stream)
     for md in diffs:
@@ -133,6 +133,7 @@ def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
                  f" ({counts['breaking']} breaking, {counts['numbers']} can move numbers, {counts['safe']} safe)")
         if any(c.kind == "security.exposed" for c in r.changes):
             out.paragraph(SECURITY_CAUTION, 4, "  ", ("SECURITY:", "bold red"), " ")
+        causes_out.write_text(out, r)
         for severity in reversed(SEVERITIES):
             group = [c for c in r.changes if c.severity == severity]
             if not group:
@@ -209,6 +210,8 @@ def _md_diagrams(diffs: Sequence[ModelDiff]) -> list[str]:
 
 
 def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
+    from modeldiff.render import causes_out
+
     lines = ["## modeldiff", "", "| model | verdict | breaking | can move numbers | safe | impacted measures | roles | reports |",
              "|---|---|---|---|---|---|---|---|"]
     for md in diffs:
@@ -222,6 +225,8 @@ def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
         lines += ["", f"### `{r.new.name or r.old.name}`: `{_side(md.old)}` → `{_side(md.new)}`", ""]
         if any(c.kind == "security.exposed" for c in r.changes):
             lines += [f"> **SECURITY:** {SECURITY_CAUTION}", ""]
+        by_cause = causes_out.markdown_lines(r)
+        lines += by_cause + ([""] if by_cause else [])
         if not r.changes and not r.new_errors:
             lines.append("No changes.")
             continue

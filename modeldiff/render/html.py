@@ -121,6 +121,13 @@ def _diagram(md: ModelDiff, number: int) -> list[str]:
             f"<pre>{escape(mermaid_of(pic))}</pre>", "</details>"]
 
 
+def _by_cause(result) -> list[str]:
+    from modeldiff.render.causes_out import html_summary
+
+    found = html_summary(result)
+    return [found] if found else []
+
+
 def _model_section(md: ModelDiff, number: int) -> list[str]:
     r = md.result
     name = r.new.name or r.old.name
@@ -135,6 +142,7 @@ def _model_section(md: ModelDiff, number: int) -> list[str]:
     c = r.counts()
     out.append(f"<p>Verdict: {_sev(r.verdict)} ({c['breaking']} breaking, {c['numbers']} can move numbers, "
                f"{c['safe']} safe).</p>")
+    out += _by_cause(r)
     out += ["<h3>Changes</h3>"] + _changes_table(r.changes)
     if r.new_errors:
         out += ["<h3>Errors in the new revision</h3>", "<ul>"]
