@@ -74,7 +74,7 @@ def test_report_is_well_formed_with_summary_changes_impacts_and_graph():
     tags = [t for t, _ in p.seen]
     assert tags.count("svg") == 1
     tables = [a.get("class") for t, a in p.seen if t == "table"]
-    assert tables == ["summary", "changes"]
+    assert tables == ["summary", "causes", "changes"]
     text = "".join(p.text)
     assert "Impacted measures (3)" in text and "stock_value" in text and "station_stock" in text
     changed = [a["data-link"] for t, a in p.seen if t == "g" and a.get("class") == "edge changed"]
