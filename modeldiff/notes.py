@@ -149,10 +149,10 @@ def read_notes(root: str, range_text: str, mode: str = "squash", render=None) ->
 
 def _diagram(md) -> str | None:
     """Mermaid source of what changed in one model (modeldiff.picture), or None when no link or path changed."""
-    from modeldiff.picture import diff_picture, mermaid_of
+    from modeldiff.picture import diff_picture, mermaid_of, readable
 
     pic = diff_picture(md.result, limit=0)
-    return None if pic is None else mermaid_of(pic).rstrip("\n")
+    return None if pic is None else mermaid_of(readable(pic)).rstrip("\n")
 
 
 def _md(text: str) -> str:

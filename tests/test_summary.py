@@ -9,8 +9,7 @@ import random
 from pathlib import Path
 
 import pytest
-from scenariokit import SMALL, synthetic_model_text
-from synth import ordinary_changes
+from scenariokit import SMALL, ordinary_changes, synthetic_model_text
 
 from modeldiff import impact, load, summary
 from modeldiff.changes import Change, rank

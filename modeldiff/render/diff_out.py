@@ -193,13 +193,14 @@ def _md_reason(x: Reason, kinds: dict[str, str]) -> str:
 
 def _md_diagrams(diffs: Sequence[ModelDiff]) -> list[str]:
     """A Mermaid picture of each model whose links or filter paths changed (GitHub renders the fence)."""
-    from modeldiff.picture import diff_picture, mermaid_of
+    from modeldiff.picture import diff_picture, mermaid_of, readable
 
     lines: list[str] = []
     for md in diffs:
         pic = diff_picture(md.result)
         if pic is None:
             continue
+        pic = readable(pic)
         name = md.result.new.name or md.result.old.name
         lines += ["", f"**Filter graph of `{name}`**: arrows point the way a filter travels; changed links are red, "
                   "tables on new filter paths are outlined in red, dotted links carry no filter.", "",
