@@ -15,8 +15,8 @@ model (a README). Each count N is measured on `HEAD~N..HEAD`:
 
 Each run is a child process (`python benchmarks/history.py --child ...`)
 that runs `modeldiff.cli.main` and reports its wall and CPU seconds and its
-peak resident memory (`resource.getrusage(RUSAGE_SELF).ru_maxrss`), so no
-run inherits another's memory. Goals (issue tracker, not tests): 50 commits
+peak resident memory (VmHWM of /proc/self/status; `ru_maxrss` elsewhere, which
+Linux carries over from a parent), so no run inherits another's memory. Goals (issue tracker, not tests): 50 commits
 per-commit in under 5 s warm, and a peak under 300 MB whatever the number of
 commits. The figures are one run each: on a shared machine read them as an
 order of magnitude, and compare the cold and warm rows and the 50 and 300
@@ -57,18 +57,19 @@ def build_history(folder: str, commits: int, sizes: tuple[int, int, int, int], s
     env.update(GIT_AUTHOR_NAME="bench", GIT_AUTHOR_EMAIL="bench@example.invalid", GIT_COMMITTER_NAME="bench",
                GIT_COMMITTER_EMAIL="bench@example.invalid")
     subprocess.run(["git", "init", "-q", "-b", "main", folder], check=True, env=env)
-    stream = []
     stamp = 1_700_000_000
+    importer = subprocess.Popen(["git", "fast-import", "--quiet"], stdin=subprocess.PIPE, cwd=folder, env=env)
+    stream = importer.stdin  # written as made: the history is never held whole in memory
 
     def commit(number: int, message: str, path: str, content: str) -> None:
         data = content.encode()
         body = message.encode()
-        stream.append(b"commit refs/heads/main\n")
-        stream.append(f"mark :{number}\ncommitter bench <bench@example.invalid> {stamp + number} +0000\n".encode())
-        stream.append(f"data {len(body)}\n".encode() + body + b"\n")
+        stream.write(b"commit refs/heads/main\n")
+        stream.write(f"mark :{number}\ncommitter bench <bench@example.invalid> {stamp + number} +0000\n".encode())
+        stream.write(f"data {len(body)}\n".encode() + body + b"\n")
         if number > 1:
-            stream.append(f"from :{number - 1}\n".encode())
-        stream.append(f"M 100644 inline {path}\ndata {len(data)}\n".encode() + data + b"\n")
+            stream.write(f"from :{number - 1}\n".encode())
+        stream.write(f"M 100644 inline {path}\ndata {len(data)}\n".encode() + data + b"\n")
 
     commit(1, "the synthetic model", MODEL_PATH, text)
     for number in range(2, commits + 2):
@@ -77,11 +78,29 @@ def build_history(folder: str, commits: int, sizes: tuple[int, int, int, int], s
             continue
         text, subject = EDITS[number % len(EDITS)](text, rng)
         commit(number, subject, MODEL_PATH, text)
-    subprocess.run(["git", "fast-import", "--quiet"], input=b"".join(stream), cwd=folder, check=True, env=env)
+    stream.close()
+    if importer.wait() != 0:
+        raise SystemExit("git fast-import failed")
     subprocess.run(["git", "checkout", "-q", "main"], cwd=folder, check=True, env=env)
 
 
 # --- one measured run, in a child process -----------------------------------------------------------
+
+
+def _high_water_kb() -> int | None:
+    """This process's peak resident memory (VmHWM of /proc/self/status), or None off Linux.
+
+    Preferred to `ru_maxrss`, which Linux carries over from the parent through
+    fork and exec: a child of a large parent would report the parent's peak.
+    """
+    try:
+        with open("/proc/self/status", encoding="ascii") as handle:
+            for line in handle:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1])
+    except OSError:
+        return None
+    return None
 
 
 def child(argv: list[str]) -> int:
@@ -95,7 +114,7 @@ def child(argv: list[str]) -> int:
     wall, cpu = time.perf_counter(), time.process_time()
     code = main(argv, out, err)
     wall, cpu = time.perf_counter() - wall, time.process_time() - cpu
-    peak_kb = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss  # kilobytes on Linux
+    peak_kb = _high_water_kb() or resource.getrusage(resource.RUSAGE_SELF).ru_maxrss  # kilobytes on Linux
     json.dump({"wall": wall, "cpu": cpu, "peak_mb": peak_kb / 1024, "chars": len(out.getvalue()), "code": code,
                "error": err.getvalue()[-500:]}, sys.stdout)
     return 0

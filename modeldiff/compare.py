@@ -137,6 +137,8 @@ class _Revision:
         self.files = files
         self.base = base  # the other side, read first: items written as there are not read again, equal records shared
         self._loaded = None
+        self.checked = None  # the record-rule findings, once known
+        self.walk = False  # met by a History walk: its findings live on it, not in the cache
 
     def ready(self) -> bool:
         """Whether this revision is read, or can be spliced from a neighbour that is (or can be) read."""
@@ -179,6 +181,12 @@ class History:
     their changes, and holds no more than the last few revisions of a path.
     (A commit that changed no model still names the model differently,
     `SHA:PATH`: the same text under the new name is a splice of nothing.)
+
+    The record-rule findings of a revision met by the walk stay on it for the
+    next commit, and are not written to the cache as revision entries: a
+    walk of N commits leaves N comparison entries, not 2N, so a long range
+    stays within the cache's count of entries (`cache.MAX_ENTRIES`; a walk
+    longer than that still finds the oldest comparisons evicted).
     """
 
     def __init__(self) -> None:
@@ -189,7 +197,9 @@ class History:
         latest = self._latest.get(path)
         if latest is not None and latest.files == files:
             return latest
-        return _Revision(files, latest)  # the same text under another commit's name costs a splice of nothing
+        revision = _Revision(files, latest)  # the same text under another commit's name costs a splice of nothing
+        revision.walk = True
+        return revision
 
     def keep(self, path: str, revision: _Revision) -> None:
         """Remember `revision` as the latest of `path`, releasing the ones before."""
@@ -226,25 +236,45 @@ def _cached_comparison(old: _Revision | None, new: _Revision | None, use_cache: 
                         new=_revision_model(new, found.new) if new is not None else found.new)
     if old is not None:
         old.loaded()  # the old model is read (and any error in it reported) first
-    checked = [cache.load_revision(folder, key) if key is not None else None for key in (old_key, new_key)]
+    checked = [_checked_before(folder, revision, key) for revision, key in ((old, old_key), (new, new_key))]
     if old is not None and new is not None and checked == [None, None]:
         from modeldiff import check
 
         old_result, new_result = old.loaded(), new.loaded()
         both = check.check_pair(old_result.model, old_result.findings, new_result.model, new_result.findings)
         checked = [tuple(found) for found in both]
-        cache.store_revision(folder, old_key, checked[0])
-        cache.store_revision(folder, new_key, checked[1])
+        _keep_checked(folder, old, old_key, checked[0])
+        _keep_checked(folder, new, new_key, checked[1])
     for index, (revision, key) in enumerate(((old, old_key), (new, new_key))):
         if checked[index] is None and revision is not None:
             from modeldiff import check
 
             result = revision.loaded()
             checked[index] = tuple(check.check_model(result.model, result.findings, graph_rules=False))
-            cache.store_revision(folder, key, checked[index])
+            _keep_checked(folder, revision, key, checked[index])
     result = _analyse(old, new, *checked)
     cache.store_pair(folder, pair, result)
     return result
+
+
+def _checked_before(folder: str, revision: _Revision | None, key: str | None):
+    """The record-rule findings of a revision known already: kept by the walk, else from the cache; or None."""
+    if revision is None:
+        return None
+    if revision.checked is not None:
+        return revision.checked
+    from modeldiff import cache
+
+    return cache.load_revision(folder, key)
+
+
+def _keep_checked(folder: str, revision: _Revision, key: str, checked: tuple) -> None:
+    """Remember a revision's findings on it; in the cache too, unless a walk keeps them (see `History`)."""
+    from modeldiff import cache
+
+    revision.checked = checked
+    if not revision.walk:
+        cache.store_revision(folder, key, checked)
 
 
 def _analyse(old, new, old_checked, new_checked):

@@ -165,3 +165,13 @@ def test_history_remembers_only_the_latest_revision_of_a_path():
     walk.keep("m", second)
     assert walk.revision("m", (("a", b"1"),)) is not first  # forgotten once the next one is kept
     assert walk.revision("other", (("a", b"2"),)) is not second  # per path
+
+
+def test_a_walk_leaves_one_cache_entry_per_commit(history, tmp_path):
+    _notes(history)
+    names = [p.name for p in (tmp_path / "cache").iterdir()]
+    pairs = [n for n in names if n.startswith("pair-")]
+    revisions = [n for n in names if n.startswith("rev-")]
+    # six commits changed the model, and the squashed comparison of the range as a whole
+    assert len(pairs) == 6 + 1
+    assert len(revisions) == 2  # the squashed comparison's two sides only: the walk keeps its findings in memory
