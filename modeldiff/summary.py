@@ -119,7 +119,7 @@ def _counted(names: Iterable[str]) -> tuple[tuple[str, int], ...]:
     return tuple(sorted(counts.items(), key=lambda kv: (-kv[1], kv[0])))
 
 
-def _lookup(result, section: str, name: str):
+def lookup(result, section: str, name: str):
     """An item of the new revision, else of the old (an impacted item may be gone), else None."""
     for model in (result.new, result.old):
         found = getattr(model, section, {}).get(name)
@@ -165,12 +165,12 @@ def causes(result) -> tuple[Cause, ...]:
         homes = []
         owners = []
         for m in measures:
-            record = _lookup(result, "measures", m.name)
+            record = lookup(result, "measures", m.name)
             homes.append(record.table if record is not None and record.table else DERIVED_MEASURES)
             if record is not None and record.owner:
                 owners.append(record.owner)
         for rep in reports:
-            record = _lookup(result, "reports", rep.name)
+            record = lookup(result, "reports", rep.name)
             if record is not None and record.owner:
                 owners.append(record.owner)
         out.append(Cause(change, tuple(derived[key]), tuple(measures), tuple(roles), tuple(reports), severity,
@@ -228,7 +228,7 @@ def _kinds_of(tables: Sequence[str], result) -> str:
         return ""
     kinds: dict[str, int] = {}
     for table in tables:
-        record = _lookup(result, "tables", table)
+        record = lookup(result, "tables", table)
         kind = getattr(record, "kind", None) if record is not None else None
         if kind:
             kinds[kind] = kinds.get(kind, 0) + 1

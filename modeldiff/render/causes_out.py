@@ -1,4 +1,4 @@
-"""The summary by cause (`modeldiff.summary.causes`) as text, Markdown and HTML.
+"""The summary by cause (`modeldiff.summary.causes`) as text and Markdown (HTML: render/html_scale.py).
 
 Shown at the top of a model's part of `diff` (text, Markdown, HTML), of the
 hook's message and of each model section of the notes, when at least one
@@ -9,7 +9,6 @@ most severe first; a last line counts the others.
 
 from __future__ import annotations
 
-from html import escape
 from typing import Sequence
 
 from modeldiff.summary import Cause, causes, consequences, detail_lines, title
@@ -66,15 +65,3 @@ def markdown_lines(result, limit: int = MARKDOWN_LIMIT, found: Sequence[Cause] |
     if more:
         lines.append(f"- … {more}")
     return lines
-
-
-def html_summary(result, found: Sequence[Cause] | None = None) -> str:
-    """A table of the causes of one model for the HTML report (every cause: the page is not budgeted)."""
-    found = causes(result) if found is None else found
-    if not worth_showing(found):
-        return ""
-    rows = [f'<tr class="{c.severity}"><td>{c.severity}</td><td>{escape(title(c))}</td>'
-            f"<td>{escape(consequences(c, result))}</td><td>{escape('; '.join(detail_lines(c)))}</td></tr>"
-            for c in found]
-    return ('<h3>By cause</h3><table class="causes"><tr><th>severity</th><th>cause</th><th>what follows</th>'
-            "<th>where</th></tr>" + "".join(rows) + "</table>")
