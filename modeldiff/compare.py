@@ -208,7 +208,10 @@ class History:
         if previous is not None and previous is not revision:
             previous.base = None
         if revision._loaded is None and revision.base is not None and revision.base.ready():
-            revision.loaded()  # a splice from the neighbour costs little now and spares a whole read later
+            try:
+                revision.loaded()  # a splice from the neighbour costs little now and spares a whole read later
+            except ModeldiffError:
+                pass  # only ahead of need: whoever needs the model meets the error then
 
 
 def _compare_files(old_files, new_files, use_cache: bool, where: str, old=None, new=None):
