@@ -25,6 +25,7 @@ test: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/run.py
+	$(BIN)/python benchmarks/history.py
 
 clean:
 	rm -rf $(VENV) build *.egg-info

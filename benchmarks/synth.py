@@ -10,6 +10,7 @@ standby and followed by a measure.
 from __future__ import annotations
 
 import random
+import re
 
 
 def synthetic_model_text(tables: int = 2000, links: int = 3000, measures: int = 22000, roles: int = 100,
@@ -101,3 +102,42 @@ def synthetic_model_text(tables: int = 2000, links: int = 3000, measures: int = 
 
 def first_link_of_fact(text: str) -> str:
     return "l0"
+
+
+# --- ordinary changes, as a team makes them (benchmarks/history.py, the large-change tests) ---------------
+
+
+def _flip_link(text: str, rng: random.Random) -> tuple[str, str]:
+    found = list(re.finditer(r"^  (l\d+):\n    from: [^\n]+\n    to: [^\n]+(\n    flow: two-way)?$", text, flags=re.M))
+    match = rng.choice(found)
+    name = match.group(1)
+    if match.group(2):
+        return text[:match.start(2)] + text[match.end(2):], f"link {name} back to one-way"
+    return text[:match.end()] + "\n    flow: two-way" + text[match.end():], f"link {name} made two-way"
+
+
+def _edit_condition(text: str, rng: random.Random) -> tuple[str, str]:
+    found = re.findall(r"^  (m\d+):\n    table: \S+\n    expr: [^\n]+\n", text, flags=re.M)
+    name = rng.choice(found)
+    match = re.search(rf"^  {name}:\n    table: \S+\n    expr: [^\n]+\n(    where: [^\n]+\n)?", text, flags=re.M)
+    where = f"    where: amount > {rng.randint(1, 500)}\n"
+    head = match.group(0)[: match.start(1) - match.start()] if match.group(1) else match.group(0)
+    return text[:match.start()] + head + where + text[match.end():], f"measure {name}: condition edited"
+
+
+def _touch_description(text: str, rng: random.Random) -> tuple[str, str]:
+    found = [m for m in re.finditer(r"^    description: ([^\n]+)$", text, flags=re.M)]
+    match = rng.choice(found)
+    return (text[:match.start(1)] + match.group(1) + " (reworded)" + text[match.end(1):],
+            "description touched")
+
+
+EDITS = (_flip_link, _edit_condition, _touch_description)
+
+
+def ordinary_changes(text: str, count: int, seed: int = 3) -> str:
+    """`text` after `count` ordinary changes made in turn (a link flipped, a condition edited, a description touched)."""
+    rng = random.Random(seed)
+    for number in range(count):
+        text, _ = EDITS[number % len(EDITS)](text, rng)
+    return text

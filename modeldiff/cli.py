@@ -98,6 +98,11 @@ def cmd_check(args, stdout: TextIO) -> int:
 
 def cmd_diff(args, stdout: TextIO) -> int:
     from modeldiff import compare
+    from modeldiff.render import md_budget
+
+    budget = md_budget.COMMENT if args.budget is None else md_budget.parse_budget(args.budget)
+    if args.budget is not None and args.format != "markdown":
+        raise UsageError("--budget goes with --format markdown (json and html always hold everything)")
     from modeldiff.render import diff_out
 
     diffs: list[compare.ModelDiff] = []
@@ -128,8 +133,10 @@ def cmd_diff(args, stdout: TextIO) -> int:
         from modeldiff.render import github
 
         github.as_github(diffs, stdout)
+    elif args.format == "markdown":
+        md_budget.as_markdown(diffs, stdout, budget)
     else:
-        {"json": diff_out.as_json, "markdown": diff_out.as_markdown}.get(args.format, diff_out.as_text)(diffs, stdout)
+        {"json": diff_out.as_json}.get(args.format, diff_out.as_text)(diffs, stdout)
     from modeldiff.changes import EXIT_CODES
 
     return EXIT_CODES[diff_out.verdict_of(diffs)]
@@ -170,6 +177,9 @@ def build_parser(argv: Sequence[str] = ()) -> argparse.ArgumentParser:
     p.add_argument("--head", metavar="REV", help="with --base: compare with this revision instead of the working tree")
     p.add_argument("--format", choices=FORMATS + ("html", "github"), default="text")
     p.add_argument("--no-cache", action="store_true", help="read and compare afresh, ignoring and not writing the cache")
+    p.add_argument("--budget", metavar="N|none", default=None,
+                   help="markdown: at most N characters (default 65536, a pull-request comment; 1MiB for a CI job "
+                        "summary), the breaking changes whole and the rest folded and counted; none: everything")
     p.set_defaults(run=cmd_diff)
 
     p = sub.add_parser("schema", help="print the JSON Schema of the model file format")

@@ -7,7 +7,7 @@ rendering is left to render/.
 from __future__ import annotations
 
 import os
-from dataclasses import dataclass
+from dataclasses import dataclass, replace as _replace
 from typing import Sequence
 
 from modeldiff.errors import ModeldiffError
@@ -93,16 +93,17 @@ def compare_specs(old_spec: str, new_spec: str, use_cache: bool = True) -> Model
 
 
 def compare_revisions(root: str, base: str, head: str | None, paths: list[str] | None = None,
-                      use_cache: bool = True) -> list[ModelDiff]:
+                      use_cache: bool = True, history: "History | None" = None) -> list[ModelDiff]:
     """Every model of the repository (or `paths`) at `base` against `head` (None: the working tree).
 
     `use_cache` as in `compare_specs`; entries live in the repository's git folder.
+    `history`: the revisions met so far when walking commits in order (see `History`).
     """
     from modeldiff import git
 
     if paths is None:
         paths = sorted(set(git.list_models(root, base)) | set(git.list_models(root, head)))
-    return _diff_revisions(root, base, head, paths, use_cache)
+    return _diff_revisions(root, base, head, paths, use_cache, history)
 
 
 def compare_with_nothing(root: str, rev: str, paths: Sequence[str], old_label: str | None = None) -> list[ModelDiff]:
@@ -136,17 +137,81 @@ class _Revision:
         self.files = files
         self.base = base  # the other side, read first: items written as there are not read again, equal records shared
         self._loaded = None
+        self.checked = None  # the record-rule findings, once known
+        self.walk = False  # met by a History walk: its findings live on it, not in the cache
+
+    def ready(self) -> bool:
+        """Whether this revision is read, or can be spliced from a neighbour that is (or can be) read."""
+        return self._loaded is not None or (self.base is not None and self.base.ready())
 
     def loaded(self):
         if self._loaded is None:
             from modeldiff import load
 
             base = self.base
-            if base is not None and base._loaded is not None:
-                self._loaded = load.splice_files(self.files, base.files, base._loaded)
+            if base is not None and base.ready():
+                self._loaded = load.splice_files(self.files, base.files, base.loaded())
             else:
                 self._loaded = load.load_files(self.files)
+            self.base = None  # read: the other side is no longer needed (and not kept alive by this one)
         return self._loaded
+
+
+def _revision_model(revision: _Revision, known):
+    """A Model with the name and format of `known` whose sections are read from `revision` on first use.
+
+    A comparison found in the cache comes back with models that would read
+    their files again on their own; drawn from the `_Revision` instead, a
+    revision is read once however many comparisons show it (the new side of
+    one commit is the old side of the next, and is spliced from it).
+    """
+    from modeldiff.model import deferred_model
+
+    return deferred_model(known.name, known.format, lambda: revision.loaded().model)
+
+
+class History:
+    """The revisions of each model path met while walking commits one by one (`notes --per-commit`).
+
+    Only the latest revision of each path is remembered: the new side of one
+    commit is found again as the old side of the next (the same files), so it
+    is read at most once, and the revision before it is released. A revision
+    whose neighbour was read is spliced from it at once (`load.splice_files`,
+    a few changed items), so a walk reads one model whole and the rest by
+    their changes, and holds no more than the last few revisions of a path.
+    (A commit that changed no model still names the model differently,
+    `SHA:PATH`: the same text under the new name is a splice of nothing.)
+
+    The record-rule findings of a revision met by the walk stay on it for the
+    next commit, and are not written to the cache as revision entries: a
+    walk of N commits leaves N comparison entries, not 2N, so a long range
+    stays within the cache's count of entries (`cache.MAX_ENTRIES`; a walk
+    longer than that still finds the oldest comparisons evicted).
+    """
+
+    def __init__(self) -> None:
+        self._latest: dict[str, _Revision] = {}
+
+    def revision(self, path: str, files) -> _Revision:
+        """The remembered revision of `path` when its files are `files`, else a new one spliced from it."""
+        latest = self._latest.get(path)
+        if latest is not None and latest.files == files:
+            return latest
+        revision = _Revision(files, latest)  # the same text under another commit's name costs a splice of nothing
+        revision.walk = True
+        return revision
+
+    def keep(self, path: str, revision: _Revision) -> None:
+        """Remember `revision` as the latest of `path`, releasing the ones before."""
+        previous = self._latest.get(path)
+        self._latest[path] = revision
+        if previous is not None and previous is not revision:
+            previous.base = None
+        if revision._loaded is None and revision.base is not None and revision.base.ready():
+            try:
+                revision.loaded()  # a splice from the neighbour costs little now and spares a whole read later
+            except ModeldiffError:
+                pass  # only ahead of need: whoever needs the model meets the error then
 
 
 def _compare_files(old_files, new_files, use_cache: bool, where: str, old=None, new=None):
@@ -170,28 +235,49 @@ def _cached_comparison(old: _Revision | None, new: _Revision | None, use_cache: 
     pair = cache.pair_key(old_key, new_key)
     found = cache.load_pair(folder, pair, old.files if old else None, new.files if new else None)
     if found is not None:
-        return found
+        return _replace(found, old=_revision_model(old, found.old) if old is not None else found.old,
+                        new=_revision_model(new, found.new) if new is not None else found.new)
     if old is not None:
         old.loaded()  # the old model is read (and any error in it reported) first
-    checked = [cache.load_revision(folder, key) if key is not None else None for key in (old_key, new_key)]
+    checked = [_checked_before(folder, revision, key) for revision, key in ((old, old_key), (new, new_key))]
     if old is not None and new is not None and checked == [None, None]:
         from modeldiff import check
 
         old_result, new_result = old.loaded(), new.loaded()
         both = check.check_pair(old_result.model, old_result.findings, new_result.model, new_result.findings)
         checked = [tuple(found) for found in both]
-        cache.store_revision(folder, old_key, checked[0])
-        cache.store_revision(folder, new_key, checked[1])
+        _keep_checked(folder, old, old_key, checked[0])
+        _keep_checked(folder, new, new_key, checked[1])
     for index, (revision, key) in enumerate(((old, old_key), (new, new_key))):
         if checked[index] is None and revision is not None:
             from modeldiff import check
 
             result = revision.loaded()
             checked[index] = tuple(check.check_model(result.model, result.findings, graph_rules=False))
-            cache.store_revision(folder, key, checked[index])
+            _keep_checked(folder, revision, key, checked[index])
     result = _analyse(old, new, *checked)
     cache.store_pair(folder, pair, result)
     return result
+
+
+def _checked_before(folder: str, revision: _Revision | None, key: str | None):
+    """The record-rule findings of a revision known already: kept by the walk, else from the cache; or None."""
+    if revision is None:
+        return None
+    if revision.checked is not None:
+        return revision.checked
+    from modeldiff import cache
+
+    return cache.load_revision(folder, key)
+
+
+def _keep_checked(folder: str, revision: _Revision, key: str, checked: tuple) -> None:
+    """Remember a revision's findings on it; in the cache too, unless a walk keeps them (see `History`)."""
+    from modeldiff import cache
+
+    revision.checked = checked
+    if not revision.walk:
+        cache.store_revision(folder, key, checked)
 
 
 def _analyse(old, new, old_checked, new_checked):
@@ -242,7 +328,8 @@ def _split_side(spec: str) -> tuple[str | None, str]:
     return None, spec
 
 
-def _diff_revisions(root: str, base: str, head: str | None, paths: list[str], use_cache: bool = True):
+def _diff_revisions(root: str, base: str, head: str | None, paths: list[str], use_cache: bool = True,
+                    history: History | None = None):
     """ModelDiffs for `paths` between two revisions; a model moved to another path is paired by its name."""
     from modeldiff import git
 
@@ -260,16 +347,19 @@ def _diff_revisions(root: str, base: str, head: str | None, paths: list[str], us
             raise ModeldiffError(f"{path}: not found at {base} nor at {head or 'the working tree'}; check the path")
         for side, source in (("old", old_source), ("new", new_source)):
             if source is not None:
-                sides[(side, path)] = _Revision(source.files)
+                sides[(side, path)] = history.revision(path, source.files) if history else _Revision(source.files)
         if old_source is not None and new_source is not None:
-            sides[("new", path)].base = sides[("old", path)]
+            old, new = sides[("old", path)], sides[("new", path)]
+            if new is not old and new._loaded is None:
+                new.base = old
             pairs.append((path, path))  # compared now: its revisions are read (or found in the cache) in path order
-            done[(path, path)] = _compare_files(old_source.files, new_source.files, use_cache, root,
-                                                sides[("old", path)], sides[("new", path)])
+            done[(path, path)] = _compare_files(old_source.files, new_source.files, use_cache, root, old, new)
         elif old_source is not None:
             old_only[path] = sides[("old", path)].loaded()
         else:
             new_only[path] = sides[("new", path)].loaded()
+        if history is not None and new_source is not None:
+            history.keep(path, sides[("new", path)])
     # a model present only at an old path and only at a new path, under the same name, was moved
     by_name_new: dict[str, list[str]] = {}
     for path, result in new_only.items():

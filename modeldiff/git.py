@@ -171,9 +171,38 @@ def _restore_env(saved: dict[str, str]) -> None:
             os.environ.pop(name, None)
 
 
+_SESSION: dict[str, object] = {}  # while `session` runs: "dir" (as given, absolute), "repo", "resolved" (rev -> sha)
+
+
+@contextlib.contextmanager
+def session(repo_dir: str | os.PathLike[str] = ".") -> Iterator[None]:
+    """Keep the repository of `repo_dir` open for every call inside the block, for a command that reads many commits.
+
+    Each call otherwise opens the repository, starts git's helper processes
+    and resolves its revisions afresh (several processes per model read: most
+    of the time of a walk over many commits). Inside the block, calls naming
+    the same `repo_dir` share one open repository, and a revision resolved
+    once is not resolved again (the repository is only read meanwhile).
+    Nested or for another folder, the block changes nothing.
+    """
+    where = os.path.abspath(os.fspath(repo_dir))
+    if _SESSION:
+        yield
+        return
+    with _open(repo_dir) as repo:
+        _SESSION.update({"dir": where, "repo": repo, "resolved": {}})
+        try:
+            yield
+        finally:
+            _SESSION.clear()
+
+
 @contextlib.contextmanager
 def _open(repo_dir: str | os.PathLike[str] = ".") -> Iterator["gitpython.Repo"]:
     """Open the repository containing `repo_dir`, closing it (and git's helper processes) afterwards."""
+    if _SESSION and _SESSION["dir"] == os.path.abspath(os.fspath(repo_dir)):
+        yield _SESSION["repo"]
+        return
     git = _gitpython()
     saved = {name: os.environ.pop(name) for name in _LOCATION_VARS if name in os.environ}
     try:
@@ -260,7 +289,17 @@ def _check_rev_text(rev: str) -> None:
 
 
 def _resolve(repo: "gitpython.Repo", rev: str) -> str:
-    """Full sha of the commit `rev` names (tags are peeled)."""
+    """Full sha of the commit `rev` names (tags are peeled); remembered for the rest of a `session`."""
+    resolved = _SESSION.get("resolved") if _SESSION and _SESSION["repo"] is repo else None
+    if resolved is not None and rev in resolved:
+        return resolved[rev]
+    sha = _resolve_now(repo, rev)
+    if resolved is not None:
+        resolved[rev] = sha
+    return sha
+
+
+def _resolve_now(repo: "gitpython.Repo", rev: str) -> str:
     _check_rev_text(rev)
     try:
         out = _run(repo, "rev-parse", "--verify", "--quiet", f"{rev}^{{commit}}")

@@ -1875,6 +1875,24 @@ def _split_sections(text: str) -> tuple[list[str], dict[str, str]] | None:
     return frame, sections
 
 
+_LAST_LAYOUT: dict[str, Any] = {}  # the text split last: its layout, and the items of its sections split so far
+
+
+def _layout(text: str):
+    """(`_split_sections(text)`, {section: `_section_items` of it}) of `text`, remembered for the text split last.
+
+    A walk over commits splices each revision from the one before, whose text
+    the previous splice split already (as its new side): that work is not done
+    twice. One text is remembered, never more.
+    """
+    if _LAST_LAYOUT.get("text") == text:
+        return _LAST_LAYOUT["split"], _LAST_LAYOUT["items"]
+    split = _split_sections(text)
+    _LAST_LAYOUT.clear()
+    _LAST_LAYOUT.update(text=text, split=split, items={})
+    return split, _LAST_LAYOUT["items"]
+
+
 def _section_items(piece: str) -> list[tuple[str, str]]:
     """(name, text) of each item of a section's text from `_split_sections`; texts start with their newline."""
     starts = [(match.start(), match.group(1)) for match in _ITEM_START.finditer(piece)]
@@ -1912,7 +1930,7 @@ def _spliced(files, base_files, base: LoadResult) -> LoadResult | None:
         old_text, text = _decode(*base_files[0]), _decode(*files[0])
     except ModeldiffError:
         return None
-    old_split, new_split = _split_sections(old_text), _split_sections(text)
+    (old_split, old_known_items), (new_split, new_items) = _layout(old_text), _layout(text)
     if old_split is None or new_split is None or old_split[0] != new_split[0]:
         return None
     old_model = base.model
@@ -1925,11 +1943,11 @@ def _spliced(files, base_files, base: LoadResult) -> LoadResult | None:
         if piece == old_piece:
             kept[section] = getattr(old_model, section)
             continue
-        items = _section_items(piece)
+        items = new_items[section] = _section_items(piece)
         if len({name for name, _ in items}) != len(items):
             return None  # a name written twice: the full read words it
         records = getattr(old_model, section)
-        old_items = _section_items(old_piece) if old_piece else []
+        old_items = (old_known_items.get(section) or _section_items(old_piece)) if old_piece else []
         if [name for name, _ in old_items] != list(records):
             return None  # the split does not see what the reader saw
         known = {item_text: records[name] for name, item_text in old_items}

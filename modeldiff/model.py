@@ -8,6 +8,7 @@ split into table and columns.
 
 from __future__ import annotations
 
+from collections import abc
 from dataclasses import dataclass, field
 from typing import Mapping
 
@@ -198,3 +199,41 @@ class Finding:
     message: str
     paths: tuple[tuple[str, ...], ...] = ()
     pos: Pos | None = None
+
+
+class DeferredSection(abc.Mapping):
+    """A section (or the positions) of a model that is read on first use, by `read()` (which gives the whole Model)."""
+
+    __slots__ = ("_read", "_field", "_data")
+
+    def __init__(self, read, field: str) -> None:
+        self._read = read
+        self._field = field
+        self._data: Mapping | None = None
+
+    def _items(self) -> Mapping:
+        if self._data is None:
+            self._data = getattr(self._read(), self._field)
+            self._read = None
+        return self._data
+
+    def __getitem__(self, key: str):
+        return self._items()[key]
+
+    def __iter__(self):
+        return iter(self._items())
+
+    def __len__(self) -> int:
+        return len(self._items())
+
+    def __repr__(self) -> str:
+        return f"<{self._field}, read on first use>" if self._data is None else repr(self._data)
+
+    def __reduce__(self):
+        return (dict, (dict(self._items()),))
+
+
+def deferred_model(name: str, fmt: int, read) -> Model:
+    """A Model whose name and format are known and whose sections and positions come from `read()` on first use."""
+    sections = {section: DeferredSection(read, section) for section in SECTIONS}
+    return Model(name=name, format=fmt, positions=DeferredSection(read, "positions"), **sections)

@@ -23,7 +23,9 @@ are a document; `modeldiff diff` and the hook are the gates.
 
 from __future__ import annotations
 
+import gc
 import json
+import re
 from dataclasses import dataclass
 from typing import Sequence, TextIO
 
@@ -32,6 +34,10 @@ from modeldiff.errors import UsageError
 FORMATS = ("markdown", "json")
 SEVERITY_TITLES = {"breaking": "Breaking", "numbers": "Can move numbers", "safe": "Safe"}
 SHORT = 7  # characters of a commit id shown
+# Per commit, a full collection every few commits: comparing makes some reference cycles (parsed SQL),
+# and the records made while the collector is paused (load.paused_gc) go straight to the oldest
+# generation, which is collected rarely; without it a walk of 120 commits grew by 2.5 MB a commit.
+COLLECT_EVERY = 4
 
 
 @dataclass(frozen=True)
@@ -42,7 +48,9 @@ class Commit:
     subject: str
     parents: tuple[str, ...]
     paths: tuple[str, ...]  # model paths the commit changed (see the module docstring for merges)
-    diffs: tuple = ()  # compare.ModelDiff records, per-commit mode only
+    diffs: tuple = ()  # compare.ModelDiff records, per-commit mode only (released once rendered)
+    changed: bool | None = None  # `changed_models`, kept when the diffs are released
+    rendered: object = None  # what a renderer made of the diffs before they were released
 
     @property
     def short(self) -> str:
@@ -51,6 +59,8 @@ class Commit:
     @property
     def changed_models(self) -> bool:
         """True when a model's meaning changed (a file touched without any change does not count)."""
+        if self.changed is not None:
+            return self.changed
         if self.diffs:
             return any(d.result.changes or d.result.new_errors for d in self.diffs)
         return bool(self.paths)
@@ -93,30 +103,45 @@ def _touched(root: str, sha: str, parents: tuple[str, ...]) -> tuple[str, ...]:
     return tuple(sorted(found))
 
 
-def _commit_diffs(root: str, commit: Commit) -> tuple:
+def _commit_diffs(root: str, commit: Commit, history=None) -> tuple:
     from modeldiff import compare
 
     if not commit.paths:
         return ()
     if not commit.parents:
         return tuple(compare.compare_with_nothing(root, commit.sha, commit.paths))
-    return tuple(compare.compare_revisions(root, commit.parents[0], commit.sha, list(commit.paths)))
+    return tuple(compare.compare_revisions(root, commit.parents[0], commit.sha, list(commit.paths),
+                                           history=history))
 
 
-def read_notes(root: str, range_text: str, mode: str = "squash") -> Notes:
-    """Everything the notes say, read from the repository at `root`."""
+def read_notes(root: str, range_text: str, mode: str = "squash", render=None) -> Notes:
+    """Everything the notes say, read from the repository at `root`.
+
+    Per commit, the commits are compared oldest first, each revision read
+    once (`compare.History`: a commit's new side is the next one's old side,
+    and comparisons seen before come from the cache). With `render` (a
+    function of a `Commit`), each commit is rendered as soon as it is compared
+    and kept as `Commit.rendered` without its diffs, so the models of a long
+    range are released one commit after another and memory stays bounded.
+    """
     from modeldiff import compare, git
 
     left, operator, right = split_range(range_text)
     shas = git.commits_in_range(root, f"{left}{operator}{right}")
     facts = git.commit_facts(root, shas)
+    history = compare.History()
     commits = []
-    for sha in shas:
+    for number, sha in enumerate(shas):
+        if mode == "per-commit" and number % COLLECT_EVERY == COLLECT_EVERY - 1:
+            gc.collect()  # see COLLECT_EVERY
         parents, subject = facts.get(sha, ((), ""))
         commit = Commit(sha, subject, parents, _touched(root, sha, parents))
         if mode == "per-commit":
-            commit = Commit(sha, subject, parents, commit.paths, _commit_diffs(root, commit))
+            commit = Commit(sha, subject, parents, commit.paths, _commit_diffs(root, commit, history))
+            if render is not None:
+                commit = Commit(sha, subject, parents, commit.paths, (), commit.changed_models, render(commit))
         commits.append(commit)
+    del history
 
     left_sha, right_sha = git.resolve_rev(root, left), git.resolve_rev(root, right)
     base = git.merge_base(root, left_sha, right_sha) or left_sha
@@ -131,10 +156,10 @@ def read_notes(root: str, range_text: str, mode: str = "squash") -> Notes:
 
 def _diagram(md) -> str | None:
     """Mermaid source of what changed in one model (modeldiff.picture), or None when no link or path changed."""
-    from modeldiff.picture import diff_picture, mermaid_of
+    from modeldiff.picture import diff_picture, mermaid_of, readable
 
     pic = diff_picture(md.result, limit=0)
-    return None if pic is None else mermaid_of(pic).rstrip("\n")
+    return None if pic is None else mermaid_of(readable(pic)).rstrip("\n")
 
 
 def _md(text: str) -> str:
@@ -180,6 +205,7 @@ def severity_lines(result) -> list[str]:
 
 def model_section(md, level: int) -> list[str]:
     """One model's part of the notes, its title at Markdown heading `level`."""
+    from modeldiff.render import causes_out
     from modeldiff.render.diff_out import SECURITY_CAUTION
 
     r = md.result
@@ -192,6 +218,8 @@ def model_section(md, level: int) -> list[str]:
         lines += ["", f"> **SECURITY:** {_md(who)}. {SECURITY_CAUTION}"]
     if not r.changes and not r.new_errors:
         return lines + ["", "No change to what the model means (only layout or comments)."]
+    by_cause = causes_out.markdown_lines(r)
+    lines += [""] + by_cause if by_cause else []
     lines += severity_lines(r)
     owners = {name: (rep.owner or "") for name, rep in {**r.old.reports, **r.new.reports}.items()}
     impacted = [("measures", r.measures, None), ("roles", r.roles, None), ("reports", r.reports, owners)]
@@ -216,7 +244,49 @@ def _quiet_line(quiet: Sequence[Commit]) -> list[str]:
             + "; ".join(_commit_line(c) for c in quiet) + "."]
 
 
-def as_markdown(notes: Notes, stream: TextIO) -> None:
+class Spool:
+    """Rendered pieces of the notes kept aside (in memory up to `MEMORY`, then on disk) until the notes are written.
+
+    Per-commit notes render each commit as soon as it is compared; its text
+    waits here, not in the records, so a long range costs a few numbers per
+    commit in memory, and nothing is written out before every commit is read.
+    """
+
+    MEMORY = 4 * 1024 * 1024
+
+    def __init__(self) -> None:
+        import tempfile
+
+        self._file = tempfile.SpooledTemporaryFile(max_size=self.MEMORY)
+        self._pieces: list[tuple[int, int]] = []
+
+    def add(self, text: str) -> int:
+        """Keep `text`; its number, for `text`."""
+        data = text.encode("utf-8")
+        self._file.seek(0, 2)
+        self._pieces.append((self._file.tell(), len(data)))
+        self._file.write(data)
+        return len(self._pieces) - 1
+
+    def text(self, number: int) -> str:
+        offset, size = self._pieces[number]
+        self._file.seek(offset)
+        return self._file.read(size).decode("utf-8")
+
+    def close(self) -> None:
+        self._file.close()
+
+
+def commit_markdown(c: Commit) -> str:
+    """The per-commit part of the notes for one commit that changed a model."""
+    lines = ["", f"## {_commit_line(c)}"]
+    for md in c.diffs:
+        lines += ["", *model_section(md, 3)]
+    return "\n".join(lines)
+
+
+def as_markdown(notes: Notes, stream: TextIO, spool: Spool | None = None) -> None:
+    """The notes as Markdown; commits rendered ahead (`Commit.rendered`) are read back from `spool`."""
     from modeldiff.changes import worst
 
     changed = [c for c in notes.commits if c.changed_models]
@@ -228,10 +298,10 @@ def as_markdown(notes: Notes, stream: TextIO) -> None:
     if not notes.commits:
         lines = [title, "", f"No commits in `{notes.range}`."]
     if notes.mode == "per-commit":
+        stream.write("\n".join(lines))
         for c in changed:
-            lines += ["", f"## {_commit_line(c)}"]
-            for md in c.diffs:
-                lines += ["", *model_section(md, 3)]
+            stream.write("\n" + (spool.text(c.rendered) if c.rendered is not None else commit_markdown(c)))
+        lines = [""]
     else:
         if notes.commits and not notes.models:
             lines += ["", "No model changed between the start and the end of the range."]
@@ -250,7 +320,18 @@ def _model_doc(md) -> dict:
     return {**model_json(md), "diagram": _diagram(md)}
 
 
+_PIECE = "\0piece {}\0"  # stands for a commit's models rendered ahead, in the document's skeleton
+_PIECE_JSON = re.compile(r'"\\u0000piece (\d+)\\u0000"')
+_COMMIT_INDENT = 6  # where a commit's "models" sits in notes_json's document at indent=2
+
+
+def commit_models_json(c: Commit) -> str:
+    """A per-commit `models` list as JSON text, indented to sit inside the notes' document."""
+    return json.dumps([_model_doc(md) for md in c.diffs], indent=2).replace("\n", "\n" + " " * _COMMIT_INDENT)
+
+
 def notes_json(notes: Notes) -> dict:
+    """The notes as one JSON document (a commit rendered ahead stands as a placeholder: see `write_json`)."""
     from modeldiff.changes import worst
 
     commits = []
@@ -258,12 +339,20 @@ def notes_json(notes: Notes) -> dict:
         doc = {"sha": c.sha, "short": c.short, "subject": c.subject, "parents": list(c.parents),
                "paths": list(c.paths), "changed_models": c.changed_models}
         if notes.mode == "per-commit":
-            doc["models"] = [_model_doc(md) for md in c.diffs]
+            doc["models"] = _PIECE.format(c.rendered) if c.rendered is not None else [_model_doc(md) for md in c.diffs]
         commits.append(doc)
     return {"format": 1, "range": notes.range, "mode": notes.mode, "start": notes.start, "end": notes.end,
             "commits": commits, "models": [_model_doc(md) for md in notes.models],
             "summary": {"commits": len(notes.commits), "changing_models": sum(c.changed_models for c in notes.commits),
                         "verdict": worst(d.result.verdict for d in notes.models)}}
+
+
+def write_json(notes: Notes, stream: TextIO, spool: Spool | None = None) -> None:
+    """`notes_json` written out, each commit rendered ahead read back from `spool` in its place."""
+    parts = _PIECE_JSON.split(json.dumps(notes_json(notes), indent=2))
+    for index, part in enumerate(parts):
+        stream.write(spool.text(int(part)) if index % 2 else part)
+    stream.write("\n")
 
 
 # --- the command ----------------------------------------------------------------------------------
@@ -286,11 +375,17 @@ def run(args, stdout: TextIO) -> int:
 
     split_range(args.range)  # a bad range is a usage error before git is touched
     root = git.repo_root(args.repo)
-    notes = read_notes(root, args.range, args.mode)
-    if args.format == "json":
-        json.dump(notes_json(notes), stdout, indent=2)
-        stdout.write("\n")
-    else:
-        as_markdown(notes, stdout)
+    spool = Spool()
+    try:
+        piece = commit_models_json if args.format == "json" else commit_markdown
+        render = (lambda c: spool.add(piece(c)) if c.changed_models or args.format == "json" else None)
+        with git.session(root):  # one open repository for the whole walk
+            notes = read_notes(root, args.range, args.mode, render)
+        if args.format == "json":
+            write_json(notes, stdout, spool)
+        else:
+            as_markdown(notes, stdout, spool)
+    finally:
+        spool.close()
     return 0
 

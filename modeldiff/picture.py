@@ -279,6 +279,40 @@ def _words(names) -> str:
     return and_list(names)
 
 
+READABLE_NODES = 40  # tables a diagram in Markdown shows at most: beyond a few dozen it is not read (nor rendered)
+
+
+def readable(pic: Picture, max_nodes: int = READABLE_NODES) -> Picture:
+    """`pic` cut to at most `max_nodes` tables, nearest to what changed first; the caption says what was left out.
+
+    Kept in this order until the limit: the tables of changed (red) links, in
+    the order the links are drawn; the tables on new filter paths; the other
+    tables (the neighbours `diff_picture` keeps). Arrows are kept between kept
+    tables and numbered again, so `linkStyle` indices stay right.
+    """
+    if len(pic.nodes) <= max_nodes:
+        return pic
+    order: list[str] = []
+    for arrow in pic.arrows:
+        if arrow.red:
+            order += [arrow.src, arrow.dst]
+    order += [n.table for n in pic.nodes if n.on_new_path]
+    order += [n.table for n in pic.nodes]
+    kept = list(dict.fromkeys(order))[:max_nodes]
+    keep = set(kept)
+    nodes = tuple(n for n in pic.nodes if n.table in keep)
+    arrows: list[Arrow] = []
+    for arrow in pic.arrows:
+        if arrow.src in keep and arrow.dst in keep:
+            arrows.append(Arrow(len(arrows), arrow.link, arrow.src, arrow.dst, arrow.style, arrow.changed))
+    red_left = sum(1 for a in pic.arrows if a.red) - sum(1 for a in arrows if a.red)
+    caption = (f"{pic.model}: showing {len(nodes)} of the {len(pic.nodes)} tables near what changed "
+               f"(the changed links' own tables first); {len(pic.nodes) - len(nodes)} tables and "
+               f"{len(pic.arrows) - len(arrows)} links left out"
+               + (f", {red_left} of them changed" if red_left else "") + ". The HTML report and `modeldiff graph` draw more.")
+    return Picture(pic.model, nodes, tuple(arrows), caption, pic.setting)
+
+
 # --- Mermaid ------------------------------------------------------------------------------------
 
 

@@ -7,7 +7,7 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parent.parent
 sys.path.insert(0, str(ROOT / "benchmarks"))
-from synth import synthetic_model_text  # noqa: E402,F401 (re-exported)
+from synth import ordinary_changes, synthetic_model_text  # noqa: E402,F401 (re-exported)
 
 SMALL = dict(tables=30, links=45, measures=120, roles=6)
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import re
 import subprocess
 import sys
 from pathlib import Path
@@ -19,3 +20,16 @@ def test_benchmark_smoke_run_prints_the_ratio_lines():
         "ratio check", "ratio diff, one link flipped"]
     assert all("json.loads of both revisions" in line for line in ratios[:3])
     assert all("PyYAML's C loader" in line for line in ratios[3:])
+
+
+def test_history_smoke_run_prints_a_line_per_count_of_commits():
+    done = subprocess.run([sys.executable, str(ROOT / "benchmarks" / "history.py"), "--smoke"],
+                          capture_output=True, text=True, timeout=300, cwd=ROOT)
+    assert done.returncode == 0, done.stderr
+    lines = [line for line in done.stdout.splitlines() if line.startswith("history ")]
+    assert [line.split(":")[0] for line in lines] == ["history 6 commits", "history 12 commits"]
+    for line in lines:
+        assert re.search(r"per-commit notes cold [0-9.]+ s .* warm [0-9.]+ s .* squashed [0-9.]+ s; "
+                         r"peak memory [0-9]+ MB", line), line
+    table = done.stdout.split("\n\n")[1].splitlines()
+    assert table[0].split()[:2] == ["commits", "per-commit"] and [row.split()[0] for row in table[1:]] == ["6", "12"]

@@ -864,3 +864,12 @@ def test_the_scripts_idea_of_a_model_file_agrees_with_git_model_path_of():
     for number, path in enumerate(paths, 1):
         assert (number in matched) is (gitmod.model_path_of(path) is not None), path
     assert matched and len(matched) < len(paths)  # both answers occur
+
+
+def test_the_hooks_message_groups_what_follows_under_its_cause(gated):
+    commit(gated.work, "drop fare revenue", {MODEL: BREAKING})
+    pushed = gated.push("origin", "main")
+    assert pushed.code != 0
+    head, _, rest = pushed.out.partition("by cause (most severe first)")
+    assert rest and "verdict: breaking" in head  # the summary by cause follows the verdict
+    assert " report" in rest.split("\n\n")[0]  # the impacted report is counted under its cause

@@ -120,7 +120,7 @@ def _role_extras(i: Impact) -> str:
 
 
 def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
-    from modeldiff.render import TextOut
+    from modeldiff.render import TextOut, causes_out
 
     out = TextOut(stream)
     for md in diffs:
@@ -136,6 +136,7 @@ def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
                  f" ({counts['breaking']} breaking, {counts['numbers']} can move numbers, {counts['safe']} safe)")
         if any(c.kind == "security.exposed" for c in r.changes):
             out.paragraph(SECURITY_CAUTION, 4, "  ", ("SECURITY:", "bold red"), " ")
+        causes_out.write_text(out, r)
         for severity in reversed(SEVERITIES):
             group = [c for c in r.changes if c.severity == severity]
             if not group:
@@ -195,13 +196,14 @@ def _md_reason(x: Reason, kinds: dict[str, str]) -> str:
 
 def _md_diagrams(diffs: Sequence[ModelDiff]) -> list[str]:
     """A Mermaid picture of each model whose links or filter paths changed (GitHub renders the fence)."""
-    from modeldiff.picture import diff_picture, mermaid_of
+    from modeldiff.picture import diff_picture, mermaid_of, readable
 
     lines: list[str] = []
     for md in diffs:
         pic = diff_picture(md.result)
         if pic is None:
             continue
+        pic = readable(pic)
         name = md.result.new.name or md.result.old.name
         lines += ["", f"**Filter graph of `{name}`**: arrows point the way a filter travels; changed links are red, "
                   "tables a filter now reaches along a new path are outlined in red, dotted links carry no filter.", "",
@@ -212,6 +214,8 @@ def _md_diagrams(diffs: Sequence[ModelDiff]) -> list[str]:
 
 
 def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
+    from modeldiff.render import causes_out
+
     lines = ["## modeldiff", "", "| model | verdict | breaking | can move numbers | safe | impacted measures | roles | reports |",
              "|---|---|---|---|---|---|---|---|"]
     for md in diffs:
@@ -225,6 +229,8 @@ def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
         lines += ["", f"### `{r.new.name or r.old.name}`: `{_side(md.old)}` → `{_side(md.new)}`", ""]
         if any(c.kind == "security.exposed" for c in r.changes):
             lines += [f"> **SECURITY:** {SECURITY_CAUTION}", ""]
+        by_cause = causes_out.markdown_lines(r)
+        lines += by_cause + ([""] if by_cause else [])
         if not r.changes and not r.new_errors:
             lines.append("No changes.")
             continue

@@ -2,9 +2,12 @@
 
 Summary, changes, impacts, the security caution when rows can be exposed,
 and the filter graph drawn as inline SVG (render/svg.py) with its Mermaid
-source folded beneath for copy-paste. No script, no stylesheet, font or
-image from the network: the file opens the same offline, attached to a CI
-run or mailed. Every text from the models is escaped.
+source folded beneath for copy-paste. Nothing from the network (no script,
+stylesheet, font or image fetched): the file opens the same offline, attached
+to a CI run or mailed; its one inline script drives the search box and the
+filters (render/html_scale.py), and the page reads whole without it. Changes
+are grouped by cause and long lists start folded. Every text from the
+models is escaped.
 """
 
 from __future__ import annotations
@@ -64,12 +67,15 @@ def _summary_table(diffs: Sequence[ModelDiff]) -> list[str]:
     return out
 
 
-def _changes_table(changes) -> list[str]:
+def _changes_table(changes, result=None) -> list[str]:
+    from modeldiff.render.html_scale import change_attrs
+
     order = {s: n for n, s in enumerate(reversed(SEVERITIES))}
     out = ['<table class="changes"><thead><tr><th>id</th><th>severity</th><th>kind</th><th>subject</th>'
            "<th>what it means</th></tr></thead><tbody>"]
     for c in sorted(changes, key=lambda c: order[c.severity]):
-        out.append(f"<tr><td>{escape(c.id)}</td><td>{_sev(c.severity)}</td><td><code>{escape(c.kind)}</code></td>"
+        row = change_attrs(result, c) if result is not None else ""
+        out.append(f"<tr{row}><td>{escape(c.id)}</td><td>{_sev(c.severity)}</td><td><code>{escape(c.kind)}</code></td>"
                    f"<td><code>{escape(c.subject)}</code></td><td>{escape(c.message)}</td></tr>")
     out.append("</tbody></table>")
     return out
@@ -80,11 +86,22 @@ def _role_extras(i) -> str:
                      (("exposed", i.exposed), ("tightened", i.tightened), ("rerouted", i.rerouted)) if tables)
 
 
-def _impacts(title: str, impacts, kinds: dict[str, str]) -> list[str]:
-    out = [f"<h3>Impacted {escape(title)} ({len(impacts)})</h3>", '<ul class="impacts">']
+def _impacts(title: str, impacts, kinds: dict[str, str], result=None) -> list[str]:
+    from modeldiff.render.html_scale import folded
+
+    if result is not None:  # collapsible, each item filterable
+        return folded(f"Impacted {title}", len(impacts), _impact_items(title, impacts, kinds, result))
+    return [f"<h3>Impacted {escape(title)} ({len(impacts)})</h3>", *_impact_items(title, impacts, kinds, None)]
+
+
+def _impact_items(title: str, impacts, kinds: dict[str, str], result) -> list[str]:
+    from modeldiff.render.html_scale import impact_attrs
+
+    out = ['<ul class="impacts">']
     for i in impacts:
         extra = _role_extras(i)
-        out.append(f"<li><strong>{escape(i.name)}</strong> {_sev(i.severity)}"
+        item = impact_attrs(result, title, i, kinds) if result is not None else ""
+        out.append(f"<li{item}><strong>{escape(i.name)}</strong> {_sev(i.severity)}"
                    + (f" <strong>{escape(extra)}</strong>" if extra else ""))
         if i.reasons:
             out.append('<ul class="reasons">')
@@ -158,6 +175,18 @@ def _role_views(md: ModelDiff, number: int) -> list[str]:
     return out
 
 
+def _by_cause(result) -> list[str]:
+    from modeldiff.render.html_scale import cause_groups
+
+    return cause_groups(result)
+
+
+def _folded_changes(result) -> list[str]:
+    from modeldiff.render.html_scale import folded
+
+    return folded("Changes", len(result.changes), _changes_table(result.changes, result))
+
+
 def _model_section(md: ModelDiff, number: int) -> list[str]:
     r = md.result
     name = r.new.name or r.old.name
@@ -172,7 +201,8 @@ def _model_section(md: ModelDiff, number: int) -> list[str]:
     c = r.counts()
     out.append(f"<p>Verdict: {_sev(r.verdict)} ({c['breaking']} breaking, {c['numbers']} can move numbers, "
                f"{c['safe']} safe).</p>")
-    out += ["<h3>Changes</h3>"] + _changes_table(r.changes)
+    out += _by_cause(r)
+    out += _folded_changes(r)
     if r.new_errors:
         out += ["<h3>Errors in the new revision</h3>", "<ul>"]
         out += [f"<li><code>{escape(f.rule)}</code> <code>{escape(f.subject)}</code>: {escape(f.message)}</li>"
@@ -182,7 +212,7 @@ def _model_section(md: ModelDiff, number: int) -> list[str]:
     out += _role_views(md, number)
     for title, impacts in (("measures", r.measures), ("roles", r.roles), ("reports", r.reports)):
         if impacts:
-            out += _impacts(title, impacts, kinds)
+            out += _impacts(title, impacts, kinds, r)
     out.append("</section>")
     return out
 
@@ -192,12 +222,21 @@ def document(diffs: Sequence[ModelDiff]) -> str:
     body = [f"<h1>modeldiff: {escape(names)}</h1>",
             f"<p>Overall verdict: {_sev(verdict_of(diffs))}. Arrows in the graphs point the way a filter travels.</p>"]
     body += _summary_table(diffs)
+    body += _filter_bar(diffs)
     for number, md in enumerate(diffs, 1):
         body += _model_section(md, number)
+    from modeldiff.render.html_scale import CSS, SCRIPT
+
     return "\n".join(['<!DOCTYPE html>', '<html lang="en">', "<head>", '<meta charset="utf-8">',
                       '<meta name="viewport" content="width=device-width, initial-scale=1">',
-                      f"<title>modeldiff: {escape(names)}</title>", f"<style>{_CSS}</style>", "</head>", "<body>",
-                      *body, "</body>", "</html>"]) + "\n"
+                      f"<title>modeldiff: {escape(names)}</title>", f"<style>{_CSS}{CSS}</style>", "</head>", "<body>",
+                      *body, f"<script>{SCRIPT}</script>", "</body>", "</html>"]) + "\n"
+
+
+def _filter_bar(diffs: Sequence[ModelDiff]) -> list[str]:
+    from modeldiff.render.html_scale import filter_bar
+
+    return filter_bar(diffs)
 
 
 def as_html(diffs: Sequence[ModelDiff], stream: TextIO) -> None:

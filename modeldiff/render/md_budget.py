@@ -1,0 +1,194 @@
+"""`diff --format markdown` within a budget of characters, so it fits where it is read.
+
+A pull-request comment holds 65,536 characters (`COMMENT`, the default); a CI
+job summary 1 MiB (`--budget 1048576`); `--budget none` writes everything.
+When the whole Markdown (`diff_out.as_markdown`) fits, it is written as is.
+Otherwise, in this order and always whole:
+
+1. the table of models and verdicts;
+2. per model: the security caution, the summary by cause, every breaking
+   change whole (id, kind, subject, message) and the new revision's errors;
+
+then, while they fit, each in a folded `<details>` block that says how many it
+holds: the diagram (already cut to a readable size), the changes that can move
+numbers and the safe ones, then the impacted roles, reports and measures, one
+row at a time. Whatever did not fit is counted on a last line, which says how
+to get all of it (`--format json`, `--format html`, `--budget none`).
+
+Should the breaking changes alone not fit, the ones that do are written whole
+and the others by id, kind and subject only (each line says so), still within
+the budget when at all possible: the budget wins over completeness only for
+what cannot be listed in a line each.
+"""
+
+from __future__ import annotations
+
+import io
+from typing import Sequence, TextIO
+
+COMMENT = 65_536  # characters in a pull-request comment
+JOB_SUMMARY = 1_048_576  # bytes in a CI job summary (1 MiB)
+ROW_LIMIT = 400  # characters of an impacted item's line (its reasons cut short past it; all are in JSON and HTML)
+_RESERVE = 1_200  # kept free for the closing lines and the note of what was left out
+
+
+def parse_budget(text: str) -> int | None:
+    """`none` -> None; a whole number of characters (at least 2,000), optionally with a k/K or M/Mi suffix."""
+    from modeldiff.errors import UsageError
+
+    word = text.strip().lower()
+    if word == "none":
+        return None
+    scale = 1
+    for suffix, factor in (("mib", 1 << 20), ("mi", 1 << 20), ("m", 1 << 20), ("kib", 1 << 10), ("k", 1 << 10)):
+        if word.endswith(suffix):
+            word, scale = word[: -len(suffix)], factor
+            break
+    if not word.isdigit() or int(word) * scale < 2_000:
+        raise UsageError(f"--budget {text!r}: give a number of characters of at least 2000 (e.g. 65536 or 1MiB), "
+                         "or none")
+    return int(word) * scale
+
+
+class _Writer:
+    """Lines kept while they fit in the budget; what did not fit is counted by what it was."""
+
+    def __init__(self, budget: int) -> None:
+        self.budget = budget
+        self.lines: list[str] = []
+        self.size = 0
+        self.left_out: dict[str, int] = {}
+
+    def room(self) -> int:
+        return self.budget - _RESERVE - self.size
+
+    def fits(self, lines: Sequence[str]) -> bool:
+        return sum(len(line) + 1 for line in lines) <= self.room()
+
+    def add(self, lines: Sequence[str]) -> None:
+        self.lines += lines
+        self.size += sum(len(line) + 1 for line in lines)
+
+    def skip(self, what: str, n: int = 1) -> None:
+        if n:
+            self.left_out[what] = self.left_out.get(what, 0) + n
+
+    def folded(self, summary: str, header: Sequence[str], rows: Sequence[str], what: str, share: int = 1) -> None:
+        """A <details> block of as many `rows` as fit in 1/`share` of the room left (its summary says how many)."""
+        opening = ["", f"<details><summary>{summary}</summary>", "", *header]
+        closing = ["", "</details>"]
+        room = self.room() // max(1, share)
+        used = sum(len(line) + 1 for line in opening + closing) + 40
+        kept: list[str] = []
+        for row in rows:
+            if used + len(row) + 1 > room:
+                break
+            kept.append(row)
+            used += len(row) + 1
+        if kept:
+            shown = summary if len(kept) == len(rows) else f"{summary}: the first {len(kept)} shown"
+            opening[1] = f"<details><summary>{shown}</summary>"
+            self.add(opening + kept + closing)
+        self.skip(what, len(rows) - len(kept))
+
+
+def _full(diffs) -> str:
+    from modeldiff.render import diff_out
+
+    out = io.StringIO()
+    diff_out.as_markdown(diffs, out)
+    return out.getvalue()
+
+
+def as_markdown(diffs: Sequence, stream: TextIO, budget: int | None = COMMENT) -> None:
+    """The Markdown of `diffs` within `budget` characters (None: everything, `diff_out.as_markdown`)."""
+    whole = _full(diffs)
+    if budget is None or len(whole) <= budget:
+        stream.write(whole)
+        return
+    del whole
+    stream.write(shortened(diffs, budget))
+
+
+def _left_out_line(left_out: dict[str, int], budget: int) -> str:
+    counted = ", ".join(f"{n:,} {what}" for what, n in left_out.items())
+    return (f"_Shortened to fit {budget:,} characters; left out: {counted}. Everything is in "
+            "`--format json` and `--format html`, or here with `--budget none` (a CI job summary takes "
+            "`--budget 1MiB`)._")
+
+
+def _impact_row(i, kinds: dict[str, str]) -> str:
+    from modeldiff.render.diff_out import _md, _md_reason, _role_extras
+
+    why = "; ".join(_md_reason(x, kinds) for x in i.reasons)
+    extra = _role_extras(i)
+    row = f"- **{i.name}** ({i.severity})" + (f" — **{_md(extra)}**" if extra else "") + f": {_md(why)}"
+    return row if len(row) <= ROW_LIMIT else row[:ROW_LIMIT - 1] + "…"
+
+
+def shortened(diffs: Sequence, budget: int) -> str:
+    """The budgeted layout (see the module docstring)."""
+    from modeldiff.render import causes_out
+    from modeldiff.render.diff_out import SECURITY_CAUTION, _md, _side
+
+    w = _Writer(budget)
+    w.add(["## modeldiff", "", "| model | verdict | breaking | can move numbers | safe | impacted measures | roles | "
+           "reports |", "|---|---|---|---|---|---|---|---|"])
+    for md in diffs:
+        r, c = md.result, md.result.counts()
+        w.add([f"| `{r.new.name or r.old.name}` | **{r.verdict}** | {c['breaking']} | {c['numbers']} | {c['safe']} | "
+               f"{len(r.measures)} | {len(r.roles)} | {len(r.reports)} |"])
+    header = ["| id | kind | subject | what it means |", "|---|---|---|---|"]
+    # first pass: what is always written, for every model
+    for md in diffs:
+        r = md.result
+        w.add(["", f"### `{r.new.name or r.old.name}`: `{_side(md.old)}` → `{_side(md.new)}`", ""])
+        if any(c.kind == "security.exposed" for c in r.changes):
+            w.add([f"> **SECURITY:** {SECURITY_CAUTION}", ""])
+        if not r.changes and not r.new_errors:
+            w.add(["No changes."])
+            continue
+        by_cause = causes_out.markdown_lines(r)
+        if by_cause:
+            w.add(by_cause + [""])
+        breaking = [c for c in r.changes if c.severity == "breaking"]
+        if breaking:
+            w.add([f"#### Breaking changes ({len(breaking)})", "", *header])
+            for c in breaking:
+                row = f"| {c.id} | `{c.kind}` | `{c.subject}` | {_md(c.message)} |"
+                if not w.fits([row]):
+                    row = f"| {c.id} | `{c.kind}` | `{c.subject}` | (message left out for length) |"
+                    w.skip("messages of breaking changes")
+                w.add([row])
+        if r.new_errors:
+            w.add(["", "**Errors in the new revision:**", ""]
+                  + [f"- `{f.rule}` `{f.subject}`: {_md(f.message)}" for f in r.new_errors])
+    # second pass: the rest, folded, while it fits
+    from modeldiff.render.diff_out import _md_diagrams
+
+    for md in diffs:
+        r = md.result
+        diagram = _md_diagrams([md])
+        if diagram:
+            if w.fits(diagram):
+                w.add(diagram)
+            else:
+                w.skip("diagrams")
+        kinds = {c.id: c.kind for c in r.changes}
+        sections = []
+        for title, impacts in (("roles", r.roles), ("reports", r.reports)):
+            sections.append((f"impacted {title}", [], [_impact_row(i, kinds) for i in impacts]))
+        for severity, title in (("numbers", "changes that can move numbers"), ("safe", "safe changes")):
+            rows = [f"| {c.id} | `{c.kind}` | `{c.subject}` | {_md(c.message)} |" for c in r.changes
+                    if c.severity == severity]
+            sections.append((title, header, rows))
+        sections.insert(3, ("impacted measures", [], [_impact_row(i, kinds) for i in r.measures]))
+        sections = [s for s in sections if s[2]]
+        w.skip("reasons of impacted items (lines cut short)",
+               sum(row.endswith("…") for _, _, rows in sections if rows[:1] and rows[0].startswith("- ") for row in rows))
+        for index, (title, head, rows) in enumerate(sections):
+            w.folded(f"{len(rows)} {title} in `{r.new.name or r.old.name}`", head, rows, title,
+                     share=len(sections) - index)
+    if w.left_out:
+        w.add(["", "---", "", _left_out_line(w.left_out, budget)])
+    return "\n".join(w.lines) + "\n"

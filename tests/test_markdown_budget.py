@@ -1,0 +1,153 @@
+"""`diff --format markdown` within a budget (render/md_budget.py) and diagrams cut to a readable size.
+
+The large change: a synthetic model (benchmarks/synth.py) of 300 tables and 3,000 measures after 30 ordinary
+changes (links made two-way, conditions edited, descriptions touched): about 1.4 MB of Markdown in full,
+with some hundred breaking changes; small enough to analyse in a second or two.
+"""
+
+from __future__ import annotations
+
+import io
+import re
+from pathlib import Path
+
+import pytest
+from scenariokit import ordinary_changes, synthetic_model_text
+
+from modeldiff import cli, impact, load
+from modeldiff.compare import ModelDiff, Side
+from modeldiff.picture import Arrow, Node, Picture, diff_picture, readable
+from modeldiff.render import diff_out, md_budget
+
+EXAMPLES = Path(__file__).parent.parent / "examples"
+COMMENT = 65_536
+
+
+@pytest.fixture(scope="module")
+def large(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("large")
+    old = synthetic_model_text(tables=300, links=450, measures=3000, roles=10)
+    new = ordinary_changes(old, 30)
+    (folder / "old").mkdir()
+    (folder / "new").mkdir()
+    (folder / "old" / "synthetic.model.yaml").write_text(old)
+    (folder / "new" / "synthetic.model.yaml").write_text(new)
+    a, b = load.load_files([("old.model.yaml", old)]), load.load_files([("new.model.yaml", new)])
+    result = impact.analyse(a.model, b.model, a.findings, b.findings)
+    return folder, result
+
+
+def _diff(folder: Path, *argv: str) -> tuple[int, str, str]:
+    out, err = io.StringIO(), io.StringIO()
+    code = cli.main(["diff", str(folder / "old" / "synthetic.model.yaml"), str(folder / "new" / "synthetic.model.yaml"),
+                     "--format", "markdown", "--no-cache", *argv], out, err)
+    return code, out.getvalue(), err.getvalue()
+
+
+def _breaking_rows(result) -> list[str]:
+    return [f"| {c.id} | `{c.kind}` | `{c.subject}` | {diff_out._md(c.message)} |"
+            for c in result.changes if c.severity == "breaking"]
+
+
+def test_the_large_change_fits_a_comment_with_every_breaking_change_whole(large):
+    folder, result = large
+    code, full, _ = _diff(folder, "--budget", "none")
+    assert len(full) > COMMENT  # without the budget it would not fit
+    code, text, err = _diff(folder)
+    assert (code, err) == (3, "")
+    assert len(text) <= COMMENT
+    rows = _breaking_rows(result)
+    assert len(rows) >= 20
+    lines = set(text.splitlines())
+    assert [row for row in rows if row not in lines] == []  # every breaking change, whole
+    assert text.count("**By cause**") == 1
+    last = text.rstrip("\n").splitlines()[-1]
+    assert last.startswith("_Shortened to fit 65,536 characters; left out: ")
+    assert "`--format json`" in last and "`--format html`" in last and "`--budget none`" in last
+    assert re.search(r"[0-9,]+ changes that can move numbers", last)
+    # what is folded says how many it holds and how many it shows
+    assert re.search(r"<details><summary>\d+ impacted measures in `synthetic`: the first \d+ shown</summary>", text)
+
+
+def test_budget_none_is_the_whole_markdown(large):
+    folder, result = large
+    _, text, _ = _diff(folder, "--budget", "none")
+    whole = io.StringIO()
+    diff_out.as_markdown([ModelDiff(Side(None, str(folder / "old" / "synthetic.model.yaml")),
+                                     Side(None, str(folder / "new" / "synthetic.model.yaml")), result)], whole)
+    assert text == whole.getvalue() and "Shortened to fit" not in text
+
+
+def test_a_job_summary_budget_holds_more(large):
+    folder, result = large
+    _, summary, _ = _diff(folder, "--budget", "1MiB")
+    assert COMMENT < len(summary) <= 1 << 20
+    # here every row fits once each impacted item's line is cut short, and the last line says so
+    last = summary.rstrip("\n").splitlines()[-1]
+    assert last.startswith("_Shortened to fit 1,048,576 characters; left out: ")
+    assert "reasons of impacted items (lines cut short)" in last and "changes that can move numbers" not in last
+    listed = re.findall(r"^- \*\*(m\d+)\*\* \(", summary, flags=re.M)
+    assert sorted(listed) == sorted(m.name for m in result.measures)
+
+
+def test_a_change_that_fits_is_written_whole_without_a_note():
+    out, err = io.StringIO(), io.StringIO()
+    code = cli.main(["diff", str(EXAMPLES / "bikeshare.model.yaml"), str(EXAMPLES / "revision-2" / "bikeshare.model.yaml"),
+                     "--format", "markdown", "--no-cache"], out, err)
+    whole = io.StringIO()
+    cli.main(["diff", str(EXAMPLES / "bikeshare.model.yaml"), str(EXAMPLES / "revision-2" / "bikeshare.model.yaml"),
+              "--format", "markdown", "--no-cache", "--budget", "none"], whole, io.StringIO())
+    assert code == 3 and out.getvalue() == whole.getvalue() and "Shortened" not in out.getvalue()
+
+
+def test_breaking_changes_beyond_a_tiny_budget_are_still_named(large):
+    _, result = large
+    md = ModelDiff(Side(None, "old"), Side(None, "new"), result)
+    text = md_budget.shortened([md], 4_000)
+    for c in result.changes:
+        if c.severity == "breaking":
+            assert f"| {c.id} | `{c.kind}` | `{c.subject}` |" in text
+    assert "messages of breaking changes" in text.splitlines()[-1]
+
+
+@pytest.mark.parametrize("value", ["12", "lots", "-5", "1.5M"])
+def test_a_bad_budget_is_one_line_and_exit_2(value):
+    out, err = io.StringIO(), io.StringIO()
+    code = cli.main(["diff", str(EXAMPLES / "bikeshare.model.yaml"), str(EXAMPLES / "bikeshare.model.yaml"),
+                     "--format", "markdown", "--budget", value], out, err)
+    assert code == 2 and out.getvalue() == "" and len(err.getvalue().strip().splitlines()) == 1
+    assert "--budget" in err.getvalue()
+
+
+def test_budget_goes_with_markdown_only():
+    out, err = io.StringIO(), io.StringIO()
+    code = cli.main(["diff", str(EXAMPLES / "bikeshare.model.yaml"), str(EXAMPLES / "bikeshare.model.yaml"),
+                     "--format", "json", "--budget", "1MiB"], out, err)
+    assert code == 2 and "--budget goes with --format markdown" in err.getvalue()
+
+
+@pytest.mark.parametrize("text, expected", [("none", None), ("65536", 65536), ("1MiB", 1 << 20), ("64k", 65536)])
+def test_budget_values(text, expected):
+    assert md_budget.parse_budget(text) == expected
+
+
+def test_a_large_diagram_is_cut_to_the_changed_links_and_their_nearest_tables(large):
+    _, result = large
+    full = diff_picture(result)
+    cut = readable(full)
+    assert len(full.nodes) > 40 and len(cut.nodes) <= 40
+    red = {(a.link, a.src, a.dst) for a in full.arrows if a.red}
+    kept = {n.table for n in cut.nodes}
+    # every changed link whose two tables were kept is still drawn red; the first changed links always are
+    assert {(a.link, a.src, a.dst) for a in cut.arrows if a.red} == {r for r in red if r[1] in kept and r[2] in kept}
+    first = next(a for a in full.arrows if a.red)
+    assert {first.src, first.dst} <= kept
+    assert [a.index for a in cut.arrows] == list(range(len(cut.arrows)))  # linkStyle indices counted again
+    assert f"showing {len(cut.nodes)} of the {len(full.nodes)} tables" in cut.caption
+    assert "left out" in cut.caption
+
+
+def test_a_small_diagram_is_left_as_it_is():
+    nodes = tuple(Node(f"t_{n}", n, "dimension") for n in "abc")
+    pic = Picture("m", nodes, (Arrow(0, "l", "a", "b", "one-way", True),), None)
+    assert readable(pic) is pic
