@@ -584,44 +584,12 @@ class _Source:
         return self._result
 
 
-class _Section(Mapping):
-    """A section (or the positions) of a model that is read from its files on first use."""
-
-    __slots__ = ("_source", "_field", "_data")
-
-    def __init__(self, source: _Source, field: str) -> None:
-        self._source = source
-        self._field = field
-        self._data: Mapping | None = None
-
-    def _items(self) -> Mapping:
-        if self._data is None:
-            self._data = getattr(self._source.result().model, self._field)
-        return self._data
-
-    def __getitem__(self, key: str) -> Any:
-        return self._items()[key]
-
-    def __iter__(self) -> Iterator[str]:
-        return iter(self._items())
-
-    def __len__(self) -> int:
-        return len(self._items())
-
-    def __repr__(self) -> str:
-        return f"<{self._field}, read on first use>" if self._data is None else repr(self._data)
-
-    def __reduce__(self):
-        return (dict, (dict(self._items()),))
-
-
 def deferred_model(name: str, fmt: int, files: Files):
     """A Model whose sections and positions are read from `files` on first use; name and format are known."""
-    from modeldiff.model import SECTIONS, Model
+    from modeldiff import model
 
     source = _Source(files)
-    sections = {section: _Section(source, section) for section in SECTIONS}
-    return Model(name=name, format=fmt, positions=_Section(source, "positions"), **sections)
+    return model.deferred_model(name, fmt, lambda: source.result().model)
 
 
 # --------------------------------------------------------------------------- the three kinds of entry

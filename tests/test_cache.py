@@ -29,7 +29,7 @@ def folder(tmp_path, monkeypatch):
 
 # a model section read from its files on first use: the cache's own, or the compared revision's
 # (a comparison found in the cache reads its models through the revisions being compared)
-DEFERRED = (cache._Section, model.DeferredSection)
+DEFERRED = model.DeferredSection
 
 
 def _json(md) -> str:
@@ -244,7 +244,7 @@ def test_a_repeated_check_comes_from_the_cache_and_says_the_same(folder):
     first = compare.check_spec(str(OLD))
     assert len(_checks(folder)) == 1
     again_label, again_model, again = compare.check_spec(str(OLD))
-    assert isinstance(again_model.tables, cache._Section)  # from the cache: nothing parsed
+    assert isinstance(again_model.tables, DEFERRED)  # from the cache: nothing parsed
     assert (again_label, again) == (first[0], first[2]) == (label, fresh)
     assert again_model == model and again_model.name == model.name
 
@@ -255,7 +255,7 @@ def test_a_changed_model_is_checked_afresh(folder, tmp_path):
     compare.check_spec(str(copy))
     copy.write_bytes(OLD.read_bytes().replace(b"model: bikeshare", b"model: bikeshare_two", 1))
     _, model, _ = compare.check_spec(str(copy))
-    assert not isinstance(model.tables, cache._Section)
+    assert not isinstance(model.tables, DEFERRED)
     assert model.name == "bikeshare_two"
     assert len(_checks(folder)) == 2
 
@@ -321,7 +321,7 @@ def test_a_valid_entry_moved_under_another_key_is_not_believed(folder, tmp_path)
     target.write_bytes(same.read_bytes())
     again = compare.compare_specs(str(OLD), str(NEW))
     assert again.result.verdict == fresh.result.verdict != "safe"
-    assert not isinstance(again.result.new.tables, cache._Section)
+    assert not isinstance(again.result.new.tables, DEFERRED)
 
 
 def test_a_signed_entry_of_the_wrong_shape_is_a_miss_and_removed(folder):
@@ -392,7 +392,7 @@ def test_a_key_file_others_may_read_is_replaced(folder):
     key.chmod(0o644)
     cache._SECRETS.clear()
     again = compare.compare_specs(str(OLD), str(NEW))
-    assert not isinstance(again.result.new.tables, cache._Section)  # old entries were signed by a shown key
+    assert not isinstance(again.result.new.tables, DEFERRED)  # old entries were signed by a shown key
     assert key.read_bytes() != before and key.stat().st_mode & 0o777 == 0o600
 
 
@@ -402,11 +402,11 @@ def test_a_key_from_the_environment_signs_instead(folder, monkeypatch):
     cache._SECRETS.clear()
     monkeypatch.setenv(cache.KEY_ENV, "another secret")
     again = compare.compare_specs(str(OLD), str(NEW))
-    assert not isinstance(again.result.new.tables, cache._Section)
+    assert not isinstance(again.result.new.tables, DEFERRED)
     cache._SECRETS.clear()
     monkeypatch.setenv(cache.KEY_ENV, "another secret")
     third = compare.compare_specs(str(OLD), str(NEW))
-    assert isinstance(third.result.new.tables, cache._Section)
+    assert isinstance(third.result.new.tables, DEFERRED)
 
 
 def test_every_scenario_comes_back_from_an_entry_equal():
