@@ -77,7 +77,9 @@ def test_report_is_well_formed_with_summary_changes_impacts_and_graph():
     tables = [a.get("class") for t, a in p.seen if t == "table"]
     assert tables == ["summary", "changes"]
     causes = [a for t, a in p.seen if t == "details" and a.get("class") == "cause"]
-    assert len(causes) == 1 and causes[0]["data-severity"] == "breaking"  # the two-way link, with what follows
+    # the two-way link with what follows, then the check warning the flip makes new (a cause of its own)
+    assert [(c["data-severity"], c.get("data-kind")) for c in causes][1:] == [("safe", "warning.added")]
+    assert causes[0]["data-severity"] == "breaking"
     text = "".join(p.text)
     assert "Impacted measures (3)" in text and "stock_value" in text and "station_stock" in text
     changed = [a["data-link"] for t, a in p.seen if t == "g" and a.get("class") == "edge changed"]
