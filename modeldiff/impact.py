@@ -3,30 +3,36 @@
 `analyse(old, new)` runs the structural diff, compares the filter graphs of
 both revisions around what changed, and lists the measures, roles and reports
 that could return different numbers, each with reasons naming the change, the
-source table and the paths added and removed (changes.md, "Impact").
+source table and the paths added and removed, or a route through the changed
+edge (changes.md, "Impact"; docs/impact.md).
 
-Work goes outward from the changed edges: only pairs (S, X) with S upstream
-of a changed edge and X downstream of it are compared, never all pairs. The
-old graph is first read in the new revision's names, so a renamed table or
-link is the same node or edge in both graphs and changes no path.
+Impact is decided by reach, not by simple paths: a changed edge U -> W of a
+computation's setting (in one graph only, or its link's columns switched)
+moves every table reachable from W under a filter on any table reaching U,
+old graph or new. Work goes outward from the changed edges: they are found
+once per distinct setting, and only reach sets of their ends are computed.
+The old graph is first read in the new revision's names, so a renamed table
+or link is the same node or edge in both graphs and changes nothing.
 
 Settings (DEVELOPERS.md, "Decisions where the spec is silent"): a measure on
-its own is evaluated in the model plus every variant's default option plus its
-own overrides; inside a report, the variant options the report chooses (the
-default for the others), the report's overrides, then the measure's. A
-report's numbers move through path changes only from the tables it places
-filters on (`by`, `where`, and its variant options' `where`).
+its own is evaluated in the model plus every variant's default option plus
+its own overrides (a derived measure's, outermost first, before those of the
+base measures it reaches); inside a report, the variant options the report
+chooses (the default for the others), the report's overrides, then the
+measures'.
 
 Further decisions:
-- `use` and `flow` (of a measure, a report or a variant option) act only
-  through the filter paths they open or close, so their changes impact a
-  measure or report only where its paths changed; a variant option's `where`
-  in force that changed impacts what its table's filter reaches.
-- A path that appeared or disappeared is blamed on the change that moved one
-  of its new or gone edges: the link's own change when the new model alone,
-  read in the old setting, moves that edge; else the setting change naming
-  the link (or a link joining the same tables); else a change of a link
-  joining the same tables; else the removal or addition of one of its tables.
+- A report without a role is evaluated with no role: what a role may see
+  moves it only through a report that has that role. A measure on its own
+  counts every role.
+- A derived measure whose own overrides changed is listed ("any override on
+  the way changed"); a base measure's overrides act through the edges they
+  change.
+- A changed edge is blamed on its link's own change when the new model alone,
+  read in the old setting, moves it (the key switch for a switched edge);
+  else on the setting change naming the link (or a link joining the same
+  tables); else a change of a link joining the same tables; else the removal
+  or addition of one of its tables.
 - A measure or report that did not exist before has no impact: no number of
   it moved. A model added or removed whole lists its ambiguities, not every
   path.
