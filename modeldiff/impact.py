@@ -282,6 +282,7 @@ class _Analysis:
         self._graphs: dict[tuple, Any] = {}
         self._renamed: dict[int, Any] = {}
         self._pairs: dict[tuple, dict] = {}
+        self._security: tuple[Any, Any] | None = None
 
     def graph(self, model: Model, layers: tuple[Overrides, ...] = ()):
         """The flow graph of `model` in the setting of `layers`, shared by every computation with that setting."""
@@ -297,6 +298,14 @@ class _Analysis:
                 found = self._graphs[key] = graph.flow_graph(model, setting)
             self._graphs[layers_key] = found
         return found
+
+    def security_graphs(self):
+        """The old (in the new revision's names) and new security graphs."""
+        from modeldiff import graph
+
+        if self._security is None:
+            self._security = (in_new_names(graph.security_graph(self.old), self.renames), graph.security_graph(self.new))
+        return self._security
 
     def old_graph(self, layers: tuple[Overrides, ...] = ()):
         """The old revision's flow graph, in the new revision's names."""
@@ -390,11 +399,9 @@ def _path_start(sec, filtered: Iterable[str], path: Path, table: str) -> str:
 
 def _security_changes(a: _Analysis) -> list[Change]:
     """security.exposed / tightened / rerouted, per role and table, over the default setting's security graph."""
-    from modeldiff import graph
-
     changes: list[Change] = []
     old_roles = {a.renames.roles.get(name, name): role for name, role in a.old.roles.items()}
-    s_old, s_new = in_new_names(graph.security_graph(a.old), a.renames), graph.security_graph(a.new)
+    s_old, s_new = a.security_graphs()
     same_edges = set(s_old.edges) == set(s_new.edges)
     same_graph = same_edges and s_old.tables == s_new.tables
     for name in sorted(set(old_roles) & set(a.new.roles)):
@@ -843,10 +850,8 @@ class _Impacts:
         return self._role_rows
 
     def _find_role_rows(self) -> dict[str, dict[str, dict[str, str]]]:
-        from modeldiff import graph
-
         a = self.a
-        s_old, s_new = in_new_names(graph.security_graph(a.old), a.renames), graph.security_graph(a.new)
+        s_old, s_new = a.security_graphs()
         changed = _changed_edges(s_old, s_new, self.switched)
         upstream = {id(g): set() for g in (s_old, s_new)}  # tables whose filter reaches a changed edge
         for edge, g, _, _ in changed:
@@ -868,7 +873,8 @@ class _Impacts:
                             rows.setdefault(table, {}).setdefault(change_id, origins[edge.src])
             for change in self.by_subject.get(f"roles.{name}", ()):
                 if change.kind == "role.filter_changed":
-                    tables = change.details.get("tables") or sorted(set(change.before or {}) | set(change.after or {}))
+                    tables = sorted(set(change.details.get("tables") or ()) | set(change.before or {}) |
+                                    set(change.after or {}))
                     for table in tables:
                         for g, _ in filters:
                             for reached in sorted(g.reach(a.renames.table(table))):
@@ -1019,7 +1025,27 @@ class _Impacts:
     def measures(self) -> list[Impact]:
         a = self.a
         result: dict[str, list[Reason]] = {}
+        named = {c.subject.split(".")[1] for c in self.changes if c.subject.startswith("measures.")}
+        loud = set(self.table_changes)
+        back_measures, old_measures, own_settings = self.back.measures, a.old.measures, self._own_setting_changes
+        by_table: dict[str, list[Reason]] = {}  # reasons of a plain base measure's table (the common case)
         for name, m in a.new.measures.items():
+            table = m.table
+            if table is not None and m.overrides is NO_OVERRIDES and name not in own_settings:
+                # as below without the per-measure steps: the plain setting, shared by every such measure of a table
+                old_measure = old_measures.get(back_measures.get(name, name) if back_measures else name)
+                if old_measure is None:
+                    continue  # a new measure had no numbers to move
+                if old_measure.overrides is NO_OVERRIDES:
+                    found = by_table.get(table)
+                    if found is None:
+                        plain = self.computation((name,))
+                        found = by_table[table] = self.reach_reasons(table, plain) + self.role_reasons(table, plain)
+                    own = self.own_reasons(name) if name in named or table in loud or \
+                        self.old_name("tables", table) in loud else []
+                    if own or found:
+                        result[name] = own + found
+                    continue
             reasons: list[Reason] = []
             chains = self.chains(name)
             if not chains and m.table is None and self.computation((name,)) is not None:
