@@ -175,6 +175,20 @@ def visible_rows_query(model: Model, table: str, role: str | None = None, where:
     return compiler.visible_rows(table, filters, role)
 
 
+def role_rows_query(model: Model, role: str, user: str | None = None) -> Query:
+    """Which rows of every table a role may see, in one query: columns `_table`, `_row` (row numbers).
+
+    The role's cut over the security graph (semantics.md section 3), as
+    `visible_rows_query(model, table, role)` counts them table by table.
+    """
+    compiler = _Compiler(model, user)
+    base = compiler.role_base(role)
+    # table names are plain names ([A-Za-z][A-Za-z0-9_]*, model-format.md): safe inside quotes
+    parts = [f"SELECT '{t}' AS _table, _row FROM {q(base.get(t, t))}" for t in sorted(model.tables)]
+    final = "\nUNION ALL\n".join(parts) + "\nORDER BY 1, 2"
+    return compiler.plan.query(final, ("_table", "_row"), compiler.params)
+
+
 def report_notes(model: Model, report_name: str) -> tuple[str, ...]:
     """Sentences to print beside a report's numbers (section 5: groups need not add up)."""
     from modeldiff import graph
@@ -772,13 +786,32 @@ class _Compiler:
         grouped_rows = (f"SELECT {groups}, {', '.join(picks)}, false AS {q(NO_MATCH_COLUMN)}\nFROM {q(combos)} AS _c"
                         + "".join(f"\n  {j}" for j in joins))
         nulls = ", ".join(f"NULL AS {t}" for t in tag_cols)
-        leftovers = ", ".join(f"(SELECT _value FROM {q(values[k].no_match)}) AS {q(f'_m{k}')}" for k in range(len(terms)))
-        any_left = " OR ".join(f"(SELECT _rows FROM {q(values[k].no_match)}) > 0" for k in range(len(terms)))
+        no_match = [self._no_match(values[k], combos) for k in range(len(terms))]
+        leftovers = ", ".join(f"(SELECT _value FROM {q(no_match[k])}) AS {q(f'_m{k}')}" for k in range(len(terms)))
+        any_left = " OR ".join(f"(SELECT _rows FROM {q(no_match[k])}) > 0" for k in range(len(terms)))
         no_match_row = f"SELECT {nulls}, {leftovers}, true AS {q(NO_MATCH_COLUMN)} WHERE {any_left}"
         order = ", ".join([q(NO_MATCH_COLUMN)] + [f"{n} ASC NULLS LAST" for n in range(1, len(sources) + 1)])
         final = (f"SELECT {', '.join(outputs)}, {q(NO_MATCH_COLUMN)}\nFROM (\n{grouped_rows}\nUNION ALL\n"
                  f"{no_match_row}\n) AS _v\nORDER BY {order}")
         return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
+
+    def _no_match(self, v: "_Value", combos: str) -> str:
+        """`_rows`, `_value`: one base measure's home rows visible in its total but in no group of the answer.
+
+        Per measure, in its own setting (semantics.md section 5): a row is in
+        a group when one of its tag sets (the grouping columns that reach its
+        home table) is the projection of a combination of the answer, which
+        may come from another measure's setting; with no tag, when the answer
+        has any combination. So no row is both in a group and in `(no match)`.
+        """
+        b = v.bound
+        conds = [f"_c.{_tag(i)} IS NOT DISTINCT FROM _h.{_tag(i)}" for i in v.tags] or ["true"]
+        matched = (f"SELECT _h._row FROM {q(v.rows)} AS _h WHERE NOT _h._nm AND EXISTS "
+                   f"(SELECT 1 FROM {q(combos)} AS _c WHERE {_and(conds)})")
+        left = self.plan.relation(f"_l{b.k}", f"SELECT * FROM {q(v.total)} WHERE _row NOT IN ({matched})")
+        cond = f" WHERE ({b.where})" if b.where else ""
+        value = f"(SELECT {b.expr} FROM (SELECT * FROM {q(left)} AS {q(b.home)}{cond}) AS {q(b.home)})"
+        return self.plan.relation(f"_n{b.k}", f"SELECT (SELECT count(*) FROM {q(left)}) AS _rows, {value} AS _value")
 
     def _measure_sql(self, name: str, layers: tuple[Overrides, ...], terms: list[_Term]) -> str:
         """A measure's value from the `_mK` columns: a base one is its column, a derived one its expression."""
@@ -818,7 +851,9 @@ class _Value:
     value: str  # tags..., _value, _seen: one row per group with visible home rows passing its where
     empty: str  # _value: the aggregate over no rows
     combos: str  # SELECT of every group (all tag columns) in which it sees a home row
-    no_match: str  # _rows, _value: home rows visible in the total but in no group
+    rows: str = ""  # its home rows visible in the total, once per tag set they are visible in, with `_nm`
+    total: str = ""  # its home rows visible in the total
+    bound: "_Bound | None" = None
 
 
 @dataclass(frozen=True)
@@ -883,10 +918,11 @@ class _SettingGroups:
             out = {}
             for b in batch:
                 value = self.plan.relation(f"_m{b.k}", f"SELECT {q(f'_v{b.k}')} AS _value, true AS _seen FROM {q(agg)}")
-                out[b.k] = _Value((), value, self._empty(b), "", "")
+                out[b.k] = _Value((), value, self._empty(b), "")
             return out
         tags = tuple(self.grouped.rel(home).tags)
-        rows = self._home_rows(home)
+        tagged = self.plan.relation(f"_h{first.k}", self._home_rows(home))
+        rows = f"SELECT * FROM {q(tagged)}"
         if where:
             rows = f"SELECT *, ({where}) IS TRUE AS _w FROM ({rows}) AS {q(home)}"
         keys = ", ".join([_tag(i) for i in tags] + ["_nm"] + (["_w"] if where else []))
@@ -906,49 +942,12 @@ class _SettingGroups:
             value = self.plan.relation(
                 f"_m{b.k}", f"SELECT {tag_list + ', ' if tags else ''}{q(f'_v{b.k}')} AS _value, true AS _seen "
                             f"FROM {q(agg)} WHERE NOT _nm{passing}")
-            empty = self._empty(b)
-            no_match = self.plan.relation(f"_n{b.k}", self._no_match(b, agg, tags, unreached, empty))
-            out[b.k] = _Value(tags, value, empty, combos, no_match)
+            out[b.k] = _Value(tags, value, self._empty(b), combos, tagged, self.total.rel(home).name, b)
         return out
 
     def _empty(self, b: _Bound) -> str:
         return self.plan.relation(f"_e{b.k}", f"SELECT {b.expr} AS _value FROM (SELECT * FROM {q(b.home)} "
                                               f"WHERE false) AS {q(b.home)}")
-
-    def _no_match(self, b: _Bound, agg: str, tags: tuple[int, ...], unreached: list[int], empty: str) -> str:
-        """`_rows`, `_value`: the home rows visible in the total but in no group, and the measure over them.
-
-        A row is in no group when no tag set reaches it (`_nm`), or when a
-        grouping column its table does not reach has no value at all.
-        """
-        if tags:
-            rows, value = self._over(b, agg, ["_nm"], empty)
-        else:
-            rows, value = "0", f"(SELECT _value FROM {q(empty)})"
-        if unreached:
-            nothing = " OR ".join(f"NOT EXISTS (SELECT 1 FROM {q(self.domain(i))})" for i in unreached)
-            if tags:
-                total = q(self.total.rel(b.home).name)
-                cond = f" WHERE ({b.where})" if b.where else ""
-                all_rows = f"(SELECT count(*) FROM {total})"
-                all_value = f"(SELECT {b.expr} FROM (SELECT * FROM {total} AS {q(b.home)}{cond}) AS {q(b.home)})"
-            else:  # no tag, so no row in several groups: the groups of `agg` hold each visible row once
-                all_rows, all_value = self._over(b, agg, [], empty)
-            rows = f"CASE WHEN {nothing} THEN {all_rows} ELSE {rows} END"
-            value = f"CASE WHEN {nothing} THEN {all_value} ELSE {value} END"
-        return f"SELECT {rows} AS _rows, {value} AS _value"
-
-    @staticmethod
-    def _over(b: _Bound, agg: str, conds: list[str], empty: str) -> tuple[str, str]:
-        """The rows of `agg`'s groups passing `conds`, and measure K over those of them passing its where."""
-        def where(parts: list[str]) -> str:
-            return f" WHERE {_and(parts)}" if parts else ""
-
-        kept = f"{q(agg)}{where(conds + (['_w'] if b.where else []))}"
-        rows = f"(SELECT coalesce(sum(_n), 0) FROM {q(agg)}{where(conds)})"
-        value = (f"CASE WHEN EXISTS (SELECT 1 FROM {kept}) THEN (SELECT {q(f'_v{b.k}')} FROM {kept}) "
-                 f"ELSE (SELECT _value FROM {q(empty)}) END")
-        return rows, value
 
 
 # --- reading a report's parts -----------------------------------------------------------

@@ -96,8 +96,8 @@ class Comparison:
     source: str | None = None
     role: str | None = None
     differences: tuple[Difference, ...] = ()
-    groups_before: int = 0
-    groups_after: int = 0
+    groups_before: int | None = 0  # None: not run, both revisions give the same query on the same data
+    groups_after: int | None = 0
     notes: tuple[str, ...] = ()
 
     @property
@@ -107,19 +107,28 @@ class Comparison:
 
 @dataclass(frozen=True)
 class RoleRows:
-    """How many rows of `table` the role may see, before and after (None: not evaluated on that side)."""
+    """The rows of `table` the role may see, before and after (None: not evaluated on that side).
+
+    `before`/`after` count them; `gained`/`lost` count the rows (by row
+    identity, the fingerprint of the visible keys) seen only after / only
+    before, so swapping visible rows for as many others is a change too.
+    """
 
     table: str
     before: int | None
     after: int | None
     user: str | None = None
+    gained: int | None = None
+    lost: int | None = None
 
     @property
     def changed(self) -> bool:
-        return self.before != self.after
+        return self.before != self.after or bool(self.gained) or bool(self.lost)
 
     @property
     def exposed(self) -> bool:
+        if self.gained is not None:
+            return self.gained > 0
         return self.before is not None and self.after is not None and self.after > self.before
 
 
@@ -161,8 +170,26 @@ class Precondition:
 
 
 @dataclass(frozen=True)
+class Missed:
+    """Something that moved on the data although the diff did not list it: a defect of the tool.
+
+    `kind`: report | measure | role; `name`: its name in the new revision;
+    `evidence`: what moved, for people.
+    """
+
+    kind: str
+    name: str
+    evidence: str
+
+
+@dataclass(frozen=True)
 class Verification:
-    """What `verify` found: numbers that moved, role rows, and the data's preconditions."""
+    """What `verify` found: numbers that moved, role rows, and the data's preconditions.
+
+    With `everything` (`verify --all`), every report, measure and role was
+    evaluated, listed by the diff or not; `missed` holds what moved without
+    the diff listing it.
+    """
 
     diff: Any  # compare.ModelDiff
     data: str  # where the rows came from, for people
@@ -170,10 +197,12 @@ class Verification:
     measures: tuple[Comparison, ...] = ()
     roles: tuple[RoleCheck, ...] = ()
     preconditions: tuple[Precondition, ...] = ()
+    everything: bool = False
+    missed: tuple[Missed, ...] = ()
 
     @property
     def exit_code(self) -> int:
-        if any(not p.passed for p in self.preconditions) or any(r.exposed for r in self.roles):
+        if self.missed or any(not p.passed for p in self.preconditions) or any(r.exposed for r in self.roles):
             return 3
         if any(c.moved for c in self.reports + self.measures) or any(r.changed for r in self.roles):
             return 1
@@ -300,15 +329,59 @@ def compare_rows(before: _Rows, after: _Rows, measures: Sequence[tuple[str, str 
 
 
 def default_attribute(table) -> tuple[str, ...]:
-    """The column(s) a measure is grouped by to show what a filter on `table` does.
+    """The column(s) a measure is grouped by to show what a filter on `table` does (without data).
 
     The first column, in the model's order, that is not part of the table's
-    key and holds text or dates; else the key's columns.
+    key and holds text or dates; else, for a key of several columns (a
+    bridge, a snapshot), its first column alone: one side, not the cross
+    product of the key's columns; else the key.
     """
     for name, column in table.columns.items():
         if name not in table.key and column.type in TEXT_TYPES:
             return (name,)
+    if len(table.key) > 1:
+        return (table.key[0],)
     return tuple(table.key) or tuple(table.columns)[:1]
+
+
+def _history_columns(table) -> set[str]:
+    h = table.history
+    return {c for c in (h.valid_from, h.valid_to, h.current, h.previous) if c} if h is not None else set()
+
+
+def grouping_columns(table, db=None) -> tuple[str, ...]:
+    """The column(s) to group by so that what a filter on `table` does can show (docs/verify.md).
+
+    A type-2 table: an attribute whose value differs between the versions
+    of one member on the data (`db`), else its first attribute, else its
+    surrogate key; never the natural key alone, which a switch between the
+    surrogate and the natural key cannot move. Any other table: its
+    `default_attribute`.
+    """
+    h = table.history
+    if h is None or h.type != 2:
+        return default_attribute(table)
+    skip = set(table.key) | set(table.natural_key) | _history_columns(table)
+    attributes = [c for c in table.columns if c not in skip]
+    if db is not None and table.natural_key:
+        for column in attributes:
+            if _varies_within_member(db, table, column):
+                return (column,)
+    return tuple(attributes[:1]) or tuple(table.key) or tuple(table.columns)[:1]
+
+
+def _varies_within_member(db, table, column: str) -> bool:
+    """Whether some member (natural key) of a type-2 table holds two values of `column` across its versions."""
+    from modeldiff.engine import q
+
+    members = ", ".join(q(c) for c in table.natural_key)
+    value = f"coalesce(CAST({q(column)} AS VARCHAR), chr(0))"
+    try:
+        found = db.connection.execute(
+            f"SELECT 1 FROM {q(table.name)} GROUP BY {members} HAVING count(DISTINCT {value}) > 1 LIMIT 1").fetchone()
+    except Exception:  # a table the database does not hold as the model says: fall back to the model's choice
+        return False
+    return found is not None
 
 
 @dataclass(frozen=True)
@@ -336,6 +409,50 @@ def measure_items(result, impact) -> list[_Item]:
         else:
             items.add(_Item(impact.name))
     return sorted(items, key=_Item.sort_key) or [_Item(impact.name)]
+
+
+def all_measure_items(result) -> list[_Item]:
+    """`verify --all`: every measure of both revisions, as a total, grouped by every table reaching its table(s)
+    (its setting, old or new graph), and under every role of both revisions."""
+    names = _old_names(result)
+    roles = sorted(r for r in result.new.roles if names.roles.get(r, r) in result.old.roles)
+    items: list[_Item] = []
+    for name in result.new.measures:
+        old_name = names.measures.get(name, name)
+        if old_name not in result.old.measures:
+            continue
+        sources = set(_reaching(result.new, name))
+        to_new = {old: new for new, old in names.tables.items()}
+        sources |= {to_new.get(t, t) for t in _reaching(result.old, old_name)}
+        items.append(_Item(name))
+        items += [_Item(name, source=t) for t in sorted(sources) if t in result.new.tables]
+        items += [_Item(name, role=r) for r in roles]
+    return items
+
+
+def _reaching(model, measure: str) -> set[str]:
+    """Tables whose filter reaches the home table of a base measure `measure` reaches, in its setting."""
+    from modeldiff import graph
+
+    defaults = graph.setting_layers(model, None, None, variant_defaults=True)
+    out: set[str] = set()
+
+    def visit(name: str, layers: tuple, path: tuple) -> None:
+        m = model.measures.get(name)
+        if m is None or name in path:
+            return
+        own = layers + (m.overrides,)
+        if m.is_base:
+            setting = graph.resolve_setting(model, *defaults, *own)
+            out.update(graph.flow_graph(model, setting).reaching(m.table))
+            return
+        from modeldiff import sql
+
+        for ref in sorted(sql.measure_refs(m.expr, model.measures)):
+            visit(ref, own, path + (name,))
+
+    visit(measure, (), ())
+    return out
 
 
 def _old_names(result):
@@ -462,8 +579,14 @@ def viewers(roles: Sequence[Any], db, user: str | None) -> tuple[tuple[str | Non
 # --- the evaluations ------------------------------------------------------------------------------------
 
 
+def _same_query(a, b) -> bool:
+    """Whether two engine queries are the same text with the same parameters (so, on the same data, the same rows)."""
+    return (a.sql, a.params, a.steps, a.columns) == (b.sql, b.params, b.steps, b.columns)
+
+
 def compare_report(result, name: str, data: _Data, user: str | None) -> Comparison:
     from modeldiff.data import evaluate_report
+    from modeldiff.engine import report_query
 
     names = _old_names(result)
     old_name = names.reports.get(name, name)
@@ -478,6 +601,10 @@ def compare_report(result, name: str, data: _Data, user: str | None) -> Comparis
                 for m in new_report.measures]
     measures += [(m, m, None) for m in old_report.measures
                  if m not in {names.measures.get(n, n) for n in new_report.measures}]
+    if data.old is data.new and all(_same_query(report_query(result.old, old_name, user=viewer),
+                                                report_query(result.new, name, user=viewer)) for viewer in who):
+        return Comparison("report", name, tuple(new_report.by), groups_before=None, groups_after=None,
+                          notes=(note,) if note else ())
     differences: list[Difference] = []
     groups_before = groups_after = 0
     for viewer in who:
@@ -492,11 +619,10 @@ def compare_report(result, name: str, data: _Data, user: str | None) -> Comparis
                       groups_before=groups_before, groups_after=groups_after, notes=(note,) if note else ())
 
 
-def _measure_rows(model, measure: str, by: Sequence[str], role: str | None, db, user: str | None) -> _Rows:
+def _measure_rows(query, measure: str, by: Sequence[str], db) -> _Rows:
     from modeldiff.data import NO_MATCH
-    from modeldiff.engine import NO_MATCH_COLUMN, measure_query
+    from modeldiff.engine import NO_MATCH_COLUMN
 
-    query = measure_query(model, measure, by=tuple(by), role=role, user=user)
     rows = db.run(query, f"measure {measure}")
     columns = list(query.columns)
     groups = len(by)
@@ -523,7 +649,7 @@ def compare_measure(result, item: _Item, data: _Data, user: str | None) -> Compa
         if table is None or old_table is None:
             return replace(base, notes=(f"table {item.source} is not in both revisions: measure {name} cannot be "
                                         "grouped by it on both sides",))
-        attribute = default_attribute(table)
+        attribute = grouping_columns(table, data.new)
         if not all(c in old_table.columns for c in attribute):
             return replace(base, notes=(f"{item.source}.{'/'.join(attribute)} is not in the old revision: measure "
                                         f"{name} cannot be grouped by it on both sides",))
@@ -537,24 +663,39 @@ def compare_measure(result, item: _Item, data: _Data, user: str | None) -> Compa
             return replace(base, notes=(f"role {item.role} is not in both revisions: measure {name} cannot be "
                                         "compared under it",))
         who, note = viewers(roles, data.new, user)
+    from modeldiff.engine import measure_query
+
     differences: list[Difference] = []
     groups_before = groups_after = 0
+    same = 0
     for viewer in who:
-        before = _measure_rows(result.old, old_name, by_old, old_role, data.old, viewer or user)
-        after = _measure_rows(result.new, name, by_new, item.role, data.new, viewer or user)
+        old_query = measure_query(result.old, old_name, by=by_old, role=old_role, user=viewer or user)
+        new_query = measure_query(result.new, name, by=by_new, role=item.role, user=viewer or user)
+        if data.old is data.new and _same_query(old_query, new_query):
+            same += 1
+            continue
+        before = _measure_rows(old_query, old_name, by_old, data.old)
+        after = _measure_rows(new_query, name, by_new, data.new)
         groups_before += len(before.groups)
         groups_after += len(after.groups)
         differences += compare_rows(before, after, [(name, old_name, name)],
                                     viewer if viewer is not None and user is None else None)
+    if who and same == len(who):
+        groups_before = groups_after = None
     return replace(base, by=by_new, differences=sort_differences(differences), groups_before=groups_before,
                    groups_after=groups_after, notes=(note,) if note else ())
 
 
-def role_tables(result, name: str) -> list[str]:
-    """Tables (new names) a role restricts in either revision, or that the diff names for it."""
+def role_tables(result, name: str, everything: bool = False) -> list[str]:
+    """Tables (new names) a role restricts in either revision, or that the diff names for it.
+
+    With `everything` (`verify --all`): every table of the new revision that the old one has too.
+    """
     from modeldiff import graph
 
     names = _old_names(result)
+    if everything:
+        return sorted(t for t in result.new.tables if names.tables.get(t, t) in result.old.tables)
     to_new = {old: new for new, old in names.tables.items()}
     tables: set[str] = set()
     new_role = result.new.roles.get(name)
@@ -569,8 +710,19 @@ def role_tables(result, name: str) -> list[str]:
     return sorted(tables)
 
 
-def check_role(result, name: str, data: _Data, user: str | None) -> RoleCheck:
-    from modeldiff.engine import visible_rows_query
+def _visible_ids(model, role: str, db, viewer: str | None) -> dict[str, set[int]]:
+    """Table -> row numbers the role may see (every table, one query)."""
+    from modeldiff.engine import role_rows_query
+
+    out: dict[str, set[int]] = {t: set() for t in model.tables}
+    for table, row in db.run(role_rows_query(model, role, viewer), f"role {role}"):
+        out[table].add(row)
+    return out
+
+
+def check_role(result, name: str, data: _Data, user: str | None, everything: bool = False) -> RoleCheck:
+    """The rows a role may see of each table, before and after: how many, and which (by row identity)."""
+    from modeldiff.engine import role_rows_query, visible_rows_query
 
     names = _old_names(result)
     old_name = names.roles.get(name, name)
@@ -578,17 +730,33 @@ def check_role(result, name: str, data: _Data, user: str | None) -> RoleCheck:
     who, note = viewers([old_role, new_role], data.new, user)
     notes = [note] if note else []
     rows: list[RoleRows] = []
-    for table in role_tables(result, name):
+    both = old_role is not None and new_role is not None
+    ids = {}
+    for viewer in who if both else ():
+        before_ids = _visible_ids(result.old, old_name, data.old, viewer)
+        same = data.old is data.new and _same_query(role_rows_query(result.old, old_name, viewer),
+                                                    role_rows_query(result.new, name, viewer))
+        after_ids = before_ids if same else _visible_ids(result.new, name, data.new, viewer)
+        ids[viewer] = (before_ids, after_ids)
+    for table in role_tables(result, name, everything):
         old_table = names.tables.get(table, table)
         for viewer in who:
+            shown = viewer if user is None else None
+            has_old = old_role is not None and old_table in result.old.tables
+            has_new = new_role is not None and table in result.new.tables
+            if has_old and has_new:
+                before_ids, after_ids = ids[viewer][0][old_table], ids[viewer][1][table]
+                rows.append(RoleRows(table, len(before_ids), len(after_ids), shown, len(after_ids - before_ids),
+                                     len(before_ids - after_ids)))
+                continue
             before = after = None
-            if old_role is not None and old_table in result.old.tables:
+            if has_old:
                 before = data.old.run(visible_rows_query(result.old, old_table, old_name, user=viewer),
                                       f"role {old_name} on {old_table}")[0][0]
-            if new_role is not None and table in result.new.tables:
+            if has_new:
                 after = data.new.run(visible_rows_query(result.new, table, name, user=viewer),
                                      f"role {name} on {table}")[0][0]
-            rows.append(RoleRows(table, before, after, viewer if user is None else None))
+            rows.append(RoleRows(table, before, after, shown))
     if new_role is None or old_role is None:
         notes.append(f"role {name} is not in the {'new' if new_role is None else 'old'} revision")
     return RoleCheck(name, tuple(rows), tuple(notes))
@@ -714,28 +882,67 @@ class _Progress:
 
 
 def verify(md, data_dir: str | None = None, db_file: str | None = None, user: str | None = None,
-           progress_stream: TextIO | None = None) -> Verification:
-    """Evaluate what `md` (a compare.ModelDiff) says is impacted, on the data; raises ModeldiffError on bad input."""
-    result = md.result
+           progress_stream: TextIO | None = None, everything: bool = False) -> Verification:
+    """Evaluate what `md` (a compare.ModelDiff) says is impacted, on the data; raises ModeldiffError on bad input.
+
+    `everything` (`verify --all`): every report, measure and role, listed by the diff or not.
+    """
     data = open_data(md, data_dir, db_file)
     try:
-        items = [item for impact in result.measures for item in measure_items(result, impact)]
-        tests = precondition_tests(md)
-        total = len(result.reports) + len(items) + len(result.roles) + len(tests)
-        step = _Progress(total, progress_stream)
-        try:
-            reports = tuple(step(f"report {i.name}", lambda i=i: compare_report(result, i.name, data, user))
-                            for i in result.reports)
-            measures = tuple(step(f"measure {it.measure}", lambda it=it: compare_measure(result, it, data, user))
-                             for it in items)
-            roles = tuple(step(f"role {i.name}", lambda i=i: check_role(result, i.name, data, user))
-                          for i in result.roles)
-            preconditions = tuple(step(f"{t.check} {t.subject}", lambda t=t: run_test(t, data.new)) for t in tests)
-        finally:
-            step.close()
+        return verify_on(md, data, user, progress_stream, everything)
     finally:
         data.close()
-    return Verification(md, data.label, reports, measures, roles, preconditions)
+
+
+def verify_on(md, data: _Data, user: str | None = None, progress_stream: TextIO | None = None,
+              everything: bool = False) -> Verification:
+    """`verify` on databases already open (`data.old`, `data.new`: one object when both read the same rows)."""
+    result = md.result
+    names = _old_names(result)
+    if everything:
+        report_names = [r for r in result.new.reports if names.reports.get(r, r) in result.old.reports]
+        items = all_measure_items(result)
+        role_names = [r for r in result.new.roles if names.roles.get(r, r) in result.old.roles]
+    else:
+        report_names = [i.name for i in result.reports]
+        items = [item for impact in result.measures for item in measure_items(result, impact)]
+        role_names = [i.name for i in result.roles]
+    tests = precondition_tests(md)
+    total = len(report_names) + len(items) + len(role_names) + len(tests)
+    step = _Progress(total, progress_stream)
+    try:
+        reports = tuple(step(f"report {n}", lambda n=n: compare_report(result, n, data, user)) for n in report_names)
+        measures = tuple(step(f"measure {it.measure}", lambda it=it: compare_measure(result, it, data, user))
+                         for it in items)
+        roles = tuple(step(f"role {n}", lambda n=n: check_role(result, n, data, user, everything))
+                      for n in role_names)
+        preconditions = tuple(step(f"{t.check} {t.subject}", lambda t=t: run_test(t, data.new)) for t in tests)
+    finally:
+        step.close()
+    missed = missed_by_the_diff(result, reports, measures, roles)
+    return Verification(md, data.label, reports, measures, roles, preconditions, everything, missed)
+
+
+def missed_by_the_diff(result, reports, measures, roles) -> tuple[Missed, ...]:
+    """What moved on the data although the diff does not list it as impacted (a defect of the tool)."""
+    listed = {"report": {i.name for i in result.reports}, "measure": {i.name for i in result.measures},
+              "role": {i.name for i in result.roles}}
+    out: dict[tuple[str, str], Missed] = {}
+    for c in reports + measures:
+        if c.moved and c.name not in listed[c.kind] and (c.kind, c.name) not in out:
+            d = c.differences[0]
+            where = ("(no match)" if d.no_match else ", ".join(f"{k} = {v}" for k, v in d.group)) or "total"
+            scope = f" by {', '.join(c.by)}" if c.kind == "measure" and c.by else ""
+            scope += f" under role {c.role}" if c.kind == "measure" and c.role else ""
+            out[(c.kind, c.name)] = Missed(c.kind, c.name, f"{len(c.differences)} value(s) moved{scope}; e.g. "
+                                                           f"{d.measure} at {where}: {d.before} -> {d.after}")
+    for r in roles:
+        if r.changed and r.name not in listed["role"]:
+            t = next(t for t in r.tables if t.changed)
+            viewer = f" (user {t.user})" if t.user else ""
+            out[("role", r.name)] = Missed("role", r.name, f"its visible rows of {t.table}{viewer} changed: "
+                                                           f"{t.gained or 0} gained, {t.lost or 0} lost")
+    return tuple(out[k] for k in sorted(out))
 
 
 # --- the command ----------------------------------------------------------------------------------------
@@ -750,6 +957,9 @@ def configure(parser) -> None:
     where.add_argument("--db", metavar="FILE", help="a DuckDB database file holding one table per model table")
     parser.add_argument("--format", choices=FORMATS, default="text")
     parser.add_argument("--user", metavar="EMAIL", help="the person viewing, for roles and reports filtering on :user")
+    parser.add_argument("--all", dest="everything", action="store_true",
+                        help="evaluate every report, measure and role, listed by the diff or not; anything that "
+                             "moved without the diff listing it is a defect of the tool (exit 3)")
     parser.add_argument("--limit", metavar="N", type=int, default=DEFAULT_LIMIT,
                         help=f"differences listed per report or measure (default {DEFAULT_LIMIT}; 0: all)")
 
@@ -762,7 +972,7 @@ def run(args, stdout: TextIO) -> int:
     if args.limit is not None and args.limit < 0:
         raise ModeldiffError(f"--limit {args.limit}: give 0 (list every difference) or a positive number")
     md = compare.compare_specs(args.old, args.new)
-    verification = verify(md, args.data, args.db, args.user)
+    verification = verify(md, args.data, args.db, args.user, everything=args.everything)
     render = {"json": verify_out.as_json, "markdown": verify_out.as_markdown}.get(args.format, verify_out.as_text)
     render(verification, stdout, limit=args.limit)
     return verification.exit_code

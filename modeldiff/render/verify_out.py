@@ -11,10 +11,21 @@ import json
 from decimal import Decimal
 from typing import Any, Sequence, TextIO
 
-from modeldiff.verify import OFFENDING_UNITS, Comparison, Difference, Precondition, RoleCheck, Verification, json_value
+from modeldiff.verify import (OFFENDING_UNITS, Comparison, Difference, Missed, Precondition, RoleCheck, Verification,
+                              json_value)
 
 ABSENT = "(absent)"  # a group the revision does not show
 VERDICTS = {0: "nothing moved", 1: "numbers moved", 3: "a precondition fails or a role sees more rows"}
+MISSED_VERDICT = "the diff missed something that moved: a defect of modeldiff"
+MISSED_TITLE = "DEFECT OF MODELDIFF: the diff missed these, though they moved on the data (please report it)"
+
+
+def verdict(v: Verification) -> str:
+    return MISSED_VERDICT if v.missed else VERDICTS[v.exit_code]
+
+
+def missed_line(m: Missed) -> str:
+    return f"{m.kind} {m.name}: {m.evidence}"
 
 
 def _shown(items: Sequence, limit: int) -> Sequence:
@@ -53,7 +64,8 @@ def comparison_json(c: Comparison, limit: int) -> dict:
 
 def role_json(r: RoleCheck) -> dict:
     return {"name": r.name, "changed": r.changed, "exposed": r.exposed,
-            "tables": [{"table": t.table, "user": t.user, "before": t.before, "after": t.after} for t in r.tables],
+            "tables": [{"table": t.table, "user": t.user, "before": t.before, "after": t.after, "gained": t.gained,
+                        "lost": t.lost} for t in r.tables],
             "notes": list(r.notes)}
 
 
@@ -69,13 +81,14 @@ def summary(v: Verification) -> dict:
             "roles": len(v.roles), "roles_changed": sum(r.changed for r in v.roles),
             "roles_exposed": sum(r.exposed for r in v.roles),
             "preconditions": len(v.preconditions), "preconditions_failed": sum(not p.passed for p in v.preconditions),
-            "verdict": VERDICTS[v.exit_code], "exit_code": v.exit_code}
+            "missed": len(v.missed), "verdict": verdict(v), "exit_code": v.exit_code}
 
 
 def verification_json(v: Verification, limit: int = 0) -> dict:
     md = v.diff
     return {"format": 1, "model": md.result.new.name or md.result.old.name,
-            "old": _side(md.old), "new": _side(md.new), "data": v.data,
+            "old": _side(md.old), "new": _side(md.new), "data": v.data, "all": v.everything,
+            "missed": [{"kind": m.kind, "name": m.name, "evidence": m.evidence} for m in v.missed],
             "reports": [comparison_json(c, limit) for c in v.reports],
             "measures": [comparison_json(c, limit) for c in v.measures],
             "roles": [role_json(r) for r in v.roles],
@@ -133,6 +146,8 @@ def what(c: Comparison) -> str:
 
 def headline(c: Comparison, limit: int) -> str:
     if not c.moved:
+        if c.groups_before is None:
+            return "unchanged (the same query on the same data)"
         return "unchanged" if not c.notes or c.groups_before or c.groups_after else "not compared"
     n = len(c.differences)
     shown = len(_shown(c.differences, limit))
@@ -163,6 +178,8 @@ def cells(c: Comparison, d: Difference) -> list[str]:
 
 def role_line(t) -> list[str]:
     change = "" if t.before is None or t.after is None else f"{t.after - t.before:+d}"
+    if t.gained is not None and (t.gained or t.lost):
+        change = f"+{t.gained} -{t.lost}"
     flag = "MORE ROWS" if t.exposed else ("fewer rows" if t.changed and change else "")
     return [t.table, t.user or "", value_text(t.before, t.before is None), value_text(t.after, t.after is None),
             change, flag]
@@ -200,7 +217,12 @@ def as_text(v: Verification, stream: TextIO, limit: int = 0) -> None:
         out.print(Padding(t, (0, 0, 0, 4), expand=False))
 
     line(f"Verify {md.result.new.name or md.result.old.name}: {_label(md.old)} -> {_label(md.new)}", "bold")
-    line(f"Data: {v.data}")
+    line(f"Data: {v.data}" + (" (--all: everything evaluated, listed by the diff or not)" if v.everything else ""))
+    if v.missed:
+        line()
+        line(MISSED_TITLE, "bold red")
+        for m in v.missed:
+            line(f"  {missed_line(m)}", "red")
     for title, comparisons in (("Reports", v.reports), ("Measures", v.measures)):
         line()
         moved = sum(c.moved for c in comparisons)
@@ -234,7 +256,7 @@ def as_text(v: Verification, stream: TextIO, limit: int = 0) -> None:
             line(f"    e.g. {example_text(example)}")
         line(f"    {p.sql}")
     line()
-    line(f"Verdict: {s['verdict']} (exit {s['exit_code']})", "bold")
+    line(f"Verdict: {s['verdict']} (exit {s['exit_code']})", "bold red" if v.missed else "bold")
 
 
 # --- Markdown ---------------------------------------------------------------------------------------------
@@ -258,6 +280,9 @@ def as_markdown(v: Verification, stream: TextIO, limit: int = 0) -> None:
     lines = [f"## Verify `{md.result.new.name or md.result.old.name}` on data", "",
              f"`{_label(md.old)}` → `{_label(md.new)}`; data: {_md(v.data)}", "",
              f"**Verdict:** {s['verdict']} (exit {s['exit_code']})"]
+    if v.missed:
+        lines += ["", f"### {MISSED_TITLE}", ""] + [f"- **{_md(m.kind)} {_md(m.name)}**: {_md(m.evidence)}"
+                                                    for m in v.missed]
     for title, comparisons in (("Reports", v.reports), ("Measures", v.measures)):
         lines += ["", f"### {title}", ""]
         if not comparisons:
