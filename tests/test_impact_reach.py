@@ -386,3 +386,27 @@ def test_many_to_one_to_one_to_one_adds_the_reverse_edge_and_is_listed():
     card = change_id(r, "link.cardinality_changed", "links.f_d")
     assert names(r.measures) == ["n"] and names(r.reports) == ["by_a"]
     assert {x.change for x in reasons_of(r.measures, "n")} == {card}
+
+
+def test_the_route_is_shown_in_text_json_and_markdown(tmp_path):
+    import io
+    import json
+
+    from modeldiff.cli import main
+
+    old, new = tmp_path / "old.model.yaml", tmp_path / "new.model.yaml"
+    old.write_text(LIBRARY)
+    new.write_text(LIBRARY.replace("loans_books: {from: loans.book, to: books.k}",
+                                   "loans_books: {from: loans.book, to: books.k, flow: two-way}"))
+    outputs = {}
+    for fmt in ("text", "json", "markdown"):
+        out, err = io.StringIO(), io.StringIO()
+        assert main(["diff", str(old), str(new), "--format", fmt], stdout=out, stderr=err) == 1
+        outputs[fmt] = out.getvalue()
+    assert "route books -> loans -> books -> holds" in outputs["text"]
+    assert "route books -> loans -> books -> holds" in outputs["markdown"]
+    reasons = [x for m in json.loads(outputs["json"])["impacts"]["measures"] for x in m["reasons"]]
+    assert ["books", "loans", "books", "holds"] in [x.get("route") for x in reasons]
+    assert all(set(x) >= {"change", "source", "paths_added", "paths_removed"} for x in reasons)
+    # a reason explained by simple paths carries no route
+    assert all("route" not in x for x in reasons if x["paths_added"] or x["paths_removed"])

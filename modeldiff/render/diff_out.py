@@ -163,6 +163,8 @@ def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
                         out.line(f"         + {_path_text(p)}")
                     for p in reason.paths_removed:
                         out.line(f"         - {_path_text(p)}")
+                    if reason.route:
+                        out.line(f"         route {' -> '.join(reason.route)}")
         out.line()
 
 

@@ -91,6 +91,8 @@ def _impacts(title: str, impacts, kinds: dict[str, str]) -> list[str]:
             for reason in i.reasons:
                 paths = "".join(f'<br><span class="path">+ {escape(" / ".join(p))}</span>' for p in reason.paths_added)
                 paths += "".join(f'<br><span class="path">− {escape(" / ".join(p))}</span>' for p in reason.paths_removed)
+                if reason.route:
+                    paths += f'<br><span class="path">route {escape(" -> ".join(reason.route))}</span>'
                 out.append(f"<li>{escape(reason_words(reason, kinds))}{paths}</li>")
             out.append("</ul>")
         out.append("</li>")
