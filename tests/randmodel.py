@@ -928,6 +928,80 @@ def m_table_removed(rng, doc):
     del doc["tables"][name]
 
 
+def m_role_renamed(rng, doc):
+    name = _role(rng, doc)
+    doc["roles"] = {(name + "_rn" if k == name else k): v for k, v in doc["roles"].items()}
+    for r in doc["reports"].values():
+        if r.get("role") == name:
+            r["role"] = name + "_rn"
+
+
+def m_report_removed(rng, doc):
+    if len(doc["reports"]) < 2:
+        raise _Skip
+    del doc["reports"][_pick(rng, doc["reports"])]
+
+
+def m_report_renamed(rng, doc):
+    name = _pick(rng, doc["reports"])
+    doc["reports"] = {(name + "_rn" if k == name else k): v for k, v in doc["reports"].items()}
+
+
+def m_variant_removed(rng, doc):
+    _variant(rng, doc)
+    del doc["variants"]
+    for r in doc["reports"].values():
+        r.pop("variant", None)
+
+
+def m_variant_renamed(rng, doc):
+    v = _variant(rng, doc)
+    doc["variants"] = {"att_rn": v}
+    for r in doc["reports"].values():
+        if "variant" in r:
+            r["variant"] = {"att_rn": r["variant"]["att"]}
+
+
+def m_column_renamed(rng, doc):
+    name = _pick(rng, [t for t, x in doc["tables"].items() if "alt0" in x["columns"]
+                       and not any(f"{t}.alt0" in str(l["from"]) for l in doc["links"].values())])
+    columns = doc["tables"][name]["columns"]
+    doc["tables"][name]["columns"] = {("alt0_rn" if c == "alt0" else c): t for c, t in columns.items()}
+
+
+def m_table_renamed(rng, doc):
+    import re
+    name = _pick(rng, doc["tables"])
+    new = name + "_rn"
+    pattern = re.compile(rf"^{name}\.")
+
+    def ref(value):
+        if isinstance(value, list):
+            return [pattern.sub(new + ".", v) for v in value]
+        return pattern.sub(new + ".", value)
+
+    def keys(mapping):
+        return {(new if k == name else k): v for k, v in mapping.items()}
+
+    doc["tables"] = keys(doc["tables"])
+    for link in doc["links"].values():
+        link["from"], link["to"] = ref(link["from"]), ref(link["to"])
+    for m in doc["measures"].values():
+        if m.get("table") == name:
+            m["table"] = new
+    for r in doc["reports"].values():
+        if "by" in r:
+            r["by"] = [ref(b) for b in r["by"]]
+        if "where" in r:
+            r["where"] = keys(r["where"])
+    for role in doc.get("roles", {}).values():
+        role["filters"] = keys(role["filters"])
+    for v in doc.get("variants", {}).values():
+        for o in v["options"].values():
+            if "where" in o:
+                o["where"] = keys(o["where"])
+
+
 MUTATIONS: dict[str, Callable] = {
     "link.flow_widened": m_flow_widened,
     "link.flow_narrowed": m_flow_narrowed,
@@ -971,6 +1045,13 @@ MUTATIONS: dict[str, Callable] = {
     "column.removed": m_column_removed,
     "table.added": m_table_added,
     "table.removed": m_table_removed,
+    "table.renamed": m_table_renamed,
+    "column.renamed": m_column_renamed,
+    "role.renamed": m_role_renamed,
+    "report.removed": m_report_removed,
+    "report.renamed": m_report_renamed,
+    "variant.removed": m_variant_removed,
+    "variant.renamed": m_variant_renamed,
 }
 
 

@@ -228,7 +228,11 @@ def as_text(v: Verification, stream: TextIO, limit: int = 0) -> None:
         moved = sum(c.moved for c in comparisons)
         line(f"{title}: {len(comparisons)} evaluated, {moved} moved" if comparisons else f"{title}: none impacted",
              "bold")
+        if v.everything and len(comparisons) > moved:
+            line(f"  ({len(comparisons) - moved} unchanged, not listed: --all)")
         for c in comparisons:
+            if v.everything and not c.moved:
+                continue
             line(f"  {what(c)}: {headline(c, limit)}", "yellow" if c.moved else None)
             for note in c.notes:
                 line(f"    {note}")
@@ -237,6 +241,8 @@ def as_text(v: Verification, stream: TextIO, limit: int = 0) -> None:
     line()
     line(f"Roles: {len(v.roles)} evaluated" if v.roles else "Roles: none impacted", "bold")
     for r in v.roles:
+        if v.everything and not r.changed:
+            continue
         state = "SEES MORE ROWS" if r.exposed else ("rows changed" if r.changed else "rows unchanged")
         line(f"  {r.name}: {state}", "red" if r.exposed else ("yellow" if r.changed else None))
         for note in r.notes:
@@ -287,7 +293,11 @@ def as_markdown(v: Verification, stream: TextIO, limit: int = 0) -> None:
         lines += ["", f"### {title}", ""]
         if not comparisons:
             lines.append("None impacted.")
+        if v.everything and any(not c.moved for c in comparisons):
+            lines.append(f"{sum(not c.moved for c in comparisons)} unchanged, not listed (`--all`).")
         for c in comparisons:
+            if v.everything and not c.moved:
+                continue
             lines += [f"- **{_md(what(c))}**: {_md(headline(c, limit))}"]
             lines += [f"  - {_md(n)}" for n in c.notes]
             if c.moved:
