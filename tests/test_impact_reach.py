@@ -410,3 +410,19 @@ def test_the_route_is_shown_in_text_json_and_markdown(tmp_path):
     assert all(set(x) >= {"change", "source", "paths_added", "paths_removed"} for x in reasons)
     # a reason explained by simple paths carries no route
     assert all("route" not in x for x in reasons if x["paths_added"] or x["paths_removed"])
+
+
+def test_making_a_link_one_to_one_lists_the_role_whose_filter_now_comes_back():
+    old = SECURED.replace(", flow: two-way, security_flow: two-way}", "}")
+    new = old.replace("loans_books: {from: loans.book, to: books.k}",
+                      "loans_books: {from: loans.book, to: books.k, cardinality: one-to-one}")
+    rows = {"books": [(1, "Anna"), (3, "Anna")], "members": [(1, "Ann")], "loans": [(1, 1, 1)],
+            "holds": [(1, 1), (2, 3)]}
+    # the engine: one-to-one adds loans -> books to the security graph: Anna books without loans are cut
+    assert numbers(old, "anna_holds", rows) == {(): (2,)}
+    assert numbers(new, "anna_holds", rows) == {(): (1,)}
+    r = diff(old, new)
+    card = change_id(r, "link.cardinality_changed", "links.loans_books")
+    assert card in {x.change for x in reasons_of(r.roles, "anna_readers")}
+    assert card in {x.change for x in reasons_of(r.reports, "anna_holds")}
+    assert "hold_desk" not in names(r.roles)  # twin: its filter on holds reaches no changed edge
