@@ -186,15 +186,15 @@ SECURED = LIBRARY.replace("loans_books: {from: loans.book, to: books.k}",
 reports:
   anna_holds: {measures: [hold_count], role: anna_readers}
 """)
+SECURED_ROWS = {"books": [(1, "Anna"), (3, "Anna")], "members": [(1, "Ann")], "loans": [(1, 1, 1)],
+                "holds": [(1, 1), (2, 3)]}
 
 
 def test_clearing_security_flow_lists_the_role_and_its_report_members_see_more():
     new = SECURED.replace("security_flow: two-way}", "security_flow: one-way}")
-    rows = {"books": [(1, "Anna"), (3, "Anna")], "members": [(1, "Ann")], "loans": [(1, 1, 1)],
-            "holds": [(1, 1), (2, 3)]}
     # the engine: as anna_readers, books -> loans -> books kept only Anna books with loans; now every Anna book
-    assert numbers(SECURED, "anna_holds", rows) == {(): (1,)}
-    assert numbers(new, "anna_holds", rows) == {(): (2,)}
+    assert numbers(SECURED, "anna_holds", SECURED_ROWS) == {(): (1,)}
+    assert numbers(new, "anna_holds", SECURED_ROWS) == {(): (2,)}
     r = diff(SECURED, new)
     flow = change_id(r, "link.security_flow_changed", "links.loans_books")
     assert not [c for c in r.changes if c.kind.startswith("security.")]  # no table restricted differently
@@ -416,11 +416,9 @@ def test_making_a_link_one_to_one_lists_the_role_whose_filter_now_comes_back():
     old = SECURED.replace(", flow: two-way, security_flow: two-way}", "}")
     new = old.replace("loans_books: {from: loans.book, to: books.k}",
                       "loans_books: {from: loans.book, to: books.k, cardinality: one-to-one}")
-    rows = {"books": [(1, "Anna"), (3, "Anna")], "members": [(1, "Ann")], "loans": [(1, 1, 1)],
-            "holds": [(1, 1), (2, 3)]}
     # the engine: one-to-one adds loans -> books to the security graph: Anna books without loans are cut
-    assert numbers(old, "anna_holds", rows) == {(): (2,)}
-    assert numbers(new, "anna_holds", rows) == {(): (1,)}
+    assert numbers(old, "anna_holds", SECURED_ROWS) == {(): (2,)}
+    assert numbers(new, "anna_holds", SECURED_ROWS) == {(): (1,)}
     r = diff(old, new)
     card = change_id(r, "link.cardinality_changed", "links.loans_books")
     assert card in {x.change for x in reasons_of(r.roles, "anna_readers")}
