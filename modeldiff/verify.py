@@ -376,10 +376,12 @@ def _varies_within_member(db, table, column: str) -> bool:
 
     members = ", ".join(q(c) for c in table.natural_key)
     value = f"coalesce(CAST({q(column)} AS VARCHAR), chr(0))"
+    import duckdb
+
     try:
         found = db.connection.execute(
             f"SELECT 1 FROM {q(table.name)} GROUP BY {members} HAVING count(DISTINCT {value}) > 1 LIMIT 1").fetchone()
-    except Exception:  # a table the database does not hold as the model says: fall back to the model's choice
+    except duckdb.Error:  # a table the database does not hold as the model says: fall back to the model's choice
         return False
     return found is not None
 

@@ -428,8 +428,10 @@ def tuples(model, rows: dict[str, list[dict]]) -> dict[str, list[tuple]]:
     out = {}
     for name, table in model.tables.items():
         got = []
-        for row in rows.get(name, ()):
-            got.append(tuple(_convert(row.get(c), col.type) for c, col in table.columns.items()))
+        # a table or column renamed by a mutation (NAME_rn) reads the rows of its old name, as a user's renamed file
+        for row in rows.get(name, rows.get(name[:-3], ()) if name.endswith("_rn") else ()):
+            got.append(tuple(_convert(row.get(c, row.get(c[:-3]) if c.endswith("_rn") else None), col.type)
+                             for c, col in table.columns.items()))
         out[name] = got
     return out
 

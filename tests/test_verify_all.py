@@ -71,8 +71,9 @@ def test_the_defect_is_printed_first_in_text_markdown_and_json():
     verify_out.as_markdown(v, md)
     assert md.getvalue().index("the diff missed these") < md.getvalue().index("### Reports")
     doc = verify_out.verification_json(v)
-    assert doc["all"] is True and {"kind": "report", "name": "by_a"}.items() <= doc["missed"][0].items() or \
-        any(m["name"] == "by_a" for m in doc["missed"])
+    assert doc["all"] is True
+    assert {(m["kind"], m["name"]) for m in doc["missed"]} == {("report", "by_a"), ("measure", "n")}
+    assert all(m["evidence"] for m in doc["missed"])
     assert doc["summary"]["missed"] == len(v.missed) and doc["summary"]["exit_code"] == 3
 
 
