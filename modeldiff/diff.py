@@ -886,9 +886,13 @@ def compare_links(ctx: DiffContext, old_raw: Link, new: Link) -> Iterator[Change
         yield ctx.change("link.key_switched", subject, NUMBERS, _key_switch_message(new, "to", before, after, history),
                          before, after, **details)
     if cardinality_changed(old, new):
+        one_to_one = "one-to-one" in (old.cardinality, new.cardinality)
+        effect = (f"a filter on {new.from_table} {'now' if new.cardinality == 'one-to-one' else 'no longer'} restricts "
+                  f"{new.to_table} through it, so totals across the link can change" if one_to_one else
+                  "no filter travels differently, so no number moves on its own; it changes which data is valid "
+                  f"(whether a {new.to_table} key may repeat), so check the data before relying on it")
         yield ctx.change("link.cardinality_changed", subject, NUMBERS,
-                         f"The cardinality of link {name} changed ({old.cardinality} -> {new.cardinality}): how rows of {new.from_table} "
-                         f"match rows of {new.to_table} changed, so totals across the link can change.",
+                         f"The cardinality of link {name} changed ({old.cardinality} -> {new.cardinality}): {effect}.",
                          old.cardinality, new.cardinality)
     if flow_widened(old, new):
         yield ctx.change("link.flow_widened", subject, NUMBERS,

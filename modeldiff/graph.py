@@ -308,6 +308,7 @@ class FilterGraph:
         self._reaching = _Lru(wide)
         self._analyses = _Lru()
         self._dominators = _Lru(wide // 2)
+        self._routes = _Lru(wide // 2)  # breadth-first trees for `route_through`
 
     def __eq__(self, other: object) -> bool:
         if not isinstance(other, FilterGraph):
@@ -358,6 +359,45 @@ class FilterGraph:
             return ()
         tree = _Tree(self, s)
         return self._path_names(tree.path(x)) if tree.seen[x] else None
+
+    def reach_origins(self, starts: Iterable[str]) -> dict[str, str]:
+        """Every table a filter on any of `starts` reaches -> the nearest of them (ties: the first in name order)."""
+        firsts = sorted({self._index[t] for t in starts if t in self._index})
+        if not firsts:
+            return {}
+        tree = _Tree(self, *firsts)
+        names, src, edge = self._names, self._src, tree.edge
+        origin: dict[int, int] = {}
+        for v in tree.order:  # breadth-first: a table's tree parent comes before it
+            e = edge[v]
+            origin[v] = v if e < 0 else origin[src[e]]
+        return {names[v]: names[o] for v, o in origin.items()}
+
+    def route_through(self, source: str, edge: Edge, target: str) -> tuple[str, ...] | None:
+        """Tables of a shortest route from `source` to `target` that crosses `edge` (an edge of this graph).
+
+        The route may pass a table twice (a filter can come back to where it
+        started, semantics.md section 5); None when `edge.src` is not reached
+        from `source` or `target` not from `edge.dst`.
+        """
+        into, out_of = self._route_tree(edge.src, False), self._route_tree(edge.dst, True)
+        s, x = self._index.get(source), self._index.get(target)
+        if s is None or x is None or not into.seen[s] or not out_of.seen[x]:
+            return None
+        names, dst = self._names, self._dst
+        head, here = [names[s]], s
+        while into.edge[here] >= 0:  # the reverse tree's edge leads one step closer to edge.src
+            here = dst[into.edge[here]]
+            head.append(names[here])
+        tail = [names[self._index[edge.dst]]] + [names[dst[e]] for e in out_of.path(x)]
+        return tuple(head) + tuple(tail)
+
+    def _route_tree(self, table: str, forward: bool) -> "_Tree":
+        key = (table, forward)
+        found = self._routes.recall(key)
+        if found is None:
+            found = self._routes.remember(key, _Tree(self, self._index[table], backward=not forward))
+        return found
 
     # -- paths
 
@@ -576,20 +616,21 @@ def security_stops(model: Model, role: Role | str, graph: FilterGraph | None = N
 class _Tree:
     """A breadth-first tree from one or more starts, out-edges in link-name order.
 
-    `avoid` keeps one table out of the search.
+    `avoid` keeps one table out of the search; `backward` walks edges against
+    their direction (a tree of the routes into the starts).
     """
 
-    def __init__(self, graph: FilterGraph, *starts: int, avoid: int = -1) -> None:
+    def __init__(self, graph: FilterGraph, *starts: int, avoid: int = -1, backward: bool = False) -> None:
         n = len(graph._names)
         self.graph = graph
-        self.edge = [-1] * n  # tree edge into each table
+        self.edge = [-1] * n  # tree edge into each table (out of it, toward the start, when `backward`)
         self.seen = bytearray(n)
         for s in starts:
             self.seen[s] = 1
         if avoid >= 0:
             self.seen[avoid] = 1
         order = list(dict.fromkeys(starts))
-        out, seen, edge = graph._out, self.seen, self.edge
+        out, seen, edge = graph._in if backward else graph._out, self.seen, self.edge
         for u in order:  # the list grows while it is walked: a queue
             for v, e in out[u]:
                 if not seen[v]:

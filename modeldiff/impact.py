@@ -3,30 +3,36 @@
 `analyse(old, new)` runs the structural diff, compares the filter graphs of
 both revisions around what changed, and lists the measures, roles and reports
 that could return different numbers, each with reasons naming the change, the
-source table and the paths added and removed (changes.md, "Impact").
+source table and the paths added and removed, or a route through the changed
+edge (changes.md, "Impact"; docs/impact.md).
 
-Work goes outward from the changed edges: only pairs (S, X) with S upstream
-of a changed edge and X downstream of it are compared, never all pairs. The
-old graph is first read in the new revision's names, so a renamed table or
-link is the same node or edge in both graphs and changes no path.
+Impact is decided by reach, not by simple paths: a changed edge U -> W of a
+computation's setting (in one graph only, or its link's columns switched)
+moves every table reachable from W under a filter on any table reaching U,
+old graph or new. Work goes outward from the changed edges: they are found
+once per distinct setting, and only reach sets of their ends are computed.
+The old graph is first read in the new revision's names, so a renamed table
+or link is the same node or edge in both graphs and changes nothing.
 
 Settings (DEVELOPERS.md, "Decisions where the spec is silent"): a measure on
-its own is evaluated in the model plus every variant's default option plus its
-own overrides; inside a report, the variant options the report chooses (the
-default for the others), the report's overrides, then the measure's. A
-report's numbers move through path changes only from the tables it places
-filters on (`by`, `where`, and its variant options' `where`).
+its own is evaluated in the model plus every variant's default option plus
+its own overrides (a derived measure's, outermost first, before those of the
+base measures it reaches); inside a report, the variant options the report
+chooses (the default for the others), the report's overrides, then the
+measures'.
 
 Further decisions:
-- `via` and `flow` (of a measure, a report or a variant option) act only
-  through the filter paths they open or close, so their changes impact a
-  measure or report only where its paths changed; a variant option's `where`
-  in force that changed impacts what its table's filter reaches.
-- A path that appeared or disappeared is blamed on the change that moved one
-  of its new or gone edges: the link's own change when the new model alone,
-  read in the old setting, moves that edge; else the setting change naming
-  the link (or a link joining the same tables); else a change of a link
-  joining the same tables; else the removal or addition of one of its tables.
+- A report without a role is evaluated with no role: what a role may see
+  moves it only through a report that has that role. A measure on its own
+  counts every role.
+- A derived measure whose own overrides changed is listed ("any override on
+  the way changed"); a base measure's overrides act through the edges they
+  change.
+- A changed edge is blamed on its link's own change when the new model alone,
+  read in the old setting, moves it (the key switch for a switched edge);
+  else on the setting change naming the link (or a link joining the same
+  tables); else a change of a link joining the same tables; else the removal
+  or addition of one of its tables.
 - A measure or report that did not exist before has no impact: no number of
   it moved. A model added or removed whole lists its ambiguities, not every
   path.
@@ -42,6 +48,7 @@ from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Re
 
 PATH_LIMIT = 64  # paths listed per pair when telling what was added or removed
 PATH_BUDGET = 200_000  # search steps per pair listing; beyond it the pair counts as changed (conservative)
+CHAIN_LIMIT = 10_000  # ways from one derived measure down to its base measures that are followed
 
 Path = tuple[str, ...]
 
@@ -66,6 +73,7 @@ class Reason:
     paths_added: tuple[Path, ...] = ()
     paths_removed: tuple[Path, ...] = ()
     via: str | None = None  # the measure through which a derived measure or report is reached
+    route: tuple[str, ...] = ()  # tables of a short route through the changed edge, where no simple path changed
 
 
 @dataclass(frozen=True)
@@ -274,6 +282,7 @@ class _Analysis:
         self._graphs: dict[tuple, Any] = {}
         self._renamed: dict[int, Any] = {}
         self._pairs: dict[tuple, dict] = {}
+        self._security: tuple[Any, Any] | None = None
 
     def graph(self, model: Model, layers: tuple[Overrides, ...] = ()):
         """The flow graph of `model` in the setting of `layers`, shared by every computation with that setting."""
@@ -289,6 +298,14 @@ class _Analysis:
                 found = self._graphs[key] = graph.flow_graph(model, setting)
             self._graphs[layers_key] = found
         return found
+
+    def security_graphs(self):
+        """The old (in the new revision's names) and new security graphs."""
+        from modeldiff import graph
+
+        if self._security is None:
+            self._security = (in_new_names(graph.security_graph(self.old), self.renames), graph.security_graph(self.new))
+        return self._security
 
     def old_graph(self, layers: tuple[Overrides, ...] = ()):
         """The old revision's flow graph, in the new revision's names."""
@@ -382,11 +399,9 @@ def _path_start(sec, filtered: Iterable[str], path: Path, table: str) -> str:
 
 def _security_changes(a: _Analysis) -> list[Change]:
     """security.exposed / tightened / rerouted, per role and table, over the default setting's security graph."""
-    from modeldiff import graph
-
     changes: list[Change] = []
     old_roles = {a.renames.roles.get(name, name): role for name, role in a.old.roles.items()}
-    s_old, s_new = in_new_names(graph.security_graph(a.old), a.renames), graph.security_graph(a.new)
+    s_old, s_new = a.security_graphs()
     same_edges = set(s_old.edges) == set(s_new.edges)
     same_graph = same_edges and s_old.tables == s_new.tables
     for name in sorted(set(old_roles) & set(a.new.roles)):
@@ -493,8 +508,52 @@ class _Computation:
     new_wheres: Mapping[str, tuple[str, ...]]
 
 
+def _changed_edges(g_old, g_new, switched: frozenset[str]) -> tuple[tuple[Any, Any, bool, bool], ...]:
+    """Every edge that changed between two graphs (the old one in new names): (edge, its graph, came, both).
+
+    An edge is its two tables and their columns (changes.md, "Impact"): it
+    changes when it is in one graph only (`came`: it is in the new one), or
+    when its link's columns changed (`switched` links; `both`: then it is
+    listed once per graph).
+    """
+    old, new = set(g_old.edges), set(g_new.edges)
+    out = [(e, g_old, False, False) for e in sorted(old - new)] + [(e, g_new, True, False) for e in sorted(new - old)]
+    if switched:
+        for e in sorted(e for e in old & new if e.link in switched):
+            out += [(e, g_old, False, True), (e, g_new, True, True)]
+    return tuple(out)
+
+
+def _route_text(route: tuple[str, ...] | None, source: str, target: str) -> str:
+    return " -> ".join(route) if route else f"{source} -> ... -> {target}"
+
+
+def _route_message(source: str, edge, came: bool, both: bool, route: tuple[str, ...] | None, home: str) -> str:
+    """Why a filter on `source` moves `home` across one changed edge, with the route it takes."""
+    text = _route_text(route, source, home)
+    crossed = route.index(edge.src) if route and edge.src in route else -1
+    returns = crossed > 0 and edge.dst in route[:crossed]
+    if both:
+        how = f"link {edge.link} ({edge.src} -> {edge.dst}) now matches rows on other columns"
+    elif returns:
+        how = (f"a filter on {source} {'now comes' if came else 'no longer comes'} back to {edge.dst} across link "
+               f"{edge.link}, so filtering or grouping by {source} {'now keeps' if came else 'no longer keeps'} only "
+               f"{edge.dst} rows with matching {edge.src} rows")
+    else:
+        how = f"a filter on {source} {'now crosses' if came else 'no longer crosses'} link {edge.link} from {edge.src} to {edge.dst}"
+    return f"{text}: {how}; numbers on {home} move when filtered or grouped by {source}."
+
+
 class _Impacts:
-    """Builds the impact lists once every change has its id."""
+    """Builds the impact lists once every change has its id.
+
+    changes.md, "Impact": a changed edge U -> W of a computation's setting
+    moves every table reachable from W under a filter on any table that
+    reaches U (old or new graph); a role's visible rows move below a changed
+    security edge its filters reach and below a changed filter. Work goes
+    outward from the changed edges: reach sets of their ends, shared by every
+    computation with the same setting.
+    """
 
     def __init__(self, a: _Analysis, changes: list[Change]):
         from modeldiff import sql
@@ -509,26 +568,27 @@ class _Impacts:
         self.back = a.renames.inverse()
         self._twin_index: tuple[dict, dict] | None = None  # see _twins_of
         self._cause_cache: dict[tuple, tuple[int, str] | None] = {}
-        self._security = None
         self._own_cache: dict[str, list[Reason]] = {}
-        self.key_changes = [c for c in changes if c.kind in ("link.key_switched", "link.cardinality_changed")]
-        self.filter_changes = [c for c in changes if c.kind == "role.filter_changed"]
-        self._reach_cache: dict[str, dict[str, list[str]]] = {}
+        # links whose columns changed: their edges change though they join the same tables
+        self.switched = frozenset(c.subject.split(".", 1)[1] for c in changes if c.kind == "link.key_switched")
         # changes of a table itself or of its columns that can move a measure living on it, by table
         self.table_changes: dict[str, list[Change]] = {}
-        self.security_by_table: dict[str, list[Change]] = {}
         for change in changes:
             parts = change.subject.split(".")
             if (change.kind.startswith("column.") and change.severity != "safe" and len(parts) == 4) or \
                     (change.kind in ("table.key_changed", "table.history_changed", "table.kind_changed") and len(parts) == 2):
                 self.table_changes.setdefault(parts[1], []).append(change)
-            elif change.kind.startswith("security."):
-                self.security_by_table.setdefault(parts[3], []).append(change)
         self._link_edges: dict[int, tuple[Any, dict[str, list]]] = {}
         self._plain_computations: dict[str | None, _Computation] = {}
+        self._computations: dict[tuple, _Computation] = {}  # one record per distinct setting: caches key on it
         # measures with a change of their own setting (`computation` cannot share the plain setting with them)
         self._own_setting_changes = {c.subject.split(".", 1)[1] for c in changes if c.kind == "measure.overrides_changed"}
-        self._path_cache: dict[tuple, tuple[_Computation, list[Reason]]] = {}
+        self._changed: dict[tuple[int, int], tuple] = {}
+        self._reach_cache: dict[tuple, list[Reason]] = {}
+        self._role_cache: dict[tuple, list[Reason]] = {}
+        self._role_rows: dict[str, dict[str, tuple[str, str]]] | None = None
+        self._role_origins: dict[tuple, tuple[Any, dict[str, str]]] = {}
+        self._chains: dict[str, list[tuple[str, ...]]] = {}
 
     # -- helpers
 
@@ -634,7 +694,15 @@ class _Impacts:
             return change.id
         return next((c.id for c in self.changes if c.severity != "safe"), self.changes[0].id if self.changes else "")
 
-    # -- reasons that do not depend on the setting: definition, columns and tables read, role rows
+    def edge_change(self, edges: tuple, came: bool, both: bool, comp: "_Computation | None", pair: tuple[str, str]) -> str:
+        """The change id to blame for a changed edge: its link's key switch when it joins other columns."""
+        if both:
+            for change in self.by_subject.get(f"links.{edges[0].link}", ()):
+                if change.kind == "link.key_switched":
+                    return change.id
+        return self.cause(edges, came or both, comp, pair)
+
+    # -- reasons that do not depend on the setting: definition, columns and tables read
 
     def own_reasons(self, name: str) -> list[Reason]:
         if name not in self._own_cache:
@@ -645,7 +713,7 @@ class _Impacts:
         m = self.a.new.measures[name]
         reasons = []
         for change in self.by_subject.get(f"measures.{name}", ()):
-            # `via`/`flow` act only through the paths they open or close: see path_reasons
+            # `via`/`flow` act through the edges they change: see reach_reasons (a derived measure's: chain_reasons)
             if change.kind in ("measure.logic_changed", "reference.broken"):
                 reasons.append(Reason(change.id, change.message))
         if m.table is None:
@@ -660,17 +728,6 @@ class _Impacts:
                     reasons.append(Reason(change.id, change.message))
             else:
                 reasons.append(Reason(change.id, change.message))
-        for change in self.security_by_table.get(m.table, ()):
-            role = change.subject.split(".")[1]
-            reasons.append(Reason(change.id, f"The rows role {role} may see of {m.table} changed: {change.message}",
-                                  source=change.details.get("source")))
-        for change in self.filter_changes:
-            role = change.subject.split(".")[1]
-            tables = self._filter_reach(change)
-            if m.table in tables:
-                reasons.append(Reason(change.id, f"Role {role}'s filter on {', '.join(tables[m.table])} changed, so the "
-                                                 f"rows its members see of {m.table} may change.",
-                                      source=tables[m.table][0]))
         return reasons
 
     @staticmethod
@@ -685,78 +742,72 @@ class _Impacts:
             return set()
         return read
 
-    def _filter_reach(self, change: Change) -> dict[str, list[str]]:
-        """Tables (new names) that the changed filters of a role restrict in either revision -> those filters."""
-        from modeldiff import graph
+    # -- reach through the changed edges of one setting
 
-        if change.id in self._reach_cache:
-            return self._reach_cache[change.id]
-        if self._security is None:
-            self._security = (in_new_names(graph.security_graph(self.a.old), self.a.renames),
-                              graph.security_graph(self.a.new))
-        changed = sorted(change.details.get("tables") or set(change.before or {}) | set(change.after or {}))
-        out: dict[str, list[str]] = {}
-        for table in changed:
-            for sec in self._security:
-                for reached in sec.reach(self.a.renames.table(table)):
-                    if table not in out.setdefault(reached, []):
-                        out[reached].append(table)
-        self._reach_cache[change.id] = out
-        return out
+    def graphs(self, comp: _Computation) -> tuple[Any, Any]:
+        """The old (in new names) and new flow graphs of one computation's setting."""
+        return self.a.old_graph(comp.old_layers), self.a.graph(self.a.new, comp.new_layers)
 
-    # -- reasons that depend on the setting: paths into the measure's table, keys on them, options' `where`
-
-    def path_reasons(self, home: str, comp: _Computation, sources: set[str] | None = None) -> list[Reason]:
-        """Reasons from the paths into `home` in the setting of `comp` (shared by the measures with both)."""
-        key = (home, id(comp), None if sources is None else frozenset(sources))
-        found = self._path_cache.get(key)
+    def changed_edges(self, comp: _Computation) -> tuple[tuple[Any, Any, bool, bool], ...]:
+        g_old, g_new = self.graphs(comp)
+        key = (id(g_old), id(g_new))  # (both graphs are kept by the analysis: ids stay unique)
+        found = self._changed.get(key)
         if found is None:
-            found = self._path_cache[key] = (comp, self._path_reasons(home, comp, sources))  # comp kept: ids stay unique
-        return list(found[1])
+            found = self._changed[key] = _changed_edges(g_old, g_new, self.switched)
+        return found
 
-    def _path_reasons(self, home: str, comp: _Computation, sources: set[str] | None = None) -> list[Reason]:
+    def reach_reasons(self, home: str, comp: _Computation) -> list[Reason]:
+        """Reasons `home`'s rows move under some filter in the setting of `comp` (shared by measures with both)."""
+        key = (home, id(comp))
+        found = self._reach_cache.get(key)
+        if found is None:
+            hits = [h for h in self.changed_edges(comp) if home in h[1].reach(h[0].dst)]
+            found = self._reach_cache[key] = (self._hit_reasons(home, comp, hits) if hits else []) + \
+                self.where_reasons(home, comp)
+        return list(found)
+
+    def _hit_reasons(self, home: str, comp: _Computation, hits: list) -> list[Reason]:
+        """One reason per (change, source table): the simple paths it added or removed, else a route through it."""
         a = self.a
-        reasons = []
+        sources: set[str] = set()
+        for edge, g, _, _ in hits:
+            sources |= g.reaching(edge.src)
         targets = None if not comp.new_layers and not comp.old_layers else {home}
-        pairs = a.pairs(comp.old_layers, comp.new_layers, sources=sources, targets=targets)
-        for (source, target), pc in sorted(pairs.items()):
-            if target != home:
+        pairs = a.pairs(comp.old_layers, comp.new_layers, targets=targets)
+        listed: dict[tuple[str, str], tuple[list[Path], list[Path]]] = {}
+        for source in sorted(sources):
+            pc = pairs.get((source, home))
+            if pc is None:
                 continue
-            groups: dict[str, tuple[list[Path], list[Path]]] = {}
             for p in pc.added:
-                groups.setdefault(self.cause(pc.added_by.get(p, ()), True, comp, (source, target)),
+                listed.setdefault((self.cause(pc.added_by.get(p, ()), True, comp, (source, home)), source),
                                   ([], []))[0].append(p)
             for p in pc.removed:
-                groups.setdefault(self.cause(pc.removed_by.get(p, ()), False, comp, (source, target)),
+                listed.setdefault((self.cause(pc.removed_by.get(p, ()), False, comp, (source, home)), source),
                                   ([], []))[1].append(p)
-            if not groups:  # the listing was cut short before a difference showed
+            if not pc.added and not pc.removed:  # the listing was cut short before a difference showed
                 near = [e for link in sorted(pc.links) for e in self._edges_of(a.graph(a.new, comp.new_layers), link)]
-                groups[self.cause(near, True, comp, (source, target))] = ([], [])
-            for change_id, (added, removed) in sorted(groups.items(), key=lambda kv: _id_order(kv[0])):
-                reasons.append(Reason(change_id, f"Paths from {source} into {home} changed: numbers move when "
-                                                 f"filtered or grouped by {source}.",
-                                      source=source, paths_added=tuple(added), paths_removed=tuple(removed)))
-        g_new = a.graph(a.new, comp.new_layers)
-        for change in self.key_changes:
-            link = change.subject.split(".", 1)[1]
-            for edge in self._edges_of(g_new, link):
-                if home not in g_new.reach(edge.dst):
-                    continue
-                starts = [edge.src] if sources is None else sorted(s for s in sources if edge.src in g_new.reach(s))
-                if starts:
-                    reasons.append(Reason(change.id, f"Link {link} lies on a path from {starts[0]} into {home} and "
-                                                     f"{change.message[0].lower()}{change.message[1:]}",
-                                          source=starts[0]))
-                    break
-        reasons += self.where_reasons(home, comp)
-        return reasons
+                listed.setdefault((self.cause(near, True, comp, (source, home)), source), ([], []))
+        routes: dict[tuple[str, str], Reason] = {}
+        for edge, g, came, both in hits:
+            for source in sorted(g.reaching(edge.src)):
+                key = (self.edge_change((edge,), came, both, comp, (source, home)), source)
+                if key not in listed and key not in routes:
+                    route = g.route_through(source, edge, home)
+                    routes[key] = Reason(key[0], _route_message(source, edge, came, both, route, home), source=source,
+                                         route=route or ())
+        reasons = [Reason(change_id, f"Paths from {source} into {home} changed: numbers move when filtered or "
+                                     f"grouped by {source}.", source=source, paths_added=tuple(added),
+                          paths_removed=tuple(removed))
+                   for (change_id, source), (added, removed) in listed.items()]
+        return sorted(reasons + list(routes.values()), key=lambda r: (_id_order(r.change), r.source or ""))
 
     def where_reasons(self, home: str, comp: _Computation) -> list[Reason]:
         """A variant option's `where` in force changed on a table whose filter reaches `home`."""
         from modeldiff import sql
 
         reasons = []
-        g_old, g_new = self.a.old_graph(comp.old_layers), self.a.graph(self.a.new, comp.new_layers)
+        g_old, g_new = self.graphs(comp)
         for table in sorted(set(comp.old_wheres) | set(comp.new_wheres)):
             before, after = comp.old_wheres.get(table, ()), comp.new_wheres.get(table, ())
             if len(before) == len(after) and all(sql.same_logic(x, y, table) if x != y else True
@@ -770,38 +821,150 @@ class _Impacts:
                                              f"{home} move.", source=table))
         return reasons
 
-    def computation(self, measure: Measure, report: Report | None = None) -> _Computation | None:
-        """The old and new settings of a measure (inside `report` when given), or None when it is new."""
+    def group_reasons(self, comp: _Computation, where_tables: Iterable[str], by_tables: Iterable[str]) -> list[Reason]:
+        """A report's groups (the `by` values visible under its `where`) move across a changed edge."""
+        reasons = []
+        for edge, g, came, both in self.changed_edges(comp):
+            for where in sorted(where_tables):
+                if edge.src not in g.reach(where):
+                    continue
+                for by in sorted(b for b in by_tables if b in g.reach(edge.dst)):
+                    route = g.route_through(where, edge, by)
+                    reasons.append(Reason(
+                        self.edge_change((edge,), came, both, comp, (where, by)),
+                        f"{_route_text(route, where, by)}: the groups by {by} are the {by} rows visible under the "
+                        f"filter on {where}, and the filter {'now crosses' if came and not both else 'no longer crosses' if not both else 'crosses'} "
+                        f"link {edge.link} ({edge.src} -> {edge.dst}) on the way: which groups show can change.",
+                        source=where, route=route or ()))
+        return reasons
+
+    # -- role rows
+
+    def role_rows(self) -> dict[str, dict[str, dict[str, str]]]:
+        """Role (new name) -> each table whose rows its members may see can change -> change id -> filtered table."""
+        if self._role_rows is None:
+            self._role_rows = self._find_role_rows()
+        return self._role_rows
+
+    def _find_role_rows(self) -> dict[str, dict[str, dict[str, str]]]:
         a = self.a
-        if report is None and measure.overrides is NO_OVERRIDES:  # the common case, without the general path's lists
-            plain = self._plain_computations.get(None)
-            if plain is not None and measure.name not in self._own_setting_changes:
-                old_measure = a.old.measures.get(self.back.measures.get(measure.name, measure.name))
-                if old_measure is None:
-                    return None
-                if old_measure.overrides is NO_OVERRIDES:
-                    return plain
-        old_measure = a.old.measures.get(self.old_name("measures", measure.name))
+        s_old, s_new = a.security_graphs()
+        changed = _changed_edges(s_old, s_new, self.switched)
+        upstream = {id(g): set() for g in (s_old, s_new)}  # tables whose filter reaches a changed edge
+        for edge, g, _, _ in changed:
+            upstream[id(g)] |= g.reaching(edge.src)
+        old_roles = {a.renames.roles.get(name, name): role for name, role in a.old.roles.items()}
+        out: dict[str, dict[str, dict[str, str]]] = {}
+        for name in sorted(set(old_roles) & set(a.new.roles)):
+            rows: dict[str, dict[str, str]] = {}
+            filters = ((s_old, sorted(a.renames.table(t) for t in old_roles[name].filters)),
+                       (s_new, sorted(a.new.roles[name].filters)))
+            for g, filtered in filters:
+                if not upstream[id(g)] & set(filtered):
+                    continue
+                origins = g.reach_origins(filtered)
+                for edge, eg, came, both in changed:
+                    if eg is g and edge.src in origins:
+                        change_id = self.edge_change((edge,), came, both, None, (origins[edge.src], edge.dst))
+                        for table in sorted(g.reach(edge.dst)):
+                            rows.setdefault(table, {}).setdefault(change_id, origins[edge.src])
+            for change in self.by_subject.get(f"roles.{name}", ()):
+                if change.kind == "role.filter_changed":
+                    tables = sorted(set(change.details.get("tables") or ()) | set(change.before or {}) |
+                                    set(change.after or {}))
+                    for table in tables:
+                        for g, _ in filters:
+                            for reached in sorted(g.reach(a.renames.table(table))):
+                                rows.setdefault(reached, {}).setdefault(change.id, table)
+            for change in self.kinds("security."):
+                parts = change.subject.split(".")
+                if parts[1] == name:
+                    rows.setdefault(parts[3], {}).setdefault(change.id, change.details.get("source") or parts[3])
+            if rows:
+                out[name] = rows
+        return out
+
+    def _role_reach(self, role: str, change_id: str, g) -> dict[str, str]:
+        """Tables a filter on the tables whose rows `role` sees differently (because of `change_id`) reaches in `g`."""
+        key = (role, change_id, id(g))
+        found = self._role_origins.get(key)
+        if found is None:
+            tables = [t for t, causes in self.role_rows()[role].items() if change_id in causes]
+            found = self._role_origins[key] = (g, g.reach_origins(tables))
+        return found[1]
+
+    def role_reasons(self, home: str, comp: _Computation, roles: Iterable[str] | None = None) -> list[Reason]:
+        """The rows a role (any role when `roles` is None) may see of `home` or of a table reaching it can change."""
+        rows = self.role_rows()
+        if not rows:
+            return []
+        names = sorted(rows) if roles is None else sorted(set(roles) & set(rows))
+        key = (home, id(comp), tuple(names))
+        found = self._role_cache.get(key)
+        if found is None:
+            found = self._role_cache[key] = []
+            for role in names:
+                for change_id in sorted({c for causes in rows[role].values() for c in causes}, key=_id_order):
+                    for g in self.graphs(comp):
+                        origins = self._role_reach(role, change_id, g)
+                        if home in origins:
+                            table = origins[home]
+                            found.append(Reason(change_id, f"The rows role {role} may see of {table} can change"
+                                                           + ("" if table == home else f", and a filter on {table} reaches {home}")
+                                                           + f": numbers on {home} seen as {role} move.",
+                                                source=rows[role][table][change_id]))
+                            break
+        return list(found)
+
+    # -- computations: a measure (through the derived measures naming it) in one setting
+
+    def chains(self, name: str) -> list[tuple[str, ...]]:
+        """Each way from measure `name` down to a base measure it reaches: (name, ..., base), new names."""
+        found = self._chains.get(name)
+        if found is None:
+            found = self._chains[name] = []
+            measures, todo = self.a.new.measures, [(name,)]
+            while todo and len(found) < CHAIN_LIMIT:
+                chain = todo.pop()
+                m = measures.get(chain[-1])
+                if m is None:
+                    continue
+                if m.table is not None:
+                    found.append(chain)
+                    continue
+                todo.extend(chain + (dep,) for dep in sorted(self.measure_deps.get(chain[-1], ()), reverse=True)
+                            if dep not in chain)
+        return found
+
+    def computation(self, chain: tuple[str, ...], report: Report | None = None) -> _Computation | None:
+        """The old and new settings of the base measure at the end of `chain` (inside `report` when given).
+
+        None when the measure or its base is new: no number of it moved.
+        """
+        a = self.a
+        news = [a.new.measures[n] for n in chain]
+        olds = [a.old.measures.get(self.old_name("measures", n)) for n in chain]
+        if olds[0] is None or olds[-1] is None:
+            return None
         old_report = None
         if report is not None:
             old_report = a.old.reports.get(self.old_name("reports", report.name))
             if old_report is None:
                 return None
-        if old_measure is None:
-            return None
-        changes: list[Change] = [c for c in self.by_subject.get(f"measures.{measure.name}", ())
-                                 if c.kind == "measure.overrides_changed"]
-        plain = not changes and not measure.overrides and not old_measure.overrides
-        if plain:  # no overrides of its own: the setting of every such measure (in this report) is the same
+        own = [n for n in chain if n in self._own_setting_changes]
+        if not own and all(m.overrides is NO_OVERRIDES or not m.overrides for m in news) and \
+                all(m is None or not m.overrides for m in olds):
             key = None if report is None else report.name
             found = self._plain_computations.get(key)
             if found is None:
-                found = self._plain_computations[key] = self._computation(measure, report, old_measure, old_report, [])
+                found = self._plain_computations[key] = self._computation((), (), report, old_report, [])
             return found
-        return self._computation(measure, report, old_measure, old_report, changes)
+        changes = [c for n in own for c in self.by_subject.get(f"measures.{n}", ()) if c.kind == "measure.overrides_changed"]
+        return self._computation(tuple(m.overrides for m in news),
+                                 tuple(m.overrides for m in olds if m is not None), report, old_report, changes)
 
-    def _computation(self, measure: Measure, report: Report | None, old_measure: Measure, old_report: Report | None,
-                     changes: list[Change]) -> _Computation:
+    def _computation(self, new_overrides: tuple[Overrides, ...], old_overrides: tuple[Overrides, ...],
+                     report: Report | None, old_report: Report | None, changes: list[Change]) -> _Computation:
         a = self.a
         if report is not None:
             changes += [c for c in self.by_subject.get(f"reports.{report.name}", ()) if c.kind == "report.changed"]
@@ -818,9 +981,16 @@ class _Impacts:
             subjects += [f"variants.{variant}.options.{o}" for o in sorted(in_force)]
             for subject in subjects:
                 changes += [c for c in self.by_subject.get(subject, ()) if c.kind in SETTING_KINDS and c.severity != "safe"]
-        return _Computation(setting_layers(a.old, old_measure, old_report), setting_layers(a.new, measure, report),
-                            tuple(sorted({c.id: c for c in changes}.values(), key=lambda c: _id_order(c.id))),
-                            _wheres(old_options, a.renames), _wheres(new_options, None))
+        old_layers = tuple(layer for layer in setting_layers(a.old, None, old_report) + old_overrides if layer)
+        new_layers = tuple(layer for layer in setting_layers(a.new, None, report) + new_overrides if layer)
+        setting_changes = tuple(sorted({c.id: c for c in changes}.values(), key=lambda c: _id_order(c.id)))
+        old_wheres, new_wheres = _wheres(old_options, a.renames), _wheres(new_options, None)
+        key = (_layers_key(old_layers), _layers_key(new_layers), tuple(c.id for c in setting_changes),
+               tuple(sorted(old_wheres.items())), tuple(sorted(new_wheres.items())))
+        found = self._computations.get(key)
+        if found is None:
+            found = self._computations[key] = _Computation(old_layers, new_layers, setting_changes, old_wheres, new_wheres)
+        return found
 
     def _options(self, model: Model, report: Report | None, old: bool) -> dict[str, tuple[str, VariantOption]]:
         """Variant (new name) -> (option name, option) in force."""
@@ -831,89 +1001,66 @@ class _Impacts:
                 out[self.a.renames.variants.get(name, name) if old else name] = found
         return out
 
+    def chain_reasons(self, chain: tuple[str, ...], comp: _Computation) -> list[Reason]:
+        """Why the value of `chain[0]` moves through the base measure `chain[-1]` in the setting of `comp`.
+
+        Roles aside: the caller adds the roles that apply (any role for a
+        measure on its own, the report's role inside a report).
+        """
+        base = chain[-1]
+        reasons = [_via(r, n) if n != chain[0] else r for n in chain for r in self.own_reasons(n)]
+        for n in chain[:-1]:  # a derived measure's overrides on the way (the base's act through the edges)
+            for change in self.by_subject.get(f"measures.{n}", ()):
+                if change.kind == "measure.overrides_changed":
+                    reasons.append(_via(Reason(change.id, change.message), n) if n != chain[0] else Reason(change.id, change.message))
+        home = self.a.new.measures[base].table
+        reasons += [_via(r, base) if base != chain[0] else r for r in self.reach_reasons(home, comp)]
+        return reasons
+
     # -- the three lists
 
     def measures(self) -> list[Impact]:
         a = self.a
-        direct: dict[str, list[Reason]] = {}
+        result: dict[str, list[Reason]] = {}
         named = {c.subject.split(".")[1] for c in self.changes if c.subject.startswith("measures.")}
-        loud = self._loud_tables()
-        back_measures, back_tables, old_measures = self.back.measures, self.back.tables, a.old.measures
-        plain_paths: dict[str, list[Reason]] = {}  # measure's table -> its path reasons in the plain setting
-        own = named | self._own_setting_changes
-        quiet: dict[str, bool] = {}  # measure's table -> no change touches it (in either revision's name)
+        loud = set(self.table_changes)
+        back_measures, old_measures, own_settings = self.back.measures, a.old.measures, self._own_setting_changes
+        by_table: dict[str, list[Reason]] = {}  # reasons of a plain base measure's table (the common case)
         for name, m in a.new.measures.items():
             table = m.table
-            if table is not None and m.overrides is NO_OVERRIDES and name not in own and (
-                    quiet[table] if table in quiet else
-                    quiet.setdefault(table, table not in loud and back_tables.get(table, table) not in loud)):
-                # the common case, as below without the per-measure steps: the plain setting, no reasons of its own
+            if table is not None and m.overrides is NO_OVERRIDES and name not in own_settings:
+                # as below without the per-measure steps: the plain setting, shared by every such measure of a table
                 old_measure = old_measures.get(back_measures.get(name, name) if back_measures else name)
                 if old_measure is None:
                     continue  # a new measure had no numbers to move
                 if old_measure.overrides is NO_OVERRIDES:
-                    found = plain_paths.get(table)
+                    found = by_table.get(table)
                     if found is None:
-                        found = plain_paths[table] = self.path_reasons(table, self.computation(m))
-                    if found:
-                        direct[name] = list(found)
+                        plain = self.computation((name,))
+                        found = by_table[table] = self.reach_reasons(table, plain) + self.role_reasons(table, plain)
+                    own = self.own_reasons(name) if name in named or table in loud or \
+                        self.old_name("tables", table) in loud else []
+                    if own or found:
+                        result[name] = own + found
                     continue
-            comp = self.computation(m)
-            if comp is None:
-                continue  # a new measure had no numbers to move
-            if name in named or m.table is None or m.table in loud or self.old_name("tables", m.table) in loud:
-                reasons = list(self.own_reasons(name))
-            else:
-                reasons = []  # no change names it or touches its table: `own_reasons` would find nothing
-            if m.table is not None:
-                reasons += self.path_reasons(m.table, comp)
+            reasons: list[Reason] = []
+            chains = self.chains(name)
+            if not chains and m.table is None and self.computation((name,)) is not None:
+                reasons += self.own_reasons(name)  # a derived measure naming no measure: its expression alone
+            for chain in chains:
+                comp = self.computation(chain)
+                if comp is None:
+                    continue  # a new measure (or one reaching only new measures) had no numbers to move
+                reasons += self.chain_reasons(chain, comp)
+                base = chain[-1]
+                reasons += [_via(r, base) if base != name else r
+                            for r in self.role_reasons(a.new.measures[base].table, comp)]
             if reasons:
-                direct[name] = reasons
-        # derived measures inherit the reasons of the measures they use: only those that use an impacted one
-        result: dict[str, list[Reason]] = {k: list(v) for k, v in direct.items()}
-        for name in sorted(self._users_of(direct)):
-            m = a.new.measures[name]
-            if m.table is not None or self.computation(m) is None:
-                continue
-            for dep in self.dependencies(name):
-                for reason in direct.get(dep, ()):
-                    result.setdefault(name, []).append(_via(reason, dep))
+                result[name] = reasons
         return [self._impact(name, reasons) for name, reasons in sorted(result.items())]
 
-    def _loud_tables(self) -> set[str]:
-        """Tables whose measures `own_reasons` may give a reason: changed, re-secured or under a changed role filter."""
-        loud = set(self.table_changes) | set(self.security_by_table)
-        for change in self.filter_changes:
-            loud |= set(self._filter_reach(change))
-        return loud
-
-    def _users_of(self, used: Iterable[str]) -> set[str]:
-        """Derived measures that use any of `used`, directly or through other derived measures."""
-        users: dict[str, list[str]] = {}
-        for name, deps in self.measure_deps.items():
-            for dep in deps:
-                users.setdefault(dep, []).append(name)
-        found: set[str] = set()
-        todo = [user for name in used for user in users.get(name, ())]
-        while todo:
-            name = todo.pop()
-            if name not in found:
-                found.add(name)
-                todo.extend(users.get(name, ()))
-        return found
-
-    def dependencies(self, name: str) -> list[str]:
-        out, todo, seen = [], list(self.measure_deps.get(name, ())), {name}
-        while todo:
-            dep = todo.pop()
-            if dep in seen:
-                continue
-            seen.add(dep)
-            out.append(dep)
-            todo.extend(self.measure_deps.get(dep, ()))
-        return sorted(out)
-
     def roles(self) -> list[Impact]:
+        rows = self.role_rows()
         out = []
         for name in sorted(set(self.a.new.roles) | {self.a.renames.roles.get(n, n) for n in self.a.old.roles}):
             reasons, exposed, tightened, rerouted = [], [], [], []
@@ -927,14 +1074,25 @@ class _Impacts:
                 table = parts[3]
                 {"security.exposed": exposed, "security.tightened": tightened, "security.rerouted": rerouted}[change.kind].append(table)
                 reasons.append(Reason(change.id, change.message, source=change.details.get("source")))
+            named = {r.change for r in reasons}
+            moved: dict[tuple[str, str], list[str]] = {}
+            for table, causes in sorted(rows.get(name, {}).items()):
+                for change_id, source in causes.items():
+                    if change_id not in named:
+                        moved.setdefault((change_id, source), []).append(table)
+            for (change_id, source), tables in sorted(moved.items(), key=lambda kv: (_id_order(kv[0][0]), kv[0][1])):
+                reasons.append(Reason(change_id, f"A filter of role {name} on {source} reaches what changed: the rows "
+                                                 f"its members may see of {_and(tables)} can change.", source=source))
             if reasons:
                 severity = worst(self.by_id[r.change].severity for r in reasons)
-                out.append(Impact(name, severity, tuple(reasons), tuple(exposed), tuple(tightened), tuple(rerouted)))
+                out.append(Impact(name, "numbers" if severity == "safe" else severity, tuple(reasons),
+                                  tuple(exposed), tuple(tightened), tuple(rerouted)))
         return out
 
     def reports(self) -> list[Impact]:
         a = self.a
         out = []
+        rows = self.role_rows()
         for name, report in sorted(a.new.reports.items()):
             old_report = a.old.reports.get(self.old_name("reports", name))
             if old_report is None:
@@ -944,7 +1102,7 @@ class _Impacts:
                 if change.severity == "safe" or change.kind in ("report.added", "report.renamed"):
                     continue
                 if change.kind == "report.changed" and set(change.before or {}) <= _SETTING_FIELDS:
-                    continue  # only its setting changed: see the paths below
+                    continue  # only its setting changed: see the edges below
                 reasons.append(Reason(change.id, change.message))
             for change in self.kinds("measure."):  # a measure it shows was removed or renamed
                 shown = change.subject.split(".", 1)[1]
@@ -952,26 +1110,29 @@ class _Impacts:
                     reasons.append(Reason(change.id, change.message))
                 elif change.kind == "measure.renamed" and change.severity != "safe" and shown in report.measures:
                     reasons.append(Reason(change.id, change.message))
-            sources = self.report_sources(report)
+            by_tables = {item.partition(".")[0] for item in report.by}
+            where_tables = set(report.where)
+            for _, (_, option) in self._options(a.new, report, old=False).items():
+                where_tables |= set(option.where)
+            filters = {t for t in by_tables | where_tables if t in a.new.tables}
+            read: set[str] = set()
             for measure_name in report.measures:
                 if measure_name not in a.new.measures:
                     continue
-                for base in [measure_name] + self.dependencies(measure_name):
-                    bm = a.new.measures.get(base)
-                    if bm is None:
+                for chain in self.chains(measure_name):
+                    comp = self.computation(chain, report)
+                    if comp is None:
                         continue
-                    for reason in self.own_reasons(base):
-                        role = self._reason_role(reason)
-                        if role is not None and role != report.role:
-                            continue  # role rows matter only to a report seen as that role
-                        reasons.append(_via(reason, base))
-                    comp = self.computation(bm, report)
-                    if bm.table is None or comp is None:
-                        continue
-                    if sources:
-                        reasons += [_via(r, base) for r in self.path_reasons(bm.table, comp, sources)]
-                    else:
-                        reasons += [_via(r, base) for r in self.where_reasons(bm.table, comp)]
+                    base = chain[-1]
+                    reasons += [_via(r, base) for r in self.chain_reasons(chain, comp)]
+                    reasons += [_via(r, base) for r in self.group_reasons(comp, where_tables & filters, by_tables & filters)]
+                    if report.role in rows:
+                        read |= self._tables_read(a.new.measures[base].table, comp, filters)
+            if report.role in rows:
+                for table, change_id in sorted((t, c) for t in read & set(rows[report.role]) for c in rows[report.role][t]):
+                    source = rows[report.role][table][change_id]
+                    reasons.append(Reason(change_id, f"The rows role {report.role} may see of {table} can change, and "
+                                                     f"this report, seen as {report.role}, reads {table}.", source=source))
             for item in report.by + tuple(report.where):
                 table, _, column = item.partition(".")
                 for change in self.changes:
@@ -987,23 +1148,24 @@ class _Impacts:
                 out.append(self._impact(name, reasons))
         return out
 
-    def _reason_role(self, reason: Reason) -> str | None:
-        change = self.by_id.get(reason.change)
-        if change is None or not (change.kind.startswith("security.") or change.kind == "role.filter_changed"):
-            return None
-        return change.subject.split(".")[1]
-
-    def report_sources(self, report: Report) -> set[str]:
-        tables = {item.partition(".")[0] for item in report.by} | set(report.where)
-        for _, (_, option) in self._options(self.a.new, report, old=False).items():
-            tables |= set(option.where)
-        return {t for t in tables if t in self.a.new.tables}
+    def _tables_read(self, home: str, comp: _Computation, filters: set[str]) -> set[str]:
+        """A report's tables for one measure: its home, the filtered tables, and what lies between them."""
+        read = {home} | filters
+        for g in self.graphs(comp):
+            above = g.reaching(home)
+            for table in filters:
+                read |= g.reach(table) & above
+        return read
 
     def _impact(self, name: str, reasons: list[Reason]) -> Impact:
         reasons = sorted(_dedupe(reasons), key=lambda r: (_id_order(r.change), r.source or "", r.paths_added,
-                                                          r.paths_removed))
+                                                          r.paths_removed, r.route))
         severity = worst(self.by_id[r.change].severity for r in reasons if r.change in self.by_id)
         return Impact(name, "numbers" if severity == "safe" else severity, tuple(reasons))
+
+
+def _and(names: list[str]) -> str:
+    return names[0] if len(names) == 1 else ", ".join(names[:-1]) + " and " + names[-1]
 
 
 def _wheres(options: Mapping[str, tuple[str, VariantOption]], renames: Renames | None) -> dict[str, tuple[str, ...]]:
@@ -1026,7 +1188,7 @@ def _via(reason: Reason, measure: str) -> Reason:
 def _dedupe(reasons: list[Reason]) -> list[Reason]:
     seen, out = set(), []
     for reason in reasons:
-        key = (reason.change, reason.source, reason.paths_added, reason.paths_removed)
+        key = (reason.change, reason.source, reason.paths_added, reason.paths_removed, reason.route)
         if key not in seen:
             seen.add(key)
             out.append(reason)

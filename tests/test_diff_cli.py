@@ -234,7 +234,7 @@ def test_text_has_no_security_caution_without_an_exposure():
 def test_text_lists_impacts_with_sources_and_paths():
     _, out, _ = run("diff", *pair("flow_widened"))
     flat = " ".join(out.split())
-    assert "impacted measures (3)" in flat
+    assert "impacted measures (9)" in flat  # stock measures by new paths, trip measures by the route back
     assert "when filtered or grouped by calendar" in flat
     assert "+ trips_start_day / trips_start_station / stock_levels_station" in flat
 
@@ -254,7 +254,7 @@ def test_markdown_starts_with_the_summary_table():
     out = markdown(*pair("flow_widened"))
     tables = [line for line in out.splitlines() if line.startswith("|")]
     assert tables[0].startswith("| model | verdict |")
-    assert re.match(r"\| `bikeshare` \| \*\*breaking\*\* \| 1 \| 13 \| 1 \| 3 \| 0 \| 1 \|", tables[2])
+    assert re.match(r"\| `bikeshare` \| \*\*breaking\*\* \| 1 \| 13 \| 1 \| 9 \| 0 \| 5 \|", tables[2])
 
 
 def test_markdown_folds_long_lists_into_details_and_repeats_the_table_header(tmp_path):

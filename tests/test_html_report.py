@@ -81,7 +81,7 @@ def test_report_is_well_formed_with_summary_changes_impacts_and_graph():
     assert [(c["data-severity"], c.get("data-kind")) for c in causes][1:] == [("safe", "warning.added")]
     assert causes[0]["data-severity"] == "breaking"
     text = "".join(p.text)
-    assert "Impacted measures (3)" in text and "stock_value" in text and "station_stock" in text
+    assert "Impacted measures (11)" in text and "stock_value" in text and "station_stock" in text
     changed = [a["data-link"] for t, a in p.seen if t == "g" and a.get("class") == "edge changed"]
     assert changed == ["trips_start_station"]
     assert "graph LR" in text  # the Mermaid source, folded in <details>

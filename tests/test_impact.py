@@ -106,19 +106,27 @@ def test_flow_widened_blames_the_link_with_source_and_new_path():
     widened = change(r, "link.flow_widened", "links.trips_start_station")
     stock = impact_of(r.measures, "stock_value")
     by_source = {x.source: x for x in stock.reasons}
-    assert set(by_source) == {"bikes", "calendar", "riders", "trips"}
+    # every table whose filter reaches trips (the new edge's start) is a source (changes.md, Reasons)
+    assert set(by_source) == {"bikes", "calendar", "riders", "trips", "stations", "districts", "district_access"}
     assert all(x.change == widened.id for x in stock.reasons)
     assert by_source["calendar"].paths_added == (STATION_STOCK_FROM_CALENDAR,)
     assert by_source["calendar"].paths_removed == ()
+    # stations -> stock_levels kept its single simple path: the reason shows the route that comes back
+    assert by_source["stations"].paths_added == () and by_source["stations"].route == (
+        "stations", "trips", "stations", "stock_levels")
+    assert "comes back to stations" in by_source["stations"].message
 
 
-def test_flow_widened_leaves_measures_off_the_new_paths_alone():
+def test_flow_widened_moves_what_a_filter_comes_back_to_and_leaves_the_rest_alone():
     r = scenario("flow_widened")
-    assert names(r.measures) == ["avg_unit_cost", "stock_on_hand", "stock_value"]
-    # station_stock moves only through calendar: stations -> stock_levels kept its single path
-    report = impact_of(r.reports, "station_stock")
-    assert {x.source for x in report.reasons} == {"calendar"}
-    assert "weekly_fares" not in names(r.reports)
+    # trips -> stations -> trips: a filter reaching trips now keeps only trips with a matching station
+    assert names(r.measures) == ["avg_unit_cost", "fare_revenue", "repair_cost_per_trip", "revenue_per_trip",
+                                 "ride_minutes", "stock_on_hand", "stock_value", "trip_count", "trips_by_end_day"]
+    reasons = {x.source: x for x in impact_of(r.measures, "trip_count").reasons}
+    assert reasons["trips"].route == ("trips", "stations", "trips") and reasons["trips"].paths_added == ()
+    # repairs are not reachable from stations: no repair measure moves
+    assert not {"repair_cost", "repair_count", "cost_per_repair"} & set(names(r.measures))
+    assert "repair_costs_by_depot" not in names(r.reports)
 
 
 def test_ambiguity_introduced_names_two_witness_paths():
@@ -145,9 +153,10 @@ def test_derived_measure_inherits_through_the_measures_it_uses():
     r = scenario("flow_widened")
     derived = impact_of(r.measures, "avg_unit_cost")
     assert {x.via for x in derived.reasons} <= {"stock_on_hand", "stock_value"}
-    assert {x.source for x in derived.reasons} == {"bikes", "calendar", "riders", "trips"}
-    # revenue_per_trip uses only trip measures, which did not move
-    assert "revenue_per_trip" not in names(r.measures)
+    assert {x.source for x in derived.reasons} == {"bikes", "calendar", "riders", "trips", "stations", "districts",
+                                                    "district_access"}
+    # cost_per_repair uses only repair measures, which did not move
+    assert "cost_per_repair" not in names(r.measures)
 
 
 def test_derived_measure_of_a_derived_measure_inherits_transitively():
@@ -185,9 +194,13 @@ def test_via_added_blames_the_measure_overrides_and_names_the_source():
         (overrides.id, "calendar", (("trips_end_day",),), (("trips_start_day",),))]
 
 
-def test_via_added_impacts_only_reports_filtering_along_the_changed_paths():
-    # rider_trips shows ride_minutes by riders: riders -> trips did not change
-    assert names(scenario("via_added").reports) == []
+def test_via_added_impacts_the_report_showing_the_measure_whatever_its_filters():
+    # rider_trips shows ride_minutes by riders: riders -> trips did not change, but ride_minutes is impacted in the
+    # report's setting (changes.md, Reports), so the report is listed; daily_returns does not show it
+    r = scenario("via_added")
+    overrides = change(r, "measure.overrides_changed", "measures.ride_minutes")
+    assert names(r.reports) == ["rider_trips"]
+    assert {x.change for x in impact_of(r.reports, "rider_trips").reasons} == {overrides.id}
 
 
 def test_via_added_on_a_link_off_the_measure_paths_impacts_nothing():
@@ -217,8 +230,9 @@ def test_a_path_closed_by_a_measure_override_is_blamed_on_the_override_not_the_l
     reasons = impact_of(r.measures, "ride_minutes").reasons
     assert {x.change for x in reasons} == {overrides.id}
     assert ("stations", (("trips_start_station",),)) in [(x.source, x.paths_removed) for x in reasons]
-    # the other trip measures keep the link and did not move
-    assert "trip_count" not in names(r.measures)
+    # the other trip measures keep the link and move by the flip (a filter on trips comes back through stations)
+    widened = change(r, "link.flow_widened", "links.trips_start_station")
+    assert {x.change for x in impact_of(r.measures, "trip_count").reasons} == {widened.id}
 
 
 # --- settings: variants and reports ------------------------------------------------------------
@@ -231,14 +245,20 @@ def test_variant_option_change_impacts_only_the_report_choosing_it():
     assert names(r.reports) == ["repair_costs_current"]
     reasons = impact_of(r.reports, "repair_costs_current").reasons
     assert {x.change for x in reasons} == {option.id}
-    assert {x.source for x in reasons} == {"districts"}
-    assert (("stations_district", "trips_start_station", "trips_bike", "repairs_bike")) in reasons[0].paths_added
+    # every source of the report's measure counts, not only its `by` table (issue 9, point 4)
+    assert {"districts", "calendar", "trips"} <= {x.source for x in reasons}
+    districts = next(x for x in reasons if x.source == "districts")
+    assert (("stations_district", "trips_start_station", "trips_bike", "repairs_bike")) in districts.paths_added
 
 
-def test_variant_option_change_that_opens_no_path_impacts_no_report():
+def test_variant_option_change_that_opens_only_a_route_back_impacts_the_report_choosing_it():
     r = scenario("variant_option_changed_no_path")
+    option = change(r, "variant.changed", "variants.attribution.options.current")
     assert [c.kind for c in r.changes] == ["variant.changed"]
-    assert (names(r.measures), names(r.reports)) == ([], [])
+    assert (names(r.measures), names(r.reports)) == ([], ["repair_costs_current"])
+    districts = next(x for x in impact_of(r.reports, "repair_costs_current").reasons if x.source == "districts")
+    assert districts.change == option.id and districts.paths_added == ()
+    assert districts.route[:3] == ("districts", "mechanics", "districts")
 
 
 def test_variant_default_change_moves_what_uses_the_default_only():
@@ -272,11 +292,13 @@ def test_report_overrides_move_the_report_only_along_its_own_filters():
     r = analyse_texts(base, base.replace(weekly, weekly + ", via: [trips_end_day]")
                       .replace(riders, riders + ", via: [trips_end_day]"))
     assert sorted(c.subject for c in r.changes if c.kind == "report.changed") == ["reports.rider_trips", "reports.weekly_fares"]
-    # weekly_fares groups by calendar, whose path into trips moved; rider_trips groups by riders, whose did not
-    assert names(r.reports) == ["weekly_fares"]
+    # both reports' measures see calendar -> trips change in the report's setting, whatever the report groups by
+    assert names(r.reports) == ["rider_trips", "weekly_fares"]
     weekly_change = change(r, "report.changed", "reports.weekly_fares")
     assert {(x.change, x.source) for x in impact_of(r.reports, "weekly_fares").reasons} == {(weekly_change.id, "calendar")}
     assert names(r.measures) == []  # outside the report nothing moved
+    # daily_returns kept its setting: not listed (a change inside one report's setting impacts that report)
+    assert "daily_returns" not in names(r.reports)
 
 
 # --- row security ------------------------------------------------------------------------------
@@ -365,9 +387,15 @@ def test_key_switch_to_the_natural_key_explains_history():
     assert len(to_side) == 1
     assert to_side[0].details["history"] == "surrogate->natural"
     assert "every version" in to_side[0].message and "history" in to_side[0].message
-    # repairs move when filtered or grouped by mechanics (directly) or districts (through them)
-    assert {x.source for x in impact_of(r.measures, "repair_cost").reasons} == {"mechanics"}
-    assert {x.source for x in impact_of(r.reports, "repair_costs_by_depot").reasons} == {"districts"}
+    # repairs move when filtered or grouped by mechanics (directly) or by every table reaching mechanics
+    switched = next(c for c in r.changes if c.kind == "link.key_switched")
+    reasons = [x for x in impact_of(r.measures, "repair_cost").reasons if x.change == switched.id and x.route]
+    assert {x.source for x in reasons} == {"mechanics", "districts", "district_access"}
+    assert {x.source for x in impact_of(r.reports, "repair_costs_by_depot").reasons} == {
+        "mechanics", "districts", "district_access"}
+    # the cardinality part of the switch (many-to-one -> many-to-many) adds or removes no edge: never a reason
+    card = change(r, "link.cardinality_changed", "links.repairs_mechanic")
+    assert card.id not in {x.change for i in r.measures + r.reports + r.roles for x in i.reasons}
 
 
 def test_key_switch_on_a_standby_link_impacts_only_its_users():
@@ -376,12 +404,12 @@ def test_key_switch_on_a_standby_link_impacts_only_its_users():
     assert names(r.reports) == ["repair_costs_current"]
 
 
-def test_cardinality_change_impacts_measures_below_the_link_only():
+def test_cardinality_many_to_one_to_many_to_many_is_reported_but_impacts_nothing():
+    # issue 9, point 7: no edge appears or disappears, so no number moves (semantics.md section 5)
     r = scenario("cardinality_changed")
     card = change(r, "link.cardinality_changed", "links.trips_bike")
-    assert {x.change for i in r.measures for x in i.reasons} == {card.id}
-    assert {x.source for i in r.measures for x in i.reasons} == {"bikes"}
-    assert "repair_cost" not in names(r.measures)  # repairs meet bikes through their own link
+    assert "which data is valid" in card.message
+    assert (names(r.measures), names(r.roles), names(r.reports)) == ([], [], [])
     assert names(scenario("cardinality_changed_leaf").measures) == []
 
 
@@ -460,8 +488,8 @@ def test_example_revision_two():
     r = analyse_files(root / "bikeshare.model.yaml", root / "revision-2" / "bikeshare.model.yaml")
     widened = change(r, "link.flow_widened", "links.trips_start_station")
     change(r, "ambiguity.introduced", "paths.calendar->stock_levels")
-    assert names(r.measures) == ["avg_unit_cost", "stock_on_hand", "stock_value"]
-    assert names(r.reports) == ["station_stock"]
+    assert {"avg_unit_cost", "stock_on_hand", "stock_value", "trip_count"} <= set(names(r.measures))
+    assert "station_stock" in names(r.reports)
     assert {x.change for i in r.measures + r.reports for x in i.reasons} == {widened.id}
     assert names(r.roles) == []
 
@@ -483,8 +511,7 @@ def test_tpcds_store_sales_item_two_way_reaches_the_other_item_facts():
     model = r.new
     homes = {i.name: model.measures[i.name].table for i in r.measures}
     assert {"inventory_on_hand", "catalog_sales_amount", "store_return_amount"} <= set(homes)
-    assert set(homes.values()) == {"inventory", "catalog_sales", "store_returns", "promotion", None}
-    assert "store_sales" not in homes.values()
+    assert set(homes.values()) == {"inventory", "catalog_sales", "store_returns", "promotion", "store_sales", None}
     # derived measures reach store_sales measures, but only through a moved one (returns)
     assert "store_return_rate" in homes
     inventory = impact_of(r.measures, "inventory_on_hand")
@@ -500,10 +527,16 @@ def test_tpcds_date_dim_to_inventory_becomes_ambiguous():
     assert r.exit_code == 3
 
 
-def test_tpcds_store_sales_measures_stay_untouched():
+def test_tpcds_store_sales_measures_move_through_the_route_back_from_item():
+    # store_sales -> item -> store_sales: a filter reaching store_sales now keeps only sales of items it matches
     r = tpcds_item_two_way()
     store_sales = {n for n, m in r.new.measures.items() if m.table == "store_sales"}
-    assert store_sales and not store_sales & set(names(r.measures))
+    assert store_sales and store_sales <= set(names(r.measures))
+    reason = next(x for x in impact_of(r.measures, sorted(store_sales)[0]).reasons if x.source == "store_sales")
+    assert reason.route == ("store_sales", "item", "store_sales") and reason.paths_added == ()
+    # a measure whose table item does not reach stays untouched
+    customer = {n for n, m in r.new.measures.items() if m.table == "customer"}
+    assert customer and not customer & set(names(r.measures))
 
 
 # --- the graph comparison itself ------------------------------------------------------------------

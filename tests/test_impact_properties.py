@@ -1,6 +1,6 @@
 """Property tests of modeldiff.impact against a brute-force reference.
 
-Reference: networkx all_simple_edge_paths as brute-force reference, run over
+Reference: networkx all_simple_edge_paths and descendants as brute-force references, run over
 every pair of tables of both revisions' flow graphs, which are rebuilt here
 straight from semantics.md section 2 (edge T -> F for every non-standby link,
 F -> T as well when it is two-way or one-to-one), and networkx descendants
@@ -96,16 +96,17 @@ def flow_reference(model: Model, rename: dict[str, str]) -> nx.MultiDiGraph:
     return g
 
 
-def security_reference(model: Model) -> nx.MultiDiGraph:
+def security_reference(model: Model, rename: dict[str, str] | None = None) -> nx.MultiDiGraph:
     """semantics.md section 3: T -> F always, F -> T for one-to-one or two-way with two-way security."""
     g = nx.MultiDiGraph()
     g.add_nodes_from(model.tables)
     for link in model.links.values():
         if link.standby:
             continue
-        g.add_edge(link.to_table, link.from_table, key=link.name)
+        name = (rename or {}).get(link.name, link.name)
+        g.add_edge(link.to_table, link.from_table, key=name)
         if link.cardinality == "one-to-one" or (link.flow == "two-way" and link.security_flow == "two-way"):
-            g.add_edge(link.from_table, link.to_table, key=link.name)
+            g.add_edge(link.from_table, link.to_table, key=name)
     return g
 
 
@@ -155,23 +156,68 @@ def test_ambiguity_changes_are_exactly_the_count_transitions(case):
         assert len({tuple(p) for p in c.after}) == 2 and {tuple(p) for p in c.after} <= after[(s, x)]
 
 
+def changed_edges(before: nx.MultiDiGraph, after: nx.MultiDiGraph) -> list[tuple[nx.MultiDiGraph, str, str]]:
+    """(graph, u, v) for each edge (u, v, link) in one graph and not the other (changes.md, Impact)."""
+    b, a = set(before.edges(keys=True)), set(after.edges(keys=True))
+    return [(before, u, v) for u, v, _ in b - a] + [(after, u, v) for u, v, _ in a - b]
+
+
+def below(g: nx.MultiDiGraph, table: str) -> set[str]:
+    return nx.descendants(g, table) | {table}
+
+
+def above(g: nx.MultiDiGraph, table: str) -> set[str]:
+    return nx.ancestors(g, table) | {table}
+
+
+def reach_reference(before: nx.MultiDiGraph, after: nx.MultiDiGraph) -> dict[str, set[str]]:
+    """Home table -> the sources from which a filter moves it: U reachable from S, H = W or reachable from W."""
+    out: dict[str, set[str]] = {}
+    for g, u, v in changed_edges(before, after):
+        for home in below(g, v):
+            out.setdefault(home, set()).update(above(g, u))
+    return out
+
+
+def role_rows_reference(old: Model, new: Model, rename: dict[str, str], role_table: str | None) -> set[str]:
+    """Tables whose rows the role may see can change: below a changed security edge its filter reaches."""
+    if role_table is None:
+        return set()
+    before, after = security_reference(old, rename), security_reference(new)
+    rows: set[str] = set()
+    for g, u, v in changed_edges(before, after):
+        if u in below(g, role_table):
+            rows |= below(g, v)
+    return rows
+
+
 @given(revisions())
-def test_impacted_measures_are_the_homes_of_changed_pairs(case):
+def test_impacted_measures_are_the_tables_below_a_changed_edge_or_a_changed_role_row(case):
     old, new, result = analyse(*case)
-    before = all_paths(flow_reference(old, old_to_new(case[1])))
-    after = all_paths(flow_reference(new, {}))
-    changed = {(s, x) for (s, x) in after if before[(s, x)] != after[(s, x)]}
-    # path reasons only: no role here moves rows, and cardinality never changes between the revisions
-    if case[2] is None:
-        assert {i.name for i in result.measures} == {f"m_{x}" for _, x in changed}
+    before, after = flow_reference(old, old_to_new(case[1])), flow_reference(new, {})
+    expected = reach_reference(before, after)
+    rows = role_rows_reference(old, new, old_to_new(case[1]), case[2])
+    by_role = {x for table in rows for g in (before, after) for x in below(g, table)}
+    assert {i.name for i in result.measures} == {f"m_{x}" for x in set(expected) | by_role}
+    paths_before, paths_after = all_paths(before), all_paths(after)
     for i in result.measures:
         home = i.name[2:]
-        path_sources = {r.source for r in i.reasons if r.paths_added or r.paths_removed}
-        assert path_sources == {s for s, x in changed if x == home}
+        edge_reasons = [r for r in i.reasons if r.paths_added or r.paths_removed or r.route]
+        assert {r.source for r in edge_reasons} == expected.get(home, set())
         for r in i.reasons:
             if r.paths_added or r.paths_removed:
-                assert set(r.paths_added) <= after[(r.source, home)] - before[(r.source, home)]
-                assert set(r.paths_removed) <= before[(r.source, home)] - after[(r.source, home)]
+                assert set(r.paths_added) <= paths_after[(r.source, home)] - paths_before[(r.source, home)]
+                assert set(r.paths_removed) <= paths_before[(r.source, home)] - paths_after[(r.source, home)]
+            if r.route:  # a walk from the source to the home table
+                assert (r.route[0], r.route[-1]) == (r.source, home)
+
+
+@given(revisions())
+def test_a_role_is_impacted_exactly_when_rows_it_may_see_can_change(case):
+    old, new, result = analyse(*case)
+    rows = role_rows_reference(old, new, old_to_new(case[1]), case[2])
+    security = [c for c in result.changes if c.kind.startswith("security.")]
+    assert bool([i for i in result.roles if i.name == "viewer"]) == bool(rows or security)
 
 
 @given(revisions())
@@ -201,8 +247,6 @@ def test_security_changes_match_reach_in_the_security_graphs(case):
     after = nx.descendants(security_reference(new), role_table) | {role_table}
     assert exposed == {f"roles.viewer.tables.{t}" for t in before - after}
     assert tightened == {f"roles.viewer.tables.{t}" for t in after - before}
-    role = [i for i in result.roles if i.name == "viewer"]
-    assert bool(role) == bool(before != after or any(c.kind == "security.rerouted" for c in result.changes))
 
 
 @given(revisions())
@@ -279,16 +323,14 @@ def with_overrides(model: Model, chosen, side: int) -> Model:
 
 
 @given(revisions_with_overrides())
-def test_a_measure_with_overrides_is_impacted_exactly_when_paths_into_its_home_differ_in_its_setting(case):
+def test_a_measure_with_overrides_is_impacted_exactly_when_a_changed_edge_of_its_setting_reaches_its_home(case):
     tables, specs, chosen = case
     old = with_overrides(build(tables, specs, None, "old"), chosen, 0)
     new = with_overrides(build(tables, specs, None, "new"), chosen, 1)
     result = impact.analyse(old, new)
     expected = {}
     for t in tables:
-        before = all_paths(setting_reference(old, *chosen[t][0]))
-        after = all_paths(setting_reference(new, *chosen[t][1]))
-        sources = {s for (s, x) in after if x == t and before[(s, x)] != after[(s, x)]}
+        sources = reach_reference(setting_reference(old, *chosen[t][0]), setting_reference(new, *chosen[t][1])).get(t)
         if sources:
             expected[f"m_{t}"] = sources
     got = {i.name: {r.source for r in i.reasons} for i in result.measures}
@@ -301,6 +343,8 @@ def test_a_measure_with_overrides_is_impacted_exactly_when_paths_into_its_home_d
         model_alone = setting_reference(new, *chosen[t][0])  # the new links read with the old overrides
         for r in i.reasons:
             blamed = by_id[r.change]
+            assert blamed.kind.startswith("link.") or (blamed.kind, blamed.subject) == (
+                "measure.overrides_changed", f"measures.{i.name}")
             # a path is blamed on a link's change when the new model alone moved one of its changed edges,
             # otherwise on the measure's own overrides
             for path, here, there, came in [(p, new_setting, old_setting, True) for p in r.paths_added] + \

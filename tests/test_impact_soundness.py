@@ -24,8 +24,6 @@ def outcomes():
     return [soundness.run_case(seed, only_unlisted=True) for seed in SEEDS]
 
 
-@pytest.mark.xfail(strict=False, reason="impact by reach (issue 9) lands on branch impact; remove this mark after "
-                                        "merging it")
 def test_nothing_moves_on_data_that_the_diff_did_not_list(outcomes):
     missed = [f"seed {o.seed} ({o.kind}): {m.kind} {m.name}: {m.evidence}" for o in outcomes for m in o.missed]
     assert missed == []

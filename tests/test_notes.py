@@ -107,7 +107,9 @@ def test_squashed_markdown_has_one_section_per_model_breaking_first(history):
     assert breaking < numbers < safe
     assert "calendar now reaches stock_levels along more than one route" in out[breaking:numbers]
     assert "The description of measure stock_on_hand changed" in out[safe:]
-    assert "Impacted reports (1): station_stock (numbers; owner operations)" in out
+    # the flip moves trips too (trips -> stations -> trips comes back): every report showing a trip or stock measure
+    assert "Impacted reports (5): daily_returns (numbers; owner operations), east_overview" in out
+    assert "station_stock (numbers; owner operations)" in out
 
 
 def test_squashed_markdown_lists_model_commits_and_puts_the_others_on_one_last_line(history):

@@ -369,12 +369,15 @@ def test_the_bike_share_example_tells_operations_then_widens_the_flow():
     code, out, err = run("plan", str(EXAMPLE_OLD), str(EXAMPLE_NEW), "--format", "json")
     assert (code, err) == (0, "")
     doc = json.loads(out)
+    # the flip moves trip measures too (trips -> stations -> trips), so every owner of an impacted report is told
     assert [(s["kind"], s["subject"]) for s in doc["steps"]] == [
-        ("tell-owners", "owners.operations"), ("change-link", "links.trips_start_station"),
+        ("tell-owners", "owners.east district office"), ("tell-owners", "owners.finance"),
+        ("tell-owners", "owners.marketing"), ("tell-owners", "owners.operations"),
+        ("change-link", "links.trips_start_station"),
         ("review", "roles.student_programme_analyst")]  # the new security-stops warning the widened flow raises
-    assert doc["steps"][2]["title"].startswith("Review the new security-stops warning on student_programme_analyst")
-    link_step = doc["steps"][1]
-    assert link_step["after"] == ["s1"]
+    assert doc["steps"][5]["title"].startswith("Review the new security-stops warning on student_programme_analyst")
+    link_step = doc["steps"][4]
+    assert link_step["after"] == ["s1", "s2", "s3", "s4"]
     assert any("decide which route" in p for p in link_step["preconditions"])
     assert link_step["rollback"].startswith("Set link trips_start_station's flow back to one-way")
     code, diff_out, _ = run("diff", str(EXAMPLE_OLD), str(EXAMPLE_NEW), "--format", "json")

@@ -30,6 +30,8 @@ def reason_json(r: Reason) -> dict:
            "paths_removed": _paths(r.paths_removed), "message": r.message}
     if r.via is not None:
         out["via"] = r.via
+    if r.route:
+        out["route"] = list(r.route)
     return out
 
 
@@ -165,6 +167,8 @@ def as_text(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
                         out.line(f"         + {_path_text(p)}")
                     for p in reason.paths_removed:
                         out.line(f"         - {_path_text(p)}")
+                    if reason.route:
+                        out.line(f"         route {' -> '.join(reason.route)}")
         out.line()
 
 
@@ -191,6 +195,8 @@ def _md_reason(x: Reason, kinds: dict[str, str]) -> str:
         text += f", role filter on `{x.source}`" if _role_kind(kind) else f", by `{x.source}`"
     text += "".join(f", + {_path_text(p)}" for p in x.paths_added)
     text += "".join(f", − {_path_text(p)}" for p in x.paths_removed)
+    if x.route:
+        text += f", route {' -> '.join(x.route)}"
     return text
 
 

@@ -108,6 +108,8 @@ def _impact_items(title: str, impacts, kinds: dict[str, str], result) -> list[st
             for reason in i.reasons:
                 paths = "".join(f'<br><span class="path">+ {escape(" / ".join(p))}</span>' for p in reason.paths_added)
                 paths += "".join(f'<br><span class="path">− {escape(" / ".join(p))}</span>' for p in reason.paths_removed)
+                if reason.route:
+                    paths += f'<br><span class="path">route {escape(" -> ".join(reason.route))}</span>'
                 out.append(f"<li>{escape(reason_words(reason, kinds))}{paths}</li>")
             out.append("</ul>")
         out.append("</li>")
