@@ -88,8 +88,6 @@ def test_the_stock_measures_and_station_stock_are_impacted_and_repairs_are_not(d
     assert "`repair_costs_by_depot` are not impacted" in text and "repair_costs_by_depot" not in reports
 
 
-@pytest.mark.xfail(strict=True, reason="needs impact by reach (changes.md, Impact), done on another branch (issue 9); "
-                                       "remove this mark once merged")
 def test_east_overview_is_impacted_through_the_route_that_comes_back(diff):
     assert "`east_overview` (grouped by district" in " ".join(section("The change in revision 2").split())
     assert "east_overview" in {r["name"] for r in diff["impacts"]["reports"]}

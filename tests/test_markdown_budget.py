@@ -82,12 +82,17 @@ def test_a_job_summary_budget_holds_more(large):
     folder, result = large
     _, summary, _ = _diff(folder, "--budget", "1MiB")
     assert COMMENT < len(summary) <= 1 << 20
-    # here every row fits once each impacted item's line is cut short, and the last line says so
+    # every change fits once each impacted item's line is cut short; the last line says so, and counts the
+    # impacted measures it had no room for: those listed and those counted make up all of them
     last = summary.rstrip("\n").splitlines()[-1]
     assert last.startswith("_Shortened to fit 1,048,576 characters; left out: ")
     assert "reasons of impacted items (lines cut short)" in last and "changes that can move numbers" not in last
     listed = re.findall(r"^- \*\*(m\d+)\*\* \(", summary, flags=re.M)
-    assert sorted(listed) == sorted(m.name for m in result.measures)
+    assert set(listed) <= {m.name for m in result.measures} and len(set(listed)) == len(listed)
+    counted = re.search(r"([0-9,]+) impacted measures", last)
+    left = int(counted.group(1).replace(",", "")) if counted else 0
+    assert len(listed) + left == len(result.measures)
+    assert len(listed) > len(re.findall(r"^- \*\*(m\d+)\*\* \(", _diff(folder)[1], flags=re.M))  # holds more
 
 
 def test_a_change_that_fits_is_written_whole_without_a_note():

