@@ -796,7 +796,7 @@ class _Compiler:
         grouped_rows = (f"SELECT {groups}, {', '.join(picks)}, false AS {q(NO_MATCH_COLUMN)}\nFROM {q(combos)} AS _c"
                         + "".join(f"\n  {j}" for j in joins))
         nulls = ", ".join(f"NULL AS {t}" for t in tag_cols)
-        no_match = [self._no_match(values[k], combos) for k in range(len(terms))]
+        no_match = [self._no_match(values[k], combos, len(sources)) for k in range(len(terms))]
         leftovers = ", ".join(f"(SELECT _value FROM {q(no_match[k])}) AS {q(f'_m{k}')}" for k in range(len(terms)))
         any_left = " OR ".join(f"(SELECT _rows FROM {q(no_match[k])}) > 0" for k in range(len(terms)))
         no_match_row = f"SELECT {nulls}, {leftovers}, true AS {q(NO_MATCH_COLUMN)} WHERE {any_left}"
@@ -805,7 +805,7 @@ class _Compiler:
                  f"{no_match_row}\n) AS _v\nORDER BY {order}")
         return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
 
-    def _no_match(self, v: "_Value", combos: str) -> str:
+    def _no_match(self, v: "_Value", combos: str, n_sources: int) -> str:
         """`_rows`, `_value`: one base measure's home rows visible in its total but in no group of the answer.
 
         Per measure, in its own setting (semantics.md section 5): a row is in
@@ -813,8 +813,20 @@ class _Compiler:
         home table) is the projection of a combination of the answer, which
         may come from another measure's setting; with no tag, when the answer
         has any combination. So no row is both in a group and in `(no match)`.
+
+        When every grouping column reaches the home table, each tag set of a
+        row is one of the measure's own groups (`_pJ`), all in the answer: the
+        rows in no group are exactly those marked `_nm`, already aggregated in
+        `_aJ`, so nothing is scanned again.
         """
         b = v.bound
+        if v.agg and set(v.tags) == set(range(n_sources)):
+            passing = " AND _w" if b.where else ""
+            value = (f"CASE WHEN EXISTS (SELECT 1 FROM {q(v.agg)} WHERE _nm{passing}) "
+                     f"THEN (SELECT {q(f'_v{b.k}')} FROM {q(v.agg)} WHERE _nm{passing}) "
+                     f"ELSE (SELECT _value FROM {q(v.empty)}) END")
+            return self.plan.relation(f"_n{b.k}", f"SELECT (SELECT coalesce(sum(_n), 0) FROM {q(v.agg)} WHERE _nm) "
+                                                  f"AS _rows, {value} AS _value")
         conds = [f"_c.{_tag(i)} IS NOT DISTINCT FROM _h.{_tag(i)}" for i in v.tags] or ["true"]
         matched = (f"SELECT _h._row FROM {q(v.rows)} AS _h WHERE NOT _h._nm AND EXISTS "
                    f"(SELECT 1 FROM {q(combos)} AS _c WHERE {_and(conds)})")
@@ -870,6 +882,7 @@ class _Value:
     rows: str = ""  # the rows of its table visible in the total, once per tag set they are visible in, with `_nm`
     total: str = ""  # the rows of its table visible in the total
     bound: "_Bound | None" = None
+    agg: str = ""  # `_aJ`: tags, `_nm`, `_w`, `_n` and `_vK`, the pass that aggregated it
 
 
 @dataclass(frozen=True)
@@ -958,7 +971,7 @@ class _SettingGroups:
             value = self.plan.relation(
                 f"_m{b.k}", f"SELECT {tag_list + ', ' if tags else ''}{q(f'_v{b.k}')} AS _value, true AS _seen "
                             f"FROM {q(agg)} WHERE NOT _nm{passing}")
-            out[b.k] = _Value(tags, value, self._empty(b), combos, tagged, self.total.rel(home).name, b)
+            out[b.k] = _Value(tags, value, self._empty(b), combos, tagged, self.total.rel(home).name, b, agg)
         return out
 
     def _empty(self, b: _Bound) -> str:
