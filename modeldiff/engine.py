@@ -481,6 +481,20 @@ class _Visibility:
             self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}", self._select(table, self._into(table))),
                                     self.tags[table])
             return
+        if self._mirrored_pair(members):
+            # A cycle made of one link's two directions settles in one pass: the first table built
+            # from outside only, the second semi-joining it, the first cut again by the second; each
+            # row of the second matches the first's row it came from, which the cut keeps.
+            first, second = self._order(members)
+            start = _Rel(self.plan.relation(f"{self.prefix}p_{first}",
+                                            self._select(first, [a for a in self._into(first) if a.src not in inside])),
+                         self.tags[first])
+            self.rels[first] = start
+            self.rels[second] = _Rel(self.plan.relation(f"{self.prefix}_{second}",
+                                                        self._select(second, self._into(second))), self.tags[second])
+            self.rels[first] = _Rel(self.plan.relation(f"{self.prefix}_{first}",
+                                                       self._select(first, self._into(first))), self.tags[first])
+            return
         self.cyclic.update(members)
         for table in self._order(members):
             ready = [a for a in self._into(table) if a.src in self.rels]
@@ -494,6 +508,17 @@ class _Visibility:
                     deletes.append(f"DELETE FROM {name} WHERE NOT {self._exists(arc, name)}")
         progress = "SELECT " + " + ".join(f"(SELECT count(*) FROM {q(self.rels[m].name)})" for m in members)
         self.plan.loop([self.rels[m].name for m in members], deletes, progress)
+
+    def _mirrored_pair(self, members: list[str]) -> bool:
+        """Whether the component is two tables whose only arcs between them are one link's two directions."""
+        if len(members) != 2 or set(self.tags[members[0]]) != set(self.tags[members[1]]):
+            return False
+        inside = [a for m in members for a in self._into(m) if a.src in members]
+        if len(inside) != 2 or any(a.src == a.dst for a in inside):
+            return False
+        a, b = inside
+        return (a.link == b.link and (a.src, a.dst) == (b.dst, b.src)
+                and (a.src_columns, a.dst_columns) == (b.dst_columns, b.src_columns))
 
     def _order(self, members: list[str]) -> list[str]:
         """Members in an order where each finds most of its tags among those already built."""
