@@ -481,19 +481,24 @@ class _Visibility:
             self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}", self._select(table, self._into(table))),
                                     self.tags[table])
             return
-        if self._mirrored_pair(members):
-            # A cycle made of one link's two directions settles in one pass: the first table built
-            # from outside only, the second semi-joining it, the first cut again by the second; each
-            # row of the second matches the first's row it came from, which the cut keeps.
-            first, second = self._order(members)
-            start = _Rel(self.plan.relation(f"{self.prefix}p_{first}",
-                                            self._select(first, [a for a in self._into(first) if a.src not in inside])),
-                         self.tags[first])
-            self.rels[first] = start
-            self.rels[second] = _Rel(self.plan.relation(f"{self.prefix}_{second}",
-                                                        self._select(second, self._into(second))), self.tags[second])
-            self.rels[first] = _Rel(self.plan.relation(f"{self.prefix}_{first}",
-                                                       self._select(first, self._into(first))), self.tags[first])
+        tree = self._two_way_tree(members)
+        if tree is not None:
+            # A cycle made only of links' two directions, the links forming a tree, settles in two passes
+            # (the full semi-join reduction of an acyclic join): up from the leaves, each table from its
+            # outside arcs and its children; then down from the root, each table cut again by its parent.
+            # Each row of a child matches its parent's row it came from, which the cut keeps, so the
+            # result is the largest fixpoint with no loop.
+            root, parent = tree
+            order = [root]
+            for table in order:
+                order += sorted(t for t, p in parent.items() if p == table)
+            for table in reversed(order):
+                below = [a for a in self._into(table) if a.src not in inside or parent.get(a.src) == table]
+                self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}{'_' if table == root else 'p_'}{table}",
+                                                           self._select(table, below)), self.tags[table])
+            for table in order[1:]:
+                self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}",
+                                                           self._select(table, self._into(table))), self.tags[table])
             return
         self.cyclic.update(members)
         for table in self._order(members):
@@ -509,16 +514,38 @@ class _Visibility:
         progress = "SELECT " + " + ".join(f"(SELECT count(*) FROM {q(self.rels[m].name)})" for m in members)
         self.plan.loop([self.rels[m].name for m in members], deletes, progress)
 
-    def _mirrored_pair(self, members: list[str]) -> bool:
-        """Whether the component is two tables whose only arcs between them are one link's two directions."""
-        if len(members) != 2 or set(self.tags[members[0]]) != set(self.tags[members[1]]):
-            return False
+    def _two_way_tree(self, members: list[str]) -> tuple[str, dict[str, str]] | None:
+        """(root, parent of each other member) when the component's arcs are links' two directions forming a tree.
+
+        None otherwise (a longer cycle, two links between the same tables, a link to its own table).
+        """
         inside = [a for m in members for a in self._into(m) if a.src in members]
-        if len(inside) != 2 or any(a.src == a.dst for a in inside):
-            return False
-        a, b = inside
-        return (a.link == b.link and (a.src, a.dst) == (b.dst, b.src)
-                and (a.src_columns, a.dst_columns) == (b.dst_columns, b.src_columns))
+        if any(a.src == a.dst for a in inside) or len({self.tags[m] for m in members}) > 1:
+            return None
+        pairs: dict[frozenset, list[_Arc]] = {}
+        for a in inside:
+            pairs.setdefault(frozenset((a.src, a.dst)), []).append(a)
+        if len(pairs) != len(members) - 1:
+            return None
+        for found in pairs.values():
+            if len(found) != 2:
+                return None
+            x, y = found
+            if not (x.link == y.link and (x.src_columns, x.dst_columns) == (y.dst_columns, y.src_columns)):
+                return None
+        sourced = [m for m in members if any(s.table == m for s in self.sources)]
+        root = sorted(sourced)[0] if sourced else self._order(members)[-1]
+        parent: dict[str, str] = {}
+        todo = [root]
+        while todo:
+            table = todo.pop()
+            for pair in pairs:
+                if table in pair:
+                    (other,) = pair - {table}
+                    if other != root and other not in parent:
+                        parent[other] = table
+                        todo.append(other)
+        return (root, parent) if len(parent) == len(members) - 1 else None
 
     def _order(self, members: list[str]) -> list[str]:
         """Members in an order where each finds most of its tags among those already built."""
