@@ -22,7 +22,12 @@ nothing. The constrained tables are taken one strongly connected component at
 a time, in topological order. A component without a cycle needs one pass: a
 table's visible rows are its rows that pass its own filters and semi-join
 every constrained table with an edge into it, all final already. A component
-with a cycle is materialised as temporary tables (a superset of the answer,
+whose cycles are only links' two directions, the links forming a tree (a
+two-way link between two tables, or a star of them), needs two passes of
+semi-joins and no iteration: up from the leaves, then down from the root,
+each table cut again by its parent (the full semi-join reduction of an acyclic
+join: every row of a child matches the parent row it came from, which the cut
+keeps). Any other component with a cycle is materialised as temporary tables (a superset of the answer,
 built the same way from what is known), then each table is cut again by
 semi-joins against the others (`DELETE ... WHERE NOT EXISTS`) until a whole
 pass removes nothing. Every pass keeps a superset of the largest solution and
@@ -50,6 +55,12 @@ measure's values are read from that small result. When the table gets its
 tags through one join outside any cycle, the pass is its visible rows LEFT
 JOINed to that join's relation (the shape of a hand-written star join);
 otherwise its visible rows LEFT JOIN its grouped rows on `_row`.
+
+A measure's `(no match)` value, when every grouping column reaches its
+table, is read from the same pass (the rows marked `_nm`: each tag set of a
+row is then one of the measure's own groups, all in the answer); otherwise
+the table's total rows are scanned again for rows whose tag sets project onto
+no combination of the answer.
 
 The data must honour each table's `key` and `unique` columns (modeldiff.data
 checks both in `Database.open`): a join on a key or unique column reads the
