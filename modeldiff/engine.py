@@ -558,6 +558,17 @@ class _Visibility:
                         todo.append(other)
         return (root, parent) if len(parent) == len(members) - 1 else None
 
+    def _functional(self, table: str, seen: frozenset = frozenset()) -> bool:
+        """Whether each visible row of `table` carries one tag set: its tags are its own grouping columns or
+        come through joins on a key from tables of which the same holds, outside any loop."""
+        if not self.tags.get(table) or table not in self.rels:
+            return True
+        if table in self.cyclic or table in seen:
+            return False
+        _, joined, _ = self._split(table, self._into(table))
+        return all(self.unique_on(a.src, a.src_columns) and self._functional(a.src, seen | {table})
+                   for _, a in joined)
+
     def _order(self, members: list[str]) -> list[str]:
         """Members in an order where each finds most of its tags among those already built."""
         order: list[str] = []
@@ -574,11 +585,15 @@ class _Visibility:
             left.remove(best)
         return order
 
-    def _exists(self, arc: _Arc, outer: str) -> str:
-        """`EXISTS (...)`: the row of `outer` matches a visible row of arc.src on the link (and its tags)."""
+    def _exists(self, arc: _Arc, outer: str, tag_of: Mapping[int, str] | None = None) -> str:
+        """`EXISTS (...)`: the row of `outer` matches a visible row of arc.src on the link (and its tags).
+
+        `tag_of`: where each tag of the outer row is (default: the outer row's tag columns).
+        """
         src = self.rel(arc.src)
         conds = [f"_u.{q(s)} = {outer}.{q(d)}" for s, d in zip(arc.src_columns, arc.dst_columns)]
-        conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {outer}.{_tag(i)}" for i in src.tags]
+        conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {(tag_of or {}).get(i, f'{outer}.{_tag(i)}')}"
+                  for i in src.tags]
         return f"EXISTS (SELECT 1 FROM {q(src.name)} AS _u WHERE {_and(conds)})"
 
     def _split(self, table: str, arcs: Sequence[_Arc]) -> tuple[dict[int, str], list[tuple[str, _Arc]], list[_Arc]]:
@@ -659,8 +674,23 @@ class _Visibility:
         if table in self.cyclic:
             return None
         provided, joined, semi = self._split(table, self._into(table))
-        if len(joined) > 1 or set(tags) - set(provided) or any(self.rel(a.src).tags for a in semi):
+        tagged_semi = [a for a in semi if self.rel(a.src).tags]
+        if len(joined) > 1 or set(tags) - set(provided):
             return None
+        if tagged_semi:
+            if not joined or not self._functional(joined[0][1].src) or not self.unique_on(
+                    joined[0][1].src, joined[0][1].src_columns):
+                return None
+            # Each total row meets at most one row of the join (its source holds one tag set per row and
+            # the link columns are its key): the row is in that group when the tagged semi-joins hold too.
+            alias, arc = joined[0]
+            ok = _and([f"{alias}.{q('_k0')} IS NOT NULL"] + [self._exists(a, "_x", provided) for a in tagged_semi])
+            raw = "".join(f", {provided[i]} AS {q(f'_t{i}')}" for i in tags)
+            join = self._join(alias, arc, {i: provided[i] for i in provided if provided[i].startswith('_x.')},
+                              "LEFT JOIN")
+            picks = "".join(f", CASE WHEN _y._ok THEN _y.{q(f'_t{i}')} END AS {_tag(i)}" for i in tags)
+            return (f"SELECT _y.*{picks}, NOT _y._ok AS _nm FROM (SELECT _x.*{raw}, {ok} AS _ok FROM {rows} AS _x"
+                    f"\n  {join}) AS _y")
         own = {s.index for s in self.sources if s.table == table}
         if not joined:
             picks = "".join(f", {provided[i]} AS {_tag(i)}" for i in tags)
