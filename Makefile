@@ -26,6 +26,7 @@ test: $(STAMP)
 bench: $(STAMP)
 	$(BIN)/python benchmarks/run.py
 	$(BIN)/python benchmarks/history.py
+	$(BIN)/python benchmarks/engine_shapes.py
 
 clean:
 	rm -rf $(VENV) build *.egg-info

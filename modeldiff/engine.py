@@ -22,7 +22,12 @@ nothing. The constrained tables are taken one strongly connected component at
 a time, in topological order. A component without a cycle needs one pass: a
 table's visible rows are its rows that pass its own filters and semi-join
 every constrained table with an edge into it, all final already. A component
-with a cycle is materialised as temporary tables (a superset of the answer,
+whose cycles are only links' two directions, the links forming a tree (a
+two-way link between two tables, or a star of them), needs two passes of
+semi-joins and no iteration: up from the leaves, then down from the root,
+each table cut again by its parent (the full semi-join reduction of an acyclic
+join: every row of a child matches the parent row it came from, which the cut
+keeps). Any other component with a cycle is materialised as temporary tables (a superset of the answer,
 built the same way from what is known), then each table is cut again by
 semi-joins against the others (`DELETE ... WHERE NOT EXISTS`) until a whole
 pass removes nothing. Every pass keeps a superset of the largest solution and
@@ -50,6 +55,12 @@ measure's values are read from that small result. When the table gets its
 tags through one join outside any cycle, the pass is its visible rows LEFT
 JOINed to that join's relation (the shape of a hand-written star join);
 otherwise its visible rows LEFT JOIN its grouped rows on `_row`.
+
+A measure's `(no match)` value, when every grouping column reaches its
+table, is read from the same pass (the rows marked `_nm`: each tag set of a
+row is then one of the measure's own groups, all in the answer); otherwise
+the table's total rows are scanned again for rows whose tag sets project onto
+no combination of the answer.
 
 The data must honour each table's `key` and `unique` columns (modeldiff.data
 checks both in `Database.open`): a join on a key or unique column reads the
@@ -481,6 +492,25 @@ class _Visibility:
             self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}", self._select(table, self._into(table))),
                                     self.tags[table])
             return
+        tree = self._two_way_tree(members)
+        if tree is not None:
+            # A cycle made only of links' two directions, the links forming a tree, settles in two passes
+            # (the full semi-join reduction of an acyclic join): up from the leaves, each table from its
+            # outside arcs and its children; then down from the root, each table cut again by its parent.
+            # Each row of a child matches its parent's row it came from, which the cut keeps, so the
+            # result is the largest fixpoint with no loop.
+            root, parent = tree
+            order = [root]
+            for table in order:
+                order += sorted(t for t, p in parent.items() if p == table)
+            for table in reversed(order):
+                below = [a for a in self._into(table) if a.src not in inside or parent.get(a.src) == table]
+                self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}{'_' if table == root else 'p_'}{table}",
+                                                           self._select(table, below)), self.tags[table])
+            for table in order[1:]:
+                self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}",
+                                                           self._select(table, self._into(table))), self.tags[table])
+            return
         self.cyclic.update(members)
         for table in self._order(members):
             ready = [a for a in self._into(table) if a.src in self.rels]
@@ -494,6 +524,50 @@ class _Visibility:
                     deletes.append(f"DELETE FROM {name} WHERE NOT {self._exists(arc, name)}")
         progress = "SELECT " + " + ".join(f"(SELECT count(*) FROM {q(self.rels[m].name)})" for m in members)
         self.plan.loop([self.rels[m].name for m in members], deletes, progress)
+
+    def _two_way_tree(self, members: list[str]) -> tuple[str, dict[str, str]] | None:
+        """(root, parent of each other member) when the component's arcs are links' two directions forming a tree.
+
+        None otherwise (a longer cycle, two links between the same tables, a link to its own table).
+        """
+        inside = [a for m in members for a in self._into(m) if a.src in members]
+        if any(a.src == a.dst for a in inside) or len({self.tags[m] for m in members}) > 1:
+            return None
+        pairs: dict[frozenset, list[_Arc]] = {}
+        for a in inside:
+            pairs.setdefault(frozenset((a.src, a.dst)), []).append(a)
+        if len(pairs) != len(members) - 1:
+            return None
+        for found in pairs.values():
+            if len(found) != 2:
+                return None
+            x, y = found
+            if not (x.link == y.link and (x.src_columns, x.dst_columns) == (y.dst_columns, y.src_columns)):
+                return None
+        sourced = [m for m in members if any(s.table == m for s in self.sources)]
+        root = sorted(sourced)[0] if sourced else self._order(members)[-1]
+        parent: dict[str, str] = {}
+        todo = [root]
+        while todo:
+            table = todo.pop()
+            for pair in pairs:
+                if table in pair:
+                    (other,) = pair - {table}
+                    if other != root and other not in parent:
+                        parent[other] = table
+                        todo.append(other)
+        return (root, parent) if len(parent) == len(members) - 1 else None
+
+    def _functional(self, table: str, seen: frozenset = frozenset()) -> bool:
+        """Whether each visible row of `table` carries one tag set: its tags are its own grouping columns or
+        come through joins on a key from tables of which the same holds, outside any loop."""
+        if not self.tags.get(table) or table not in self.rels:
+            return True
+        if table in self.cyclic or table in seen:
+            return False
+        _, joined, _ = self._split(table, self._into(table))
+        return all(self.unique_on(a.src, a.src_columns) and self._functional(a.src, seen | {table})
+                   for _, a in joined)
 
     def _order(self, members: list[str]) -> list[str]:
         """Members in an order where each finds most of its tags among those already built."""
@@ -511,11 +585,15 @@ class _Visibility:
             left.remove(best)
         return order
 
-    def _exists(self, arc: _Arc, outer: str) -> str:
-        """`EXISTS (...)`: the row of `outer` matches a visible row of arc.src on the link (and its tags)."""
+    def _exists(self, arc: _Arc, outer: str, tag_of: Mapping[int, str] | None = None) -> str:
+        """`EXISTS (...)`: the row of `outer` matches a visible row of arc.src on the link (and its tags).
+
+        `tag_of`: where each tag of the outer row is (default: the outer row's tag columns).
+        """
         src = self.rel(arc.src)
         conds = [f"_u.{q(s)} = {outer}.{q(d)}" for s, d in zip(arc.src_columns, arc.dst_columns)]
-        conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {outer}.{_tag(i)}" for i in src.tags]
+        conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {(tag_of or {}).get(i, f'{outer}.{_tag(i)}')}"
+                  for i in src.tags]
         return f"EXISTS (SELECT 1 FROM {q(src.name)} AS _u WHERE {_and(conds)})"
 
     def _split(self, table: str, arcs: Sequence[_Arc]) -> tuple[dict[int, str], list[tuple[str, _Arc]], list[_Arc]]:
@@ -596,8 +674,23 @@ class _Visibility:
         if table in self.cyclic:
             return None
         provided, joined, semi = self._split(table, self._into(table))
-        if len(joined) > 1 or set(tags) - set(provided) or any(self.rel(a.src).tags for a in semi):
+        tagged_semi = [a for a in semi if self.rel(a.src).tags]
+        if len(joined) > 1 or set(tags) - set(provided):
             return None
+        if tagged_semi:
+            if not joined or not self._functional(joined[0][1].src) or not self.unique_on(
+                    joined[0][1].src, joined[0][1].src_columns):
+                return None
+            # Each total row meets at most one row of the join (its source holds one tag set per row and
+            # the link columns are its key): the row is in that group when the tagged semi-joins hold too.
+            alias, arc = joined[0]
+            ok = _and([f"{alias}.{q('_k0')} IS NOT NULL"] + [self._exists(a, "_x", provided) for a in tagged_semi])
+            raw = "".join(f", {provided[i]} AS {q(f'_t{i}')}" for i in tags)
+            join = self._join(alias, arc, {i: provided[i] for i in provided if provided[i].startswith('_x.')},
+                              "LEFT JOIN")
+            picks = "".join(f", CASE WHEN _y._ok THEN _y.{q(f'_t{i}')} END AS {_tag(i)}" for i in tags)
+            return (f"SELECT _y.*{picks}, NOT _y._ok AS _nm FROM (SELECT _x.*{raw}, {ok} AS _ok FROM {rows} AS _x"
+                    f"\n  {join}) AS _y")
         own = {s.index for s in self.sources if s.table == table}
         if not joined:
             picks = "".join(f", {provided[i]} AS {_tag(i)}" for i in tags)
@@ -796,7 +889,7 @@ class _Compiler:
         grouped_rows = (f"SELECT {groups}, {', '.join(picks)}, false AS {q(NO_MATCH_COLUMN)}\nFROM {q(combos)} AS _c"
                         + "".join(f"\n  {j}" for j in joins))
         nulls = ", ".join(f"NULL AS {t}" for t in tag_cols)
-        no_match = [self._no_match(values[k], combos) for k in range(len(terms))]
+        no_match = [self._no_match(values[k], combos, len(sources)) for k in range(len(terms))]
         leftovers = ", ".join(f"(SELECT _value FROM {q(no_match[k])}) AS {q(f'_m{k}')}" for k in range(len(terms)))
         any_left = " OR ".join(f"(SELECT _rows FROM {q(no_match[k])}) > 0" for k in range(len(terms)))
         no_match_row = f"SELECT {nulls}, {leftovers}, true AS {q(NO_MATCH_COLUMN)} WHERE {any_left}"
@@ -805,7 +898,7 @@ class _Compiler:
                  f"{no_match_row}\n) AS _v\nORDER BY {order}")
         return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
 
-    def _no_match(self, v: "_Value", combos: str) -> str:
+    def _no_match(self, v: "_Value", combos: str, n_sources: int) -> str:
         """`_rows`, `_value`: one base measure's home rows visible in its total but in no group of the answer.
 
         Per measure, in its own setting (semantics.md section 5): a row is in
@@ -813,8 +906,20 @@ class _Compiler:
         home table) is the projection of a combination of the answer, which
         may come from another measure's setting; with no tag, when the answer
         has any combination. So no row is both in a group and in `(no match)`.
+
+        When every grouping column reaches the home table, each tag set of a
+        row is one of the measure's own groups (`_pJ`), all in the answer: the
+        rows in no group are exactly those marked `_nm`, already aggregated in
+        `_aJ`, so nothing is scanned again.
         """
         b = v.bound
+        if v.agg and set(v.tags) == set(range(n_sources)):
+            passing = " AND _w" if b.where else ""
+            value = (f"CASE WHEN EXISTS (SELECT 1 FROM {q(v.agg)} WHERE _nm{passing}) "
+                     f"THEN (SELECT {q(f'_v{b.k}')} FROM {q(v.agg)} WHERE _nm{passing}) "
+                     f"ELSE (SELECT _value FROM {q(v.empty)}) END")
+            return self.plan.relation(f"_n{b.k}", f"SELECT (SELECT coalesce(sum(_n), 0) FROM {q(v.agg)} WHERE _nm) "
+                                                  f"AS _rows, {value} AS _value")
         conds = [f"_c.{_tag(i)} IS NOT DISTINCT FROM _h.{_tag(i)}" for i in v.tags] or ["true"]
         matched = (f"SELECT _h._row FROM {q(v.rows)} AS _h WHERE NOT _h._nm AND EXISTS "
                    f"(SELECT 1 FROM {q(combos)} AS _c WHERE {_and(conds)})")
@@ -870,6 +975,7 @@ class _Value:
     rows: str = ""  # the rows of its table visible in the total, once per tag set they are visible in, with `_nm`
     total: str = ""  # the rows of its table visible in the total
     bound: "_Bound | None" = None
+    agg: str = ""  # `_aJ`: tags, `_nm`, `_w`, `_n` and `_vK`, the pass that aggregated it
 
 
 @dataclass(frozen=True)
@@ -958,7 +1064,7 @@ class _SettingGroups:
             value = self.plan.relation(
                 f"_m{b.k}", f"SELECT {tag_list + ', ' if tags else ''}{q(f'_v{b.k}')} AS _value, true AS _seen "
                             f"FROM {q(agg)} WHERE NOT _nm{passing}")
-            out[b.k] = _Value(tags, value, self._empty(b), combos, tagged, self.total.rel(home).name, b)
+            out[b.k] = _Value(tags, value, self._empty(b), combos, tagged, self.total.rel(home).name, b, agg)
         return out
 
     def _empty(self, b: _Bound) -> str:

@@ -200,14 +200,37 @@ def test_an_acyclic_report_is_one_statement():
     assert query.steps == () and query.cleanup == ()
 
 
-def test_a_two_way_cycle_with_groups_is_computed_by_a_loop_and_keeps_null_groups():
+def test_a_two_way_link_between_two_tables_settles_in_one_pass_and_keeps_null_groups():
+    # the cycle is one link's two directions: no loop, no temporary table
     m = edit(MINI, link("trips_station", "trips.station_key", "stations.station_key", flow="two-way"),
              report("r", "station_count", "trips.status"))
     query = engine.report_query(m, "r")
-    assert any(isinstance(step, engine.Loop) for step in query.steps)
+    assert query.steps == ()
     rows = dict(ROWS, trips=ROWS["trips"] + [(6, 20, 100, Decimal("1.00"), None)])
     # completed: stations 10, 11, 30; cancelled: 20; NULL status: 20; station without trips: none
     assert rows_of(m, "r", rows=rows).rows == (("cancelled", 1), ("completed", 3), (None, 1))
+
+
+def test_two_way_links_forming_a_tree_settle_without_a_loop():
+    # trips <-> stations and trips <-> bikes: links' two directions forming a tree, reduced in two passes.
+    # By hand: classic = bikes 100, 102 -> trips 1, 3, 5 -> stations 10, 20 -> trips 1, 3 (trip 5 has no
+    # station) -> bike 100 -> stations 10, 20: 2; electric = bike 101 -> trips 2, 4 -> stations 11, 30: 2;
+    # every station is in a group, so no (no match) row.
+    m = edit(MINI, link("trips_station", "trips.station_key", "stations.station_key", flow="two-way"),
+             link("trips_bike", "trips.bike_key", "bikes.bike_key", flow="two-way"),
+             report("r", "station_count", "bikes.bike_type"))
+    assert engine.report_query(m, "r").steps == ()
+    assert rows_of(m, "r").rows == (("classic", 2), ("electric", 2))
+
+
+def test_a_cycle_of_one_way_links_is_computed_by_a_loop():
+    # trips -> districts (districts.district_key references trips.trip_key) -> stations -> trips.
+    # By hand: completed trips 1, 2, 4, 5 -> districts 1, 2 -> stations 10, 11, 20 -> trips 1, 2 (trip 4's
+    # station 30 and trip 5's missing station drop out) -> districts 1, 2 again: 2 trips.
+    m = edit(MINI, link("districts_trip", "districts.district_key", "trips.trip_key"),
+             report("r", "trip_count", where={"trips": "status = 'completed'"}))
+    assert any(isinstance(step, engine.Loop) for step in engine.report_query(m, "r").steps)
+    assert rows_of(m, "r").rows == ((2,),)
 
 
 # --- measures and settings --------------------------------------------------------------

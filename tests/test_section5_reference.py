@@ -28,7 +28,9 @@ import pytest
 import randmodel as R
 import section5_compare as C
 
-SEEDS = range(130)
+# 636: a table's one join carries several tag sets per row, so the engine must not read the groups off
+# that join with the other routes as semi-joins; found by benchmarks/campaigns/section5_campaign.py
+SEEDS = [*range(130), 636]
 
 
 def _cases():
