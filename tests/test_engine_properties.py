@@ -1,12 +1,16 @@
 """The evaluation engine against two references, on random small models and data.
 
-1. A direct Python reading of semantics.md section 5: visible rows as sets of
-   row numbers, cut by repeated semi-joins until nothing changes; role cuts
-   over the security graph first; one evaluation per group value (every
-   combination of the grouping columns' values, NULL included); the
-   `(no match)` row; derived measures over the values of the measures they
-   name. Written here from the spec, sharing no code with modeldiff.engine
-   (settings come from modeldiff.graph, which has its own tests).
+1. tests/section5.py, the plain-Python reading of semantics.md section 5 that
+   tests/test_section5_reference.py also compares with the engine (visible
+   rows by semi-joins until nothing changes, role cuts first, one evaluation
+   per combination of group values, `(no match)` per measure in its own
+   setting, derived measures). This file once had a reading of its own; it
+   predated the corrected `(no match)` rule and counted a row both in a group
+   and in `(no match)` (see test_a_row_shown_in_a_group_is_not_also_in_no_match),
+   so the two references were folded into one. The models here are drawn by
+   hypothesis, unlike tests/randmodel.py's seeded ones: any table linked to
+   any other or to itself, flow overrides on any link, tiny data full of
+   NULLs.
 2. For tree-shaped models (one-way many-to-one links, no cycles), plain join
    SQL run by sqlite3 from Python's standard library: inner joins along the
    keys, GROUP BY, aggregates with FILTER.
@@ -14,7 +18,6 @@
 
 from __future__ import annotations
 
-import itertools
 import sqlite3
 from dataclasses import dataclass
 
@@ -22,9 +25,10 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
-from modeldiff import graph
 from modeldiff.data import NO_MATCH, Database, evaluate_report
 from modeldiff.model import Column, Link, Measure, Model, Overrides, Report, Role, Table
+
+import section5
 
 COLUMNS = ("k", "a", "b", "f0", "f1")
 VALUES = st.sampled_from((None, 0, 1, 1, 2))
@@ -139,116 +143,17 @@ def scenarios(draw, tree: bool = False):
     return Scenario(model, rows, where, role, measure_where)
 
 
-# --- reference 1: section 5 in Python ---------------------------------------------------
+# --- reference 1: section 5 in Python (tests/section5.py) ------------------------------
 
 
 def _dicts(scenario: Scenario) -> dict[str, list[dict]]:
     return {t: [dict(zip(COLUMNS, row)) for row in rows] for t, rows in scenario.rows.items()}
 
 
-def flow_arcs(model: Model, flows) -> list[tuple]:
-    """(src, dst, src columns, dst columns) per semantics.md section 2."""
-    arcs = []
-    for name, flow in flows.items():
-        link = model.links[name]
-        arcs.append((link.to_table, link.from_table, link.to_columns, link.from_columns))
-        if flow == "two-way" or link.cardinality == "one-to-one":
-            arcs.append((link.from_table, link.to_table, link.from_columns, link.to_columns))
-    return arcs
-
-
-def security_arcs(model: Model) -> list[tuple]:
-    """semantics.md section 3."""
-    arcs = []
-    for link in model.links.values():
-        if link.standby:
-            continue
-        arcs.append((link.to_table, link.from_table, link.to_columns, link.from_columns))
-        if link.cardinality == "one-to-one" or (link.flow == "two-way" and link.security_flow == "two-way"):
-            arcs.append((link.from_table, link.to_table, link.from_columns, link.to_columns))
-    return arcs
-
-
-def visible(data, arcs, filters, start) -> dict[str, set[int]]:
-    """The largest sets satisfying section 5's two rules, by semi-joins until nothing changes."""
-    constrained = {t for t, tests in filters.items() if tests}
-    grew = True
-    while grew:
-        grew = False
-        for src, dst, _, _ in arcs:
-            if src in constrained and dst not in constrained:
-                constrained.add(dst)
-                grew = True
-    seen = {t: {r for r in start[t] if all(test(data[t][r]) for test in filters.get(t, ()))} for t in constrained}
-    changed = True
-    while changed:
-        changed = False
-        for src, dst, src_cols, dst_cols in arcs:
-            if src not in constrained:
-                continue
-            values = {tuple(data[src][r][c] for c in src_cols) for r in seen[src]}
-            keep = set()
-            for r in seen[dst]:
-                mine = tuple(data[dst][r][c] for c in dst_cols)
-                if None not in mine and mine in values:
-                    keep.add(r)
-            if keep != seen[dst]:
-                seen[dst] = keep
-                changed = True
-    return {t: seen.get(t, start[t]) for t in data}
-
-
 def reference(scenario: Scenario) -> list[tuple]:
-    model, data = scenario.model, _dicts(scenario)
-    report = model.reports["r"]
-    everything = {t: set(range(len(rows))) for t, rows in data.items()}
-    start = everything
-    if scenario.role:
-        start = visible(data, security_arcs(model), {t: [p.holds] for t, p in scenario.role.items()}, everything)
-    base_filters = {t: [p.holds] for t, p in scenario.where.items()}
-    sources = [text.split(".") for text in report.by]
-
-    def evaluate(setting_layers, group):
-        flows = graph.resolve_setting(model, *setting_layers).flows
-        filters = {t: list(tests) for t, tests in base_filters.items()}
-        for (table, column), value in zip(sources, group or ()):
-            filters.setdefault(table, []).append(lambda row, c=column, v=value: row[c] == v)
-        return visible(data, flow_arcs(model, flows), filters, start)
-
-    def value(name, layers, group=None, rows_of=None):
-        m = model.measures[name]
-        own = layers + ((m.overrides,) if m.overrides else ())
-        if m.table is None:
-            left, right = value("m0", own, group, rows_of), value("m1", own, group, rows_of)
-            return None if left is None or right is None else left + right
-        rows = rows_of(m, own) if rows_of else evaluate(own, group)[m.table]
-        test = scenario.measure_where.get(name)
-        return AGGREGATES[m.expr]([data[m.table][r] for r in rows if test is None or test.holds(data[m.table][r])])
-
-    def base_terms(name, layers):
-        m = model.measures[name]
-        own = layers + ((m.overrides,) if m.overrides else ())
-        return [(m, own)] if m.table else base_terms("m0", own) + base_terms("m1", own)
-
-    terms = [t for name in report.measures for t in base_terms(name, ())]
-    if not sources:
-        return [tuple(value(name, ()) for name in report.measures)]
-    combos, leftovers = set(), {}
-    for m, layers in terms:
-        total = evaluate(layers, None)
-        domains = [sorted({data[t][r][c] for r in total[t]}, key=repr) for t, c in sources]
-        in_groups = set()
-        for group in itertools.product(*domains):
-            rows = evaluate(layers, group)[m.table]
-            if rows:
-                combos.add(group)
-            in_groups |= rows
-        leftovers[(m.name, repr(layers))] = total[m.table] - in_groups
-    out = [group + tuple(value(name, (), group) for name in report.measures) for group in combos]
-    if any(leftovers.values()):
-        lost = lambda m, layers: leftovers[(m.name, repr(layers))]  # noqa: E731
-        out.append((NO_MATCH,) * len(sources) + tuple(value(name, (), rows_of=lost) for name in report.measures))
-    return out
+    """The report's rows by tests/section5.py, the one plain-Python reading of section 5 the tests share."""
+    rows = section5.report(scenario.model, _dicts(scenario), "r")
+    return [tuple(NO_MATCH if v == section5.NO_MATCH else v for v in row) for row in rows]
 
 
 @pytest.fixture(scope="module", autouse=True)
@@ -280,6 +185,44 @@ def _key(row):
 def test_engine_equals_the_python_reading_of_section_5(scenario):
     assert sorted(engine_rows(scenario), key=_key) == sorted(reference(scenario), key=_key)
 
+
+
+def _two_settings(orphan: bool) -> Scenario:
+    """Shrunk from a hypothesis example: m0 and m1 count the same table t0 in two settings.
+
+    The report filters t1 (`a = 0`: no row passes) and groups by t2.a. In m0's
+    setting L0 is one-way, so the filter stops at t1 and t2.a has the value
+    NULL; in m1's, L0 is two-way and the filter empties t2, so t2.a has no value
+    in m1's own total. t0 is linked to t2 only with `orphan` (L2, one-way, and
+    a t0 row whose f1 is NULL, in no group of m0).
+    """
+    links = {"L0": Link("L0", "t1", ("f0",), "t2", ("k",))}
+    rows = {"t0": [(0, None, None, None, 0)], "t1": [(0, None, None, None, None)], "t2": [(0, None, None, None, None)]}
+    if orphan:
+        links["L2"] = Link("L2", "t0", ("f1",), "t2", ("k",))
+        rows["t0"].append((1, None, None, None, None))
+    measures = {"m0": Measure("m0", "count(*)", "t0"),
+                "m1": Measure("m1", "count(*)", "t0", overrides=Overrides((), {"L0": "two-way"}))}
+    report = Report("r", ("m0", "m1"), ("t2.a",), {"t1": "a = 0"})
+    model = Model("m", {n: _table(n) for n in ("t0", "t1", "t2")}, links, measures, reports={"r": report})
+    return Scenario(model, rows, {"t1": Pred("a", "=", 0)}, {}, {})
+
+
+def test_a_row_shown_in_a_group_is_not_also_in_no_match():
+    # semantics.md section 5: "for each measure a row is either in some group or in `(no match)`, never
+    # both". The group NULL is in the answer through m0; m1 sees t0's row there (t0 is not linked to t2 in
+    # m1's setting), so that row is not gathered in `(no match)` as well. This file's former reference
+    # answered [(None, 1, 1), ((no match), 0, 1)].
+    scenario = _two_settings(orphan=False)
+    assert engine_rows(scenario) == reference(scenario) == [(None, 1, 1)]
+
+
+def test_no_match_stays_when_a_measure_has_a_row_in_no_group():
+    # the twin: t0's row 1 has no t2 row in m0's setting, so (no match) is there for m0; in m1's setting the
+    # filter empties t2 and, through L2, t0: m1 is 0 everywhere
+    scenario = _two_settings(orphan=True)
+    expected = sorted([(None, 1, 0), (NO_MATCH, 1, 0)], key=_key)
+    assert sorted(engine_rows(scenario), key=_key) == sorted(reference(scenario), key=_key) == expected
 
 # --- reference 2: plain joins in sqlite3 for tree-shaped models -------------------------
 
