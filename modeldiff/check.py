@@ -783,8 +783,8 @@ def _drops_finding(ctx: _Context, link, found: dict[str, list[str]]) -> Finding:
     if len(names) > 4:
         shown += f"; and {len(names) - 4} more reports"
     message = (f"Link {link.name} flows both ways out of {kind} table {bridge} into {target}: once a report's grouping "
-               f"or filter reaches {bridge}, {target} keeps only the rows that have a {bridge} row, so the rows "
-               f"without one leave every group and fall into `(no match)`. Measures that lose rows: {shown}. ")
+               f"or filter reaches {bridge}, {target} keeps only the rows that have a row in {bridge}, so the "
+               f"rows without one leave every group and fall into `(no match)`. Measures that lose rows: {shown}. ")
     message += (f"Keep {link.name} one-way if {bridge} should not filter {target}, or set "
                 f"`flow: {{{link.name}: one-way}}` on the reports that must keep every row.")
     return ctx.finding("two-way-drops-unmatched", f"links.{link.name}", message)
