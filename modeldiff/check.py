@@ -513,6 +513,7 @@ class _Candidate:
     item: str | None  # the subject whose overrides make this setting (None: the model's own links)
     own: Overrides  # that item's overrides: where a fix can go
     homes: frozenset[str]  # home tables of the base measures computed in this setting
+    readers: frozenset[str] | None = None  # those base measures (None: every measure)
 
 
 def _bases(model: Model, name: str) -> frozenset[str]:
@@ -531,6 +532,11 @@ def _bases(model: Model, name: str) -> frozenset[str]:
         else:
             todo.extend(refs.get(current, ()))
     return frozenset(found)
+
+
+def _all_bases(model: Model, names: Iterable[str]) -> frozenset[str]:
+    """The base measures that `names` reach."""
+    return frozenset(b for name in names for b in _bases(model, name))
 
 
 def _homes(model: Model, names: Iterable[str]) -> frozenset[str]:
@@ -560,24 +566,28 @@ def _settings(model: Model):
                 readers = [m for r in model.reports.values()
                            if r.variant.get(variant.name, variant.default) == option.name for m in r.measures]
                 homes = every if option.name == variant.default else _homes(model, readers)
+                bases = None if option.name == variant.default else _all_bases(model, readers)
                 candidates.append(_Candidate(f"option {option.name} of variant {variant.name}", (option.overrides,),
-                                             f"variants.{variant.name}.options.{option.name}", option.overrides, homes))
+                                             f"variants.{variant.name}.options.{option.name}", option.overrides, homes,
+                                             bases))
     for measure in model.measures.values():
         if measure.overrides:
             label, homes = f"measure {measure.name}'s setting", _homes(model, [measure.name])
             for layers in ((measure.overrides,), defaults + (measure.overrides,)):
-                candidates.append(_Candidate(label, layers, f"measures.{measure.name}", measure.overrides, homes))
+                candidates.append(_Candidate(label, layers, f"measures.{measure.name}", measure.overrides, homes,
+                                             _all_bases(model, [measure.name])))
     for report in model.reports.values():
         candidates.append(_Candidate(f"report {report.name}'s setting",
                                      graph.setting_layers(model, report=report, variant_defaults=True),
-                                     f"reports.{report.name}", report.overrides, _homes(model, report.measures)))
+                                     f"reports.{report.name}", report.overrides, _homes(model, report.measures),
+                                     _all_bases(model, report.measures)))
         for name in report.measures:
             measure = model.measures.get(name)
             if measure is not None and measure.overrides:
                 candidates.append(_Candidate(
                     f"measure {name} in report {report.name}",
                     graph.setting_layers(model, measure=measure, report=report, variant_defaults=True),
-                    f"measures.{name}", measure.overrides, _homes(model, [name])))
+                    f"measures.{name}", measure.overrides, _homes(model, [name]), _all_bases(model, [name])))
     seen: set[Setting] = set()
     for candidate in candidates:
         setting = resolver.resolve(*candidate.layers)
@@ -624,10 +634,12 @@ def _fix_link(model: Model, fg, default_edges: frozenset | None, source: str, fi
     return pool[0], against(pool[0])
 
 
-def _readers(ctx: _Context, fg, target: str, homes: frozenset[str]) -> str:
-    """"measure a reads it", "measures a, b and 3 more read it": the measures whose home `target` reaches."""
+def _readers(ctx: _Context, fg, target: str, homes: frozenset[str], readers: frozenset[str] | None) -> str:
+    """"measure a reads it", "measures a, b and 3 more read it": the measures computed in the setting (all of
+    them, or `readers`) whose table `target` reaches."""
     by_home = ctx.measures_by_home
-    names = sorted(name for home in fg.reach(target) if home in homes for name in by_home.get(home, ()))
+    names = sorted(name for home in fg.reach(target) if home in homes for name in by_home.get(home, ())
+                   if readers is None or name in readers)
     if not names:
         return "no measure computed in this setting reads it yet (it matters once one does)"
     if len(names) == 1:
@@ -677,7 +689,7 @@ def _ambiguity_finding(ctx: _Context, candidate: _Candidate, fg, default_edges, 
     where = "" if candidate.item is None else f" in {candidate.label}"
     head = (f"A filter on {source} reaches {target} along more than one route{where} "
             f"({' / '.join(first)} and {' / '.join(second)}); numbers on {target} then depend on the data along each "
-            f"route, and {_readers(ctx, fg, target, candidate.homes)}. ")
+            f"route, and {_readers(ctx, fg, target, candidate.homes, candidate.readers)}. ")
     if candidate.item is None:
         at = f"links.{link}"
         fix = (f"Make link {link} one-way, or put it on standby (naming it in `via` where it is needed), so one "

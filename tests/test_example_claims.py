@@ -237,3 +237,12 @@ def test_the_model_with_standby_true_has_none_of_revision_2_s_findings():
     found = {(f["rule"], f["subject"]) for f in check_json(CLINIC)[1]}
     assert {rule for rule, _ in found}.isdisjoint({"invalid-model", "duplicate-live-link", "via-not-standby"})
     assert not any(subject.startswith("paths.calendar->") for _, subject in found)
+
+
+def test_a_measure_s_own_ambiguity_names_only_that_measure_as_reading_it():
+    # the setting is home_clinic_visits' own: the other measures on appointments are not computed in it
+    code, out = run(["check", CLINIC, "--format", "json"])
+    found = [f for f in json.loads(out)["findings"] if f["rule"] == "ambiguous-paths"
+             and "home_clinic_visits's setting" in f["message"]]
+    assert found and all("measure home_clinic_visits reads it" in f["message"] for f in found)
+    assert not any("appointment_count" in f["message"] for f in found)
