@@ -292,15 +292,10 @@ def _confine(name: str, source: str, folder: str, path: str) -> None:
 
 def _repository_root(folder: str) -> str:
     """The nearest folder at or above `folder` holding `.git` (real path); `folder` itself when there is none."""
+    from modeldiff.files import enclosing_work_tree
+
     start = _real(folder)
-    current = start
-    while True:
-        if os.path.lexists(os.path.join(current, ".git")):
-            return current
-        parent = os.path.dirname(current)
-        if parent == current:
-            return start
-        current = parent
+    return enclosing_work_tree(os.path.join(start, "_")) or start  # the search starts at the folder itself
 
 
 def _inside(path: str, root: str) -> bool:
