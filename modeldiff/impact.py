@@ -804,22 +804,33 @@ class _Impacts:
 
     def where_reasons(self, home: str, comp: _Computation) -> list[Reason]:
         """A variant option's `where` in force changed on a table whose filter reaches `home`."""
+        return [Reason(change_id, f"The variant option's `where` on {table} in force changed: numbers on "
+                                  f"{home} move.", source=table)
+                for table, change_id in self._changed_wheres(comp, (home,))]
+
+    def _changed_wheres(self, comp: _Computation, targets: Iterable[str]) -> list[tuple[str, str]]:
+        """(table, change id) for each variant `where` in force that changed and whose filter reaches a target.
+
+        Reach is taken in either revision: the filter counts where it used to
+        reach as much as where it reaches now.
+        """
         from modeldiff import sql
 
-        reasons = []
+        found = []
         g_old, g_new = self.graphs(comp)
+        targets = set(targets)
         for table in sorted(set(comp.old_wheres) | set(comp.new_wheres)):
             before, after = comp.old_wheres.get(table, ()), comp.new_wheres.get(table, ())
             if len(before) == len(after) and all(sql.same_logic(x, y, table) if x != y else True
                                                  for x, y in zip(before, after)):
                 continue
-            if home not in g_new.reach(table) and home not in g_old.reach(table):
+            reached = sorted(targets & (g_new.reach(table) | g_old.reach(table)))
+            if not reached:
                 continue
             change_id = next((c.id for c in comp.setting_changes if c.kind != "measure.overrides_changed"),
-                             comp.setting_changes[0].id if comp.setting_changes else self.cause((), True, None, (table, home)))
-            reasons.append(Reason(change_id, f"The variant option's `where` on {table} in force changed: numbers on "
-                                             f"{home} move.", source=table))
-        return reasons
+                             comp.setting_changes[0].id if comp.setting_changes else self.cause((), True, None, (table, reached[0])))
+            found.append((table, change_id))
+        return found
 
     def group_reasons(self, comp: _Computation, where_tables: Iterable[str], by_tables: Iterable[str]) -> list[Reason]:
         """A report's groups (the `by` values visible under its `where`) move across a changed edge."""
@@ -836,6 +847,12 @@ class _Impacts:
                         f"filter on {where}, and the filter {'now crosses' if came and not both else 'no longer crosses' if not both else 'crosses'} "
                         f"link {edge.link} ({edge.src} -> {edge.dst}) on the way: which groups show can change.",
                         source=where, route=route or ()))
+        for where, change_id in self._changed_wheres(comp, by_tables):
+            g_old, g_new = self.graphs(comp)
+            shown = sorted(b for b in by_tables if b in g_old.reach(where) | g_new.reach(where))
+            reasons.append(Reason(change_id, f"The variant option's `where` on {where} in force changed, and its filter "
+                                             f"reaches {_and(shown)}: which groups by {_and(shown)} show can change.",
+                                  source=where))
         return reasons
 
     # -- role rows

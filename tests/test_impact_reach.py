@@ -424,3 +424,53 @@ def test_making_a_link_one_to_one_lists_the_role_whose_filter_now_comes_back():
     assert card in {x.change for x in reasons_of(r.roles, "anna_readers")}
     assert card in {x.change for x in reasons_of(r.reports, "anna_holds")}
     assert "hold_desk" not in names(r.roles)  # twin: its filter on holds reaches no changed edge
+
+
+# --- a variant option's `where` decides which groups show --------------------------------------
+
+PINNED = """\
+model: pinned
+format: 1
+tables:
+  d: {kind: dimension, key: k, columns: {k: integer, a: text}}
+  f: {kind: fact, key: id, columns: {id: integer, a: text, r: integer}}
+measures:
+  m: {table: d, expr: min(a)}
+variants:
+  scope:
+    default: base
+    options:
+      base: {}
+      narrow:
+        where: {f: a = 'z'}
+reports:
+  rep:
+    measures: [m]
+    by: [d.a, f.r]
+    variant: {scope: narrow}
+"""
+
+UNPINNED = PINNED.replace("    variant: {scope: narrow}\n", "")
+ROWS_PINNED = {"d": [(1, "z")], "f": [(1, "y", 2)]}
+
+
+def test_variant_where_dropped_from_a_report_lists_it_when_only_its_groups_move():
+    # Found by the random campaign (seed 25071): the report stops choosing the option whose `where`
+    # hides every row of f; the measure lives on d, which f cannot reach, so only the groups by f.r move.
+    assert numbers(PINNED, "rep", ROWS_PINNED) != numbers(UNPINNED, "rep", ROWS_PINNED)
+    r = diff(PINNED, UNPINNED)
+    assert names(r.reports) == ["rep"]
+    assert any("groups by f" in reason.message for reason in reasons_of(r.reports, "rep"))
+    assert names(r.measures) == []  # m on its own is computed with the default option both times
+
+
+def test_variant_where_twin_a_where_on_a_table_that_reaches_no_group_lists_no_report():
+    # e is linked to nothing: its filter reaches neither d nor f, so no group and no value can move.
+    with_e = PINNED.replace("  f: {kind: fact", "  e: {kind: dimension, key: k, columns: {k: integer, b: text}}\n  f: {kind: fact")
+    old = with_e.replace("where: {f: a = 'z'}", "where: {f: a = 'z', e: b = 'p'}")
+    new = with_e.replace("where: {f: a = 'z'}", "where: {f: a = 'z', e: b = 'q'}")
+    rows = dict(ROWS_PINNED, e=[(1, "p")])
+    assert numbers(old, "rep", rows) == numbers(new, "rep", rows)
+    r = diff(old, new)
+    assert [c.kind for c in r.changes] == ["variant.changed"]
+    assert names(r.reports) == [] and names(r.measures) == []
