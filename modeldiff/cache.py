@@ -463,7 +463,7 @@ def read(folder: str, kind: str, key: str, fit: Callable[[Any], bool] | None = N
     try:
         import json
 
-        from modeldiff.load import paused_gc
+        from modeldiff.util import paused_gc
 
         with paused_gc():
             value = _decode(json.loads(payload))

@@ -13,6 +13,7 @@ from typing import TYPE_CHECKING, Callable, Iterable, Iterator
 
 from modeldiff import graph, sql  # both light: sqlglot is imported on first use
 from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Table
+from modeldiff.util import paused_gc
 from modeldiff.words import agree, and_list, named
 
 if TYPE_CHECKING:  # pragma: no cover
@@ -869,8 +870,6 @@ def check_model(model: Model, load_findings: Iterable[Finding] = (), graph_rules
     pays only when it shows one: `diff.warning_changes` asks the model for
     the few warnings that are new).
     """
-    from modeldiff.load import paused_gc
-
     ctx = _Context(model, warning_positions=graph_rules)
     findings = list(load_findings)
     with paused_gc():  # many small records, no cycles: the collector would only walk the model again and again
@@ -888,8 +887,6 @@ def check_pair(old: Model, old_load_findings: Iterable[Finding], new: Model,
     there either. A rule with findings in `old` runs again, since findings
     carry the revision's positions.
     """
-    from modeldiff.load import paused_gc
-
     old_ctx, new_ctx = _Context(old, False), _Context(new, False)
     old_found, new_found = list(old_load_findings), list(new_load_findings)
     same: dict[str, bool] = {}
@@ -916,8 +913,6 @@ def check_new_side(old: Model, old_load_findings: Iterable[Finding], new: Model,
     The first list holds the old load findings and these; the second list is
     exactly `check_model`'s.
     """
-    from modeldiff.load import paused_gc
-
     old_ctx, new_ctx = _Context(old, False), _Context(new, False)
     old_found, new_found = list(old_load_findings), list(new_load_findings)
     same: dict[str, bool] = {}

@@ -11,6 +11,7 @@ from dataclasses import dataclass, replace as _replace
 from typing import Sequence
 
 from modeldiff.errors import ModeldiffError
+from modeldiff.util import paused_gc
 
 
 @dataclass(frozen=True)
@@ -53,7 +54,7 @@ def check_spec(spec: str, use_cache: bool = True):
         found = cache.load_check(folder, key, files)
         if found is not None:
             return (spec, *found)
-    with load.paused_gc():
+    with paused_gc():
         result = load.load_files(files)
         findings = check.check_model(result.model, result.findings)
     if key is not None:
@@ -216,8 +217,6 @@ class History:
 
 def _compare_files(old_files, new_files, use_cache: bool, where: str, old=None, new=None):
     """The DiffResult of two revisions' files (None: the model is absent on that side), through the cache."""
-    from modeldiff.load import paused_gc
-
     old = old if old is not None else (_Revision(old_files) if old_files is not None else None)
     new = new if new is not None else (_Revision(new_files, old) if new_files is not None else None)
     with paused_gc():  # two models' worth of records and no cycles: the collector would only walk them

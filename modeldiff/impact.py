@@ -1223,7 +1223,7 @@ def analyse(old: Model, new: Model, old_findings: Iterable[Finding] = (), new_fi
     `check.check_model(model, findings, graph_rules=False)` when already
     known (compare.py keeps them in its cache); computed here otherwise.
     """
-    from modeldiff.load import paused_gc
+    from modeldiff.util import paused_gc
 
     with paused_gc():  # many small records, no cycles: the collector would only walk both models again and again
         return _analyse(old, new, old_findings, new_findings, old_checked, new_checked)

@@ -35,7 +35,7 @@ FORMATS = ("markdown", "json")
 SEVERITY_TITLES = {"breaking": "Breaking", "numbers": "Can move numbers", "safe": "Safe"}
 SHORT = 7  # characters of a commit id shown
 # Per commit, a full collection every few commits: comparing makes some reference cycles (parsed SQL),
-# and the records made while the collector is paused (load.paused_gc) go straight to the oldest
+# and the records made while the collector is paused (util.paused_gc) go straight to the oldest
 # generation, which is collected rarely; without it a walk of 120 commits grew by 2.5 MB a commit.
 COLLECT_EVERY = 4
 
