@@ -20,6 +20,12 @@ def worst(severities: Iterable[str], default: str = "safe") -> str:
     return max(severities, key=rank, default=default)
 
 
+def id_order(change_id: str) -> tuple[int, str]:
+    """Sort key of an id made of a letter and a number (`c2` before `c10`, `s2` before `s10`); others first."""
+    digits = change_id[1:]
+    return (int(digits), change_id) if digits.isdigit() else (0, change_id)
+
+
 @dataclass(frozen=True)
 class Change:
     """One classified difference between two revisions.

@@ -27,6 +27,7 @@ from dataclasses import asdict, dataclass, field, replace
 from functools import cached_property, lru_cache
 from typing import Any, Callable, Hashable, Iterable, Iterator, Mapping, TypeVar
 
+from modeldiff import sql  # light: sqlglot is imported on first use
 from modeldiff.changes import Change
 from modeldiff.model import Column, History, Link, Measure, Model, Overrides, Report, Role, Table, Variant, VariantOption
 from modeldiff.words import and_list
@@ -147,27 +148,12 @@ def _words(text: str) -> frozenset[str]:
     return frozenset(w.lower() for w in _WORD.findall(text))
 
 
-def _sql_module():
-    try:
-        from modeldiff import sql
-    except ImportError:  # pragma: no cover - only while sql.py is being written
-        return None
-    return sql
-
-
-def _sql_errors(sql) -> tuple[type[BaseException], ...]:
-    return tuple(e for e in (getattr(sql, "SqlError", None),) if e is not None) or (ValueError,)
-
-
 @lru_cache(maxsize=4096)
 def _column_refs(text: str) -> frozenset[tuple[str | None, str]] | None:
     """Lowercased (qualifier, column) pairs read by `text`, or None when it cannot be parsed."""
-    sql = _sql_module()
-    if sql is None:
-        return None
     try:
         refs = sql.column_refs(text)
-    except _sql_errors(sql):
+    except sql.SqlError:
         return None
     return frozenset((q.lower() if q else None, c.lower()) for q, c in refs)
 
@@ -187,24 +173,17 @@ def sql_names_measure(expr: str, name: str) -> bool:
     """Whether a derived measure's expression names measure `name` (True when it cannot tell)."""
     if name.lower() not in _words(expr):
         return False
-    sql = _sql_module()
-    if sql is None:
-        return True
-    refs = getattr(sql, "derived_refs_fast", sql.measure_refs)  # same answer, usually without parsing
-    try:
-        return any(n.lower() == name.lower() for n in refs(expr, (name,)))
-    except _sql_errors(sql):
+    try:  # derived_refs_fast: measure_refs's answer, usually without parsing
+        return any(n.lower() == name.lower() for n in sql.derived_refs_fast(expr, (name,)))
+    except sql.SqlError:
         return True
 
 
 def _normal_form(text: str, table: str | None = None) -> str | None:
     """modeldiff.sql's normal form (memoised there), or None when the text cannot be parsed."""
-    sql = _sql_module()
-    if sql is None:
-        return None
     try:
         return sql.normal_form(text, table)
-    except _sql_errors(sql):
+    except sql.SqlError:
         return None
 
 
@@ -231,12 +210,9 @@ def rename_in_sql(text: str, columns: Mapping[str, str], qualifiers: Mapping[str
     import sqlglot
     from sqlglot import exp
 
-    sql = _sql_module()
-    if sql is None:
-        return None
     try:
         tree = sql.parse(text).copy()  # parse() memoises its trees: never change them in place
-    except _sql_errors(sql):
+    except sql.SqlError:
         return None
     scope_names = {scope.lower()} if scope else set()
     scope_names |= {old for old, new in qualifiers.items() if scope and new.lower() == scope.lower()}

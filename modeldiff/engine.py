@@ -90,7 +90,7 @@ from dataclasses import dataclass, field
 from typing import Callable, Iterable, Mapping, Sequence
 
 from modeldiff.errors import ModeldiffError
-from modeldiff.model import Link, Measure, Model, Overrides, Report
+from modeldiff.model import Link, Measure, Model, Overrides, Report, layers_key
 
 NO_MATCH_COLUMN = "_no_match"  # last column of a grouped query: true on the (no match) row
 ROWS_COLUMN = "rows"
@@ -714,10 +714,6 @@ class _Term:
     layers: tuple[Overrides, ...]
 
 
-def _layers_key(layers: Sequence[Overrides]) -> tuple:
-    return tuple((o.via, tuple(sorted(o.flow.items()))) for o in layers)
-
-
 def _measure_refs(model: Model, measure: Measure) -> list[str]:
     from modeldiff import sql
 
@@ -737,7 +733,7 @@ def _base_terms(model: Model, names: Sequence[str], base_layers: tuple[Overrides
             raise _unknown("measure", name, model, model.measures)
         own = layers + ((measure.overrides,) if measure.overrides else ())
         if measure.is_base:
-            out.setdefault((name, _layers_key(own)), _Term(name, own))
+            out.setdefault((name, layers_key(own)), _Term(name, own))
             return
         for ref in _measure_refs(model, measure):
             visit(ref, own, path + (name,))
@@ -933,8 +929,8 @@ class _Compiler:
         measure = self.model.measures[name]
         own = layers + ((measure.overrides,) if measure.overrides else ())
         if measure.is_base:
-            key = (name, _layers_key(own))
-            k = next(i for i, t in enumerate(terms) if (t.measure, _layers_key(t.layers)) == key)
+            key = (name, layers_key(own))
+            k = next(i for i, t in enumerate(terms) if (t.measure, layers_key(t.layers)) == key)
             return q(f"_m{k}")
         from sqlglot import exp
 

@@ -43,8 +43,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from typing import Any, Iterable, Mapping
 
-from modeldiff.changes import EXIT_CODES, Change, worst
-from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Report, VariantOption
+from modeldiff.changes import EXIT_CODES, Change, id_order, worst
+from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Report, VariantOption, layers_key
 
 PATH_LIMIT = 64  # paths listed per pair when telling what was added or removed
 PATH_BUDGET = 200_000  # search steps per pair listing; beyond it the pair counts as changed (conservative)
@@ -268,10 +268,6 @@ def setting_layers(model: Model, measure: Measure | None = None, report: Report 
     return graph.setting_layers(model, measure, report, variant_defaults=True)
 
 
-def _layers_key(layers: tuple[Overrides, ...]) -> tuple:
-    return tuple((o.via, tuple(sorted(o.flow.items()))) for o in layers)
-
-
 class _Analysis:
     """Holds both revisions, their graphs per setting, and the path comparisons done so far."""
 
@@ -288,15 +284,15 @@ class _Analysis:
         """The flow graph of `model` in the setting of `layers`, shared by every computation with that setting."""
         from modeldiff import graph
 
-        layers_key = (id(model), _layers_key(layers))
-        found = self._graphs.get(layers_key)
+        graph_key = (id(model), layers_key(layers))
+        found = self._graphs.get(graph_key)
         if found is None:
             setting = graph.resolve_setting(model, *layers)
             key = (id(model), frozenset(setting.flows.items()))
             found = self._graphs.get(key)
             if found is None:
                 found = self._graphs[key] = graph.flow_graph(model, setting)
-            self._graphs[layers_key] = found
+            self._graphs[graph_key] = found
         return found
 
     def security_graphs(self):
@@ -647,7 +643,7 @@ class _Impacts:
         A lower rank is more telling.
         """
         setting_changes = comp.setting_changes if comp is not None else ()
-        key = (edge, came, tuple(c.id for c in setting_changes), _layers_key(comp.old_layers) if setting_changes else ())
+        key = (edge, came, tuple(c.id for c in setting_changes), layers_key(comp.old_layers) if setting_changes else ())
         if key not in self._cause_cache:
             self._cause_cache[key] = self._edge_cause(edge, came, comp)
         return self._cause_cache[key]
@@ -800,7 +796,7 @@ class _Impacts:
                                      f"grouped by {source}.", source=source, paths_added=tuple(added),
                           paths_removed=tuple(removed))
                    for (change_id, source), (added, removed) in listed.items()]
-        return sorted(reasons + list(routes.values()), key=lambda r: (_id_order(r.change), r.source or ""))
+        return sorted(reasons + list(routes.values()), key=lambda r: (id_order(r.change), r.source or ""))
 
     def where_reasons(self, home: str, comp: _Computation) -> list[Reason]:
         """A variant option's `where` in force changed on a table whose filter reaches `home`."""
@@ -921,7 +917,7 @@ class _Impacts:
         if found is None:
             found = self._role_cache[key] = []
             for role in names:
-                for change_id in sorted({c for causes in rows[role].values() for c in causes}, key=_id_order):
+                for change_id in sorted({c for causes in rows[role].values() for c in causes}, key=id_order):
                     for g in self.graphs(comp):
                         origins = self._role_reach(role, change_id, g)
                         if home in origins:
@@ -1000,9 +996,9 @@ class _Impacts:
                 changes += [c for c in self.by_subject.get(subject, ()) if c.kind in SETTING_KINDS and c.severity != "safe"]
         old_layers = tuple(layer for layer in setting_layers(a.old, None, old_report) + old_overrides if layer)
         new_layers = tuple(layer for layer in setting_layers(a.new, None, report) + new_overrides if layer)
-        setting_changes = tuple(sorted({c.id: c for c in changes}.values(), key=lambda c: _id_order(c.id)))
+        setting_changes = tuple(sorted({c.id: c for c in changes}.values(), key=lambda c: id_order(c.id)))
         old_wheres, new_wheres = _wheres(old_options, a.renames), _wheres(new_options, None)
-        key = (_layers_key(old_layers), _layers_key(new_layers), tuple(c.id for c in setting_changes),
+        key = (layers_key(old_layers), layers_key(new_layers), tuple(c.id for c in setting_changes),
                tuple(sorted(old_wheres.items())), tuple(sorted(new_wheres.items())))
         found = self._computations.get(key)
         if found is None:
@@ -1097,7 +1093,7 @@ class _Impacts:
                 for change_id, source in causes.items():
                     if change_id not in named:
                         moved.setdefault((change_id, source), []).append(table)
-            for (change_id, source), tables in sorted(moved.items(), key=lambda kv: (_id_order(kv[0][0]), kv[0][1])):
+            for (change_id, source), tables in sorted(moved.items(), key=lambda kv: (id_order(kv[0][0]), kv[0][1])):
                 reasons.append(Reason(change_id, f"A filter of role {name} on {source} reaches what changed: the rows "
                                                  f"its members may see of {_and(tables)} can change.", source=source))
             if reasons:
@@ -1175,7 +1171,7 @@ class _Impacts:
         return read
 
     def _impact(self, name: str, reasons: list[Reason]) -> Impact:
-        reasons = sorted(_dedupe(reasons), key=lambda r: (_id_order(r.change), r.source or "", r.paths_added,
+        reasons = sorted(_dedupe(reasons), key=lambda r: (id_order(r.change), r.source or "", r.paths_added,
                                                           r.paths_removed, r.route))
         severity = worst(self.by_id[r.change].severity for r in reasons if r.change in self.by_id)
         return Impact(name, "numbers" if severity == "safe" else severity, tuple(reasons))
@@ -1191,11 +1187,6 @@ def _wheres(options: Mapping[str, tuple[str, VariantOption]], renames: Renames |
         for table, predicate in sorted(options[variant][1].where.items()):
             out.setdefault(renames.table(table) if renames else table, []).append(predicate)
     return {t: tuple(p) for t, p in out.items()}
-
-
-def _id_order(change_id: str) -> tuple[int, str]:
-    digits = change_id[1:]
-    return (int(digits), change_id) if digits.isdigit() else (0, change_id)
 
 
 def _via(reason: Reason, measure: str) -> Reason:

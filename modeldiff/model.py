@@ -10,7 +10,7 @@ from __future__ import annotations
 
 from collections import abc
 from dataclasses import dataclass, field
-from typing import Mapping
+from typing import Mapping, Sequence
 
 TABLE_KINDS = ("fact", "dimension", "bridge", "access")
 COLUMN_TYPES = ("integer", "decimal", "float", "text", "date", "timestamp", "boolean")
@@ -79,6 +79,11 @@ class Overrides:
 
 
 NO_OVERRIDES = Overrides()
+
+
+def layers_key(layers: Sequence[Overrides]) -> tuple:
+    """A hashable key of a stack of override layers (equal stacks, equal keys)."""
+    return tuple((o.via, tuple(sorted(o.flow.items()))) for o in layers)
 
 
 @dataclass(frozen=True)

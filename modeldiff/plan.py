@@ -37,6 +37,7 @@ import json
 from dataclasses import dataclass, field
 from typing import Iterable, Sequence, TextIO
 
+from modeldiff.changes import id_order
 from modeldiff.words import agree, and_list
 
 FORMATS = ("text", "markdown", "json")
@@ -322,7 +323,7 @@ class _Planner:
     def title(self, d: _Draft) -> str:
         verb, _, noun = d.kind.partition("-")
         name = _display(d.subject)
-        changes = [self.changes[cid] for cid in sorted(d.changes, key=_id_order)]
+        changes = [self.changes[cid] for cid in sorted(d.changes, key=id_order)]
         if d.kind == "add-table" and name in self.new.tables:
             return f"Add table {name} (a {self.new.tables[name].kind})"
         if d.kind == "add-column":
@@ -354,7 +355,7 @@ class _Planner:
     def rollback(self, d: _Draft) -> str:
         verb, _, noun = d.kind.partition("-")
         name = _display(d.subject)
-        changes = [self.changes[cid] for cid in sorted(d.changes, key=_id_order)]
+        changes = [self.changes[cid] for cid in sorted(d.changes, key=id_order)]
         if verb == "add":
             return f"Remove {noun} {name} again; nothing used it before this plan."
         if verb == "remove":
@@ -571,7 +572,7 @@ class _Planner:
             return []
         out = []
         for impact in self.result.reports:
-            ids = sorted(d.changes & {r.change for r in impact.reasons}, key=_id_order)
+            ids = sorted(d.changes & {r.change for r in impact.reasons}, key=id_order)
             if ids:
                 out.append(Check(f"report {impact.name} compared with {self.old_label} on one period: its numbers "
                                  f"differ only where {and_list(ids)} {agree(len(ids), 'explains', 'explain')} it"))
@@ -598,10 +599,10 @@ class _Planner:
             d.rollback = d.rollback or self.rollback(d)
         for key in order:
             d = self.steps[key]
-            after = sorted((ids[p] for p in preds[key]), key=_id_order)
-            pre = [f"{ids[p]} done ({self.steps[p].title})" for p in sorted(preds[key], key=lambda p: _id_order(ids[p]))]
+            after = sorted((ids[p] for p in preds[key]), key=id_order)
+            pre = [f"{ids[p]} done ({self.steps[p].title})" for p in sorted(preds[key], key=lambda p: id_order(ids[p]))]
             checks = d.checks or self.checks(d)
-            steps.append(Step(ids[key], d.kind, d.subject, d.title, tuple(sorted(d.changes, key=_id_order)),
+            steps.append(Step(ids[key], d.kind, d.subject, d.title, tuple(sorted(d.changes, key=id_order)),
                               tuple(after), tuple(_unique(pre + d.preconditions)), tuple(checks), d.rollback))
         r = self.result
         blockers = tuple(f"{f.rule} {f.subject}: {f.message}" for f in r.new_errors)
@@ -645,7 +646,7 @@ def _default_check(d: _Draft) -> Check:
     name = _name(d.subject).replace(".columns.", ".")
     if d.kind == "update-report":
         return Check(f"report {name} shows the same numbers as before on one period, except where "
-                     f"{and_list(sorted(d.changes, key=_id_order))} {agree(len(d.changes), 'explains', 'explain')} the difference")
+                     f"{and_list(sorted(d.changes, key=id_order))} {agree(len(d.changes), 'explains', 'explain')} the difference")
     if d.kind == "fix-reference":
         return Check(f"modeldiff check on the new revision reports no broken-reference for {name}")
     if d.kind == "review":
@@ -653,7 +654,7 @@ def _default_check(d: _Draft) -> Check:
     if verb == "remove":
         return Check(f"modeldiff check reports no broken-reference to {name}")
     return Check(f"modeldiff check on the model after this step reports no error, and modeldiff diff lists "
-                 f"{', '.join(sorted(d.changes, key=_id_order))} for {name}")
+                 f"{', '.join(sorted(d.changes, key=id_order))} for {name}")
 
 
 def _topological(steps: dict, edges: set) -> list[tuple[str, str]]:
@@ -690,11 +691,6 @@ def _topological(steps: dict, edges: set) -> list[tuple[str, str]]:
             if indegree[nxt] == 0 and nxt not in done:
                 heapq.heappush(ready, rank(nxt))
     return order
-
-
-def _id_order(text: str) -> tuple[int, str]:
-    digits = text[1:]
-    return (int(digits), text) if digits.isdigit() else (0, text)
 
 
 def _unique(items: Iterable[str]) -> list[str]:

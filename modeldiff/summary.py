@@ -29,7 +29,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Iterable, Sequence
 
-from modeldiff.changes import Change, rank, worst
+from modeldiff.changes import Change, id_order, rank, worst
 
 DERIVED_PREFIXES = ("path.", "ambiguity.", "security.", "reference.")
 DERIVED_MEASURES = "derived measures"  # the bucket of impacted measures without a home table
@@ -72,11 +72,6 @@ def is_derived(change: Change) -> bool:
     return change.kind.startswith(DERIVED_PREFIXES)
 
 
-def _id_order(change_id: str) -> tuple[int, str]:
-    digits = change_id[1:] if change_id[:1] == "c" else ""
-    return (int(digits), change_id) if digits.isdigit() else (1 << 30, change_id)
-
-
 def _link_of(change: Change) -> str | None:
     section, _, rest = change.subject.partition(".")
     return rest.split(".")[0] if section == "links" and rest else None
@@ -84,7 +79,7 @@ def _link_of(change: Change) -> str | None:
 
 def _best(candidates: Iterable[Change]) -> Change | None:
     """The most severe change, then the first by id."""
-    return min(candidates, key=lambda c: (-rank(c.severity), _id_order(c.id)), default=None)
+    return min(candidates, key=lambda c: (-rank(c.severity), id_order(c.id)), default=None)
 
 
 def _flat_names(value) -> set[str]:
@@ -175,7 +170,7 @@ def causes(result) -> tuple[Cause, ...]:
                 owners.append(record.owner)
         out.append(Cause(change, tuple(derived[key]), tuple(measures), tuple(roles), tuple(reports), severity,
                          _counted(homes), _counted(owners)))
-    return tuple(sorted(out, key=lambda c: (-rank(c.severity), -c.size, c.change is None, _id_order(c.id))))
+    return tuple(sorted(out, key=lambda c: (-rank(c.severity), -c.size, c.change is None, id_order(c.id))))
 
 
 # --- words ------------------------------------------------------------------------------------------
