@@ -32,7 +32,7 @@ EXTRA_COMMANDS = (
      "install, remove or show the pre-push hook that blocks unacknowledged breaking model changes"),
     ("eval", "modeldiff.evaluate",
      "evaluate a model's reports on data (Parquet, CSV or a DuckDB file) and print their numbers"),
-    ("verify", "modeldiff.verify",
+    ("verify", "modeldiff.commands.verify",
      "evaluate OLD and NEW on the same data: which numbers really move, and whether the data meets the change's preconditions"),
     ("draft", "modeldiff.draft",
      "write a first model file from a database's catalog (a DuckDB file or a DDL script): tables, keys, links, guessed kinds"),
