@@ -46,6 +46,7 @@ from modeldiff.model import (
     Column,
     Finding,
     History,
+    LazyMapping,
     Link,
     Measure,
     Model,
@@ -717,38 +718,20 @@ def _fast_load(files: Sequence[tuple[str, bytes | str]], shared: Mapping[str, Me
         return None
 
 
-class _LazyPositions(Mapping):
+class _LazyPositions(LazyMapping):
     """Model.positions of a fast-read model: the event reader reads them on first use."""
 
-    __slots__ = ("_files", "_found")
+    __slots__ = ()
 
     def __init__(self, files: Sequence[tuple[str, bytes | str]]) -> None:
-        self._files = tuple(files)
-        self._found: Mapping[str, Pos] | None = None
+        files = tuple(files)
+        super().__init__(lambda: _read_positions(files), "positions")
 
-    def _positions(self) -> Mapping[str, Pos]:
-        if self._found is None:
-            with paused_gc():
-                docs = [_Document(name, _key_maps(name, _decode(name, content))) for name, content in self._files]
-                self._found = _Positions(_positions_of(docs))
-            self._files = ()
-        return self._found
 
-    @property
-    def computed(self) -> bool:
-        return self._found is not None
-
-    def __getitem__(self, subject: str) -> Pos:
-        return self._positions()[subject]
-
-    def __iter__(self) -> Iterator[str]:
-        return iter(self._positions())
-
-    def __len__(self) -> int:
-        return len(self._positions())
-
-    def __repr__(self) -> str:
-        return "<positions, read on first use>" if self._found is None else repr(self._found)
+def _read_positions(files: Sequence[tuple[str, bytes | str]]) -> Mapping[str, Pos]:
+    with paused_gc():
+        docs = [_Document(name, _key_maps(name, _decode(name, content))) for name, content in files]
+        return _Positions(_positions_of(docs))
 
 
 def _key_maps(name: str, text: str) -> YamlMap:

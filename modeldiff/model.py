@@ -206,21 +206,25 @@ class Finding:
     pos: Pos | None = None
 
 
-class DeferredSection(abc.Mapping):
-    """A section (or the positions) of a model that is read on first use, by `read()` (which gives the whole Model)."""
+class LazyMapping(abc.Mapping):
+    """A read-only mapping made by `make()` the first time it is read (then `make` is let go)."""
 
-    __slots__ = ("_read", "_field", "_data")
+    __slots__ = ("_make", "_label", "_data")
 
-    def __init__(self, read, field: str) -> None:
-        self._read = read
-        self._field = field
+    def __init__(self, make, label: str) -> None:
+        self._make = make
+        self._label = label
         self._data: Mapping | None = None
 
     def _items(self) -> Mapping:
         if self._data is None:
-            self._data = getattr(self._read(), self._field)
-            self._read = None
+            self._data = self._make()
+            self._make = None
         return self._data
+
+    @property
+    def computed(self) -> bool:
+        return self._data is not None
 
     def __getitem__(self, key: str):
         return self._items()[key]
@@ -232,10 +236,19 @@ class DeferredSection(abc.Mapping):
         return len(self._items())
 
     def __repr__(self) -> str:
-        return f"<{self._field}, read on first use>" if self._data is None else repr(self._data)
+        return f"<{self._label}, read on first use>" if self._data is None else repr(self._data)
 
     def __reduce__(self):
         return (dict, (dict(self._items()),))
+
+
+class DeferredSection(LazyMapping):
+    """A section (or the positions) of a model that is read on first use, by `read()` (which gives the whole Model)."""
+
+    __slots__ = ()
+
+    def __init__(self, read, field: str) -> None:
+        super().__init__(lambda: getattr(read(), field), field)
 
 
 def deferred_model(name: str, fmt: int, read) -> Model:
