@@ -447,12 +447,12 @@ def _display(rev: str, path: str) -> str:
 
 
 def _blob_bytes(blob, shown: str | None = None) -> bytes:
-    """A blob's bytes; a model file over the size limit is refused before it is read (load._too_big)."""
+    """A blob's bytes; a model file over the size limit is refused before it is read (load.text._too_big)."""
     if shown is not None:
-        from modeldiff import load
+        from modeldiff.load import text as model_text
 
-        if blob.size > load.MAX_FILE_BYTES:
-            raise load._too_big(shown, blob.size)
+        if blob.size > model_text.MAX_FILE_BYTES:
+            raise model_text._too_big(shown, blob.size)
     return blob.data_stream.read()
 
 

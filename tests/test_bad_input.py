@@ -210,20 +210,20 @@ def test_modest_aliases_stay_under_the_budget():
 
 
 def test_oversized_file_is_refused(monkeypatch):
-    monkeypatch.setattr(load, "MAX_FILE_BYTES", len(BASE) - 1)
+    monkeypatch.setattr(load.text, "MAX_FILE_BYTES", len(BASE) - 1)
     message = refusal(BASE)
     assert message.startswith(f"{NAME}: file is ") and "split it into a NAME.model/ folder" in message
 
 
 def test_file_at_the_size_limit_loads(monkeypatch):
-    monkeypatch.setattr(load, "MAX_FILE_BYTES", len(BASE))
+    monkeypatch.setattr(load.text, "MAX_FILE_BYTES", len(BASE))
     assert load_text(BASE).findings == ()
 
 
 def test_oversized_file_on_disk_is_refused_before_reading(monkeypatch, tmp_path):
     path = tmp_path / NAME
     path.write_text(BASE)
-    monkeypatch.setattr(load, "MAX_FILE_BYTES", 10)
+    monkeypatch.setattr(load.text, "MAX_FILE_BYTES", 10)
     with pytest.raises(ModeldiffError, match=rf"^{re.escape(str(path))}: file is {len(BASE)} bytes, over the 10 bytes limit"):
         load_path(path)
 

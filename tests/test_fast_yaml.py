@@ -55,7 +55,7 @@ def _same(fast_result, exact_result) -> None:
 
 def _same_as_exact(files, exact, label: str = "") -> None:
     """The fast reader's model, when it takes the files, and `load_files`' answer or error equal the event reader's."""
-    quick = load._fast_load(files)
+    quick = load.fast._fast_load(files)
     if quick is not None:
         assert not isinstance(exact, str), f"{label}: the fast reader accepted files the event reader refuses: {exact}"
         _same(quick, exact)
@@ -70,7 +70,7 @@ def _same_as_exact(files, exact, label: str = "") -> None:
 def test_every_model_file_reads_the_same_with_both_readers():
     taken = 0
     for label, files in SOURCES:
-        quick = load._fast_load(files)
+        quick = load.fast._fast_load(files)
         exact = _exact(files)
         if quick is None:
             continue  # the event reader reads it
@@ -90,7 +90,7 @@ def test_positions_of_a_fast_read_model_are_read_on_first_use():
     text = (ROOT / "examples" / "bikeshare.model.yaml").read_bytes()
     files = [("bikeshare.model.yaml", text)]
     result = load.load_files(files)
-    assert isinstance(result.model.positions, load._LazyPositions)
+    assert isinstance(result.model.positions, load.positions._LazyPositions)
     assert not result.model.positions.computed
     subject = next(s for s in load._exact_load(files).model.positions if s.startswith("measures.") and s.endswith(".expr"))
     pos = result.model.pos(subject)
@@ -103,9 +103,9 @@ def test_positions_of_a_fast_read_model_are_read_on_first_use():
 def test_switched_off_by_the_environment(monkeypatch):
     text = (ROOT / "examples" / "bikeshare.model.yaml").read_bytes()
     monkeypatch.setenv(load.FAST_READER_ENV, "0")
-    assert load._fast_load([("x.model.yaml", text)]) is None
+    assert load.fast._fast_load([("x.model.yaml", text)]) is None
     monkeypatch.delenv(load.FAST_READER_ENV)
-    assert load._fast_load([("x.model.yaml", text)]) is not None
+    assert load.fast._fast_load([("x.model.yaml", text)]) is not None
 
 
 BASE = "model: m\nformat: 1\ntables:\n  trips:\n    kind: fact\n    key: id\n    columns: {id: integer, fare: decimal}\n"
@@ -122,14 +122,14 @@ BASE = "model: m\nformat: 1\ntables:\n  trips:\n    kind: fact\n    key: id\n   
 ])
 def test_the_scan_sends_risky_constructs_to_the_event_reader(extra):
     text = BASE + extra
-    assert load._fast_unsure(text)
-    assert load._fast_load([("x.model.yaml", text)]) is None
+    assert load.fast._fast_unsure(text)
+    assert load.fast._fast_load([("x.model.yaml", text)]) is None
 
 
 def test_the_scan_lets_a_plain_model_through():
     text = BASE + "measures:\n  m: {expr: count(*) * 2, table: trips, where: fare != 0}\n  n:\n    expr: m / nullif(m, 0)\n"
-    assert not load._fast_unsure(text)
-    assert load._fast_load([("x.model.yaml", text)]) is not None
+    assert not load.fast._fast_unsure(text)
+    assert load.fast._fast_load([("x.model.yaml", text)]) is not None
 
 
 # Plain scalars on which YAML readers are known to differ (YAML 1.2 core schema vs 1.1 habits), common practice.
@@ -214,7 +214,7 @@ def test_the_fast_builders_shortcuts_agree_with_the_event_reader(which, chosen):
     files = [("x.model.yaml", text)]
     exact = _exact(files)
     if all(pick < 100 for pick in chosen):
-        assert load._fast_load(files) is not None, text  # accepted values only: the shortcut takes it
+        assert load.fast._fast_load(files) is not None, text  # accepted values only: the shortcut takes it
     _same_as_exact(files, exact)
 
 
@@ -240,7 +240,7 @@ def test_each_field_value_reads_the_same_with_both_readers(which, key, value):
             f"links:\n  trips_bike: {link}\nmeasures:\n  rides: {measure}\n")
     files = [("x.model.yaml", text)]
     exact = _exact(files)
-    quick = load._fast_load(files)
+    quick = load.fast._fast_load(files)
     accepted = values[key][: values[key].index("|")]
     if value in accepted:
         assert quick is not None, text

@@ -198,7 +198,7 @@ def test_a_tag_of_a_new_breaking_commit_is_still_blocked(pushed):
 def test_a_committed_model_over_the_limit_is_refused_before_it_is_read(repo, monkeypatch, size, refused):
     from modeldiff import load
 
-    monkeypatch.setattr(load, "MAX_FILE_BYTES", 64)
+    monkeypatch.setattr(load.text, "MAX_FILE_BYTES", 64)
     (repo / "rides.model.yaml").write_text("model: rides\nformat: 1\ntables: {}\n" + "#" * (size - 34))
     commit(repo, "one")
     assert (repo / "rides.model.yaml").stat().st_size == size

@@ -456,15 +456,15 @@ def test_decoding_remembers_the_last_contents_by_identity_only():
     from modeldiff import load
 
     first, second = b"model: a\n", b"model: b\n"
-    assert load._decode("a.model.yaml", first) == "model: a\n"
-    assert load._decode("b.model.yaml", second) == "model: b\n"
-    assert load._decode("a.model.yaml", first) is load._decode("a.model.yaml", first)  # remembered
+    assert load.text._decode("a.model.yaml", first) == "model: a\n"
+    assert load.text._decode("b.model.yaml", second) == "model: b\n"
+    assert load.text._decode("a.model.yaml", first) is load.text._decode("a.model.yaml", first)  # remembered
     # an equal but distinct object is decoded for itself, and a mutable buffer is never remembered
-    assert load._decode("a.model.yaml", bytes(bytearray(first))) == "model: a\n"
+    assert load.text._decode("a.model.yaml", bytes(bytearray(first))) == "model: a\n"
     buffer = bytearray(b"model: c\n")
-    assert load._decode("c.model.yaml", buffer) == "model: c\n"
+    assert load.text._decode("c.model.yaml", buffer) == "model: c\n"
     buffer[7:8] = b"d"
-    assert load._decode("c.model.yaml", buffer) == "model: d\n"
+    assert load.text._decode("c.model.yaml", buffer) == "model: d\n"
 
 
 def test_a_remembered_content_is_still_checked_under_another_name():
@@ -475,4 +475,4 @@ def test_a_remembered_content_is_still_checked_under_another_name():
     bad = b"model: a\0\n"
     for name in ("one.model.yaml", "two.model.yaml"):
         with pytest.raises(ModeldiffError, match=name):
-            load._decode(name, bad)
+            load.text._decode(name, bad)

@@ -1,4 +1,4 @@
-"""load._node_mark: the scan for anchors, aliases and tags where a node starts, held to the plain loop it replaced."""
+"""load.fast._node_mark: the scan for anchors, aliases and tags where a node starts, held to the plain loop it replaced."""
 
 import re
 
@@ -14,7 +14,7 @@ def _reference(text: str) -> bool:
         before = match.start() - 1
         while before >= 0 and text[before] == " ":
             before -= 1
-        if before < 0 or text[before] in load._NODE_INDICATORS or text[before] == "\n":
+        if before < 0 or text[before] in load.fast._NODE_INDICATORS or text[before] == "\n":
             return True
     return False
 
@@ -22,14 +22,14 @@ def _reference(text: str) -> bool:
 @settings(max_examples=400, deadline=None)
 @given(st.text(alphabet=" \n-?:,[{&*!a(x", max_size=24))
 def test_agrees_with_the_plain_loop(text):
-    assert load._node_mark(text) == _reference(text)
+    assert load.fast._node_mark(text) == _reference(text)
 
 
 def test_detects_an_alias_after_a_colon_and_spaces():
-    assert load._node_mark("a:   *ref\n")
-    assert load._node_mark("&anchor x")
-    assert load._node_mark("x:\n  - !tag 1")
+    assert load.fast._node_mark("a:   *ref\n")
+    assert load.fast._node_mark("&anchor x")
+    assert load.fast._node_mark("x:\n  - !tag 1")
 
 
 def test_does_not_report_marks_inside_words():
-    assert not load._node_mark("m1:\n  expr: count(*)\n  where: a != b\n  x: a&b\n")
+    assert not load.fast._node_mark("m1:\n  expr: count(*)\n  where: a != b\n  x: a&b\n")

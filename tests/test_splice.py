@@ -66,7 +66,7 @@ def test_every_fixture_pair_spliced_equals_a_full_read():
         base_files, files = load.path_files(old), load.path_files(new)
         base = load.load_files(base_files)
         _assert_same(_spliced(files, base_files, base), _full(files))
-        taken += load._spliced(files, base_files, base) is not None
+        taken += load.splice._spliced(files, base_files, base) is not None
     assert len(PAIRS) >= 50
     assert taken >= len(PAIRS) * 3 // 4  # the splice is the common case, not a rare one
 
@@ -76,7 +76,7 @@ def test_splice_reuses_the_base_records_of_unchanged_items():
     new_text = synthetic_model_text(flip="l0", **SMALL)
     base_files, files = _files("a.model.yaml", old_text), _files("b.model.yaml", new_text)
     base = load.load_files(base_files)
-    got = load._spliced(files, base_files, base)
+    got = load.splice._spliced(files, base_files, base)
     assert got is not None
     assert got.model.links["l1"] is base.model.links["l1"]
     assert got.model.links["l0"] is not base.model.links["l0"]
@@ -99,7 +99,7 @@ def test_splice_is_refused_for_unusual_layouts():
     base = load.load_files(base_files)
     for old, new in edits:
         files = _files("b.model.yaml", old_text.replace(old, new, 1))
-        assert load._spliced(files, base_files, base) is None, new
+        assert load.splice._spliced(files, base_files, base) is None, new
         _assert_same(_spliced(files, base_files, base), _full(files))
 
 
@@ -109,7 +109,7 @@ def test_splice_is_taken_for_a_plain_edit_with_comments():
         "  l3:\n", "  l3:\n    standby: true  # kept for later\n", 1)
     base_files, files = _files("a.model.yaml", old_text), _files("b.model.yaml", new_text)
     base = load.load_files(base_files)
-    got = load._spliced(files, base_files, base)
+    got = load.splice._spliced(files, base_files, base)
     assert got is not None
     assert got.model.links["l3"].standby
     _assert_same(got, _full(files))
@@ -156,25 +156,25 @@ def test_the_plain_measure_maker_makes_the_records_measure_makes():
 
     fields = {"folder": "Rides", "expr": "count(*)", "where": "status = 'done'", "table": "trips",
               "description": "Trips", "unit": "trips"}  # in another order than the class's
-    made = load._plain_measure("trip_count", fields)
+    made = load.fast._plain_measure("trip_count", fields)
     want = Measure("trip_count", "count(*)", "trips", "status = 'done'", NO_OVERRIDES, "Trips", "trips", None, "Rides")
     assert made == want and repr(made) == repr(want)
-    assert list(vars(made)) == list(load._MEASURE_FIELDS)
+    assert list(vars(made)) == list(load.fast._MEASURE_FIELDS)
     assert fields == {"folder": "Rides", "expr": "count(*)", "where": "status = 'done'", "table": "trips",
                       "description": "Trips", "unit": "trips"}  # the caller's dict is left alone
-    bare = load._plain_measure("n", {"expr": "sum(x)"})
+    bare = load.fast._plain_measure("n", {"expr": "sum(x)"})
     assert bare == Measure("n", "sum(x)") and bare.overrides is NO_OVERRIDES
     with pytest.raises(dataclasses.FrozenInstanceError):
         made.expr = "sum(x)"  # still frozen
     assert dataclasses.asdict(made) == dataclasses.asdict(want)
     assert pickle.loads(pickle.dumps(made)) == want
     assert made != dataclasses.replace(want, where=None)  # a different record is told apart
-    assert tuple(f.name for f in dataclasses.fields(Measure)) == load._MEASURE_FIELDS  # else the maker calls Measure
+    assert tuple(f.name for f in dataclasses.fields(Measure)) == load.fast._MEASURE_FIELDS  # else the maker calls Measure
 
 
 def test_plain_names_only_accepts_plain_names_and_refuses_others():
-    assert load._plain_names_only({"trips": 1, "bike_key2": 2, "B": 3})
-    assert load._plain_names_only({})
+    assert load.fast._plain_names_only({"trips": 1, "bike_key2": 2, "B": 3})
+    assert load.fast._plain_names_only({})
     for bad in ("2trips", "trips\nbikes", "trips ", "", "trips-x", "é"):
-        assert not load._plain_names_only({"stations": 1, bad: 2}), repr(bad)
-    assert not load._plain_names_only({1: "x"})  # not text
+        assert not load.fast._plain_names_only({"stations": 1, bad: 2}), repr(bad)
+    assert not load.fast._plain_names_only({1: "x"})  # not text
