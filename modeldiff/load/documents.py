@@ -38,25 +38,30 @@ def _read_document(name: str, content: bytes | str) -> _Document:
     return _Document(name, root)
 
 
-def _model_identity(docs: list[_Document]) -> tuple[str, int]:
-    """`model` and `format`: required (in at least one file of a folder) and the same everywhere."""
-    name = _agreed(docs, "model", "add `model: NAME` at the top of the file")
-    fmt = _agreed(docs, "format", "add `format: 1` at the top of the file")
+def _model_identity(docs: list[_Document], value_at=None) -> tuple[str, int]:
+    """`model` and `format`: required (in at least one file of a folder) and the same everywhere.
+
+    `value_at(mapping, key)`: where a value is written, for the message of a problem (default: the event
+    reader's positions; the fast reader, which keeps none, passes one that gives up instead).
+    """
+    value_at = value_at or _value_at
+    name = _agreed(docs, "model", "add `model: NAME` at the top of the file", value_at)
+    fmt = _agreed(docs, "format", "add `format: 1` at the top of the file", value_at)
     name_value, name_doc = name
     fmt_value, fmt_doc = fmt
     if not isinstance(name_value, str) or not name_value.strip():
-        line, col = _value_at(name_doc.top, "model")
+        line, col = value_at(name_doc.top, "model")
         found = _describe(name_value)
         raise _fail(name_doc.file, line, col, f"`model` must be the model's name, found {found}; write `model: NAME`")
     if type(fmt_value) is not int or fmt_value != 1:
-        line, col = _value_at(fmt_doc.top, "format")
+        line, col = value_at(fmt_doc.top, "format")
         found = _describe(fmt_value)
         message = f"`format` is {found}, but this modeldiff reads format 1 only; write `format: 1`"
         raise _fail(fmt_doc.file, line, col, message)
     return name_value, fmt_value
 
 
-def _agreed(docs: list[_Document], key: str, advice: str) -> tuple[Any, _Document]:
+def _agreed(docs: list[_Document], key: str, advice: str, value_at) -> tuple[Any, _Document]:
     """The value of a top-level key and the first file that sets it; all files must agree."""
     found = [(doc, doc.top[key]) for doc in docs if key in doc.top]
     if not found:
@@ -65,8 +70,8 @@ def _agreed(docs: list[_Document], key: str, advice: str) -> tuple[Any, _Documen
     first_doc, first = found[0]
     for doc, value in found[1:]:
         if type(value) is not type(first) or value != first:
-            line, col = _value_at(doc.top, key)
-            first_line = _value_at(first_doc.top, key)[0]
+            line, col = value_at(doc.top, key)
+            first_line = value_at(first_doc.top, key)[0]
             raise _fail(
                 doc.file, line, col,
                 f"`{key}` is {_describe(value)} here but {_describe(first)} in {first_doc.file}:{first_line}; "

@@ -107,6 +107,11 @@ class _Fallback(Exception):
     """The fast reader met something that only the event reader reports exactly."""
 
 
+def _no_position(mapping, key):
+    """The fast reader keeps no positions: a problem that needs one is the event reader's to word."""
+    raise _Fallback
+
+
 def _fast_reader():
     """yaml_rs's `loads`, or None when it is not installed or switched off."""
     if os.environ.get(FAST_READER_ENV, "1") == "0":
@@ -362,7 +367,7 @@ def _fast_load(files: Sequence[tuple[str, bytes | str]], shared: Mapping[str, Me
             return None
         docs.append(_Document(name, top))
     try:
-        name, fmt = _model_identity(docs)
+        name, fmt = _model_identity(docs, _no_position)
         return _FastBuilder(files, shared).build(docs, name, fmt)
-    except (_Fallback, ModeldiffError, AttributeError):  # AttributeError: an error path asked for a position
+    except (_Fallback, ModeldiffError):
         return None

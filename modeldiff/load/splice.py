@@ -176,5 +176,5 @@ def _changed_records(loads, files, changed: dict[str, list[tuple[str, str]]], sh
     doc = [_Document(files[0][0], top)]
     try:
         return {section: builder._section(doc, section, builders[section]) for section in changed}
-    except (_Fallback, ModeldiffError, AttributeError):
+    except (_Fallback, ModeldiffError):
         return None
