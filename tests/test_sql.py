@@ -490,100 +490,145 @@ def test_fast_facts_equal_sqlglot_facts(text):
 
 
 # ---------------------------------------------------------------- base measures
+# The rules are check.py's (`modeldiff check`): each case is a one-table model run through check_model, and the
+# problems listed are the messages of the findings about the measure or role under test.
 
 TRIPS = ["trip_key", "fare", "tip", "status", "bike_key", "started_at"]
 
 
+def _checked(subject: str, tables: dict[str, list[str]], measures: dict | None = None, roles: dict | None = None,
+             reports: dict | None = None) -> list[str]:
+    """The messages of `modeldiff check`'s errors about `subject` in a model of `tables` (name -> columns).
+
+    Errors only: a role on a lone table also draws the warning that it restricts no fact table.
+    """
+    import json
+
+    from modeldiff.check import check_model
+    from modeldiff.load import load_files
+
+    model = {"model": "sql_rules", "format": 1,
+             "tables": {name: {"kind": "dimension", "key": columns[0], "columns": {c: "text" for c in columns}}
+                        for name, columns in tables.items()},
+             "measures": measures or {}, "roles": roles or {}, "reports": reports or {}}
+    result = load_files([("sql_rules.model.yaml", json.dumps(model))])  # JSON is YAML
+    return sorted(f.message for f in check_model(result.model, result.findings)
+                  if f.subject == subject and f.severity == "error")
+
+
+def base_measure_problems(name: str, expr: str, where: str | None, table: str, columns: list[str] | None) -> list[str]:
+    """A base measure's problems; `columns` None: its table is not in the model."""
+    measure = {"table": table, "expr": expr} | ({"where": where} if where is not None else {})
+    tables = {table: columns} if columns is not None else {"other": ["other_key"]}
+    return _checked(f"measures.{name}", tables, {name: measure})
+
+
+def derived_measure_problems(name: str, expr: str, measure_names) -> list[str]:
+    measures = {other: {"table": "trips", "expr": "count(*)"} for other in measure_names if other != name}
+    return _checked(f"measures.{name}", {"trips": TRIPS}, measures | {name: {"expr": expr}})
+
+
+def predicate_problems(text: str, table: str, columns: list[str]) -> list[str]:
+    """The problems of a role's row filter on `table` (where `:user`, the person viewing, is allowed)."""
+    return _checked("roles.r", {table: columns}, roles={"r": {"filters": {table: text}}})
+
+
+def report_where_problems(text: str, table: str, columns: list[str]) -> list[str]:
+    """The problems of a report's `where` on `table` (where `:user` is refused)."""
+    return _checked("reports.p", {table: columns}, {"m": {"table": table, "expr": "count(*)"}},
+                    reports={"p": {"measures": ["m"], "where": {table: text}}})
+
+
 def test_base_measure_without_aggregate_is_reported():
-    problems = sql.check_base_measure("fare_revenue", "fare * 2", None, "trips", TRIPS)
+    problems = base_measure_problems("fare_revenue", "fare * 2", None, "trips", TRIPS)
     assert len(problems) == 1 and "no aggregate function" in problems[0] and "fare_revenue" in problems[0]
 
 
 def test_base_measure_with_aggregate_is_not_reported():
-    assert sql.check_base_measure("fare_revenue", "sum(fare) * 2", None, "trips", TRIPS) == []
-    assert sql.check_base_measure("trip_count", "count(*)", None, "trips", TRIPS) == []
-    assert sql.check_base_measure("long_fares", "sum(case when fare > 10 then fare end)", None, "trips", TRIPS) == []
+    assert base_measure_problems("fare_revenue", "sum(fare) * 2", None, "trips", TRIPS) == []
+    assert base_measure_problems("trip_count", "count(*)", None, "trips", TRIPS) == []
+    assert base_measure_problems("long_fares", "sum(case when fare > 10 then fare end)", None, "trips", TRIPS) == []
 
 
 def test_base_measure_reading_another_table_is_reported():
-    problems = sql.check_base_measure("fare_revenue", "sum(bikes.fare)", None, "trips", TRIPS)
-    assert len(problems) == 1 and "`bikes.fare` of another table" in problems[0]
+    problems = base_measure_problems("fare_revenue", "sum(bikes.fare)", None, "trips", TRIPS)
+    assert len(problems) == 1 and "reads bikes.fare, but may read only columns of trips" in problems[0]
 
 
 def test_base_measure_qualified_with_its_own_table_is_not_reported():
-    assert sql.check_base_measure("fare_revenue", "sum(trips.fare)", "TRIPS.status = 'completed'", "trips", TRIPS) == []
+    assert base_measure_problems("fare_revenue", "sum(trips.fare)", "TRIPS.status = 'completed'", "trips", TRIPS) == []
 
 
 def test_base_measure_reading_an_unknown_column_is_reported():
-    problems = sql.check_base_measure("fare_revenue", "sum(fares)", None, "trips", TRIPS)
-    assert len(problems) == 1 and "`fares`, which is not a column of `trips`" in problems[0]
+    problems = base_measure_problems("fare_revenue", "sum(fares)", None, "trips", TRIPS)
+    assert len(problems) == 1 and "reads column 'fares', which trips does not have" in problems[0]
 
 
 def test_base_measure_column_names_ignore_case():
-    assert sql.check_base_measure("fare_revenue", 'sum("FARE")', None, "trips", TRIPS) == []
+    assert base_measure_problems("fare_revenue", 'sum("FARE")', None, "trips", TRIPS) == []
 
 
-def test_base_measure_unknown_table_skips_column_names_but_not_qualifiers():
-    assert sql.check_base_measure("m", "sum(anything)", None, "trips", None) == []
-    assert len(sql.check_base_measure("m", "sum(bikes.anything)", None, "trips", None)) == 1
+def test_base_measure_of_an_unknown_table_is_one_problem():
+    problems = base_measure_problems("m", "sum(bikes.anything)", None, "trips", None)
+    assert len(problems) == 1 and "its table 'trips' does not exist" in problems[0]
 
 
 def test_base_measure_column_outside_aggregate_is_reported():
-    problems = sql.check_base_measure("m", "sum(fare) + tip", None, "trips", TRIPS)
-    assert len(problems) == 1 and "`tip` outside any aggregate" in problems[0]
+    problems = base_measure_problems("m", "sum(fare) + tip", None, "trips", TRIPS)
+    assert len(problems) == 1 and "reads tip outside any aggregate" in problems[0]
 
 
 def test_base_measure_aggregating_where_is_reported():
-    problems = sql.check_base_measure("m", "sum(fare)", "count(*) > 1", "trips", TRIPS)
-    assert len(problems) == 1 and "`where` uses the aggregate count" in problems[0]
+    problems = base_measure_problems("m", "sum(fare)", "count(*) > 1", "trips", TRIPS)
+    assert len(problems) == 1 and "`where` is a row condition and may not aggregate" in problems[0]
 
 
 def test_base_measure_row_where_is_not_reported():
-    assert sql.check_base_measure("m", "sum(fare)", "status = 'completed' and tip > 0", "trips", TRIPS) == []
+    assert base_measure_problems("m", "sum(fare)", "status = 'completed' and tip > 0", "trips", TRIPS) == []
 
 
 def test_base_measure_where_reading_another_table_is_reported():
-    problems = sql.check_base_measure("m", "sum(fare)", "bikes.model = 'x'", "trips", TRIPS)
-    assert len(problems) == 1 and "`where` reads `bikes.model` of another table" in problems[0]
+    problems = base_measure_problems("m", "sum(fare)", "bikes.model = 'x'", "trips", TRIPS)
+    assert len(problems) == 1 and "`where` reads bikes.model, but may read only columns of trips" in problems[0]
 
 
 def test_base_measure_depending_on_the_viewer_is_reported():
-    problems = sql.check_base_measure("m", "sum(fare)", "status = :user", "trips", TRIPS)
-    assert len(problems) == 1 and "only role filters may depend on the person viewing" in problems[0]
+    problems = base_measure_problems("m", "sum(fare)", "status = :user", "trips", TRIPS)
+    assert len(problems) == 1 and "only a role's filters may depend on the person viewing" in problems[0]
 
 
-def test_base_measure_unreadable_sql_is_one_problem():
-    problems = sql.check_base_measure("m", "sum(fare", "status = 'x", "trips", TRIPS)
+def test_base_measure_unreadable_sql_is_one_problem_a_field():
+    problems = base_measure_problems("m", "sum(fare", "status = 'x", "trips", TRIPS)
     assert len(problems) == 2
-    assert all(p.startswith("measure `m`: ") and "the SQL `" in p for p in problems)
+    assert all(p.startswith("Measure m: `") and "is not valid SQL: the SQL `" in p for p in problems)
 
 
 # ---------------------------------------------------------------- derived measures
 
 
 def test_derived_measure_naming_a_non_measure_is_reported():
-    problems = sql.check_derived_measure("revenue_per_trip", "fare_revenue / nullif(trips, 0)", MEASURES)
-    assert len(problems) == 1 and "`trips` is not a measure" in problems[0]
+    problems = derived_measure_problems("revenue_per_trip", "fare_revenue / nullif(trips, 0)", MEASURES)
+    assert len(problems) == 1 and "names 'trips', which is not a measure" in problems[0]
 
 
 def test_derived_measure_naming_measures_is_not_reported():
     text = "round(fare_revenue / nullif(trip_count, 0), 2) -- not_a_measure\n + length('not_a_measure')"
-    assert sql.check_derived_measure("revenue_per_trip", text, MEASURES) == []
-    assert sql.check_derived_measure("revenue_per_trip", "FARE_REVENUE / Trip_Count", MEASURES) == []
+    assert derived_measure_problems("revenue_per_trip", text, MEASURES) == []
+    assert derived_measure_problems("revenue_per_trip", "FARE_REVENUE / Trip_Count", MEASURES) == []
 
 
 def test_derived_measure_that_aggregates_is_reported():
-    problems = sql.check_derived_measure("total", "sum(fare_revenue)", MEASURES)
+    problems = derived_measure_problems("total", "sum(fare_revenue)", MEASURES)
     assert len(problems) == 1 and "uses the aggregate sum" in problems[0]
 
 
 def test_derived_measure_with_qualified_name_is_reported():
-    problems = sql.check_derived_measure("total", "trips.fare_revenue + 1", MEASURES)
-    assert len(problems) == 1 and "is qualified" in problems[0]
+    problems = derived_measure_problems("total", "trips.fare_revenue + 1", MEASURES)
+    assert len(problems) == 1 and "names 'trips.fare_revenue', which is not a measure" in problems[0]
 
 
 def test_derived_measure_unreadable_sql_is_one_problem():
-    problems = sql.check_derived_measure("total", "fare_revenue +", MEASURES)
+    problems = derived_measure_problems("total", "fare_revenue +", MEASURES)
     assert len(problems) == 1 and "cannot be read" in problems[0]
 
 
@@ -594,49 +639,51 @@ DEPOTS = ["depot_key", "region", "name"]
 
 
 def test_predicate_on_its_own_table_is_not_reported():
-    assert sql.check_predicate("staff_email = :user", "depot_access", DEPOT_ACCESS) == []
-    assert sql.check_predicate("region = 'East' or depots.name like 'North%'", "depots", DEPOTS) == []
+    assert predicate_problems("staff_email = :user", "depot_access", DEPOT_ACCESS) == []
+    assert predicate_problems("region = 'East' or depots.name like 'North%'", "depots", DEPOTS) == []
 
 
 def test_predicate_reading_another_table_is_reported():
-    problems = sql.check_predicate("stations.region = 'East'", "depots", DEPOTS)
-    assert len(problems) == 1 and "`stations.region` of another table" in problems[0]
+    problems = predicate_problems("stations.region = 'East'", "depots", DEPOTS)
+    assert len(problems) == 1 and "reads stations.region, but may read only columns of depots" in problems[0]
 
 
 def test_predicate_reading_an_unknown_column_is_reported():
-    problems = sql.check_predicate("district = 'East'", "depots", DEPOTS)
-    assert len(problems) == 1 and "`district`, which is not a column of `depots`" in problems[0]
+    problems = predicate_problems("district = 'East'", "depots", DEPOTS)
+    assert len(problems) == 1 and "reads column 'district', which depots does not have" in problems[0]
 
 
 def test_predicate_that_aggregates_is_reported():
-    problems = sql.check_predicate("count(depot_key) > 1", "depots", DEPOTS)
+    problems = predicate_problems("count(depot_key) > 1", "depots", DEPOTS)
     assert len(problems) == 1 and "uses the aggregate count" in problems[0]
 
 
 def test_predicate_with_subquery_is_reported():
-    problems = sql.check_predicate("depot_key in (select depot_key from depot_access)", "depots", DEPOTS)
+    problems = predicate_problems("depot_key in (select depot_key from depot_access)", "depots", DEPOTS)
     assert any("subquery" in p for p in problems)
-    assert not any("subquery" in p for p in sql.check_predicate("depot_key in (1, 2)", "depots", DEPOTS))
+    assert not any("subquery" in p for p in predicate_problems("depot_key in (1, 2)", "depots", DEPOTS))
 
 
-def test_predicate_user_parameter_can_be_refused():
-    problems = sql.check_predicate("staff_email = :user", "depot_access", DEPOT_ACCESS, allow_user=False)
-    assert len(problems) == 1 and "`:user`" in problems[0]
+def test_predicate_user_parameter_is_refused_outside_role_filters():
+    problems = report_where_problems("staff_email = :user", "depot_access", DEPOT_ACCESS)
+    assert len(problems) == 1 and "parameter :user" in problems[0]
+    assert report_where_problems("staff_email = 'x'", "depot_access", DEPOT_ACCESS) == []
 
 
 def test_predicate_with_unknown_parameter_is_reported():
-    problems = sql.check_predicate("region = :region", "depots", DEPOTS)
-    assert len(problems) == 1 and "`:region`" in problems[0]
+    problems = predicate_problems("region = :region", "depots", DEPOTS)
+    assert len(problems) == 1 and "parameter :region" in problems[0]
 
 
 def test_predicate_that_is_a_value_is_reported():
-    problems = sql.check_predicate("depot_key + 1", "depots", DEPOTS)
+    problems = predicate_problems("depot_key + 1", "depots", DEPOTS)
     assert len(problems) == 1 and "not a condition" in problems[0]
 
 
 def test_unreadable_predicate_is_one_problem():
-    problems = sql.check_predicate("region = 'East", "depots", DEPOTS)
-    assert problems == ["the filter on `depots`: the SQL `region = 'East` cannot be read: a string is not closed"]
+    problems = predicate_problems("region = 'East", "depots", DEPOTS)
+    assert problems == ["roles.r: the filter on depots is not valid SQL: "
+                        "the SQL `region = 'East` cannot be read: a string is not closed"]
 
 
 # ---------------------------------------------------------------- errors
