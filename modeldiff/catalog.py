@@ -155,7 +155,7 @@ class DdlCatalog:
         import sqlglot
         from sqlglot import exp
 
-        from modeldiff.sql import _quiet_sqlglot
+        from modeldiff.sql.reading import _quiet_sqlglot
 
         try:
             with _quiet_sqlglot():

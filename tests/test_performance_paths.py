@@ -52,9 +52,9 @@ def test_word_snapshot_is_sqlglots_own_lists_for_its_version():
     # when the installed sqlglot is the snapshot's version the snapshot must match it exactly;
     # for any other version sql.py must not use the snapshot at all
     if sql.installed_sqlglot_version() == _sqlwords.SQLGLOT_VERSION:
-        assert sql._word_snapshot() == (sql._live_reserved_words(), sql._live_known_functions())
+        assert sql.words._word_snapshot() == (sql.words._live_reserved_words(), sql.words._live_known_functions())
     else:
-        assert sql._word_snapshot() is None
+        assert sql.words._word_snapshot() is None
 
 
 def test_installed_version_is_read_without_importing_sqlglot():

@@ -378,8 +378,8 @@ def test_derived_refs_fast_equals_measure_refs_on_tricky_cases(text):
 def test_derived_refs_fast_scans_common_shapes_without_parsing():
     # Guards the fast path itself: the equality tests above would also pass if it always fell back.
     for text in ["fare_revenue / nullif(trip_count, 0)", "round(fare_revenue, 2) * 100", "a + b -- c\n"]:
-        assert sql._fast_names(text) is not None, text
-    assert sql._fast_names("fare_revenue::double") is None
+        assert sql.scan._fast_names(text) is not None, text
+    assert sql.scan._fast_names("fare_revenue::double") is None
 
 
 _WORDS = ["fare_revenue", "trip_count", "Fare_Revenue", "round", "end", "user", "day", "In", "x", "date", "null",
@@ -439,10 +439,10 @@ def test_common_shapes_are_read_without_sqlglot():
     # Guards the fast reader itself: the equality tests below would also pass if it never answered.
     for text in ["sum(amount)", "count(*)", "count(distinct rider_key)", "region = 'East'",
                  "staff_email = :user", "m1 / nullif(m2, 0)", "status = 'completed' and tip > 0"]:  # fmt: skip
-        assert sql._fast_facts(text) is not None, text
-    assert sql._fast_facts("sum(fare) over ()") is None
-    assert sql._fast_facts("sum(") is None  # unreadable text is left to sqlglot, which explains it
-    assert sql._fast_facts("1e3+1") is None  # sqlglot 30 reads this as one number; leave it to sqlglot
+        assert sql.shapes._fast_facts(text) is not None, text
+    assert sql.shapes._fast_facts("sum(fare) over ()") is None
+    assert sql.shapes._fast_facts("sum(") is None  # unreadable text is left to sqlglot, which explains it
+    assert sql.shapes._fast_facts("1e3+1") is None  # sqlglot 30 reads this as one number; leave it to sqlglot
 
 
 _FACT_WORDS = ["fare", "Fare", "tip", "status", "end", "user", "date", "key", "x", "sum", "mean", "region", "round"]
@@ -479,9 +479,9 @@ def _fact_compose(children):
 @settings(max_examples=800, deadline=None, suppress_health_check=list(HealthCheck))
 @given(st.recursive(_fact_atoms(), _fact_compose, max_leaves=8))
 def test_fast_facts_equal_sqlglot_facts(text):
-    quick = sql._fast_facts(text)
+    quick = sql.shapes._fast_facts(text)
     try:
-        expected = sql._tree_facts(sql.parse(text))
+        expected = sql.tree._tree_facts(sql.parse(text))
     except SqlError:
         assert quick is None, "the fast reader accepted text that sqlglot refuses"
         return

@@ -1,6 +1,6 @@
-"""sql._fast_facts reads texts of one shape once (`a / nullif(b, 0)`, `c / nullif(d, 0)`) and puts the names back.
+"""sql.shapes._fast_facts reads texts of one shape once (`a / nullif(b, 0)`, `c / nullif(d, 0)`) and puts the names back.
 
-Held to reading the text's own tokens (sql._read_tokens), which the tests in
+Held to reading the text's own tokens (sql.shapes._read_tokens), which the tests in
 test_sql.py hold to sqlglot.
 """
 
@@ -16,10 +16,10 @@ _WORDS = ["fare", "Fare", "FARE", "tip", "end", "user", "date", "key", "x", "sum
 
 
 def _direct(text):
-    scan = sql._scan(text)
+    scan = sql.scan._scan(text)
     if scan.unsure or not scan.tokens:
         return None
-    return sql._read_tokens(scan.tokens)
+    return sql.shapes._read_tokens(scan.tokens)
 
 
 @st.composite
@@ -42,27 +42,27 @@ def _compose(children):
 @settings(max_examples=300, deadline=None, suppress_health_check=list(HealthCheck))
 @given(st.recursive(_atoms(), _compose, max_leaves=6))
 def test_facts_by_shape_equal_facts_of_the_text_itself(text):
-    assert sql._fast_facts(text) == _direct(text)
+    assert sql.shapes._fast_facts(text) == _direct(text)
 
 
 def test_texts_of_one_shape_keep_their_own_names():
-    first, second = sql._fast_facts("m1 / nullif(m2, 0)"), sql._fast_facts("m7 / nullif(m7, 0)")
+    first, second = sql.shapes._fast_facts("m1 / nullif(m2, 0)"), sql.shapes._fast_facts("m7 / nullif(m7, 0)")
     assert first.columns == {(None, "m1"), (None, "m2")}
     assert second.columns == {(None, "m7")}  # one name twice: one stand-in
-    assert sql._fast_facts("sum(Fare) + fare").columns == {(None, "Fare"), (None, "fare")}  # names as written
+    assert sql.shapes._fast_facts("sum(Fare) + fare").columns == {(None, "Fare"), (None, "fare")}  # names as written
 
 
 def test_a_shape_is_read_once():
-    sql._shape_facts.cache_clear()
+    sql.shapes._shape_facts.cache_clear()
     for i in range(20):
-        sql._fast_facts(f"q{i} / nullif(r{i}, 0)")
-    info = sql._shape_facts.cache_info()
+        sql.shapes._fast_facts(f"q{i} / nullif(r{i}, 0)")
+    info = sql.shapes._shape_facts.cache_info()
     assert info.misses == 1 and info.hits == 19
 
 
 def test_keywords_functions_and_qualified_names_are_not_stand_ins():
-    shape, names = sql._shape(sql._scan("count(distinct x) + nullif(y, 0) + null").tokens)
+    shape, names = sql.shapes._shape(sql.scan._scan("count(distinct x) + nullif(y, 0) + null").tokens)
     assert names == ["x", "y"]
     assert ("word", "count") in shape and ("word", "distinct") in shape and ("word", "null") in shape
-    assert sql._shape(sql._scan("t.x + 1").tokens)[1] is None  # a qualified name: read as written
-    assert sql._shape(sql._scan('"x" + 1').tokens)[1] is None  # a quoted name: read as written
+    assert sql.shapes._shape(sql.scan._scan("t.x + 1").tokens)[1] is None  # a qualified name: read as written
+    assert sql.shapes._shape(sql.scan._scan('"x" + 1').tokens)[1] is None  # a quoted name: read as written

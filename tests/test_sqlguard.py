@@ -130,7 +130,7 @@ def test_the_engine_text_is_a_fixed_point_of_parsing_and_rendering():
 def _sqlglot_facts(text: str):
     """The sqlglot path's answer, never the fast reader's: Facts, or None when it cannot read the text."""
     try:
-        return sql._tree_facts(sql.parse(text))
+        return sql.tree._tree_facts(sql.parse(text))
     except SqlError:
         return None
 
@@ -149,13 +149,13 @@ def test_the_corpus_holds_every_line_break_and_comment_form():
         assert "--c" + brk in joined, repr(brk)
     for piece in ("/* a /* nested */ still */", "$$", "$t$", "e'", "''", "#1", "COLUMNS(*)", "read_text", "COPY"):
         assert piece in joined, piece
-    answered = sum(1 for text in CORPUS if sql._fast_facts(text) is not None)
+    answered = sum(1 for text in CORPUS if sql.shapes._fast_facts(text) is not None)
     assert answered > 400, "the fast reader answered too few texts for the comparison to mean anything"
 
 
 def test_the_fast_reader_never_disagrees_with_sqlglot_on_the_corpus():
     for text in CORPUS:
-        quick = sql._fast_facts(text)
+        quick = sql.shapes._fast_facts(text)
         if quick is None:
             continue
         expected = _sqlglot_facts(text)
