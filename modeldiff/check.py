@@ -12,6 +12,7 @@ from functools import cached_property
 from typing import TYPE_CHECKING, Callable, Iterable, Iterator
 
 from modeldiff import graph, sql  # both light: sqlglot is imported on first use
+from modeldiff.changes import subject_item, subject_member
 from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Table
 from modeldiff.util import paused_gc
 from modeldiff.words import agree, and_list, named
@@ -650,10 +651,10 @@ def _readers(ctx: _Context, fg, target: str, homes: frozenset[str], readers: fro
 
 
 def _item_words(item: str) -> str:
-    parts = item.split(".")
-    if parts[0] == "variants":
-        return f"option {parts[3]} of variant {parts[1]}"
-    return f"{parts[0][:-1]} {parts[1]}"
+    section = item.partition(".")[0]
+    if section == "variants":
+        return f"option {subject_member(item)} of variant {subject_item(item)}"
+    return f"{section[:-1]} {subject_item(item)}"
 
 
 def rule_ambiguous_paths(ctx: _Context) -> Iterator[Finding]:

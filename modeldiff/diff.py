@@ -28,7 +28,7 @@ from functools import cached_property, lru_cache
 from typing import Any, Callable, Hashable, Iterable, Iterator, Mapping, TypeVar
 
 from modeldiff import sql  # light: sqlglot is imported on first use
-from modeldiff.changes import Change
+from modeldiff.changes import STRUCTURAL_KINDS, Change
 from modeldiff.model import Column, History, Link, Measure, Model, Overrides, Report, Role, Table, Variant, VariantOption
 from modeldiff.words import and_list
 
@@ -40,23 +40,7 @@ SAME, COSMETIC, LOGIC = "same", "cosmetic", "logic"
 T = TypeVar("T")
 
 # Every kind this module emits (docs/change-kinds.md describes each, with its default severity).
-KINDS = (
-    "table.added", "table.removed", "table.renamed", "table.kind_changed", "table.key_changed",
-    "table.natural_key_changed", "table.history_changed", "table.metadata_changed",
-    "column.added", "column.removed", "column.renamed", "column.type_changed", "column.unique_changed",
-    "column.metadata_changed",
-    "link.added", "link.removed", "link.renamed", "link.flow_widened", "link.flow_narrowed",
-    "link.security_flow_changed", "link.cardinality_changed", "link.key_switched", "link.standby_set",
-    "link.standby_cleared", "link.metadata_changed",
-    "measure.added", "measure.removed", "measure.renamed", "measure.logic_changed", "measure.cosmetic_changed",
-    "measure.overrides_changed", "measure.metadata_changed",
-    "variant.added", "variant.removed", "variant.renamed", "variant.changed", "variant.cosmetic_changed",
-    "variant.metadata_changed",
-    "role.added", "role.removed", "role.renamed", "role.filter_changed", "role.cosmetic_changed",
-    "role.metadata_changed",
-    "report.added", "report.removed", "report.renamed", "report.changed", "report.cosmetic_changed",
-    "report.metadata_changed",
-)
+KINDS = STRUCTURAL_KINDS  # the kinds this module makes (changes.KINDS holds them with their default severity)
 
 # Above this many (removed x added) candidates of one type in one table, no column
 # renames are guessed there: each is reported as a removal and an addition.

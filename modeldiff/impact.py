@@ -43,7 +43,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from typing import Any, Iterable, Mapping
 
-from modeldiff.changes import EXIT_CODES, Change, id_order, worst
+from modeldiff.changes import EXIT_CODES, Change, id_order, subject_item, subject_member, worst
 from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Report, VariantOption, layers_key
 
 PATH_LIMIT = 64  # paths listed per pair when telling what was added or removed
@@ -718,9 +718,9 @@ class _Impacts:
         nearby = [c for home in sorted(homes) for c in self.table_changes.get(home, ())]
         read = self._columns_read(m) if nearby else set()
         for change in nearby:
-            parts = change.subject.split(".")
             if change.kind.startswith("column."):
-                if {parts[3].lower(), str(change.after).lower(), str(change.before).lower()} & read:
+                column = subject_member(change.subject)
+                if {column.lower(), str(change.after).lower(), str(change.before).lower()} & read:
                     reasons.append(Reason(change.id, change.message))
             else:
                 reasons.append(Reason(change.id, change.message))
@@ -890,9 +890,9 @@ class _Impacts:
                             for reached in sorted(g.reach(a.renames.table(table))):
                                 rows.setdefault(reached, {}).setdefault(change.id, table)
             for change in self.kinds("security."):
-                parts = change.subject.split(".")
-                if parts[1] == name:
-                    rows.setdefault(parts[3], {}).setdefault(change.id, change.details.get("source") or parts[3])
+                if subject_item(change.subject) == name:
+                    table = subject_member(change.subject)
+                    rows.setdefault(table, {}).setdefault(change.id, change.details.get("source") or table)
             if rows:
                 out[name] = rows
         return out
@@ -1081,10 +1081,9 @@ class _Impacts:
                 if change.severity != "safe" and change.kind != "role.added":
                     reasons.append(Reason(change.id, change.message))
             for change in self.kinds("security."):
-                parts = change.subject.split(".")
-                if parts[1] != name:
+                if subject_item(change.subject) != name:
                     continue
-                table = parts[3]
+                table = subject_member(change.subject)
                 {"security.exposed": exposed, "security.tightened": tightened, "security.rerouted": rerouted}[change.kind].append(table)
                 reasons.append(Reason(change.id, change.message, source=change.details.get("source")))
             named = {r.change for r in reasons}
