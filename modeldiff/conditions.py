@@ -34,6 +34,18 @@ def measures_named(report: Report, measures: Mapping[str, Measure]) -> tuple[str
         return ()
 
 
+def names_written(report: Report) -> frozenset[str]:
+    """The names a report's condition reads, as written, measures or not (none without a condition or when not SQL)."""
+    if report.having is None:
+        return frozenset()
+    from modeldiff import sql
+
+    try:
+        return sql.names(report.having)
+    except sql.SqlError:
+        return frozenset()
+
+
 def extra_measures(report: Report, measures: Mapping[str, Measure]) -> tuple[str, ...]:
     """The measures only the condition names (the report does not show them), sorted."""
     shown = set(report.measures)

@@ -228,3 +228,99 @@ def test_condition_gives_the_rows_of_group_by_having(seed):
                                 f"({hand_condition.format(k=k)})")
     no_match = [row[len(by):] for row in rows(edit(STAR, r), "r", data) if row[0] is NO_MATCH]
     assert no_match == hand_no_match
+
+
+# --- diff and impact ------------------------------------------------------------------------------------
+
+def _analyse(old, new):
+    from modeldiff import impact
+
+    return impact.analyse(old, new)
+
+
+def _impacted_reports(old, new):
+    return {i.name for i in _analyse(old, new).reports}
+
+
+def _kinds(old, new):
+    return [(c.kind, c.subject, c.severity) for c in _analyse(old, new).changes if c.kind.startswith("report.")]
+
+
+from tests.modelkit import bikeshare, link  # noqa: E402
+
+BIKES = bikeshare()
+REPAIRS = report("repairs_by_district", ["repair_cost"], "districts.name")
+REPAIRS_WITH_TRIPS = report("repairs_by_district", ["repair_cost"], "districts.name", having="trip_count > 0")
+
+
+def test_diff_reports_a_condition_added_removed_and_changed():
+    plain, kept = edit(BIKES, REPAIRS), edit(BIKES, REPAIRS_WITH_TRIPS)
+    assert _kinds(plain, kept) == [("report.condition_changed", "reports.repairs_by_district", "numbers")]
+    assert _kinds(kept, plain) == [("report.condition_changed", "reports.repairs_by_district", "numbers")]
+    stricter = edit(BIKES, report("repairs_by_district", ["repair_cost"], "districts.name", having="trip_count > 5"))
+    (change,) = [c for c in _analyse(kept, stricter).changes if c.kind == "report.condition_changed"]
+    assert change.before == {"having": "trip_count > 0"} and change.after == {"having": "trip_count > 5"}
+    assert "groups can appear or disappear" in change.message
+    assert "repairs_by_district" in _impacted_reports(plain, kept)
+
+
+def test_diff_reports_no_condition_change_for_the_same_condition():
+    kept = edit(BIKES, REPAIRS_WITH_TRIPS)
+    assert _kinds(kept, kept) == []
+    respelled = edit(BIKES, report("repairs_by_district", ["repair_cost"], "districts.name", having="(TRIP_COUNT>0)"))
+    assert _kinds(kept, respelled) == [("report.cosmetic_changed", "reports.repairs_by_district", "safe")]
+    assert "repairs_by_district" not in _impacted_reports(kept, respelled)
+
+
+def test_diff_follows_a_measure_rename_inside_the_condition():
+    old = edit(BIKES, REPAIRS_WITH_TRIPS)
+    renamed = edit(drop(BIKES, "measures", "trip_count"), measure("trips_made", "count(*)", "trips"),
+                   measure("revenue_per_trip", "fare_revenue / nullif(trips_made, 0)"),
+                   report("repairs_by_district", ["repair_cost"], "districts.name", having="trips_made > 0"))
+    assert not any(k == "report.condition_changed" for k, _, _ in _kinds(old, renamed))
+
+
+# A change that moves trip_count grouped by district but not repair_cost: trips no longer reach stations (the
+# live link to stations goes on standby), so a district's trips are no longer its stations' trips.
+def _trips_off_stations(m):
+    return edit(m, link("trips_start_station", "trips.start_station_key", "stations.station_key", standby=True))
+
+
+def test_a_measure_named_only_in_the_condition_impacts_the_report_by_reach():
+    old = edit(BIKES, REPAIRS_WITH_TRIPS)
+    assert "repairs_by_district" in _impacted_reports(old, _trips_off_stations(old))
+
+
+def test_the_same_change_leaves_the_report_without_condition_alone():
+    old = edit(BIKES, REPAIRS)
+    assert "repairs_by_district" not in _impacted_reports(old, _trips_off_stations(old))
+
+
+def test_a_condition_measure_changed_in_logic_impacts_the_report():
+    old = edit(BIKES, REPAIRS_WITH_TRIPS)
+    new = edit(old, measure("trip_count", "count(distinct bike_key)", "trips"))
+    assert "repairs_by_district" in _impacted_reports(old, new)
+    assert "repairs_by_district" not in _impacted_reports(edit(BIKES, REPAIRS), edit(new, REPAIRS))
+
+
+# --- pictures -------------------------------------------------------------------------------------------------
+
+def test_the_report_node_of_a_picture_shows_its_condition():
+    from modeldiff import picture
+
+    pic = picture.picture(edit(BIKES, REPAIRS_WITH_TRIPS), report=REPAIRS_WITH_TRIPS)
+    (node,) = [n for n in pic.nodes if n.kind == "report"]
+    assert node.table == "report repairs_by_district by districts.name, having trip_count > 0"
+    assert "having trip_count #62; 0" in picture.mermaid_of(pic)
+    assert 'having trip_count > 0", shape=note' in picture.dot_of(pic)
+    assert "having trip_count > 0" in picture.text_of(pic)
+
+
+def test_the_report_node_of_a_report_without_condition_says_no_having():
+    from modeldiff import picture
+
+    pic = picture.picture(edit(BIKES, REPAIRS), report=REPAIRS)
+    (node,) = [n for n in pic.nodes if n.kind == "report"]
+    assert node.table == "report repairs_by_district by districts.name"
+    assert "having" not in picture.text_of(pic)
+    assert not [n for n in picture.picture(edit(BIKES, REPAIRS)).nodes if n.kind == "report"]  # only when asked
