@@ -209,25 +209,38 @@ def _hand(data, sql):
         con.close()
 
 
-@pytest.mark.parametrize("seed", range(24))
-def test_condition_gives_the_rows_of_group_by_having(seed):
+def having_case(seed: int) -> list[str]:
+    """One seeded case: the report's rows against GROUP BY ... HAVING; the differences found (none expected).
+
+    benchmarks/campaigns/having_campaign.py runs thousands of these.
+    """
     rng = random.Random(seed)
     data = _random_rows(rng)
     condition, hand_condition = CONDITIONS[seed % len(CONDITIONS)]
     by, hand_by, joins = GROUPINGS[(seed // len(CONDITIONS)) % len(GROUPINGS)]
     k = rng.randint(0, 3)
     r = report("r", ["trip_count"], by, having=condition.format(k=k))
-    got = [row for row in rows(edit(STAR, r), "r", data) if row[0] is not NO_MATCH]
+    got_all = rows(edit(STAR, r), "r", data)
+    got = [row for row in got_all if row[0] is not NO_MATCH]
     expected = _hand(data, f"SELECT {hand_by}, count(*) {joins} GROUP BY {hand_by} "
                            f"HAVING {hand_condition.format(k=k)} ORDER BY {hand_by} NULLS LAST")
-    assert sorted(got, key=repr) == sorted(expected, key=repr)
+    problems = []
+    if sorted(got, key=repr) != sorted(expected, key=repr):
+        problems.append(f"seed {seed}: groups {got} != GROUP BY ... HAVING {expected}")
     # the (no match) row: the trips in no group, kept by the same HAVING (no GROUP BY: one group)
     missing = " OR ".join(f"{c} IS NULL" for c in ("s.station_key", "d.district_key" if len(by) == 1 else "b.bike_key"))
     left = joins.replace(" JOIN ", " LEFT JOIN ")
     hand_no_match = _hand(data, f"SELECT count(*) {left} WHERE {missing} HAVING count(*) > 0 AND "
                                 f"({hand_condition.format(k=k)})")
-    no_match = [row[len(by):] for row in rows(edit(STAR, r), "r", data) if row[0] is NO_MATCH]
-    assert no_match == hand_no_match
+    no_match = [row[len(by):] for row in got_all if row[0] is NO_MATCH]
+    if no_match != hand_no_match:
+        problems.append(f"seed {seed}: (no match) {no_match} != {hand_no_match}")
+    return problems
+
+
+@pytest.mark.parametrize("seed", range(24))
+def test_condition_gives_the_rows_of_group_by_having(seed):
+    assert having_case(seed) == []
 
 
 # --- diff and impact ------------------------------------------------------------------------------------
@@ -324,3 +337,24 @@ def test_the_report_node_of_a_report_without_condition_says_no_having():
     assert node.table == "report repairs_by_district by districts.name"
     assert "having" not in picture.text_of(pic)
     assert not [n for n in picture.picture(edit(BIKES, REPAIRS)).nodes if n.kind == "report"]  # only when asked
+
+
+# --- hostile conditions: the allow-list holds for `having` as for every model SQL text ----------------------
+
+@pytest.mark.parametrize("having", ["(select count(*) from trips) > 0", "trip_count > :user",
+                                    "read_csv('x.csv') is not null"])
+def test_a_condition_outside_the_allow_list_is_an_error(having):
+    m = edit(MINI, report("r", ["trip_count"], "districts.name", having=having))
+    assert ("invalid-model", "reports.r") in [(f.rule, f.subject) for f in check_model(m) if f.severity == "error"]
+
+
+def test_the_engine_refuses_a_condition_outside_the_allow_list_before_any_query():
+    from modeldiff.engine import report_query
+    from modeldiff.errors import ModeldiffError
+
+    bad = edit(MINI, report("r", ["trip_count"], "districts.name", having="read_csv('x.csv') is not null"))
+    with pytest.raises(ModeldiffError):
+        report_query(bad, "r")
+    good = edit(MINI, report("r", ["trip_count"], "districts.name", having="trip_count > 0"))
+    assert "IS TRUE" in report_query(good, "r").sql
+    assert [f for f in check_model(good) if f.severity == "error"] == []
