@@ -264,3 +264,11 @@ def test_the_demo_patch_helper_refuses_a_patch_that_does_not_fit():
     assert demo._patched("flow: two-way\n", patch) == "flow: one-way\n"
     with pytest.raises(RuntimeError):
         demo._patched("flow: one-way\n", patch)
+
+
+def test_a_shortened_markdown_keeps_the_proposal_and_says_when_its_patch_is_left_out():
+    _, tight = run("diff", OLD, FLIP, "--format", "markdown", "--budget", "4000")
+    assert "#### Instead of two-way: `trips_start_station`" in tight and "```diff" not in tight
+    assert "1 patches of proposals" in tight.rstrip().splitlines()[-1]
+    _, roomy = run("diff", OLD, FLIP, "--format", "markdown", "--budget", "30000")
+    assert "```diff" in roomy and "patches of proposals" not in roomy
