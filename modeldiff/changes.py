@@ -32,7 +32,7 @@ KINDS: dict[str, str] = {
     "role.added": "safe", "role.removed": "numbers", "role.renamed": "safe", "role.filter_changed": "numbers",
     "role.cosmetic_changed": "safe", "role.metadata_changed": "safe",
     "report.added": "safe", "report.removed": "numbers", "report.renamed": "safe", "report.changed": "safe",
-    "report.cosmetic_changed": "safe", "report.metadata_changed": "safe",
+    "report.cosmetic_changed": "safe", "report.metadata_changed": "safe", "report.condition_changed": "numbers",
     # derived
     "path.added": "numbers", "path.removed": "numbers",
     "ambiguity.introduced": "breaking", "ambiguity.resolved": "numbers",

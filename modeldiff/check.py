@@ -38,6 +38,11 @@ RULES = {
     "via-not-standby": WARNING,
     "deprecated-key": WARNING,  # ours: a key in its first spelling (load.DEPRECATED_KEYS), read as the new one
     "two-way-drops-unmatched": WARNING,  # extension (docs/check-rules.md)
+    # report conditions (`having`), extension (docs/check-rules.md)
+    "condition-unknown-measure": ERROR,
+    "condition-not-boolean": ERROR,
+    "condition-aggregate": ERROR,
+    "condition-without-groups": WARNING,
 }
 
 
@@ -362,6 +367,42 @@ def rule_report_references(ctx: _Context) -> Iterator[Finding]:
             yield ctx.finding("broken-reference", subject,
                               f"Report {report.name} is seen as role '{report.role}', which does not exist.", at=f"{subject}.role")
         yield from _overrides_refs(ctx, subject, report.overrides)
+
+
+def rule_report_condition(ctx: _Context) -> Iterator[Finding]:
+    """A report's `having` (modeldiff.conditions): measure names only, no aggregate, a true-or-false test."""
+    from modeldiff import conditions
+
+    for report in ctx.model.reports.values():
+        if report.having is None:
+            continue
+        subject = f"reports.{report.name}"
+        at, what = f"{subject}.having", f"Report {report.name}: `having`"
+        found, bad = _sql_facts(ctx, subject, report.having, what, at)
+        if bad is not None:
+            yield bad
+            continue
+        yield from _shape_problems(ctx, subject, found, what, at, allow_user=False)
+        read = found.outside_aggregate if found.aggregates else found.columns  # inside an aggregate: said below
+        for qualifier, name in sorted(read, key=lambda r: (r[0] or "", r[1])):
+            if qualifier is not None or (name not in ctx.model.measures and name.lower() not in ctx.measure_names_lower):
+                shown = f"{qualifier}.{name}" if qualifier else name
+                yield ctx.finding("condition-unknown-measure", subject,
+                                  f"{what} names '{shown}', which is not a measure; a condition reads measures only "
+                                  f"(filter rows with `where`), so fix the name or add the measure.", at=at)
+        if found.aggregates:
+            yield ctx.finding("condition-aggregate", subject,
+                              f"{what} uses the {named('aggregate', found.aggregates)}; a condition compares measures, "
+                              f"which are already aggregated: name a measure (add one for the aggregate) instead.", at=at)
+        why = conditions.not_a_test(report.having, ctx.model)
+        if why is not None:
+            yield ctx.finding("condition-not-boolean", subject,
+                              f"{what} is not true or false for a group ({why}); write a test such as "
+                              f"`trip_count > 0` or `revenue is not null`.", at=at)
+        if not report.by:
+            yield ctx.finding("condition-without-groups", subject,
+                              f"{what} has no effect: the report has no `by`, so its one row is its total, which a "
+                              f"condition does not touch; group the report or remove `having`.", at=at)
 
 
 # --- links ---------------------------------------------------------------------------
@@ -829,7 +870,7 @@ def rule_standby(ctx: _Context) -> Iterator[Finding]:
 RECORD_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (
     rule_table_references, rule_link_references, rule_measure_references, rule_variant_references,
     rule_role_references, rule_report_references, rule_duplicate_live_link, rule_key_not_unique,
-    rule_type_mismatch, rule_measure_cycle, rule_history_incomplete, rule_standby,
+    rule_type_mismatch, rule_measure_cycle, rule_history_incomplete, rule_standby, rule_report_condition,
 )
 # Rules that walk the flow and security graphs (warnings only).
 GRAPH_RULES: tuple[Callable[[_Context], Iterable[Finding]], ...] = (rule_ambiguous_paths, rule_security,
@@ -858,6 +899,7 @@ RULE_INPUTS: dict[Callable[[_Context], Iterable[Finding]], tuple[str, ...]] = {
     rule_standby: ("measures", "variants", "reports", "links"),
     rule_security: ("roles", "links", "tables"),
     rule_two_way_drops_unmatched: ("links", "tables", "reports", "measures", "variants"),
+    rule_report_condition: ("reports", "measures"),
 }
 
 

@@ -27,7 +27,7 @@ from dataclasses import asdict, dataclass, field, replace
 from functools import cached_property, lru_cache
 from typing import Any, Callable, Hashable, Iterable, Iterator, Mapping, TypeVar
 
-from modeldiff import sql  # light: sqlglot is imported on first use
+from modeldiff import conditions, sql  # sql is light: sqlglot is imported on first use
 from modeldiff.changes import STRUCTURAL_KINDS, Change
 from modeldiff.model import Column, History, Link, Measure, Model, Overrides, Report, Role, Table, Variant, VariantOption
 from modeldiff.words import and_list
@@ -316,6 +316,8 @@ class References:
         for report in m.reports.values():
             subject = f"reports.{report.name}"
             for name in report.measures:
+                out["measures"][name].add(subject)
+            for name in conditions.names_written(report):
                 out["measures"][name].add(subject)
             for item in report.by:
                 out["tables"][item.partition(".")[0]].add(subject)
@@ -1116,7 +1118,8 @@ def _report_signature(ctx: DiffContext, p: Report, old: bool, deep: bool) -> Has
     if old:
         p = ctx.renames.report(p)
     where = tuple(sorted((t, ctx.sql_key(text, t, old, deep, f"reports.{p.name}")) for t, text in p.where.items()))
-    return (p.measures, p.by, where, _frozen(p.variant), p.role, _frozen(p.overrides))
+    return (p.measures, p.by, where, _frozen(p.variant), p.role, _frozen(p.overrides),
+            ctx.sql_key(p.having, DERIVED, old, deep, f"reports.{p.name}"))
 
 
 def _report_added(ctx: DiffContext, p: Report) -> Change:
@@ -1148,10 +1151,35 @@ def compare_reports(ctx: DiffContext, old_raw: Report, new: Report) -> Iterator[
         yield ctx.change("report.cosmetic_changed", subject, SAFE,
                          f"The `where` of report {name} on {_and(sorted(cb))} was respelled (same SQL after normalising); no number changes.",
                          {"where": cb}, {"where": ca})
+    yield from _condition_changes(ctx, old, new, subject)
     before, after = _changed_fields(old, new, ("owner", "description"))
     if before:
         yield ctx.change("report.metadata_changed", subject, SAFE,
                          f"The {_and(before)} of report {name} changed; no number changes.", before, after)
+
+
+def _condition_changes(ctx: DiffContext, old: Report, new: Report, subject: str) -> Iterator[Change]:
+    """`report.condition_changed` (which groups can appear or disappear), or a respelling (`report.cosmetic_changed`)."""
+    verdict = ctx.compare_sql(old.having, new.having, DERIVED, subject)
+    if verdict == SAME:
+        return
+    name, before, after = new.name, {"having": old.having}, {"having": new.having}
+    if verdict == COSMETIC:
+        yield ctx.change("report.cosmetic_changed", subject, SAFE,
+                         f"The condition (`having`) of report {name} was respelled (same SQL after normalising); "
+                         f"no group appears or disappears.", before, after)
+    elif old.having is None:
+        yield ctx.change("report.condition_changed", subject, NUMBERS,
+                         f"Report {name} now keeps only the groups where {new.having}: the groups where it is not true "
+                         f"disappear, the (no match) row included.", before, after)
+    elif new.having is None:
+        yield ctx.change("report.condition_changed", subject, NUMBERS,
+                         f"Report {name} no longer keeps only the groups where {old.having}: the groups it dropped "
+                         f"appear again.", before, after)
+    else:
+        yield ctx.change("report.condition_changed", subject, NUMBERS,
+                         f"Report {name} changed its condition from {old.having} to {new.having}: groups can appear or "
+                         f"disappear.", before, after)
 
 
 # --- sections ---------------------------------------------------------------------------------------

@@ -146,8 +146,9 @@ def report_query(model: Model, report_name: str, *, user: str | None = None) -> 
     from modeldiff import graph
 
     layers = graph.setting_layers(model, None, report, variant_defaults=True)
+    having = report.having if report.by else None  # without `by` the one row is the total: a condition keeps it
     return _Compiler(model, user).grouped(report.measures, report.by, _report_filters(model, report),
-                                          report.role, layers, f"report {report.name}")
+                                          report.role, layers, f"report {report.name}", having)
 
 
 def measure_query(model: Model, measure_name: str, by: Sequence[str] = (), where: Mapping[str, str] | None = None,
@@ -819,12 +820,18 @@ class _Compiler:
         return self.plan.query(final, (ROWS_COLUMN,), self.params)
 
     def grouped(self, measure_names: Sequence[str], by: Sequence[str], filters, role: str | None,
-                report_layers: tuple[Overrides, ...], label: str) -> Query:
+                report_layers: tuple[Overrides, ...], label: str, having: str | None = None) -> Query:
         from modeldiff import graph
 
         model = self.model
         sources = [_Source(i, *_by_column(model, text, label)) for i, text in enumerate(by)]
         terms = _base_terms(model, measure_names, report_layers)
+        shown = len(terms)  # the terms of the shown measures come first; a condition's own measures follow
+        if having is not None:
+            from modeldiff import conditions
+
+            named = conditions.measures_named(Report("_", (), having=having), model.measures)
+            terms = _base_terms(model, list(measure_names) + list(named), report_layers)
         bound = self.bound_filters(filters)
         base = self.role_base(role)
         settings: dict = {}
@@ -840,7 +847,7 @@ class _Compiler:
                 batches.setdefault((b.home, b.where), []).append(b)
             for batch in batches.values():
                 values.update(group.measures(batch))
-        return self._final(measure_names, by, sources, terms, values, report_layers)
+        return self._final(measure_names, by, sources, terms, values, report_layers, shown, having, label)
 
     def bound_measure(self, measure: Measure, k: int) -> _Bound:
         home = measure.table
@@ -858,7 +865,15 @@ class _Compiler:
         return bool(t.key) and set(t.key) <= set(columns) or any(
             c in t.columns and t.columns[c].unique for c in columns)
 
-    def _final(self, measure_names, by, sources, terms, values, report_layers) -> Query:
+    def _final(self, measure_names, by, sources, terms, values, report_layers, shown=None, having=None,
+               label="") -> Query:
+        """The rows; `having` (SQL over measure names) keeps the groups, `(no match)` included, where it is true.
+
+        Only the first `shown` terms (the shown measures') decide which groups
+        exist and which rows fall in `(no match)`; the terms after them are the
+        condition's own measures, evaluated over those groups.
+        """
+        shown = len(terms) if shown is None else shown
         columns = list(by) + list(measure_names)
         tag_cols = [_tag(s.index) for s in sources]
         outputs = [f"{t} AS {q(name)}" for t, name in zip(tag_cols, by)]
@@ -873,7 +888,7 @@ class _Compiler:
             final = f"SELECT {', '.join(outputs)}, {q(NO_MATCH_COLUMN)}\nFROM (SELECT {nothing}) AS _v WHERE false"
             return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
         combos = self.plan.relation("_combos", "\nUNION\n".join(dict.fromkeys(values[k].combos
-                                                                             for k in range(len(terms)))))
+                                                                             for k in range(shown))))
         picks, joins = [], []
         for k in range(len(terms)):
             v = values[k]
@@ -885,16 +900,17 @@ class _Compiler:
         grouped_rows = (f"SELECT {groups}, {', '.join(picks)}, false AS {q(NO_MATCH_COLUMN)}\nFROM {q(combos)} AS _c"
                         + "".join(f"\n  {j}" for j in joins))
         nulls = ", ".join(f"NULL AS {t}" for t in tag_cols)
-        no_match = [self._no_match(values[k], combos, len(sources)) for k in range(len(terms))]
+        no_match = [self._no_match(values[k], combos, len(sources), k < shown) for k in range(len(terms))]
         leftovers = ", ".join(f"(SELECT _value FROM {q(no_match[k])}) AS {q(f'_m{k}')}" for k in range(len(terms)))
-        any_left = " OR ".join(f"(SELECT _rows FROM {q(no_match[k])}) > 0" for k in range(len(terms)))
+        any_left = " OR ".join(f"(SELECT _rows FROM {q(no_match[k])}) > 0" for k in range(shown))
         no_match_row = f"SELECT {nulls}, {leftovers}, true AS {q(NO_MATCH_COLUMN)} WHERE {any_left}"
         order = ", ".join([q(NO_MATCH_COLUMN)] + [f"{n} ASC NULLS LAST" for n in range(1, len(sources) + 1)])
+        kept = f"\nWHERE ({self._condition_sql(having, report_layers, terms, label)}) IS TRUE" if having else ""
         final = (f"SELECT {', '.join(outputs)}, {q(NO_MATCH_COLUMN)}\nFROM (\n{grouped_rows}\nUNION ALL\n"
-                 f"{no_match_row}\n) AS _v\nORDER BY {order}")
+                 f"{no_match_row}\n) AS _v{kept}\nORDER BY {order}")
         return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
 
-    def _no_match(self, v: "_Value", combos: str, n_sources: int) -> str:
+    def _no_match(self, v: "_Value", combos: str, n_sources: int, own_groups: bool = True) -> str:
         """`_rows`, `_value`: one base measure's home rows visible in its total but in no group of the answer.
 
         Per measure, in its own setting (semantics.md section 5): a row is in
@@ -906,10 +922,12 @@ class _Compiler:
         When every grouping column reaches the home table, each tag set of a
         row is one of the measure's own groups (`_pJ`), all in the answer: the
         rows in no group are exactly those marked `_nm`, already aggregated in
-        `_aJ`, so nothing is scanned again.
+        `_aJ`, so nothing is scanned again. Not so for a measure that only a
+        report's condition names (`own_groups` false): its groups need not be
+        in the answer.
         """
         b = v.bound
-        if v.agg and set(v.tags) == set(range(n_sources)):
+        if own_groups and v.agg and set(v.tags) == set(range(n_sources)):
             passing = " AND _w" if b.where else ""
             value = (f"CASE WHEN EXISTS (SELECT 1 FROM {q(v.agg)} WHERE _nm{passing}) "
                      f"THEN (SELECT {q(f'_v{b.k}')} FROM {q(v.agg)} WHERE _nm{passing}) "
@@ -932,15 +950,30 @@ class _Compiler:
             key = (name, layers_key(own))
             k = next(i for i, t in enumerate(terms) if (t.measure, layers_key(t.layers)) == key)
             return q(f"_m{k}")
+        return self._over_measures(measure.expr, _measure_refs(self.model, measure), own, terms, f"measure {name}")
+
+    def _condition_sql(self, having: str, layers: tuple[Overrides, ...], terms: list[_Term], label: str) -> str:
+        """A report's condition over the `_mK` columns: each measure it names replaced by its value."""
+        from modeldiff import sql
+
+        try:
+            refs = sorted(sql.measure_refs(having, self.model.measures))
+        except sql.SqlError as error:
+            raise ModeldiffError(f"{label}'s having: {error}; fix the model (modeldiff check shows each case)") from None
+        return self._over_measures(having, refs, layers, terms, f"{label}'s having")
+
+    def _over_measures(self, text: str, names: Iterable[str], own: tuple[Overrides, ...], terms: list[_Term],
+                       label: str) -> str:
+        """`text` (SQL over measure names) with each name replaced by that measure's value in setting `own`."""
         from sqlglot import exp
 
         from modeldiff import sql
 
-        refs = {r.lower(): r for r in _measure_refs(self.model, measure)}
+        refs = {r.lower(): r for r in names}
         try:
-            tree = sql.engine_tree(measure.expr, self.model.measures)
+            tree = sql.engine_tree(text, self.model.measures)
         except sql.SqlError as error:
-            raise ModeldiffError(f"measure {name}: {error}; fix the model (modeldiff check shows each case)") from None
+            raise ModeldiffError(f"{label}: {error}; fix the model (modeldiff check shows each case)") from None
         for column in list(tree.find_all(exp.Column)):
             if column.args.get("table") or not isinstance(column.this, exp.Identifier):
                 continue
@@ -957,7 +990,7 @@ class _Compiler:
         try:
             return sql.render_for_engine(tree)
         except sql.SqlError as error:
-            raise ModeldiffError(f"measure {name}: {error}") from None
+            raise ModeldiffError(f"{label}: {error}") from None
 
 
 @dataclass(frozen=True)

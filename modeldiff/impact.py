@@ -43,6 +43,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field, replace
 from typing import Any, Iterable, Mapping
 
+from modeldiff import conditions
 from modeldiff.changes import EXIT_CODES, Change, id_order, subject_item, subject_member, worst
 from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Report, VariantOption, layers_key
 
@@ -1116,11 +1117,12 @@ class _Impacts:
                 if change.kind == "report.changed" and set(change.before or {}) <= _SETTING_FIELDS:
                     continue  # only its setting changed: see the edges below
                 reasons.append(Reason(change.id, change.message))
-            for change in self.kinds("measure."):  # a measure it shows was removed or renamed
+            named = set(report.measures) | conditions.names_written(report)  # shown, or read by its condition
+            for change in self.kinds("measure."):  # a measure it shows or its condition reads was removed or renamed
                 shown = change.subject.split(".", 1)[1]
-                if change.kind == "measure.removed" and shown in report.measures:
+                if change.kind == "measure.removed" and shown in named:
                     reasons.append(Reason(change.id, change.message))
-                elif change.kind == "measure.renamed" and change.severity != "safe" and shown in report.measures:
+                elif change.kind == "measure.renamed" and change.severity != "safe" and shown in named:
                     reasons.append(Reason(change.id, change.message))
             by_tables = {item.partition(".")[0] for item in report.by}
             where_tables = set(report.where)
@@ -1128,7 +1130,8 @@ class _Impacts:
                 where_tables |= set(option.where)
             filters = {t for t in by_tables | where_tables if t in a.new.tables}
             read: set[str] = set()
-            for measure_name in report.measures:
+            # a measure named only in its condition moves its groups: it counts like a measure it shows
+            for measure_name in report.measures + conditions.extra_measures(report, a.new.measures):
                 if measure_name not in a.new.measures:
                     continue
                 for chain in self.chains(measure_name):

@@ -166,6 +166,7 @@ class Report:
     owner: str | None = None
     overrides: Overrides = NO_OVERRIDES
     description: str | None = None
+    having: str | None = None  # SQL condition over measure names, kept per group (docs/format.md, Reports)
 
 
 @dataclass(frozen=True)

@@ -30,17 +30,18 @@ ROLE_COLOUR = "#6a1b9a"  # a role's filtered and restricted tables, and the link
 ROLE_HIGHLIGHT = f"stroke:{ROLE_COLOUR},stroke-width:3px"
 
 ONE_WAY, TWO_WAY, STANDBY, REMOVED = "one-way", "two-way", "standby", "removed"
-KIND_ORDER = ("fact", "dimension", "bridge", "access", "missing")
+KIND_ORDER = ("fact", "dimension", "bridge", "access", "missing", "report")
 
 # Mermaid shape brackets by table kind.
 _SHAPES = {"fact": ("[", "]"), "dimension": ("(", ")"), "bridge": ("{{", "}}"), "access": ("[/", "/]"),
-           "missing": ("[", "]")}
+           "missing": ("[", "]"), "report": ("[[", "]]")}
 _CLASS_DEFS = {
     "fact": "fill:#fff4e0,stroke:#b7791f,color:#222",
     "dimension": "fill:#e8f1fb,stroke:#3b6ea5,color:#222",
     "bridge": "fill:#eaf6ea,stroke:#3f8f3f,color:#222",
     "access": "fill:#f5ecfa,stroke:#7d4a9e,color:#222",
     "missing": "fill:#ffffff,stroke:#999999,stroke-dasharray:4 4,color:#666",
+    "report": "fill:#fafafa,stroke:#555555,color:#222",
     "newpath": "stroke:#d33,stroke-width:3px",
     "rolefilter": f"stroke:{ROLE_COLOUR},stroke-width:5px",
     "restricted": f"stroke:{ROLE_COLOUR},stroke-width:3px",
@@ -57,7 +58,7 @@ class Node:
 
     id: str  # sanitised, safe as a Mermaid or dot identifier
     table: str
-    kind: str  # fact | dimension | bridge | access | missing (named by a link, not defined)
+    kind: str  # fact | dimension | bridge | access | missing (named by a link, not defined) | report (its label)
     on_new_path: bool = False
     description: str | None = None
     role: str = ""  # in a role's picture: "filter" (the role filters it) | "restricted" (its filter reaches it) | ""
@@ -176,7 +177,8 @@ def _neighbourhood(model, focus: set[str], removed: Sequence) -> set[str]:
 def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequence[str]] = (),
             removed_links: Iterable = (), setting=None, setting_label: str = "default setting",
             focus_tables: Iterable[str] = (), limit: int = NEIGHBOURHOOD_LIMIT,
-            reached: Iterable[str] = (), security: bool = False, role: str | None = None) -> Picture:
+            reached: Iterable[str] = (), security: bool = False, role: str | None = None,
+            report=None) -> Picture:
     """The picture of `model` (in `setting`, default: the model's own links).
 
     `highlight_links`: names of links drawn red. `new_paths`: filter paths (link
@@ -192,6 +194,8 @@ def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequ
     `role`: the security graph with that role's reach: the tables it filters
     and the tables its filters restrict get the `rolefilter` / `restricted`
     marks, the links they travel along are `travelled`.
+    `report`: a Report record drawn as one more node (kind `report`), labelled
+    with its name, its groups and its condition (`having`) when it has one.
     """
     from modeldiff import graph
 
@@ -223,6 +227,8 @@ def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequ
                        model.tables[t].description if t in model.tables else None,
                        "filter" if t in filtered else "restricted" if t in restricted else "")
                   for t in sorted(tables))
+    if report is not None:
+        nodes += (report_node(report, set(ids.values())),)
     arrows: list[Arrow] = []
     for name in sorted(model.links):
         link = model.links[name]
@@ -236,6 +242,17 @@ def picture(model, highlight_links: Iterable[str] = (), new_paths: Iterable[Sequ
         if link.from_table in tables and link.to_table in tables:
             arrows.append(Arrow(len(arrows), link.name, link.to_table, link.from_table, REMOVED, True))
     return Picture(model.name, nodes, tuple(arrows), caption, setting_label)
+
+
+def report_node(report, taken: set[str] = frozenset()) -> Node:
+    """A report as a node: `report NAME by ...`, and `having CONDITION` when it keeps only some groups."""
+    words = f"report {report.name}" + (f" by {', '.join(report.by)}" if report.by else "")
+    if report.having is not None:
+        words += f", having {' '.join(report.having.split())}"
+    node_id = "r_" + re.sub(r"[^A-Za-z0-9_]", "_", report.name)
+    while node_id in taken:
+        node_id += "_"
+    return Node(node_id, words, "report", description=report.description)
 
 
 def diff_picture(result, limit: int = NEIGHBOURHOOD_LIMIT) -> Picture | None:
@@ -361,7 +378,8 @@ _DOT_NODE = {"fact": 'shape=box, style=filled, fillcolor="#fff4e0", color="#b779
              "dimension": 'shape=box, style="rounded,filled", fillcolor="#e8f1fb", color="#3b6ea5"',
              "bridge": 'shape=hexagon, style=filled, fillcolor="#eaf6ea", color="#3f8f3f"',
              "access": 'shape=parallelogram, style=filled, fillcolor="#f5ecfa", color="#7d4a9e"',
-             "missing": 'shape=box, style=dashed, color="#999999"'}
+             "missing": 'shape=box, style=dashed, color="#999999"',
+             "report": 'shape=note, style=filled, fillcolor="#fafafa", color="#555555"'}
 
 
 def _dot_string(text: str) -> str:
@@ -398,7 +416,8 @@ _TEXT_ARROWS = {ONE_WAY: "-->", TWO_WAY: "<->", STANDBY: "..>", REMOVED: "xx>"}
 
 
 def text_of(pic: Picture) -> str:
-    lines = [f"{pic.model}: {len(pic.nodes)} tables, {len(pic.arrows)} links ({pic.setting})"]
+    tables = sum(1 for n in pic.nodes if n.kind != "report")
+    lines = [f"{pic.model}: {tables} tables, {len(pic.arrows)} links ({pic.setting})"]
     if pic.caption:
         lines.append(pic.caption)
     lines += ["", "tables"]
@@ -471,7 +490,9 @@ def run(args, stdout) -> int:
         pic = picture(model, setting_label="security graph", security=True)
     else:
         setting, label = resolve(model, args.setting)
-        pic = picture(model, setting=setting, setting_label=label)
+        what, _, name = (args.setting or "").partition(":")
+        pic = picture(model, setting=setting, setting_label=label,
+                      report=model.reports[name] if what == "report" else None)
     if args.format == "dot":
         stdout.write(dot_of(pic))
     elif args.format == "svg":

@@ -95,6 +95,7 @@ class Plan:
     steps: tuple[Step, ...]
     blockers: tuple[str, ...] = ()  # error findings of the new revision: fix before any step
     security: bool = False  # a security exposure is part of the change
+    proposals: tuple = ()  # modeldiff.proposal.Proposal: instead of a link made two-way, report conditions
 
 
 # --- SQL for the data checks ----------------------------------------------------------------
@@ -710,8 +711,12 @@ def _side(side) -> str:
 
 
 def build_plan(md) -> Plan:
-    """The plan for one `compare.ModelDiff`."""
-    return _Planner(md).build()
+    """The plan for one `compare.ModelDiff`, with the proposals in place of links made two-way (modeldiff.proposal)."""
+    from dataclasses import replace
+
+    from modeldiff import proposal
+
+    return replace(_Planner(md).build(), proposals=tuple(proposal.proposals(md)))
 
 
 # --- rendering ------------------------------------------------------------------------------------
@@ -730,7 +735,14 @@ def plan_json(plan: Plan) -> dict:
                    "after": list(s.after), "preconditions": list(s.preconditions),
                    "checks": [{"what": c.what, "sql": c.sql, "expect": c.expect} for c in s.checks],
                    "rollback": s.rollback} for s in plan.steps],
+        "instead_of_two_way": [_proposal_json(p) for p in plan.proposals],
     }
+
+
+def _proposal_json(p) -> dict:
+    from modeldiff.render import proposal_out
+
+    return proposal_out.json_of(p)
 
 
 def _caution() -> str:
@@ -764,6 +776,10 @@ def as_text(plan: Plan, changes: dict, stream: TextIO) -> None:
             if c.sql:
                 lines.append(f"          {c.sql}")
         lines.append(f"    rollback: {s.rollback}")
+    if plan.proposals:
+        from modeldiff.render import proposal_out
+
+        lines += proposal_out.text_lines(plan.proposals)
     stream.write("\n".join(lines) + "\n")
 
 
@@ -793,6 +809,10 @@ def as_markdown(plan: Plan, changes: dict, stream: TextIO) -> None:
             if c.sql:
                 lines += ["", "  ```sql", f"  {c.sql}", "  ```"]
         lines += ["", f"**Rollback:** {_md(s.rollback)}"]
+    if plan.proposals:
+        from modeldiff.render import proposal_out
+
+        lines += proposal_out.markdown_lines(plan.proposals)
     stream.write("\n".join(lines) + "\n")
 
 

@@ -199,6 +199,7 @@ class Verification:
     preconditions: tuple[Precondition, ...] = ()
     everything: bool = False
     missed: tuple[Missed, ...] = ()
+    proposals: tuple = ()  # modeldiff.proposal.ProposalOnData: instead of a link made two-way, side by side
 
     @property
     def exit_code(self) -> int:
@@ -924,7 +925,15 @@ def verify_on(md, data: _Data, user: str | None = None, progress_stream: TextIO 
     finally:
         step.close()
     missed = missed_by_the_diff(result, reports, measures, roles)
-    return Verification(md, data.label, reports, measures, roles, preconditions, everything, missed)
+    return Verification(md, data.label, reports, measures, roles, preconditions, everything, missed,
+                        () if everything else proposals_on(md, data, user, {c.name for c in measures if c.moved}))
+
+
+def proposals_on(md, data: _Data, user: str | None = None, moved_measures=()) -> tuple:
+    """Each proposal in place of a link made two-way (modeldiff.proposal), evaluated beside the two-way revision."""
+    from modeldiff import proposal
+
+    return tuple(proposal.on_data(md, data, p, user, moved_measures) for p in proposal.proposals(md))
 
 
 def missed_by_the_diff(result, reports, measures, roles) -> tuple[Missed, ...]:

@@ -19,8 +19,8 @@ dates), facts, bridges (two-column key, one link per side), access tables
 two-way, one-to-one, many-to-many to a non-key column or a natural key,
 cycles), standby links followed by measures, variant options and reports,
 `flow` overrides, derived measures with their own overrides, roles with
-and without `:user`, reports with several `by` columns, `where`, a role and
-a variant option.
+and without `:user`, reports with several `by` columns, `where`, a role,
+a variant option and a condition (`having`) over measures they may not show.
 
 Used by tests/test_randmodel.py, tests/test_section5_reference.py,
 tests/test_impact_soundness.py and benchmarks/campaigns/impact_soundness.py.
@@ -252,6 +252,8 @@ def generate(seed: int) -> Case:
     if roles:
         doc["roles"] = roles
     doc["reports"] = _reports(rng, g, doc)
+    # conditions draw from their own stream, so the rest of every seed's model is what it was before them
+    _conditions(random.Random(f"having {seed}"), doc)
     if rng.random() < 0.2:  # a table nothing uses yet
         g.add_table("u0", "dimension")
     return Case(doc, make_rows(rng, doc), seed)
@@ -341,6 +343,25 @@ def _reports(rng: random.Random, g: _Gen, doc: dict) -> dict:
             _random_overrides(rng, g.links, r, 0.5, 0.5)
         out[f"rep{i}"] = r
     return out
+
+
+def random_condition(rng: random.Random, doc: dict) -> str:
+    """A report condition over the model's measures: comparisons on numeric ones, NULL tests on any."""
+    measures = doc["measures"]
+    numeric = [n for n, m in measures.items() if m.get("expr") != "min(a)" and "min(a)" not in str(m.get("expr"))]
+
+    def atom() -> str:
+        if numeric and rng.random() < 0.7:
+            return f"{rng.choice(numeric)} {rng.choice(('>', '>=', '<', '=', '<>'))} {rng.choice((0, 1, 2, 3))}"
+        return f"{rng.choice(sorted(measures))} {rng.choice(('IS NULL', 'IS NOT NULL'))}"
+
+    return atom() if rng.random() < 0.7 else f"{atom()} {rng.choice(('OR', 'AND'))} {atom()}"
+
+
+def _conditions(rng: random.Random, doc: dict) -> None:
+    for r in doc["reports"].values():
+        if r.get("by") and rng.random() < 0.3:
+            r["having"] = random_condition(rng, doc)
 
 
 # --- data -------------------------------------------------------------------------------------------------
@@ -483,6 +504,7 @@ def _references(doc: dict) -> dict[str, set[str]]:
             measures |= {w for w in _words(m["expr"]) if w in doc["measures"]}
     for r in doc.get("reports", {}).values():
         measures |= set(r["measures"])
+        measures |= {w for w in _words(r.get("having", "")) if w in doc["measures"]}
     roles = {r["role"] for r in doc.get("reports", {}).values() if "role" in r}
     return {"links": links, "measures": measures, "roles": roles}
 
@@ -657,7 +679,8 @@ def _base_measure(rng, doc) -> str:
 def m_measure_expr(rng, doc):
     name = _base_measure(rng, doc)
     m = doc["measures"][name]
-    used = any(name in _words(d["expr"]) for d in doc["measures"].values() if "table" not in d)
+    used = any(name in _words(d["expr"]) for d in doc["measures"].values() if "table" not in d) or \
+        any(name in _words(r.get("having", "")) for r in doc["reports"].values())  # compared with numbers
     m["expr"] = rng.choice([a for a in AGGREGATES if a != m["expr"] and not (used and a == "min(a)")])
 
 
@@ -732,6 +755,8 @@ def m_measure_renamed(rng, doc):
             m["expr"] = re.sub(rf"\b{name}\b", new, m["expr"])
     for r in doc.get("reports", {}).values():
         r["measures"] = [new if x == name else x for x in r["measures"]]
+        if "having" in r:
+            r["having"] = re.sub(rf"\b{name}\b", new, r["having"])
 
 
 def _variant(rng, doc) -> dict:
@@ -864,6 +889,20 @@ def m_report_measures(rng, doc):
 
 def m_report_overrides(rng, doc):
     _change_overrides(rng, doc, _report(rng, doc))
+
+
+def m_report_having(rng, doc):
+    """A report's condition added, changed or removed (`report.condition_changed`)."""
+    r = _report(rng, doc)
+    if not r.get("by"):
+        raise _Skip
+    if "having" in r and rng.random() < 0.3:
+        del r["having"]
+        return
+    condition = random_condition(rng, doc)
+    if r.get("having") == condition:
+        raise _Skip
+    r["having"] = condition
 
 
 def m_report_added(rng, doc):
@@ -1038,6 +1077,7 @@ MUTATIONS: dict[str, Callable] = {
     "report.variant": m_report_variant,
     "report.measures": m_report_measures,
     "report.overrides": m_report_overrides,
+    "report.having": m_report_having,
     "report.added": m_report_added,
     "table.kind": m_table_kind,
     "table.key": m_table_key,

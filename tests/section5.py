@@ -17,7 +17,12 @@ Choices where the spec's text leaves room (each matching docs/evaluation.md):
   among its own values and a visible row of its home table there, before the
   measure's own `where`; every measure shows its value in every row;
 - a report without `by` has one row, even over no data;
-- link values match with SQL's `=`: NULL matches nothing.
+- link values match with SQL's `=`: NULL matches nothing;
+- a report's condition (`having`, shapes as predicates, over measure names)
+  is tested on each row of the answer, `(no match)` included, with the values
+  of the measures it names there; only true keeps the row. Measures it alone
+  names take no part in which combinations are rows nor in whether the
+  `(no match)` row exists; a report without `by` keeps its one row.
 """
 
 from __future__ import annotations
@@ -327,7 +332,7 @@ def _value(model, measure: str, layers: tuple, base_values: dict[Computation, An
 
 
 def evaluate(model, data: dict[str, list[dict]], measures: list[str], by: list[str], where: dict[str, list[str]],
-             front_layers: list, role: str | None, user: str | None = None) -> list[tuple]:
+             front_layers: list, role: str | None, user: str | None = None, having: str | None = None) -> list[tuple]:
     """Rows of a report: group values then measure values; the `(no match)` row last with NO_MATCH values."""
     start = role_rows(model, data, role, user)
     comps = []
@@ -335,13 +340,19 @@ def evaluate(model, data: dict[str, list[dict]], measures: list[str], by: list[s
         for c in computations(model, name, tuple(front_layers)):
             if c not in comps:
                 comps.append(c)
-    arcs = {c: flow_arcs(model, setting(model, c.layers)) for c in comps}
-    totals = {c: visible(data, arcs[c], where, start, user) for c in comps}
+    named = measure_names(having, model.measures) if having is not None and by else []
+    every = list(comps)  # the shown measures' computations, then those only the condition reads
+    for name in named:
+        for c in computations(model, name, tuple(front_layers)):
+            if c not in every:
+                every.append(c)
+    arcs = {c: flow_arcs(model, setting(model, c.layers)) for c in every}
+    totals = {c: visible(data, arcs[c], where, start, user) for c in every}
     by_cols = [tuple(b.split(".", 1)) for b in by]
 
     def base_values(rows_of: dict[Computation, list[int]]) -> dict[Computation, Any]:
         out = {}
-        for c in comps:
+        for c in every:
             m = model.measures[c.measure]
             rows = [data[m.table][i] for i in rows_of[c]]
             if m.where is not None:
@@ -353,7 +364,13 @@ def evaluate(model, data: dict[str, list[dict]], measures: list[str], by: list[s
         values = base_values(rows_of)
         return tuple(_value(model, name, tuple(front_layers), values) for name in measures)
 
-    home = {c: model.measures[c.measure].table for c in comps}
+    def kept(rows_of) -> bool:
+        if not named:
+            return True
+        values = base_values(rows_of)
+        return holds(having, {n: _value(model, n, tuple(front_layers), values) for n in named}, user)
+
+    home = {c: model.measures[c.measure].table for c in every}
     if not by_cols:
         return [shown({c: totals[c][home[c]] for c in comps})]
     own = {c: [{data[t][i][col] for i in totals[c][t]} for t, col in by_cols] for c in comps}
@@ -362,20 +379,21 @@ def evaluate(model, data: dict[str, list[dict]], measures: list[str], by: list[s
         values = set().union(*(own[c][k] for c in comps))
         candidates.append(sorted(values, key=lambda v: (v is None, v if v is not None else 0)))
     out = []
-    grouped: dict[Computation, set[int]] = {c: set() for c in comps}
+    grouped: dict[Computation, set[int]] = {c: set() for c in every}
     for combo in itertools.product(*candidates):
         filters = {t: list(ps) for t, ps in where.items()}
         for (t, col), value in zip(by_cols, combo):
             filters.setdefault(t, []).append(lambda row, col=col, value=value: row[col] == value
                                              if value is not None else row[col] is None)
-        rows_of = {c: visible(data, arcs[c], filters, start, user)[home[c]] for c in comps}
+        rows_of = {c: visible(data, arcs[c], filters, start, user)[home[c]] for c in every}
         if not any(rows_of[c] and all(v in vs for v, vs in zip(combo, own[c])) for c in comps):
             continue
-        for c in comps:
+        for c in every:
             grouped[c] |= set(rows_of[c])
-        out.append(combo + shown(rows_of))
-    unmatched = {c: [i for i in totals[c][home[c]] if i not in grouped[c]] for c in comps}
-    if any(unmatched.values()):
+        if kept(rows_of):
+            out.append(combo + shown(rows_of))
+    unmatched = {c: [i for i in totals[c][home[c]] if i not in grouped[c]] for c in every}
+    if any(unmatched[c] for c in comps) and kept(unmatched):
         out.append((NO_MATCH,) * len(by_cols) + shown(unmatched))
     return out
 
@@ -387,4 +405,5 @@ def report(model, data: dict[str, list[dict]], name: str, user: str | None = Non
     where = {t: [p] for t, p in r.where.items()}
     for t, ps in option_where.items():
         where.setdefault(t, []).extend(ps)
-    return evaluate(model, data, list(r.measures), list(r.by), where, option_layers + [layer(r.overrides)], r.role, user)
+    return evaluate(model, data, list(r.measures), list(r.by), where, option_layers + [layer(r.overrides)], r.role, user,
+                    r.having)

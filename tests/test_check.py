@@ -182,7 +182,10 @@ def test_every_rule_of_section_7_has_its_severity():
               "measure-cycle", "history-incomplete"}
     warnings = {"ambiguous-paths", "security-stops", "role-reaches-no-fact", "standby-unused", "via-not-standby"}
     extensions = {"deprecated-key": "warning",  # ours (docs/model-format-extensions.md): `use` read as `via`
-                  "two-way-drops-unmatched": "warning"}  # beyond section 7: docs/check-rules.md
+                  "two-way-drops-unmatched": "warning",  # beyond section 7: docs/check-rules.md
+                  # report conditions (`having`, issue 13): docs/check-rules.md
+                  "condition-unknown-measure": "error", "condition-not-boolean": "error",
+                  "condition-aggregate": "error", "condition-without-groups": "warning"}
     assert RULES == {**{r: "error" for r in errors}, **{r: "warning" for r in warnings}, **extensions}
 
 

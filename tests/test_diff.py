@@ -479,6 +479,7 @@ TWINS = {
     "report.changed": ("report_where_changed", "report_where_cosmetic"),
     "report.cosmetic_changed": ("report_where_cosmetic", "report_where_changed"),
     "report.metadata_changed": ("report_owner_changed", "report_by_changed"),
+    "report.condition_changed": ("report_condition_changed", "report_condition_respelled"),
 }
 
 

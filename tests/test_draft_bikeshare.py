@@ -122,7 +122,8 @@ def test_warehouse_ddl_has_the_columns_of_the_generated_data():
 def test_demo_runs_the_data_aware_check_on_the_generated_data(capsys):
     from modeldiff import demo
 
-    demo._data_check_step(EXAMPLE)
+    with demo._generated_data() as data:
+        demo._data_check_step(EXAMPLE, data)
     out = capsys.readouterr().out
-    assert "4. modeldiff check MODEL --data DIR" in out and "no findings" in out
+    assert "3. modeldiff check MODEL --data DIR" in out and "no findings" in out
     assert out.rstrip().endswith("(exit code 0: 0 the data fits the model, 3 it does not)")

@@ -64,6 +64,10 @@ def test_the_generated_models_cover_the_shapes_the_proof_needs():
                 seen.add("report where")
             if "role" in r:
                 seen.add("report role")
+            if "having" in r:
+                seen.add("report condition")
+                if set(R._words(r["having"])) & set(doc["measures"]) - set(r["measures"]):
+                    seen.add("condition on a measure not shown")
         for name, rows in R.generate(seed).rows.items():
             table = doc["tables"][name]
             if "history" in table and len({r["nk"] for r in rows}) < len(rows):
@@ -73,7 +77,8 @@ def test_the_generated_models_cover_the_shapes_the_proof_needs():
     needed = {"fact", "dimension", "bridge", "access", "type-2", "two-column key", "one-way", "two-way",
               "one-to-one", "many-to-many", "many-to-one", "standby", "two-column link", "security_flow",
               "derived overrides", "measure follows standby", "variant", ":user", "role without :user",
-              "several by", "report where", "report role", "repeated natural key", "NULL"}
+              "several by", "report where", "report role", "repeated natural key", "NULL", "report condition",
+              "condition on a measure not shown"}
     assert needed - seen == set()
 
 

@@ -492,12 +492,14 @@ def test_progress_bar_only_on_a_terminal():
     assert bar.bar is not None and terminal.getvalue() != ""
 
 
-def test_demo_ends_with_the_verify_step(capsys):
+def test_demo_verify_step_shows_the_flip_and_the_proposal_beside_it(capsys):
     from modeldiff import demo
 
-    demo._verify_step(MODEL, REVISION_2)
+    with demo._generated_data() as data:
+        demo._verify_step(MODEL, REVISION_2, data)
     out = capsys.readouterr().out
-    assert "3. modeldiff verify" in out and "trips_start_station is now two-way" in out
+    assert "4. modeldiff verify" in out and "trips_start_station is now two-way" in out
     assert "station_stock: MOVED" in out and "stock_value by calendar.date: MOVED" in out
+    assert "Instead of two-way: trips_start_station (trips -> stations)" in out
     assert out.rstrip().endswith("(exit code 1: 0 nothing moved, 1 numbers moved, 3 a precondition fails or a role "
                                  "sees more rows)")

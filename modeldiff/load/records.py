@@ -63,7 +63,7 @@ _MEASURE_KEYS = ("table", "expr", "where", "via", "flow", "description", "unit",
 _VARIANT_KEYS = ("default", "options", "description")
 _OPTION_KEYS = ("via", "flow", "where")
 _ROLE_KEYS = ("filters", "description")
-_REPORT_KEYS = ("measures", "by", "where", "variant", "role", "owner", "via", "flow", "description")
+_REPORT_KEYS = ("measures", "by", "where", "variant", "role", "owner", "via", "flow", "description", "having")
 _SINGULAR = {
     "tables": "table", "links": "link", "measures": "measure",
     "variants": "variant", "roles": "role", "reports": "report",
@@ -388,6 +388,7 @@ class _RecordBuilder:
             owner=self._get_str(fields, "owner", subject),
             overrides=self._overrides(fields, subject),
             description=self._get_str(fields, "description", subject),
+            having=self._get_str(fields, "having", subject, sql=True),
         )
 
     def _overrides(self, fields: YamlMap, subject: str) -> Overrides:

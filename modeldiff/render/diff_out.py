@@ -256,4 +256,13 @@ def as_markdown(diffs: Sequence[ModelDiff], stream: TextIO) -> None:
                 extra = f" — **{extra}**" if extra else ""
                 items.append(f"- **{i.name}** ({i.severity}){_md(extra)}: {_md(why)}")
             lines += _fold(title, items)
+        lines += _instead_of_two_way(md)
     stream.write("\n".join(lines) + "\n")
+
+
+def _instead_of_two_way(md) -> list[str]:
+    """The proposal in place of each link made two-way (modeldiff.proposal), with its patch."""
+    from modeldiff import proposal
+    from modeldiff.render import proposal_out
+
+    return proposal_out.markdown_lines(proposal.proposals(md), level="####")

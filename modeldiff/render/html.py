@@ -215,8 +215,18 @@ def _model_section(md: ModelDiff, number: int) -> list[str]:
     for title, impacts in (("measures", r.measures), ("roles", r.roles), ("reports", r.reports)):
         if impacts:
             out += _impacts(title, impacts, kinds, r)
+    out += _instead_of_two_way(md)
     out.append("</section>")
     return out
+
+
+def _instead_of_two_way(md: ModelDiff) -> list[str]:
+    """The proposal in place of each link made two-way (modeldiff.proposal), with its patch."""
+    from modeldiff import proposal
+    from modeldiff.render import proposal_out
+
+    section = proposal_out.html_section(proposal.proposals(md))
+    return [section] if section else []
 
 
 def document(diffs: Sequence[ModelDiff]) -> str:

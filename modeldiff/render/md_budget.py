@@ -126,6 +126,27 @@ def _impact_row(i, kinds: dict[str, str]) -> str:
     return row if len(row) <= ROW_LIMIT else row[:ROW_LIMIT - 1] + "…"
 
 
+def _add_proposals(w: "_Writer", md) -> None:
+    """The proposals in place of links made two-way (modeldiff.proposal): whole when the patch takes at most a
+    quarter of the room left, else without the patch, else left out (said in the last line)."""
+    from modeldiff import proposal
+    from modeldiff.render import proposal_out
+
+    found = proposal.proposals(md)
+    if not found:
+        return
+    for patch in (True, False):
+        lines = proposal_out.markdown_lines(found, patch=patch, level="####")
+        if patch and len("\n".join(lines)) > w.room() // 4:
+            continue  # the patch would crowd out the impacted items: it is in the full output
+        if w.fits(lines):
+            w.add(lines)
+            if not patch:
+                w.skip("patches of proposals", len(found))
+            return
+    w.skip("proposals instead of two-way", len(found))
+
+
 def shortened(diffs: Sequence, budget: int) -> str:
     """The budgeted layout (see the module docstring)."""
     from modeldiff.render import causes_out
@@ -174,6 +195,7 @@ def shortened(diffs: Sequence, budget: int) -> str:
                 w.add(diagram)
             else:
                 w.skip("diagrams")
+        _add_proposals(w, md)
         kinds = {c.id: c.kind for c in r.changes}
         sections = []
         for title, impacts in (("roles", r.roles), ("reports", r.reports)):

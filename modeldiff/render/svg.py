@@ -43,8 +43,10 @@ DOT_NODESEP = 0.3  # inches between neighbours in a rank
 DOT_RANKSEP = 0.6  # inches between ranks
 LABEL_PAD = 8  # px of room around a label's estimated text, so a wider font still fits
 
-_FILL = {"fact": "#fff4e0", "dimension": "#e8f1fb", "bridge": "#eaf6ea", "access": "#f5ecfa", "missing": "#ffffff"}
-_STROKE = {"fact": "#b7791f", "dimension": "#3b6ea5", "bridge": "#3f8f3f", "access": "#7d4a9e", "missing": "#999999"}
+_FILL = {"fact": "#fff4e0", "dimension": "#e8f1fb", "bridge": "#eaf6ea", "access": "#f5ecfa", "missing": "#ffffff",
+         "report": "#fafafa"}
+_STROKE = {"fact": "#b7791f", "dimension": "#3b6ea5", "bridge": "#3f8f3f", "access": "#7d4a9e", "missing": "#999999",
+           "report": "#555555"}
 RED = "#d33"
 GREY = "#555"
 PURPLE = "#6a1b9a"  # picture.ROLE_COLOUR: a role's tables and the links its filters travel

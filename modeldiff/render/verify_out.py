@@ -11,6 +11,7 @@ import json
 from decimal import Decimal
 from typing import Any, Sequence, TextIO
 
+from modeldiff.render import proposal_out
 from modeldiff.verify import (OFFENDING_UNITS, Comparison, Difference, Missed, Precondition, RoleCheck, Verification,
                               json_value)
 
@@ -93,6 +94,7 @@ def verification_json(v: Verification, limit: int = 0) -> dict:
             "measures": [comparison_json(c, limit) for c in v.measures],
             "roles": [role_json(r) for r in v.roles],
             "preconditions": [precondition_json(p) for p in v.preconditions],
+            "instead_of_two_way": [proposal_out.json_of(d.proposal, d) for d in v.proposals],
             "summary": summary(v)}
 
 
@@ -261,6 +263,8 @@ def as_text(v: Verification, stream: TextIO, limit: int = 0) -> None:
         for example in p.examples:
             line(f"    e.g. {example_text(example)}")
         line(f"    {p.sql}")
+    for text in proposal_out.text_lines([d.proposal for d in v.proposals], v.proposals):
+        line(text, "bold" if text.startswith(proposal_out.TITLE) else None)
     line()
     line(f"Verdict: {s['verdict']} (exit {s['exit_code']})", "bold red" if v.missed else "bold")
 
@@ -321,4 +325,5 @@ def as_markdown(v: Verification, stream: TextIO, limit: int = 0) -> None:
         lines.append(f"- **FAIL**: `{p.check}` `{p.subject}`: {p.offending} offending {OFFENDING_UNITS.get(p.check, 'rows')}. {_md(p.why)}")
         lines += [f"  - e.g. {_md(example_text(e))}" for e in p.examples]
         lines.append(f"  - `{_md(p.sql)}`")
+    lines += proposal_out.markdown_lines([d.proposal for d in v.proposals], v.proposals)
     stream.write("\n".join(lines) + "\n")
