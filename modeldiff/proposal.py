@@ -397,7 +397,7 @@ def on_data(md, data, proposal: Proposal, user: str | None = None, moved_measure
 
 def _moves(before, after, measure: str, dropped_count: bool) -> bool:
     """Whether `measure` differs between two evaluations of a report (a group dropped counts unless told not to)."""
-    from modeldiff.verify import same_value
+    from modeldiff.util import same_value
 
     def keyed(evaluated):
         index = evaluated.columns.index(measure)

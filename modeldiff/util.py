@@ -3,8 +3,12 @@
 from __future__ import annotations
 
 import gc
+import math
 from contextlib import contextmanager
-from typing import Iterator
+from decimal import Decimal
+from typing import Any, Iterator
+
+FLOAT_TOLERANCE = 1e-9  # relative: two floating-point values this close are the same number
 
 
 @contextmanager
@@ -31,3 +35,19 @@ def paused_gc() -> Iterator[None]:
             gc.freeze()
             gc.unfreeze()
         gc.enable()
+
+
+def is_number(value: Any) -> bool:
+    return isinstance(value, (int, float, Decimal)) and not isinstance(value, bool)
+
+
+def same_value(a: Any, b: Any) -> bool:
+    """Whether two evaluated values are the same number: exact, except floating point within FLOAT_TOLERANCE."""
+    if a is None or b is None:
+        return a is None and b is None
+    if is_number(a) and is_number(b) and (isinstance(a, float) or isinstance(b, float)):
+        a, b = float(a), float(b)
+        if math.isnan(a) or math.isnan(b):
+            return math.isnan(a) and math.isnan(b)
+        return math.isclose(a, b, rel_tol=FLOAT_TOLERANCE, abs_tol=1e-12)
+    return a == b

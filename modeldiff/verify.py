@@ -31,12 +31,12 @@ from decimal import Decimal
 from typing import Any, Callable, Iterable, Mapping, Sequence, TextIO
 
 from modeldiff.errors import ModeldiffError
+from modeldiff.util import is_number, same_value
 
 FORMATS = ("text", "json", "markdown")
 DEFAULT_LIMIT = 10  # differences listed per report or measure (0: all)
 VIEWER_CAP = 5  # viewers tried for a role filtering on :user when --user is not given
 EXAMPLES = 3  # offending rows shown per failed precondition
-FLOAT_TOLERANCE = 1e-9  # relative: two floating-point values this close are the same number
 TEXT_TYPES = ("text", "date")  # types a default grouping attribute may have
 # What `offending` counts, per precondition check.
 OFFENDING_UNITS = {"unique": "rows", "not-null": "rows", "referential-integrity": "rows",
@@ -67,7 +67,7 @@ class Difference:
 
     @property
     def delta(self) -> Any:
-        if not (_is_number(self.before) and _is_number(self.after)):
+        if not (is_number(self.before) and is_number(self.after)):
             return None
         if isinstance(self.before, float) or isinstance(self.after, float):
             return float(self.after) - float(self.before)
@@ -213,22 +213,6 @@ class Verification:
 # --- values -------------------------------------------------------------------------------------------
 
 
-def _is_number(value: Any) -> bool:
-    return isinstance(value, (int, float, Decimal)) and not isinstance(value, bool)
-
-
-def same_value(a: Any, b: Any) -> bool:
-    """Whether two evaluated values are the same number: exact, except floating point within FLOAT_TOLERANCE."""
-    if a is None or b is None:
-        return a is None and b is None
-    if _is_number(a) and _is_number(b) and (isinstance(a, float) or isinstance(b, float)):
-        a, b = float(a), float(b)
-        if math.isnan(a) or math.isnan(b):
-            return math.isnan(a) and math.isnan(b)
-        return math.isclose(a, b, rel_tol=FLOAT_TOLERANCE, abs_tol=1e-12)
-    return a == b
-
-
 def _order_value(value: Any) -> tuple:
     """A sort key for any grouping value (NULL last, types kept apart)."""
     from modeldiff.data import NO_MATCH
@@ -237,7 +221,7 @@ def _order_value(value: Any) -> tuple:
         return (2, "", "")
     if value is None:
         return (1, "", "")
-    if _is_number(value):
+    if is_number(value):
         return (0, "0", float(value))
     return (0, type(value).__name__, str(value))
 
@@ -248,7 +232,7 @@ def _magnitude(d: Difference) -> float | None:
     if delta is not None:
         return abs(float(delta))
     present = d.after if d.present == "after" else d.before if d.present == "before" else None
-    return abs(float(present)) if _is_number(present) else None
+    return abs(float(present)) if is_number(present) else None
 
 
 def sort_differences(differences: Iterable[Difference]) -> tuple[Difference, ...]:

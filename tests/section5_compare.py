@@ -23,7 +23,7 @@ def _key(values):
 def disagreements(model, rows, db, report: str, user: str | None) -> list[str]:
     """Differences between the engine's rows and the reference's, in words (empty when they agree)."""
     from modeldiff.data import NO_MATCH, evaluate_report
-    from modeldiff.verify import same_value
+    from modeldiff.util import same_value
 
     got = evaluate_report(model, report, db, user)
     groups = got.groups
