@@ -19,6 +19,11 @@ what changed (Mermaid, from `modeldiff.picture`) follows each model whose links
 or filter paths changed. A security exposure is said plainly, with the caution
 that the organisation's own review decides. The command exits 0: the notes
 are a document; `modeldiff diff` and the hook are the gates.
+
+Markdown notes fit a pull-request comment (65,536 characters) by default:
+longer ones are shortened by `shortened` (breaking changes whole, the rest
+folded and counted), with the writer `diff --format markdown` uses
+(`render/md_budget.py`); `--budget N|none` sets another size.
 """
 
 from __future__ import annotations
@@ -483,7 +488,9 @@ def _folded_items(model: dict) -> list[tuple]:
         if found:
             rows = [cut(line) for line, _ in found]
             weights = [_weight(line) for line, _ in found]
-            items.append(("rows", f"{SEVERITY_TITLES[severity]} ({sum(weights)} changes)", rows, weights, what))
+            n = sum(weights)
+            items.append(("rows", f"{SEVERITY_TITLES[severity]} ({n} change{'s' if n != 1 else ''})", rows, weights,
+                          what))
     for title, names in model["impacted"]:
         items.append(("rows", f"Impacted {title} ({len(names)})", [cut(f"- {n}") for n in names], None,
                       f"impacted {title}"))

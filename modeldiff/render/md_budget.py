@@ -1,4 +1,5 @@
-"""`diff --format markdown` within a budget of characters, so it fits where it is read.
+"""Markdown within a budget of characters, so it fits where it is read: `diff --format markdown` (here) and
+the notes (`notes.shortened`), both written with `Writer`.
 
 A pull-request comment holds 65,536 characters (`COMMENT`, the default); a CI
 job summary 1 MiB (`--budget 1048576`); `--budget none` writes everything.
@@ -10,9 +11,10 @@ Otherwise, in this order and always whole:
    change whole (id, kind, subject, message) and the new revision's errors;
 
 then, while they fit, each in a folded `<details>` block that says how many it
-holds: the diagram (already cut to a readable size), the changes that can move
-numbers and the safe ones, then the impacted roles, reports and measures, one
-row at a time. Whatever did not fit is counted on a last line, which says how
+holds: the diagram (already cut to a readable size; whole or not at all), the
+changes that can move numbers and the safe ones, then the impacted roles,
+reports and measures, one row at a time. Each block gets as much room as it
+needs while the others get as much (`fair_shares`, max-min fairness). Whatever did not fit is counted on a last line, which says how
 to get all of it (`--format json`, `--format html`, `--budget none`).
 
 Should the breaking changes alone not fit, the ones that do are written whole
