@@ -453,29 +453,58 @@ def _title_lines(model: dict, level: int) -> list[str]:
     return lines
 
 
-def _open_block(w, place: list, heading: list[str], models: list[dict], level: int) -> list:
+def _open_block(w, place: list, heading: list[str], models: list[dict], level: int) -> list | None:
     """Write a block's heading, its models' titles with their counts, and their breaking changes whole.
 
-    Returns, per model, the slots kept for its summary by cause and for the rest (None for an unchanged model).
+    What it writes was promised beforehand (`w.expect(_promised(...))`). Returns, per model, the slots kept
+    for its summary by cause and for the rest (None for an unchanged model), or None when even the block's
+    heading no longer fits (the block is then left out).
     """
-    w.add(heading, place)
+    def give_up(rest: list[dict]) -> None:
+        """Release what was promised to the breaking changes of models left out, and count them."""
+        for model in rest:
+            breaking = [] if model["unchanged"] else model["changes"].get("breaking", [])
+            if breaking:
+                w.pending -= sum(len(line) + 1 for line in _BREAKING_TITLE + [short for _, short in breaking])
+                w.skip("breaking changes (beyond the budget)", len(breaking))
+
+    if not w.must_lines(heading, place):
+        for model in models:
+            w.pending -= sum(len(line) + 1 for line in _title_lines(model, level))
+        give_up(models)
+        return None
     slots = []
     for model in models:
-        w.add(_title_lines(model, level), place)
+        if not w.must_lines(_title_lines(model, level), place):
+            slots.append(None)
+            give_up([model])
+            continue
         if model["unchanged"]:
             slots.append(None)
             continue
         causes = w.slot(place)
         breaking = model["changes"].get("breaking", [])
         if breaking:
-            w.add(["", f"**{SEVERITY_TITLES['breaking']}**", ""], place)
+            w.must_lines(_BREAKING_TITLE, place)
             for line, short in breaking:
-                if not w.fits([line]):
-                    line = short
-                    w.skip("messages of breaking changes")
-                w.add([line], place)
+                w.must(line, short, place)
         slots.append((causes, w.slot(place)))
     return slots
+
+
+_BREAKING_TITLE = ["", f"**{SEVERITY_TITLES['breaking']}**", ""]
+
+
+def _promised(heading: list[str], models: list[dict], level: int) -> list[str]:
+    """What `_open_block` writes of a block with a breaking change before anything optional: its headings, and
+    the short forms of its breaking changes (the whole ones take the room they need if it is there)."""
+    lines = list(heading)
+    for model in models:
+        lines += _title_lines(model, level)
+        breaking = model["changes"].get("breaking", [])
+        if breaking and not model["unchanged"]:
+            lines += _BREAKING_TITLE + [short for _, short in breaking]
+    return lines
 
 
 def _folded_items(model: dict) -> list[tuple]:
@@ -549,9 +578,17 @@ def shortened(notes: Notes, pieces, squashed: list[dict], budget: int) -> str:
     w = md_budget.Writer(budget)
     w.add(_head(notes))
     places: list[list] = []
+    w.expect([line for heading, models, level in blocks() if urgent(models)
+              for line in _promised(heading, models, level)])
+    section = "commits' sections (with all they hold)" if notes.mode == "per-commit" else "models' sections"
     for heading, models, level in blocks():
         place = w.slot()
-        places.append([place, _open_block(w, place, heading, models, level) if urgent(models) else None])
+        opened = None
+        if urgent(models):
+            opened = _open_block(w, place, heading, models, level)
+            if opened is None:
+                w.skip(section)
+        places.append([place, opened, urgent(models)])
     tail = w.slot()
     commit_list = w.slot(tail)
     quiet = [c for c in notes.commits if not c.changed_models]
@@ -562,11 +599,13 @@ def shortened(notes: Notes, pieces, squashed: list[dict], budget: int) -> str:
     w.add(line, tail)
     # the headings of the other blocks, in order
     for place, (heading, models, level) in zip(places, blocks()):
-        if place[1] is None:
-            if w.fits(heading + [line for m in models for line in _title_lines(m, level)]):
+        if place[1] is None and not place[2]:
+            lines = heading + [line for m in models for line in _title_lines(m, level)]
+            if w.fits(lines):
+                w.expect(lines)
                 place[1] = _open_block(w, place[0], heading, models, level)
             else:
-                w.skip("commits' sections (with all they hold)" if notes.mode == "per-commit" else "models' sections")
+                w.skip(section)
     # each model's summary by cause
     for place, (_, models, _) in zip(places, blocks()):
         for slots, model in zip(place[1] or (), models):

@@ -118,26 +118,36 @@ def test_a_larger_budget_holds_more(walked):
     assert len(re.findall(r"^- m\d+ \(", summary, re.M)) > len(re.findall(r"^- m\d+ \(", comment, re.M))
 
 
-def test_a_tiny_budget_still_names_every_breaking_change_and_counts_the_commits_it_left_out(walked):
+def _count(text: str, what: str) -> int:
+    found = re.search(rf"([0-9,]+) {re.escape(what)}", _last(text))
+    return int(found.group(1).replace(",", "")) if found else 0
+
+
+@pytest.mark.parametrize("budget", [4_000, 12_000])
+def test_a_small_budget_holds_and_every_breaking_change_is_named_or_counted(walked, budget):
     found = walked["per-commit"]
     whole = _markdown(found, None)
-    text = _markdown(found, 4_000)
-    ids = {}  # per commit heading, the ids of its breaking changes
-    heading = None
-    for line in whole.splitlines():
-        if line.startswith("## `"):
-            heading = line
-        elif line in _breaking_lines(whole):
-            ids.setdefault(heading, []).append(re.search(r"\((c\d+)[;)]", line).group(1))
-    assert ids
-    for heading, numbers in ids.items():
-        part = text[text.index(heading):]
-        part = part[:part.find("\n## ", 1) if "\n## " in part[1:] else len(part)]
-        assert all(f"({n})" in part or f"({n};" in part for n in numbers), heading
+    breaking = _breaking_lines(whole)
+    text = _markdown(found, budget)
+    assert len(text) <= budget  # the budget always holds: a longer comment is not posted at all
+    named = [line for line in _breaking_lines(text)]
+    assert set(named) <= set(breaking) | {line for line in named if "message left out for length" in line}
+    shortened = sum("message left out for length" in line for line in named)
+    assert shortened == _count(text, "messages of breaking changes")
+    assert len(named) + _count(text, "breaking changes (beyond the budget)") == len(breaking)
     changed = sum(c.changed_models for c in found.commits)
     shown = len(re.findall(r"^## `", text, re.M))
-    left = re.search(r"([0-9,]+) commits' sections", _last(text))
-    assert left and shown + int(left.group(1)) == changed
+    assert shown + _count(text, "commits' sections") == changed and _count(text, "commits' sections") > 0
+
+
+def test_a_budget_short_of_the_breaking_changes_messages_names_each_by_id_kind_and_subject(walked):
+    found = walked["per-commit"]
+    breaking = _breaking_lines(_markdown(found, None))
+    # room for every breaking change's short form, not for every message
+    text = _markdown(found, sum(len(line) for line in breaking) // 2 + 4_000)
+    named = _breaking_lines(text)
+    assert len(named) == len(breaking) and any("message left out for length" in line for line in named)
+    assert "beyond the budget" not in _last(text)
 
 
 def test_notes_that_fit_are_written_whole_without_a_note(tmp_path, monkeypatch):

@@ -7,8 +7,9 @@ When the whole Markdown (`diff_out.as_markdown`) fits, it is written as is.
 Otherwise, in this order and always whole:
 
 1. the table of models and verdicts;
-2. per model: the security caution, the summary by cause, every breaking
-   change whole (id, kind, subject, message) and the new revision's errors;
+2. per model: the security caution, the summary by cause (unless the
+   breaking changes need its room), every breaking change whole (id, kind,
+   subject, message) and the new revision's errors;
 
 then, while they fit, each in a folded `<details>` block that says how many it
 holds: the diagram (already cut to a readable size; whole or not at all), the
@@ -17,10 +18,11 @@ reports and measures, one row at a time. Each block gets as much room as it
 needs while the others get as much (`fair_shares`, max-min fairness). Whatever did not fit is counted on a last line, which says how
 to get all of it (`--format json`, `--format html`, `--budget none`).
 
-Should the breaking changes alone not fit, the ones that do are written whole
-and the others by id, kind and subject only (each line says so), still within
-the budget when at all possible: the budget wins over completeness only for
-what cannot be listed in a line each.
+Should the breaking changes alone not fit, each is written whole while the
+short forms of those after it still fit, else by id, kind and subject only
+(the line says so), and those beyond even that are counted on the last line
+(`Writer.must`): the budget always holds, since a comment over its limit is
+not posted at all.
 """
 
 from __future__ import annotations
@@ -99,9 +101,45 @@ class Writer:
         self._root: list = []  # lines and slots (lists of the same), in document order
         self.size = 0
         self.left_out: dict[str, int] = {}
+        self.pending = 0  # characters promised to lines `must` and `must_lines` will write later (`expect`)
 
     def room(self) -> int:
+        """Characters left for what is optional: the budget, less what is written, the closing lines and what
+        is promised to the lines that must come."""
+        return self._free() - self.pending
+
+    def _free(self) -> int:
         return self.budget - _RESERVE - self.size
+
+    def expect(self, lines: Sequence[str]) -> None:
+        """Promise room to lines written later by `must` (their short forms) or `must_lines`."""
+        self.pending += sum(len(line) + 1 for line in lines)
+
+    def must_lines(self, lines: Sequence[str], into: list | None = None) -> bool:
+        """Lines promised by `expect` (a heading the breaking changes need): written when they fit at all."""
+        size = sum(len(line) + 1 for line in lines)
+        self.pending -= size
+        if size > self._free():
+            return False
+        self.add(lines, into)
+        return True
+
+    def must(self, whole: str, short: str, into: list | None = None) -> None:
+        """A line that should be there whole (a breaking change), its short form promised by `expect`.
+
+        Whole while that leaves the room promised to the lines still to come;
+        else its short form (id, kind and subject), while it fits at all; else
+        counted as left out. The budget always holds: a comment longer than
+        its limit is not posted at all.
+        """
+        self.pending -= len(short) + 1
+        if len(whole) + 1 <= self.room():
+            self.add([whole], into)
+        elif len(short) + 1 <= self._free():
+            self.add([short], into)
+            self.skip("messages of breaking changes")
+        else:
+            self.skip("breaking changes (beyond the budget)")
 
     def fits(self, lines: Sequence[str]) -> bool:
         return sum(len(line) + 1 for line in lines) <= self.room()
@@ -212,6 +250,13 @@ def shortened(diffs: Sequence, budget: int) -> str:
         w.add([f"| `{r.new.name or r.old.name}` | **{r.verdict}** | {c['breaking']} | {c['numbers']} | {c['safe']} | "
                f"{len(r.measures)} | {len(r.roles)} | {len(r.reports)} |"])
     header = ["| id | kind | subject | what it means |", "|---|---|---|---|"]
+
+    def breaking_rows(result) -> list[tuple[str, str]]:
+        return [(f"| {c.id} | `{c.kind}` | `{c.subject}` | {_md(c.message)} |",
+                 f"| {c.id} | `{c.kind}` | `{c.subject}` | (message left out for length) |")
+                for c in result.changes if c.severity == "breaking"]
+
+    w.expect([short for md in diffs for _, short in breaking_rows(md.result)])
     # first pass: what is always written, for every model
     for md in diffs:
         r = md.result
@@ -222,17 +267,15 @@ def shortened(diffs: Sequence, budget: int) -> str:
             w.add(["No changes."])
             continue
         by_cause = causes_out.markdown_lines(r)
-        if by_cause:
+        if by_cause and w.fits(by_cause + [""]):
             w.add(by_cause + [""])
-        breaking = [c for c in r.changes if c.severity == "breaking"]
+        elif by_cause:
+            w.skip("summaries by cause")
+        breaking = breaking_rows(r)
         if breaking:
             w.add([f"#### Breaking changes ({len(breaking)})", "", *header])
-            for c in breaking:
-                row = f"| {c.id} | `{c.kind}` | `{c.subject}` | {_md(c.message)} |"
-                if not w.fits([row]):
-                    row = f"| {c.id} | `{c.kind}` | `{c.subject}` | (message left out for length) |"
-                    w.skip("messages of breaking changes")
-                w.add([row])
+            for whole, short in breaking:
+                w.must(whole, short)
         if r.new_errors:
             w.add(["", "**Errors in the new revision:**", ""]
                   + [f"- `{f.rule}` `{f.subject}`: {_md(f.message)}" for f in r.new_errors])
