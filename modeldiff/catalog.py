@@ -8,7 +8,10 @@ keys. Each source of a catalog is a `CatalogReader` (one method, `read()`):
   duckdb_constraints(), opened read-only and locked (modeldiff.data, the only
   module that imports duckdb);
 - `DdlCatalog`: a SQL script of CREATE TABLE and ALTER TABLE ... ADD
-  statements, parsed with sqlglot; no database needed.
+  statements, parsed with sqlglot; no database needed;
+- `FolderCatalog`: a data folder of `<table>.parquet` / `<table>.csv` files,
+  as `eval --data DIR` reads it (modeldiff.data.folder_catalog): columns and
+  types only, since such files declare no keys (`Catalog.constraints` False).
 
 A reader of another warehouse (PostgreSQL's information_schema) is one more
 class with a `read()` returning the same records.
@@ -22,7 +25,7 @@ from __future__ import annotations
 
 import os
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Protocol
 
 from modeldiff.errors import ModeldiffError
@@ -55,6 +58,9 @@ class Catalog:
     source: str  # how to name the source in the draft's header
     tables: tuple[CatalogTable, ...]
     views: tuple[str, ...] = ()
+    constraints: bool = True  # False: the source cannot declare keys (a data folder): none is missing
+    notes: tuple[str, ...] = ()  # what the reader passed over
+    inferred: tuple[str, ...] = ()  # tables whose column types were inferred from values (CSV files)
 
 
 class CatalogReader(Protocol):
@@ -125,6 +131,38 @@ class DuckDBCatalog:
         return Catalog(f"{os.path.basename(self.path)} (schema {self.schema})", tuple(
             CatalogTable(name, tuple(t["columns"]), tuple(t["pk"]), tuple(t["uniques"]), tuple(t["fks"]))
             for name, t in tables.items()), tuple(views))
+
+
+# --- data folder (Parquet / CSV) -----------------------------------------------------------
+
+
+class FolderCatalog:
+    """The tables of a data folder: `<table>.parquet` or `<table>.csv`, columns and types, no constraints.
+
+    A column whose type maps to a model type that `eval` cannot read from the
+    file (a UUID as text, say) is left out with a note, so that the draft
+    passes `check --data` on the same folder.
+    """
+
+    def __init__(self, path: str) -> None:
+        self.path = os.fspath(path)
+
+    def read(self) -> Catalog:
+        from modeldiff import data
+
+        columns, files, notes = data.folder_catalog(self.path)
+        tables: dict[str, list[tuple[str, str]]] = {table: [] for table in files}
+        notes = list(notes)
+        for table, column, type_ in columns:
+            mapped = model_type(type_)
+            if mapped is not None and not data.type_fits(mapped, type_):
+                notes.append(f"column {column} of {table} ({type_}) left out: eval does not read it as {mapped}")
+                continue
+            tables[table].append((column, type_))
+        shown = os.path.basename(os.path.normpath(self.path)) or self.path
+        return Catalog(f"the data folder {shown}", tuple(CatalogTable(t, tuple(c)) for t, c in tables.items()),
+                       constraints=False, notes=tuple(notes),
+                       inferred=tuple(t for t, suffix in files.items() if suffix == "csv"))
 
 
 # --- DDL script ---------------------------------------------------------------------------
@@ -324,4 +362,4 @@ def resolve_references(catalog: Catalog) -> Catalog:
             fks.append(ForeignKey(fk.columns, ref_table, ref_columns))
         uniques = tuple(u for u in table.uniques if u)
         tables.append(CatalogTable(table.name, table.columns, table.primary_key, uniques, tuple(fks)))
-    return Catalog(catalog.source, tuple(tables), catalog.views)
+    return replace(catalog, tables=tuple(tables))

@@ -717,3 +717,62 @@ def _data_file(data_dir: str, name: str) -> str | None:
         if os.path.isfile(path) and os.path.dirname(os.path.realpath(path)) == root:
             return path
     return None
+
+
+def folder_catalog(data_dir: str) -> tuple[list[tuple[str, str, str]], dict[str, str], list[str]]:
+    """The tables of a data folder as `eval --data DIR` finds them, with their columns: what `draft --data` reads.
+
+    A table is a regular file `<name>.parquet` or `<name>.csv` directly in
+    the folder (Parquet first when both are there, as `eval` reads them).
+    Returns (columns, files, notes): columns as (table, column, DuckDB type)
+    in table-name then file order: a Parquet file's types are its schema's; a
+    CSV file's are what DuckDB's CSV sniffer infers from its values; files as
+    table -> "parquet" or "csv". Notes say
+    what was passed over (a CSV beside a Parquet of the same name, a link
+    leading out of the folder). The connection may read only those files
+    (`lock`) and reads their schemas, not their rows (the sniffer samples a CSV).
+    """
+    import duckdb
+
+    if not os.path.isdir(data_dir):
+        raise ModeldiffError(f"{data_dir}: no such folder; give the folder holding <table>.parquet or <table>.csv")
+    root = _real(data_dir)
+    try:
+        names = sorted(os.listdir(data_dir))
+    except OSError as error:
+        raise ModeldiffError(f"{data_dir}: cannot list it ({error.strerror}); give a readable folder") from None
+    found: dict[str, tuple[str, str]] = {}  # table -> (suffix, path)
+    notes: list[str] = []
+    for suffix in ("parquet", "csv"):
+        for entry in names:
+            if not entry.endswith("." + suffix) or len(entry) == len(suffix) + 1:
+                continue
+            table, path = entry[: -len(suffix) - 1], os.path.join(data_dir, entry)
+            if not os.path.isfile(path):
+                continue
+            if os.path.dirname(_real(path)) != root:
+                notes.append(f"{entry} left out: it is a link leading out of the folder")
+            elif table in found:
+                notes.append(f"{entry} left out: {table}.parquet is read for table {table}, as eval reads it")
+            else:
+                found[table] = (suffix, _real(path))
+    if not found:
+        raise ModeldiffError(f"{data_dir} holds no <table>.parquet or <table>.csv file; give the folder eval reads "
+                             "with --data")
+    connection = duckdb.connect(":memory:", config=dict(LOCKED_CONFIG))
+    columns: list[tuple[str, str, str]] = []
+    try:
+        lock(connection, [path for _, path in found.values()])
+        for table in sorted(found):
+            suffix, path = found[table]
+            relation = (f"read_parquet({_literal(path)})" if suffix == "parquet"
+                        else f"read_csv({_literal(path)}, header = true)")
+            try:
+                rows = connection.execute(f"DESCRIBE SELECT * FROM {relation}").fetchall()
+            except duckdb.Error as error:
+                raise ModeldiffError(f"{os.path.join(data_dir, table + '.' + suffix)}: cannot read it as "
+                                     f"{suffix.upper()} ({_first_line(error)}); fix or replace the file") from None
+            columns += [(table, row[0], row[1]) for row in rows]
+    finally:
+        connection.close()
+    return columns, {table: suffix for table, (suffix, _) in sorted(found.items())}, notes

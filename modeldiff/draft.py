@@ -1,4 +1,4 @@
-"""Draft a model file from a database's catalog: `modeldiff draft --db FILE.duckdb | --ddl FILE.sql`.
+"""Draft a model file from a database's catalog: `modeldiff draft --db FILE.duckdb | --ddl FILE.sql | --data DIR`.
 
 What the catalog says is written as it is; what is guessed carries a YAML
 comment starting `guess:` for the user to review:
@@ -29,6 +29,11 @@ what they are): they are listed, commented out, at the end; tables with no
 primary key are drafted without `key` and listed in the header. The draft has
 no measures, roles or reports. It passes `modeldiff check` with no error.
 
+A data folder (`--data DIR`: `<table>.parquet` / `<table>.csv`, as `eval`
+reads it) declares no keys: every table is drafted with its columns and
+types, `kind: fact` marked as the user's to set, and nothing else; the header
+lists the tables needing a key and links (`_unconstrained`).
+
 The file is written whole or not at all (a temporary file renamed into
 place), and an existing file only with --force.
 """
@@ -38,10 +43,11 @@ from __future__ import annotations
 import os
 import re
 import tempfile
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from typing import TextIO
 
-from modeldiff.catalog import Catalog, CatalogTable, DdlCatalog, DuckDBCatalog, model_type, resolve_references
+from modeldiff.catalog import (Catalog, CatalogTable, DdlCatalog, DuckDBCatalog, FolderCatalog, model_type,
+                               resolve_references)
 from modeldiff.errors import ModeldiffError, UsageError
 
 NAME = re.compile(r"[A-Za-z][A-Za-z0-9_]*\Z")
@@ -71,6 +77,7 @@ class DraftTable:
     unique: set[str] = field(default_factory=set)
     kind: str = "fact"
     kind_reason: str = ""
+    kind_comment: str = "guess"  # what the comment beside `kind` starts with
     history: dict | None = None  # valid_from, valid_to, current (may be None)
     history_reason: str = ""
     notes: list[str] = field(default_factory=list)
@@ -101,14 +108,16 @@ class Draft:
     links: list[DraftLink]
     left_out: list[tuple[str, str, list[tuple[str, str]]]]  # (table, why, columns)
     notes: list[str]
+    constraints: bool = True  # False: drafted from a source that declares no keys (a data folder)
+    inferred: tuple[str, ...] = ()  # tables whose column types were inferred from values
 
 
 def draft(catalog: Catalog, name: str) -> Draft:
     """The draft model of a catalog: see the module's docstring for what is read and what is guessed."""
     catalog = resolve_references(catalog)
-    catalog = Catalog(catalog.source, tuple(sorted(catalog.tables, key=lambda t: (t.name.lower(), t.name))),
-                      tuple(sorted(catalog.views)))  # the same draft whatever order the source lists them in
-    notes: list[str] = []
+    catalog = replace(catalog, tables=tuple(sorted(catalog.tables, key=lambda t: (t.name.lower(), t.name))),
+                      views=tuple(sorted(catalog.views)))  # the same draft whatever order the source lists them in
+    notes: list[str] = list(catalog.notes)
     left_out: list[tuple[str, str, list[tuple[str, str]]]] = []
     kept: dict[str, tuple[CatalogTable, DraftTable]] = {}  # lower-case name -> (catalog table, draft table)
     for table in catalog.tables:
@@ -120,6 +129,8 @@ def draft(catalog: Catalog, name: str) -> Draft:
             continue
         kept[table.name.lower()] = (table, _table(table))
     links = _links(kept, notes)
+    if not catalog.constraints:
+        return _unconstrained(catalog, name, kept, notes)
     linked = {t for link in links for t in (link.from_table.lower(), link.to_table.lower())}
     for lower, (source, table) in list(kept.items()):
         if lower not in linked:
@@ -135,6 +146,28 @@ def draft(catalog: Catalog, name: str) -> Draft:
     _standby_and_names(links, kept)
     tables = sorted((table for _, table in kept.values()), key=lambda t: (_KIND_ORDER[t.kind], t.name.lower()))
     return Draft(name, catalog.source, tables, links, sorted(left_out, key=lambda t: t[0].lower()), notes)
+
+
+def _unconstrained(catalog: Catalog, name: str, kept: dict[str, tuple[CatalogTable, DraftTable]],
+                   notes: list[str]) -> Draft:
+    """The draft of a source that declares no keys (a data folder): every table with its columns, nothing guessed.
+
+    Each table is written `kind: fact` with a comment saying that the kind is
+    the user's to set; no key, natural key, link or history is guessed (a
+    pair of validity-date columns is pointed out in a note).
+    """
+    tables = []
+    for source, table in kept.values():
+        table.kind_comment = "to set"
+        table.kind_reason = ("the files declare no kinds; fact until you choose dimension, bridge or access "
+                             "(and add its key)")
+        pair = _validity_pair(table)
+        if pair is not None:
+            table.notes.append(f"{pair[0]} and {pair[1]} look like validity dates: if this is a type-2 dimension, "
+                               "add `history` and its `natural_key`")
+        tables.append(table)
+    tables.sort(key=lambda t: t.name.lower())
+    return Draft(name, catalog.source, tables, [], [], notes, constraints=False, inferred=catalog.inferred)
 
 
 def _column_names(table: CatalogTable, draft_table: DraftTable, columns: tuple[str, ...]) -> tuple[str, ...] | None:
@@ -239,11 +272,16 @@ def _last_words(name: str, words: str) -> bool:
     return lower == words or lower.endswith("_" + words)
 
 
-def _guess_history(table: DraftTable, source: CatalogTable) -> None:
+def _validity_pair(table: DraftTable) -> tuple[str, str] | None:
+    """The first pair of date columns named like validity dates with the same prefix (`valid_from`/`valid_to`)."""
     dated = [name for name, type_ in table.columns if type_ in ("date", "timestamp")]
-    pair = next(((a, b) for start, end in _VALIDITY_PAIRS
+    return next(((a, b) for start, end in _VALIDITY_PAIRS
                  for a in dated if _last_words(a, start)
                  for b in dated if _last_words(b, end) and a[: len(a) - len(start)] == b[: len(b) - len(end)]), None)
+
+
+def _guess_history(table: DraftTable, source: CatalogTable) -> None:
+    pair = _validity_pair(table)
     if pair is None:
         return
     fk_columns = {c.lower() for fk in source.foreign_keys for c in fk.columns}
@@ -301,6 +339,14 @@ def _one_line(text: str) -> str:
     return "".join(c if c.isprintable() else "?" for c in " ".join(text.split()))
 
 
+def _wrapped(first: str, text: str, width: int = 110) -> list[str]:
+    """`first` + `text` as YAML comment lines of about `width` characters (the later ones start `#   `)."""
+    import textwrap
+
+    return textwrap.wrap(text, width, initial_indent=first, subsequent_indent="#   ", break_long_words=False,
+                         break_on_hyphens=False)
+
+
 def _name(text: str) -> str:
     return f'"{text}"' if text in _YAML_WORDS else text
 
@@ -319,11 +365,21 @@ def render(result: Draft) -> str:
     """The draft as YAML text: header notes, tables, links, and the tables left out, commented out."""
     lines = [
         f"# Drafted by `modeldiff draft` from {_one_line(result.source)}.",
-        "# Review every comment starting `guess:`; the rest is what the catalog says.",
+        "# Review every comment starting `guess:`; the rest is what the catalog says." if result.constraints else
+        "# Nothing is guessed: the tables, columns and types are what the files say.",
         "# Measures, roles and reports are yours to add.",
     ]
     no_key = sorted(t.name for t in result.tables if not t.key)
-    if no_key:
+    if not result.constraints:
+        lines += ["# Parquet and CSV files declare no keys and no foreign keys, so none is guessed. Still yours "
+                  "to add:",
+                  "# each table's `kind` (each is written `fact`), its `key` (and `natural_key`), and the `links:`",
+                  "# between the tables (one per foreign key, `from` the referencing column `to` the key).",
+                  *_wrapped("# Needing a key and links: ", f"{', '.join(_one_line(t) for t in no_key) or 'none'}.")]
+        if result.inferred:
+            lines += _wrapped("# Column types inferred from the values by DuckDB's CSV reader (check them): ",
+                              f"{', '.join(_one_line(t) for t in result.inferred)}.")
+    elif no_key:
         lines.append(f"# No primary key (no `key` written): {', '.join(no_key)}.")
     if result.left_out:
         lines.append(f"# Not drafted, listed commented out at the end: {', '.join(t for t, _, _ in result.left_out)}.")
@@ -335,7 +391,7 @@ def render(result: Draft) -> str:
     if not result.tables:
         lines[-1] = "tables: {}"
     for table in result.tables:
-        lines += ["", f"  {_name(table.name)}:", f"    kind: {table.kind}  # guess: {table.kind_reason}"]
+        lines += ["", f"  {_name(table.name)}:", f"    kind: {table.kind}  # {table.kind_comment}: {table.kind_reason}"]
         if table.key:
             lines.append(f"    key: {_names_value(table.key)}")
         if table.natural_key:
@@ -400,16 +456,21 @@ def write_atomically(path: str, text: str, force: bool = False) -> None:
 
 
 def model_name_of(path: str) -> str:
-    """A model name from a file name: `shop.duckdb` -> shop, `2024 sales.sql` -> m2024_sales."""
-    stem = os.path.basename(path).split(".")[0]
+    """A model name from a file or folder name: `shop.duckdb` -> shop, `2024 sales.sql` -> m2024_sales."""
+    stem = os.path.basename(os.path.normpath(path)).split(".")[0]
     name = re.sub(r"[^A-Za-z0-9_]+", "_", stem).strip("_") or "model"
     return name if name[0].isalpha() else "m" + name
 
 
-def reader_of(db: str | None, ddl: str | None, schema: str | None, dialect: str | None = None):
-    """The catalog reader for the command's options: a DuckDB file or a DDL script."""
-    if (db is None) == (ddl is None):
-        raise UsageError("give one of --db FILE.duckdb or --ddl FILE.sql")
+def reader_of(db: str | None, ddl: str | None, schema: str | None, dialect: str | None = None,
+              data_dir: str | None = None):
+    """The catalog reader for the command's options: a DuckDB file, a DDL script or a data folder."""
+    if sum(x is not None for x in (db, ddl, data_dir)) != 1:
+        raise UsageError("give one of --db FILE.duckdb, --ddl FILE.sql or --data DIR")
+    if data_dir is not None:
+        if schema is not None:
+            raise UsageError("--schema goes with --db or --ddl (a data folder has no schemas)")
+        return FolderCatalog(data_dir)
     if db is not None:
         if "://" in db:
             raise ModeldiffError(f"{db}: database URLs are not read yet; give a DuckDB file, or the DDL with --ddl")
@@ -420,6 +481,8 @@ def reader_of(db: str | None, ddl: str | None, schema: str | None, dialect: str 
 def configure(parser) -> None:
     parser.add_argument("--db", metavar="FILE.duckdb", help="read the catalog of this DuckDB file (read-only)")
     parser.add_argument("--ddl", metavar="FILE.sql", help="read CREATE TABLE / ALTER TABLE statements from this script")
+    parser.add_argument("--data", metavar="DIR", help="read the tables of a data folder (<table>.parquet or "
+                                                      "<table>.csv, as eval reads them): columns and types, no keys")
     parser.add_argument("--schema", metavar="NAME", help="the schema to draft (DuckDB default: main; DDL: all)")
     parser.add_argument("--dialect", metavar="NAME", help="SQL dialect of --ddl, as sqlglot names it (default: generic)")
     parser.add_argument("--name", metavar="MODEL", help="the model's name (default: from the file name)")
@@ -430,11 +493,11 @@ def configure(parser) -> None:
 def run(args, stdout: TextIO) -> int:
     if args.name is not None and not NAME.match(args.name):
         raise UsageError(f"--name {args.name!r}: a model name is letters, digits and _, starting with a letter")
-    reader = reader_of(args.db, args.ddl, args.schema, args.dialect)
+    reader = reader_of(args.db, args.ddl, args.schema, args.dialect, args.data)
     if args.output is not None and os.path.lexists(args.output) and not args.force:
         raise ModeldiffError(f"{args.output} already exists; give --force to replace it, or another -o")
     catalog = reader.read()
-    text = render(draft(catalog, args.name or model_name_of(args.db or args.ddl)))
+    text = render(draft(catalog, args.name or model_name_of(args.db or args.ddl or args.data)))
     if args.output is None:
         stdout.write(text)
     else:

@@ -19,6 +19,11 @@ what changed (Mermaid, from `modeldiff.picture`) follows each model whose links
 or filter paths changed. A security exposure is said plainly, with the caution
 that the organisation's own review decides. The command exits 0: the notes
 are a document; `modeldiff diff` and the hook are the gates.
+
+Markdown notes fit a pull-request comment (65,536 characters) by default:
+longer ones are shortened by `shortened` (breaking changes whole, the rest
+folded and counted), with the writer `diff --format markdown` uses
+(`render/md_budget.py`); `--budget N|none` sets another size.
 """
 
 from __future__ import annotations
@@ -154,19 +159,27 @@ def read_notes(root: str, range_text: str, mode: str = "squash", render=None) ->
 # --- words --------------------------------------------------------------------------------------
 
 
-def _diagram(md) -> str | None:
-    """Mermaid source of what changed in one model (modeldiff.picture), or None when no link or path changed."""
-    from modeldiff.picture import diff_picture, mermaid_of, readable
+def _picture(md):
+    """The picture of what changed in one model (modeldiff.picture, cut to a readable size), or None."""
+    from modeldiff.picture import diff_picture, readable
 
     pic = diff_picture(md.result, limit=0)
-    return None if pic is None else mermaid_of(readable(pic)).rstrip("\n")
+    return None if pic is None else readable(pic)
+
+
+def _diagram(md) -> str | None:
+    """Mermaid source of what changed in one model (modeldiff.picture), or None when no link or path changed."""
+    from modeldiff.picture import mermaid_of
+
+    pic = _picture(md)
+    return None if pic is None else mermaid_of(pic).rstrip("\n")
 
 
 def _md(text: str) -> str:
     return text.replace("|", "\\|").replace("\n", " ")
 
 
-def _names(impacts, owners: dict[str, str] | None = None) -> str:
+def _names(impacts, owners: dict[str, str] | None = None) -> list[str]:
     parts = []
     for i in impacts:
         extra = [i.severity]
@@ -174,63 +187,109 @@ def _names(impacts, owners: dict[str, str] | None = None) -> str:
             extra.append(f"now sees rows of {', '.join(i.exposed)} it did not")
         if owners is not None and owners.get(i.name):
             extra.append(f"owner {owners[i.name]}")
-        parts.append(f"{i.name} ({'; '.join(extra)})")
-    return ", ".join(parts)
+        parts.append(_md(f"{i.name} ({'; '.join(extra)})"))
+    return parts
 
 
-def _path_line(kind: str, group) -> str:
+def _path_line(kind: str, group) -> tuple[str, str]:
+    """The line of new or vanished filter paths, and its short form (count and ids only)."""
     pairs = [c.subject.split(".", 1)[1].replace("->", " → ") for c in group]
     ids = ", ".join(c.id for c in group)
     what = "New filter paths" if kind == "path.added" else "Filter paths that no longer exist"
-    return f"- {what} ({len(group)}): {', '.join(pairs)} ({ids})"
+    return f"- {what} ({len(group)}): {', '.join(pairs)} ({ids})", f"- {what} ({len(group)}) ({ids})"
 
 
-def severity_lines(result) -> list[str]:
-    """The changes of one model, breaking first, one plain sentence each (filter paths summed up per severity)."""
-    lines: list[str] = []
+def severity_items(result) -> dict[str, list[tuple[str, str]]]:
+    """Per severity, breaking first, the lines of the changes: (the plain sentence, a short form by id, kind
+    and subject); filter paths summed up on one line per severity; the new revision's errors under breaking."""
+    items: dict[str, list[tuple[str, str]]] = {}
     for severity in ("breaking", "numbers", "safe"):
         group = [c for c in result.changes if c.severity == severity]
         errors = result.new_errors if severity == "breaking" else ()
         if not group and not errors:
             continue
-        lines += ["", f"**{SEVERITY_TITLES[severity]}**", ""]
-        lines += [f"- {_md(c.message)} ({c.id})" for c in group if not c.kind.startswith("path.")]
+        found = [(f"- {_md(c.message)} ({c.id})", f"- `{c.kind}` `{c.subject}` ({c.id}; message left out for length)")
+                 for c in group if not c.kind.startswith("path.")]
         for kind in ("path.added", "path.removed"):
             paths = [c for c in group if c.kind == kind]
             if paths:
-                lines.append(_path_line(kind, paths))
-        lines += [f"- The new revision has an error: {_md(f.message)} (`{f.rule}` on `{f.subject}`)" for f in errors]
+                found.append(_path_line(kind, paths))
+        found += [(f"- The new revision has an error: {_md(f.message)} (`{f.rule}` on `{f.subject}`)",
+                   f"- The new revision has an error (`{f.rule}` on `{f.subject}`; message left out for length)")
+                  for f in errors]
+        items[severity] = found
+    return items
+
+
+def severity_lines(result) -> list[str]:
+    """The changes of one model, breaking first, one plain sentence each (filter paths summed up per severity)."""
+    lines: list[str] = []
+    for severity, found in severity_items(result).items():
+        lines += ["", f"**{SEVERITY_TITLES[severity]}**", "", *(line for line, _ in found)]
     return lines
 
 
-def model_section(md, level: int) -> list[str]:
-    """One model's part of the notes, its title at Markdown heading `level`."""
+DIAGRAM_INTRO = "What changed (arrows point the way a filter travels; changed links in red):"
+
+
+def model_parts(md) -> dict:
+    """One model's part of the notes as named pieces (plain JSON values), for `section_lines` and `shortened`."""
     from modeldiff.render import causes_out
     from modeldiff.render.diff_out import SECURITY_CAUTION
 
     r = md.result
     name = r.new.name or r.old.name
-    lines = [f"{'#' * level} `{name}` (`{md.new.path}`): {r.verdict}"]
+    parts: dict = {"title": f"`{name}` (`{md.new.path}`): {r.verdict}", "security": [], "unchanged": False,
+                   "causes": [], "changes": {}, "impacted": [], "diagram": [], "counts": {}}
     exposed = [c for c in r.changes if c.kind == "security.exposed"]
     if exposed:
         who = "; ".join(f"role {c.subject.split('.')[1]} can now see rows of {c.subject.split('.')[-1]} that were "
                         f"hidden from it" for c in exposed)
-        lines += ["", f"> **SECURITY:** {_md(who)}. {SECURITY_CAUTION}"]
+        parts["security"] = [f"> **SECURITY:** {_md(who)}. {SECURITY_CAUTION}"]
     if not r.changes and not r.new_errors:
-        return lines + ["", "No change to what the model means (only layout or comments)."]
-    by_cause = causes_out.markdown_lines(r)
-    lines += [""] + by_cause if by_cause else []
-    lines += severity_lines(r)
+        parts["unchanged"] = True
+        return parts
+    parts["causes"] = causes_out.markdown_lines(r)
+    parts["changes"] = severity_items(r)
     owners = {name: (rep.owner or "") for name, rep in {**r.old.reports, **r.new.reports}.items()}
-    impacted = [("measures", r.measures, None), ("roles", r.roles, None), ("reports", r.reports, owners)]
-    rows = [f"- Impacted {title} ({len(items)}): {_md(_names(items, own))}" for title, items, own in impacted if items]
+    parts["impacted"] = [(title, _names(items, own)) for title, items, own in
+                         (("measures", r.measures, None), ("roles", r.roles, None), ("reports", r.reports, owners))
+                         if items]
+    pic = _picture(md)
+    if pic is not None:
+        from modeldiff.picture import mermaid_of
+
+        parts["diagram"] = ([DIAGRAM_INTRO, "", "```mermaid", mermaid_of(pic).rstrip("\n"), "```"]
+                            + (["", f"_{_md(pic.caption)}_"] if pic.caption else []))
+    counts = r.counts()
+    parts["counts"] = {"changes": len(r.changes), **{s: counts[s] for s in ("breaking", "numbers", "safe")},
+                       "errors": len(r.new_errors), "measures": len(r.measures), "roles": len(r.roles),
+                       "reports": len(r.reports)}
+    return parts
+
+
+def section_lines(parts: dict, level: int) -> list[str]:
+    """One model's part of the notes (`model_parts`), its title at Markdown heading `level`."""
+    lines = [f"{'#' * level} {parts['title']}"]
+    if parts["security"]:
+        lines += ["", *parts["security"]]
+    if parts["unchanged"]:
+        return lines + ["", "No change to what the model means (only layout or comments)."]
+    if parts["causes"]:
+        lines += ["", *parts["causes"]]
+    for severity, found in parts["changes"].items():
+        lines += ["", f"**{SEVERITY_TITLES[severity]}**", "", *(line for line, _ in found)]
+    rows = [f"- Impacted {title} ({len(items)}): {', '.join(items)}" for title, items in parts["impacted"]]
     if rows:
         lines += ["", *rows]
-    diagram = _diagram(md)
-    if diagram is not None:
-        lines += ["", "What changed (arrows point the way a filter travels; changed links in red):", "",
-                  "```mermaid", diagram, "```"]
+    if parts["diagram"]:
+        lines += ["", *parts["diagram"]]
     return lines
+
+
+def model_section(md, level: int) -> list[str]:
+    """One model's part of the notes, its title at Markdown heading `level`."""
+    return section_lines(model_parts(md), level)
 
 
 def _commit_line(c: Commit) -> str:
@@ -277,41 +336,311 @@ class Spool:
         self._file.close()
 
 
-def commit_markdown(c: Commit) -> str:
-    """The per-commit part of the notes for one commit that changed a model."""
-    lines = ["", f"## {_commit_line(c)}"]
-    for md in c.diffs:
-        lines += ["", *model_section(md, 3)]
+def commit_parts(c: Commit) -> dict:
+    """The per-commit part of the notes for one commit that changed a model, as plain JSON values."""
+    return {"line": _commit_line(c), "models": [model_parts(md) for md in c.diffs]}
+
+
+def commit_piece(c: Commit) -> str:
+    """`commit_parts` as JSON text: what per-commit Markdown notes keep in the spool for each commit."""
+    return json.dumps(commit_parts(c), separators=(",", ":"))
+
+
+def _commit_text(parts: dict) -> str:
+    lines = ["", f"## {parts['line']}"]
+    for model in parts["models"]:
+        lines += ["", *section_lines(model, 3)]
     return "\n".join(lines)
 
 
-def as_markdown(notes: Notes, stream: TextIO, spool: Spool | None = None) -> None:
-    """The notes as Markdown; commits rendered ahead (`Commit.rendered`) are read back from `spool`."""
+def commit_markdown(c: Commit) -> str:
+    """The per-commit part of the notes for one commit that changed a model."""
+    return _commit_text(commit_parts(c))
+
+
+class _Count:
+    """A stream that only counts the characters written to it."""
+
+    def __init__(self) -> None:
+        self.size = 0
+
+    def write(self, text: str) -> int:
+        self.size += len(text)
+        return len(text)
+
+
+def as_markdown(notes: Notes, stream: TextIO, spool: Spool | None = None, budget: int | None = None) -> None:
+    """The notes as Markdown, within `budget` characters (None: everything; see `shortened`).
+
+    Commits rendered ahead (`Commit.rendered`, the text of `commit_piece`) are read back from `spool`.
+    """
+    def pieces():
+        for c in notes.commits:
+            if c.changed_models:
+                yield json.loads(spool.text(c.rendered)) if c.rendered is not None else commit_parts(c)
+
+    squashed = [model_parts(md) for md in notes.models] if notes.mode == "squash" else []
+    if budget is not None:
+        count = _Count()
+        _write_whole(notes, count, pieces(), squashed)
+        if count.size > budget:
+            stream.write(shortened(notes, pieces, squashed, budget))
+            return
+    _write_whole(notes, stream, pieces(), squashed)
+
+
+def _head(notes: Notes) -> list[str]:
     from modeldiff.changes import worst
 
-    changed = [c for c in notes.commits if c.changed_models]
-    quiet = [c for c in notes.commits if not c.changed_models]
+    changed = sum(c.changed_models for c in notes.commits)
     verdict = worst(d.result.verdict for d in notes.models)
     title = f"# Release notes: `{notes.range}`" + (", commit by commit" if notes.mode == "per-commit" else "")
-    lines = [title, "", f"{len(notes.commits)} commit{'s' if len(notes.commits) != 1 else ''}, "
-             f"{len(changed)} changing a model. Overall: **{verdict}**."]
     if not notes.commits:
-        lines = [title, "", f"No commits in `{notes.range}`."]
+        return [title, "", f"No commits in `{notes.range}`."]
+    lines = [title, "", f"{len(notes.commits)} commit{'s' if len(notes.commits) != 1 else ''}, "
+             f"{changed} changing a model. Overall: **{verdict}**."]
+    if notes.mode == "squash" and not notes.models:
+        lines += ["", "No model changed between the start and the end of the range."]
+    return lines
+
+
+def _commit_rows(notes: Notes) -> list[str]:
+    """The squashed notes' list of the commits that changed a model."""
+    return [f"- {_commit_line(c)}: {', '.join(c.paths)}" for c in notes.commits if c.changed_models]
+
+
+def _write_whole(notes: Notes, stream, pieces, squashed: list[dict]) -> None:
+    quiet = [c for c in notes.commits if not c.changed_models]
+    lines = _head(notes)
     if notes.mode == "per-commit":
         stream.write("\n".join(lines))
-        for c in changed:
-            stream.write("\n" + (spool.text(c.rendered) if c.rendered is not None else commit_markdown(c)))
+        for parts in pieces:
+            stream.write("\n" + _commit_text(parts))
         lines = [""]
     else:
-        if notes.commits and not notes.models:
-            lines += ["", "No model changed between the start and the end of the range."]
-        for md in notes.models:
-            lines += ["", *model_section(md, 2)]
-        if changed:
-            lines += ["", "## Commits", ""]
-            lines += [f"- {_commit_line(c)}: {', '.join(c.paths)}" for c in changed]
+        for parts in squashed:
+            lines += ["", *section_lines(parts, 2)]
+        rows = _commit_rows(notes)
+        if rows:
+            lines += ["", "## Commits", "", *rows]
     lines += _quiet_line(quiet)
     stream.write("\n".join(lines) + "\n")
+
+
+# --- within a budget ----------------------------------------------------------------------------------
+
+
+def _counted(counts: dict) -> str:
+    """A model's title's tail in shortened notes: how many changes of each severity, how many impacted items."""
+    if not counts:
+        return ""
+    severities = ", ".join(f"{counts[s]:,} {words}" for s, words in
+                           (("breaking", "breaking"), ("numbers", "can move numbers"), ("safe", "safe")) if counts[s])
+    impacted = ", ".join(f"{counts[k]:,} {k if counts[k] != 1 else k[:-1]}" for k in ("measures", "roles", "reports")
+                         if counts[k])
+    return (f" — {counts['changes']:,} change{'s' if counts['changes'] != 1 else ''}"
+            + (f" ({severities})" if severities else "")
+            + (f", {counts['errors']:,} error{'s' if counts['errors'] != 1 else ''}" if counts["errors"] else "")
+            + (f"; impacted: {impacted}" if impacted else ""))
+
+
+def _title_lines(model: dict, level: int) -> list[str]:
+    lines = ["", f"{'#' * level} {model['title']}{_counted(model['counts'])}"]
+    if model["security"]:
+        lines += ["", *model["security"]]
+    if model["unchanged"]:
+        lines += ["", "No change to what the model means (only layout or comments)."]
+    return lines
+
+
+def _open_block(w, place: list, heading: list[str], models: list[dict], level: int) -> list | None:
+    """Write a block's heading, its models' titles with their counts, and their breaking changes whole.
+
+    What it writes was promised beforehand (`w.expect(_promised(...))`). Returns, per model, the slots kept
+    for its summary by cause and for the rest (None for an unchanged model), or None when even the block's
+    heading no longer fits (the block is then left out).
+    """
+    def give_up(rest: list[dict]) -> None:
+        """Release what was promised to the breaking changes of models left out, and count them."""
+        for model in rest:
+            breaking = [] if model["unchanged"] else model["changes"].get("breaking", [])
+            if breaking:
+                w.pending -= sum(len(line) + 1 for line in _BREAKING_TITLE + [short for _, short in breaking])
+                w.skip("breaking changes (beyond the budget)", len(breaking))
+
+    if not w.must_lines(heading, place):
+        for model in models:
+            w.pending -= sum(len(line) + 1 for line in _title_lines(model, level))
+        give_up(models)
+        return None
+    slots = []
+    for model in models:
+        if not w.must_lines(_title_lines(model, level), place):
+            slots.append(None)
+            give_up([model])
+            continue
+        if model["unchanged"]:
+            slots.append(None)
+            continue
+        causes = w.slot(place)
+        breaking = model["changes"].get("breaking", [])
+        if breaking:
+            w.must_lines(_BREAKING_TITLE, place)
+            for line, short in breaking:
+                w.must(line, short, place)
+        slots.append((causes, w.slot(place)))
+    return slots
+
+
+_BREAKING_TITLE = ["", f"**{SEVERITY_TITLES['breaking']}**", ""]
+
+
+def _promised(heading: list[str], models: list[dict], level: int) -> list[str]:
+    """What `_open_block` writes of a block with a breaking change before anything optional: its headings, and
+    the short forms of its breaking changes (the whole ones take the room they need if it is there)."""
+    lines = list(heading)
+    for model in models:
+        lines += _title_lines(model, level)
+        breaking = model["changes"].get("breaking", [])
+        if breaking and not model["unchanged"]:
+            lines += _BREAKING_TITLE + [short for _, short in breaking]
+    return lines
+
+
+def _folded_items(model: dict) -> list[tuple]:
+    """What a model's part folds in shortened notes: (kind, summary, rows, weights, what) or a diagram."""
+    from modeldiff.render.md_budget import cut
+
+    items = []
+    for severity, what in (("numbers", "changes that can move numbers"), ("safe", "safe changes")):
+        found = model["changes"].get(severity)
+        if found:
+            rows = [cut(line) for line, _ in found]
+            weights = [_weight(line) for line, _ in found]
+            n = sum(weights)
+            items.append(("rows", f"{SEVERITY_TITLES[severity]} ({n} change{'s' if n != 1 else ''})", rows, weights,
+                          what))
+    for title, names in model["impacted"]:
+        items.append(("rows", f"Impacted {title} ({len(names)})", [cut(f"- {n}") for n in names], None,
+                      f"impacted {title}"))
+    if model["diagram"]:
+        items.append(("diagram", "", model["diagram"], None, "diagrams"))
+    return items
+
+
+def _need(item: tuple) -> int:
+    """Characters a folded item of `_folded_items` takes whole."""
+    from modeldiff.render.md_budget import folded_size
+
+    kind, summary, rows, _, _ = item
+    return sum(len(row) + 1 for row in rows) + 1 if kind == "diagram" else folded_size(summary, (), rows)
+
+
+_PATHS_COUNT = re.compile(r"^- (?:New filter paths|Filter paths that no longer exist) \((\d+)\): ")
+
+
+def _weight(line: str) -> int:
+    """How many changes a line of changes stands for (a line of filter paths sums up several)."""
+    found = _PATHS_COUNT.match(line)
+    return int(found.group(1)) if found else 1
+
+
+def shortened(notes: Notes, pieces, squashed: list[dict], budget: int) -> str:
+    """The notes within `budget` characters, written with `render.md_budget.Writer` (the budget of `diff`).
+
+    Always, in the document's order: the title and the overall line, and
+    every commit (or model, squashed) with a breaking change or a security
+    line: its heading, its models' titles with their counts of changes and
+    impacted items, the security line and every breaking change whole (by id,
+    kind and subject only when even one line no longer fits). Then, while
+    they fit: the headings of the other commits; each model's summary by
+    cause (whole or not at all); then the changes that can move numbers, the
+    safe ones and the impacted measures, roles and reports, each folded in a
+    `<details>` block that says how many it holds and shows, and the diagram,
+    each of these given an equal share of the room left. A last line counts
+    what was left out and how to get all of it (`--format json`,
+    `--budget none`). `pieces` is a function giving the commits' parts
+    (`commit_parts`) anew for each pass, so they can come from the spool.
+    """
+    from modeldiff.render import md_budget
+
+    def blocks():
+        if notes.mode == "per-commit":
+            for parts in pieces():
+                yield ["", f"## {parts['line']}"], parts["models"], 3
+        else:
+            for parts in squashed:
+                yield [], [parts], 2
+
+    def urgent(models: list[dict]) -> bool:
+        return any(m["changes"].get("breaking") or m["security"] for m in models)
+
+    w = md_budget.Writer(budget)
+    w.add(_head(notes))
+    places: list[list] = []
+    w.expect([line for heading, models, level in blocks() if urgent(models)
+              for line in _promised(heading, models, level)])
+    section = "commits' sections (with all they hold)" if notes.mode == "per-commit" else "models' sections"
+    for heading, models, level in blocks():
+        place = w.slot()
+        opened = None
+        if urgent(models):
+            opened = _open_block(w, place, heading, models, level)
+            if opened is None:
+                w.skip(section)
+        places.append([place, opened, urgent(models)])
+    tail = w.slot()
+    commit_list = w.slot(tail)
+    quiet = [c for c in notes.commits if not c.changed_models]
+    line = _quiet_line(quiet)
+    if line and not w.fits(line):
+        line = ["", f"{len(quiet)} commit{'s' if len(quiet) != 1 else ''} changed no model."]
+        w.skip("commits that changed no model, named", len(quiet))
+    w.add(line, tail)
+    # the headings of the other blocks, in order
+    for place, (heading, models, level) in zip(places, blocks()):
+        if place[1] is None and not place[2]:
+            lines = heading + [line for m in models for line in _title_lines(m, level)]
+            if w.fits(lines):
+                w.expect(lines)
+                place[1] = _open_block(w, place[0], heading, models, level)
+            else:
+                w.skip(section)
+    # each model's summary by cause
+    for place, (_, models, _) in zip(places, blocks()):
+        for slots, model in zip(place[1] or (), models):
+            if slots is None or not model["causes"]:
+                continue
+            if w.fits(["", *model["causes"]]):
+                w.add(["", *model["causes"]], slots[0])
+            else:
+                w.skip("summaries by cause")
+    # the rest, folded: each block as much room as it needs while the others get as much (md_budget.fair_shares)
+    commit_rows = _commit_rows(notes) if notes.mode == "squash" else []
+    commits_title = f"Commits that changed a model ({len(commit_rows)})"
+
+    def folded(model: dict) -> list[tuple]:
+        return _folded_items(model) if model["changes"] and not model["unchanged"] else []
+
+    items = [(_need(item), item[0] == "diagram") for place, (_, models, _) in zip(places, blocks()) if place[1]
+             for m in models for item in folded(m)]
+    items += [(md_budget.folded_size(commits_title, (), commit_rows), False)] if commit_rows else []
+    shares = iter(md_budget.fair_shares([need for need, _ in items], w.room(), [whole for _, whole in items]))
+    for place, (_, models, _) in zip(places, blocks()):
+        for slots, model in zip(place[1] or (), models):
+            for kind, summary, rows, weights, what in folded(model) if slots is not None else ():
+                share = next(shares)
+                if kind == "diagram":
+                    if _need((kind, summary, rows, weights, what)) <= share:
+                        w.add(["", *rows], slots[1])
+                    else:
+                        w.skip(what)
+                    continue
+                w.folded(summary, [], rows, what, limit=share, into=slots[1], weights=weights)
+                w.skip("lines cut short", sum(row.endswith("…") for row in rows))
+    if commit_rows:
+        w.folded(commits_title, [], commit_rows, "commits in the list", limit=next(shares), into=commit_list)
+    return w.text(md_budget.left_out_line(w.left_out, budget, "`--format json`"))
 
 
 def _model_doc(md) -> dict:
@@ -368,23 +697,32 @@ def configure(parser) -> None:
                       help="one section per model, the range as a whole (the default)")
     parser.set_defaults(mode="squash")
     parser.add_argument("--repo", metavar="DIR", default=".", help="the repository (default: the current folder)")
+    parser.add_argument("--budget", metavar="N|none", default=None,
+                        help="markdown: at most N characters (default 65536, a pull-request comment; 1MiB for a CI "
+                             "job summary), the breaking changes whole and the rest folded and counted; none: "
+                             "everything")
 
 
 def run(args, stdout: TextIO) -> int:
     from modeldiff import git
 
+    from modeldiff.render import md_budget
+
     split_range(args.range)  # a bad range is a usage error before git is touched
+    budget = md_budget.COMMENT if args.budget is None else md_budget.parse_budget(args.budget)
+    if args.budget is not None and args.format != "markdown":
+        raise UsageError("--budget goes with --format markdown (json always holds everything)")
     root = git.repo_root(args.repo)
     spool = Spool()
     try:
-        piece = commit_models_json if args.format == "json" else commit_markdown
+        piece = commit_models_json if args.format == "json" else commit_piece
         render = (lambda c: spool.add(piece(c)) if c.changed_models or args.format == "json" else None)
         with git.session(root):  # one open repository for the whole walk
             notes = read_notes(root, args.range, args.mode, render)
         if args.format == "json":
             write_json(notes, stdout, spool)
         else:
-            as_markdown(notes, stdout, spool)
+            as_markdown(notes, stdout, spool, budget)
     finally:
         spool.close()
     return 0

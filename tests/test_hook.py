@@ -873,3 +873,13 @@ def test_the_hooks_message_groups_what_follows_under_its_cause(gated):
     head, _, rest = pushed.out.partition("by cause (most severe first)")
     assert rest and "verdict: breaking" in head  # the summary by cause follows the verdict
     assert " report" in rest.split("\n\n")[0]  # the impacted report is counted under its cause
+
+
+def test_the_hooks_message_has_no_summary_by_cause_when_nothing_follows_from_a_change(gated):  # twin
+    described = V1.replace("  fare_revenue: {table: trips, expr: sum(fare)}\n",
+                           "  fare_revenue: {table: trips, expr: sum(fare), description: Fares paid.}\n")
+    assert described != V1
+    commit(gated.work, "describe fare revenue", {MODEL: described})
+    pushed = gated.push("origin", "main")
+    assert pushed.code == 0 and "verdict: safe" in pushed.out
+    assert "by cause" not in pushed.out

@@ -105,14 +105,24 @@ def test_a_change_that_fits_is_written_whole_without_a_note():
     assert code == 3 and out.getvalue() == whole.getvalue() and "Shortened" not in out.getvalue()
 
 
-def test_breaking_changes_beyond_a_tiny_budget_are_still_named(large):
+@pytest.mark.parametrize("budget", [4_000, 9_000])
+def test_breaking_changes_beyond_a_small_budget_are_named_short_or_counted_and_the_budget_holds(large, budget):
     _, result = large
     md = ModelDiff(Side(None, "old"), Side(None, "new"), result)
-    text = md_budget.shortened([md], 4_000)
-    for c in result.changes:
-        if c.severity == "breaking":
-            assert f"| {c.id} | `{c.kind}` | `{c.subject}` |" in text
-    assert "messages of breaking changes" in text.splitlines()[-1]
+    text = md_budget.shortened([md], budget)
+    assert len(text) <= budget  # a comment over its limit is not posted at all
+    breaking = [c for c in result.changes if c.severity == "breaking"]
+    named = [c for c in breaking if f"| {c.id} | `{c.kind}` | `{c.subject}` |" in text]
+    short = [c for c in named if f"| {c.id} | `{c.kind}` | `{c.subject}` | (message left out for length) |" in text]
+    last = text.splitlines()[-1]
+    counted = re.search(r"([0-9,]+) breaking changes \(beyond the budget\)", last)
+    assert len(named) + (int(counted.group(1).replace(",", "")) if counted else 0) == len(breaking)
+    if short:
+        assert f"{len(short):,} messages of breaking changes" in last
+    # the whole messages come first: no short form before a whole one
+    rows = [line for line in text.splitlines() if line.startswith("| c") and "`" in line]
+    kinds = ["short" if "(message left out for length)" in row else "whole" for row in rows[:len(named)]]
+    assert kinds == sorted(kinds, key=lambda k: k == "short")
 
 
 @pytest.mark.parametrize("value", ["12", "lots", "-5", "1.5M"])

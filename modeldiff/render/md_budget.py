@@ -1,4 +1,5 @@
-"""`diff --format markdown` within a budget of characters, so it fits where it is read.
+"""Markdown within a budget of characters, so it fits where it is read: `diff --format markdown` (here) and
+the notes (`notes.shortened`), both written with `Writer`.
 
 A pull-request comment holds 65,536 characters (`COMMENT`, the default); a CI
 job summary 1 MiB (`--budget 1048576`); `--budget none` writes everything.
@@ -6,19 +7,22 @@ When the whole Markdown (`diff_out.as_markdown`) fits, it is written as is.
 Otherwise, in this order and always whole:
 
 1. the table of models and verdicts;
-2. per model: the security caution, the summary by cause, every breaking
-   change whole (id, kind, subject, message) and the new revision's errors;
+2. per model: the security caution, the summary by cause (unless the
+   breaking changes need its room), every breaking change whole (id, kind,
+   subject, message) and the new revision's errors;
 
 then, while they fit, each in a folded `<details>` block that says how many it
-holds: the diagram (already cut to a readable size), the changes that can move
-numbers and the safe ones, then the impacted roles, reports and measures, one
-row at a time. Whatever did not fit is counted on a last line, which says how
+holds: the diagram (already cut to a readable size; whole or not at all), the
+changes that can move numbers and the safe ones, then the impacted roles,
+reports and measures, one row at a time. Each block gets as much room as it
+needs while the others get as much (`fair_shares`, max-min fairness). Whatever did not fit is counted on a last line, which says how
 to get all of it (`--format json`, `--format html`, `--budget none`).
 
-Should the breaking changes alone not fit, the ones that do are written whole
-and the others by id, kind and subject only (each line says so), still within
-the budget when at all possible: the budget wins over completeness only for
-what cannot be listed in a line each.
+Should the breaking changes alone not fit, each is written whole while the
+short forms of those after it still fit, else by id, kind and subject only
+(the line says so), and those beyond even that are counted on the last line
+(`Writer.must`): the budget always holds, since a comment over its limit is
+not posted at all.
 """
 
 from __future__ import annotations
@@ -50,35 +54,118 @@ def parse_budget(text: str) -> int | None:
     return int(word) * scale
 
 
-class _Writer:
-    """Lines kept while they fit in the budget; what did not fit is counted by what it was."""
+_CLOSING = ["", "</details>"]
+
+
+def folded_size(summary: str, header: Sequence[str], rows: Sequence[str]) -> int:
+    """Characters a `Writer.folded` block of every one of `rows` takes (with 40 to spare for its summary's tail)."""
+    return (sum(len(line) + 1 for line in ["", f"<details><summary>{summary}</summary>", "", *header, *_CLOSING])
+            + 40 + sum(len(row) + 1 for row in rows))
+
+
+def fair_shares(needs: Sequence[int], room: int, whole: Sequence[bool] | None = None) -> list[int]:
+    """Room for each of several blocks that need `needs` characters, sharing `room`: whatever a block does not
+    need goes to the others (max-min fairness), so a small block is whole and the large ones share the rest.
+
+    A block marked in `whole` (a diagram) is shown whole or not at all: when its share falls short of its
+    need it gets nothing, and the room it would have had goes to the others.
+    """
+    needs = list(needs)
+    while True:
+        shares = [0] * len(needs)
+        left = max(0, room)
+        order = sorted(range(len(needs)), key=needs.__getitem__)
+        for done, index in enumerate(order):
+            shares[index] = min(needs[index], left // (len(needs) - done))
+            left -= shares[index]
+        short = [i for i in range(len(needs)) if whole and whole[i] and 0 < shares[i] < needs[i]]
+        if not short:
+            return shares
+        for index in short:
+            needs[index] = 0
+
+
+class Writer:
+    """Lines kept while they fit in the budget; what did not fit is counted by what it was.
+
+    Lines go to the end of the document, or into a *slot*: a place kept in the
+    document where it was made (`slot()`), filled later (`add(..., into=slot)`).
+    A layout can so write what must be there first (the breaking changes) and
+    fill the places before it afterwards, while the room lasts, without
+    reordering the document. Slots nest (`slot(into=other)`). Used by this
+    module's layout of `diff` and by the notes' (`notes.shortened`).
+    """
 
     def __init__(self, budget: int) -> None:
         self.budget = budget
-        self.lines: list[str] = []
+        self._root: list = []  # lines and slots (lists of the same), in document order
         self.size = 0
         self.left_out: dict[str, int] = {}
+        self.pending = 0  # characters promised to lines `must` and `must_lines` will write later (`expect`)
 
     def room(self) -> int:
+        """Characters left for what is optional: the budget, less what is written, the closing lines and what
+        is promised to the lines that must come."""
+        return self._free() - self.pending
+
+    def _free(self) -> int:
         return self.budget - _RESERVE - self.size
+
+    def expect(self, lines: Sequence[str]) -> None:
+        """Promise room to lines written later by `must` (their short forms) or `must_lines`."""
+        self.pending += sum(len(line) + 1 for line in lines)
+
+    def must_lines(self, lines: Sequence[str], into: list | None = None) -> bool:
+        """Lines promised by `expect` (a heading the breaking changes need): written when they fit at all."""
+        size = sum(len(line) + 1 for line in lines)
+        self.pending -= size
+        if size > self._free():
+            return False
+        self.add(lines, into)
+        return True
+
+    def must(self, whole: str, short: str, into: list | None = None) -> None:
+        """A line that should be there whole (a breaking change), its short form promised by `expect`.
+
+        Whole while that leaves the room promised to the lines still to come;
+        else its short form (id, kind and subject), while it fits at all; else
+        counted as left out. The budget always holds: a comment longer than
+        its limit is not posted at all.
+        """
+        self.pending -= len(short) + 1
+        if len(whole) + 1 <= self.room():
+            self.add([whole], into)
+        elif len(short) + 1 <= self._free():
+            self.add([short], into)
+            self.skip("messages of breaking changes")
+        else:
+            self.skip("breaking changes (beyond the budget)")
 
     def fits(self, lines: Sequence[str]) -> bool:
         return sum(len(line) + 1 for line in lines) <= self.room()
 
-    def add(self, lines: Sequence[str]) -> None:
-        self.lines += lines
+    def add(self, lines: Sequence[str], into: list | None = None) -> None:
+        (self._root if into is None else into).extend(lines)
         self.size += sum(len(line) + 1 for line in lines)
+
+    def slot(self, into: list | None = None) -> list:
+        """A place at the end of the document (or of `into`), to be filled later."""
+        place: list = []
+        (self._root if into is None else into).append(place)
+        return place
 
     def skip(self, what: str, n: int = 1) -> None:
         if n:
             self.left_out[what] = self.left_out.get(what, 0) + n
 
-    def folded(self, summary: str, header: Sequence[str], rows: Sequence[str], what: str, share: int = 1) -> None:
-        """A <details> block of as many `rows` as fit in 1/`share` of the room left (its summary says how many)."""
+    def folded(self, summary: str, header: Sequence[str], rows: Sequence[str], what: str, limit: int | None = None,
+               into: list | None = None, weights: Sequence[int] | None = None) -> None:
+        """A <details> block of as many `rows` as fit in `limit` characters (or the room left); its summary says
+        how many it holds and shows. The rows left out are counted as `what`, each as 1 or as its weight (a row
+        standing for several items)."""
         opening = ["", f"<details><summary>{summary}</summary>", "", *header]
-        closing = ["", "</details>"]
-        room = self.room() // max(1, share)
-        used = sum(len(line) + 1 for line in opening + closing) + 40
+        room = self.room() if limit is None else min(limit, self.room())
+        used = folded_size(summary, header, ())
         kept: list[str] = []
         for row in rows:
             if used + len(row) + 1 > room:
@@ -88,8 +175,24 @@ class _Writer:
         if kept:
             shown = summary if len(kept) == len(rows) else f"{summary}: the first {len(kept)} shown"
             opening[1] = f"<details><summary>{shown}</summary>"
-            self.add(opening + kept + closing)
-        self.skip(what, len(rows) - len(kept))
+            self.add(opening + kept + _CLOSING, into)
+        self.skip(what, len(rows) - len(kept) if weights is None else sum(weights[len(kept):]))
+
+    def text(self, closing: str) -> str:
+        """The document: what was kept, then (when something was left out) a rule and `closing`'s line."""
+        lines: list[str] = []
+
+        def flatten(items: list) -> None:
+            for item in items:
+                if isinstance(item, list):
+                    flatten(item)
+                else:
+                    lines.append(item)
+
+        flatten(self._root)
+        if self.left_out:
+            lines += ["", "---", "", closing]
+        return "\n".join(lines) + "\n"
 
 
 def _full(diffs) -> str:
@@ -110,11 +213,19 @@ def as_markdown(diffs: Sequence, stream: TextIO, budget: int | None = COMMENT) -
     stream.write(shortened(diffs, budget))
 
 
-def _left_out_line(left_out: dict[str, int], budget: int) -> str:
+EVERYTHING_IN_DIFF = "`--format json` and `--format html`"
+
+
+def left_out_line(left_out: dict[str, int], budget: int, everything_in: str = EVERYTHING_IN_DIFF) -> str:
+    """The last line of a shortened document: what was left out, and how to get all of it."""
     counted = ", ".join(f"{n:,} {what}" for what, n in left_out.items())
-    return (f"_Shortened to fit {budget:,} characters; left out: {counted}. Everything is in "
-            "`--format json` and `--format html`, or here with `--budget none` (a CI job summary takes "
-            "`--budget 1MiB`)._")
+    return (f"_Shortened to fit {budget:,} characters; left out: {counted}. Everything is in {everything_in}, "
+            "or here with `--budget none` (a CI job summary takes `--budget 1MiB`)._")
+
+
+def cut(row: str) -> str:
+    """`row` cut at `ROW_LIMIT` characters (ending in `…` when cut)."""
+    return row if len(row) <= ROW_LIMIT else row[:ROW_LIMIT - 1] + "…"
 
 
 def _impact_row(i, kinds: dict[str, str]) -> str:
@@ -123,10 +234,10 @@ def _impact_row(i, kinds: dict[str, str]) -> str:
     why = "; ".join(_md_reason(x, kinds) for x in i.reasons)
     extra = _role_extras(i)
     row = f"- **{i.name}** ({i.severity})" + (f" — **{_md(extra)}**" if extra else "") + f": {_md(why)}"
-    return row if len(row) <= ROW_LIMIT else row[:ROW_LIMIT - 1] + "…"
+    return cut(row)
 
 
-def _add_proposals(w: "_Writer", md) -> None:
+def _add_proposals(w: "Writer", md) -> None:
     """The proposals in place of links made two-way (modeldiff.proposal): whole when the patch takes at most a
     quarter of the room left, else without the patch, else left out (said in the last line)."""
     from modeldiff import proposal
@@ -152,7 +263,7 @@ def shortened(diffs: Sequence, budget: int) -> str:
     from modeldiff.render import causes_out
     from modeldiff.render.diff_out import SECURITY_CAUTION, _md, _side
 
-    w = _Writer(budget)
+    w = Writer(budget)
     w.add(["## modeldiff", "", "| model | verdict | breaking | can move numbers | safe | impacted measures | roles | "
            "reports |", "|---|---|---|---|---|---|---|---|"])
     for md in diffs:
@@ -160,6 +271,13 @@ def shortened(diffs: Sequence, budget: int) -> str:
         w.add([f"| `{r.new.name or r.old.name}` | **{r.verdict}** | {c['breaking']} | {c['numbers']} | {c['safe']} | "
                f"{len(r.measures)} | {len(r.roles)} | {len(r.reports)} |"])
     header = ["| id | kind | subject | what it means |", "|---|---|---|---|"]
+
+    def breaking_rows(result) -> list[tuple[str, str]]:
+        return [(f"| {c.id} | `{c.kind}` | `{c.subject}` | {_md(c.message)} |",
+                 f"| {c.id} | `{c.kind}` | `{c.subject}` | (message left out for length) |")
+                for c in result.changes if c.severity == "breaking"]
+
+    w.expect([short for md in diffs for _, short in breaking_rows(md.result)])
     # first pass: what is always written, for every model
     for md in diffs:
         r = md.result
@@ -170,32 +288,25 @@ def shortened(diffs: Sequence, budget: int) -> str:
             w.add(["No changes."])
             continue
         by_cause = causes_out.markdown_lines(r)
-        if by_cause:
+        if by_cause and w.fits(by_cause + [""]):
             w.add(by_cause + [""])
-        breaking = [c for c in r.changes if c.severity == "breaking"]
+        elif by_cause:
+            w.skip("summaries by cause")
+        breaking = breaking_rows(r)
         if breaking:
             w.add([f"#### Breaking changes ({len(breaking)})", "", *header])
-            for c in breaking:
-                row = f"| {c.id} | `{c.kind}` | `{c.subject}` | {_md(c.message)} |"
-                if not w.fits([row]):
-                    row = f"| {c.id} | `{c.kind}` | `{c.subject}` | (message left out for length) |"
-                    w.skip("messages of breaking changes")
-                w.add([row])
+            for whole, short in breaking:
+                w.must(whole, short)
         if r.new_errors:
             w.add(["", "**Errors in the new revision:**", ""]
                   + [f"- `{f.rule}` `{f.subject}`: {_md(f.message)}" for f in r.new_errors])
-    # second pass: the rest, folded, while it fits
+    # second pass: the rest, folded, each block as much room as it needs while the others get as much
     from modeldiff.render.diff_out import _md_diagrams
 
+    blocks = []  # (model diff, diagram lines or None, sections)
     for md in diffs:
         r = md.result
-        diagram = _md_diagrams([md])
-        if diagram:
-            if w.fits(diagram):
-                w.add(diagram)
-            else:
-                w.skip("diagrams")
-        _add_proposals(w, md)
+        _add_proposals(w, md)  # (before the folded blocks, which share the room left)
         kinds = {c.id: c.kind for c in r.changes}
         sections = []
         for title, impacts in (("roles", r.roles), ("reports", r.reports)):
@@ -208,9 +319,23 @@ def shortened(diffs: Sequence, budget: int) -> str:
         sections = [s for s in sections if s[2]]
         w.skip("reasons of impacted items (lines cut short)",
                sum(row.endswith("…") for _, _, rows in sections if rows[:1] and rows[0].startswith("- ") for row in rows))
-        for index, (title, head, rows) in enumerate(sections):
-            w.folded(f"{len(rows)} {title} in `{r.new.name or r.old.name}`", head, rows, title,
-                     share=len(sections) - index)
-    if w.left_out:
-        w.add(["", "---", "", _left_out_line(w.left_out, budget)])
-    return "\n".join(w.lines) + "\n"
+        blocks.append((md, _md_diagrams([md]) or None, sections))
+    needs, whole = [], []
+    for md, diagram, sections in blocks:
+        name = md.result.new.name or md.result.old.name
+        if diagram:
+            needs.append(sum(len(line) + 1 for line in diagram))
+            whole.append(True)
+        needs += [folded_size(f"{len(rows)} {title} in `{name}`", head, rows) for title, head, rows in sections]
+        whole += [False] * len(sections)
+    shares = iter(fair_shares(needs, w.room(), whole))
+    for md, diagram, sections in blocks:
+        name = md.result.new.name or md.result.old.name
+        if diagram:
+            if sum(len(line) + 1 for line in diagram) <= next(shares):
+                w.add(diagram)
+            else:
+                w.skip("diagrams")
+        for title, head, rows in sections:
+            w.folded(f"{len(rows)} {title} in `{name}`", head, rows, title, limit=next(shares))
+    return w.text(left_out_line(w.left_out, budget))
