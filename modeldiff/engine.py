@@ -470,6 +470,7 @@ class _Visibility:
             for t in _reach(arcs, [s.table]):
                 self.tags[t] += (s.index,)
         self.rels: dict[str, _Rel] = {}
+        self.built: dict[str, list[_Arc]] = {}  # table -> the arcs `_select` built its relation from (no loop)
         for component in _components(sorted(self.constrained), self.arcs):
             self._component(component)
 
@@ -491,6 +492,7 @@ class _Visibility:
             table = members[0]
             self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}", self._select(table, self._into(table))),
                                     self.tags[table])
+            self.built[table] = self._into(table)
             return
         tree = self._two_way_tree(members)
         if tree is not None:
@@ -507,9 +509,11 @@ class _Visibility:
                 below = [a for a in self._into(table) if a.src not in inside or parent.get(a.src) == table]
                 self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}{'_' if table == root else 'p_'}{table}",
                                                            self._select(table, below)), self.tags[table])
+                self.built[table] = below
             for table in order[1:]:
                 self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}",
                                                            self._select(table, self._into(table))), self.tags[table])
+                self.built[table] = self._into(table)
             return
         self.cyclic.update(members)
         for table in self._order(members):
@@ -595,6 +599,65 @@ class _Visibility:
         conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {(tag_of or {}).get(i, f'{outer}.{_tag(i)}')}"
                   for i in src.tags]
         return f"EXISTS (SELECT 1 FROM {q(src.name)} AS _u WHERE {_and(conds)})"
+
+    def _tag_test(self, arc: _Arc, outer: str, tag_of: Mapping[int, str], joins: list[str]) -> str:
+        """Whether the row at `outer` matches a visible row of arc.src carrying the tags `tag_of`.
+
+        `EXISTS` on arc.src's tagged rows, unless those rows are a join: when
+        arc.src's relation was built by `_select` from one join on a tagged
+        source and untagged semi-joins, and the arc's columns are unique in
+        arc.src, the outer row meets at most one of its rows, which has the
+        tags exactly when its row of the join's source has them. So the test
+        follows such joins down (partsupp -> supplier) as one LEFT JOIN of
+        the untagged rows, appended to `joins`, and ends with one `EXISTS` on
+        the first tagged relation that is not such a join (nation). A tagged
+        relation can hold a big table's rows once per group (partsupp once
+        per market segment); the chain holds each row once.
+        """
+        chain: list[tuple[_Arc, list[_Arc]]] = []  # (arc leaving the table, its untagged semi-joins)
+        step = arc
+        while True:
+            table = step.src
+            arcs = self.built.get(table)
+            if arcs is None or not self.unique_on(table, step.src_columns) or any(
+                    s.table == table for s in self.sources):
+                break
+            _, joined, semi = self._split(table, arcs)
+            if (len(joined) != 1 or any(self.rel(a.src).tags for a in semi)
+                    or set(self.tags[table]) - set(self.rel(joined[0][1].src).tags)):
+                break
+            chain.append((step, semi))
+            step = joined[0][1]
+        if not chain:
+            return self._exists(arc, outer, tag_of)
+        alias = f"_f{len(joins)}"
+        parts = []
+        for n, (leaving, semi) in enumerate(chain):
+            rows = f"({self._untagged(leaving.src, semi)}) AS _c{n}"
+            if n == 0:
+                parts.append(rows)
+            else:
+                on = [f"_c{n}.{q(s)} = _c{n - 1}.{q(d)}" for s, d in zip(leaving.src_columns, leaving.dst_columns)]
+                parts.append(f"JOIN {rows} ON {_and(on)}")
+        last = len(chain) - 1
+        picks = [f"_c0.{q(c)} AS {q(f'_o{m}')}" for m, c in enumerate(arc.src_columns)]
+        picks += [f"_c{last}.{q(c)} AS {q(f'_i{m}')}" for m, c in enumerate(step.dst_columns)]
+        on = [f"{alias}.{q(f'_o{m}')} = {outer}.{q(d)}" for m, d in enumerate(arc.dst_columns)]
+        joins.append(f"LEFT JOIN (SELECT {', '.join(picks)} FROM {' '.join(parts)}) AS {alias} ON {_and(on)}")
+        src = self.rel(step.src)
+        conds = [f"_u.{q(c)} = {alias}.{q(f'_i{m}')}" for m, c in enumerate(step.src_columns)]
+        conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {tag_of[i]}" for i in src.tags]
+        return f"EXISTS (SELECT 1 FROM {q(src.name)} AS _u WHERE {_and(conds)})"
+
+    def _untagged(self, table: str, semi: Sequence[_Arc]) -> str:
+        """Rows of `table` passing its filters and semi-joined with the (untagged) visible rows of `semi`'s sources."""
+        preds = self.filters.get(table, ())
+        inner = f"SELECT * FROM {q(self.base.get(table, table))} AS {q(table)}"
+        if preds:
+            inner += " WHERE " + _and([f"({p})" for p in preds])
+        if not semi:
+            return inner
+        return f"SELECT * FROM ({inner}) AS _c WHERE " + _and([self._exists(a, "_c") for a in semi])
 
     def _split(self, table: str, arcs: Sequence[_Arc]) -> tuple[dict[int, str], list[tuple[str, _Arc]], list[_Arc]]:
         """How `_select` meets `arcs`: tags `table` provides itself, arcs joined (with their alias), arcs semi-joined.
@@ -684,13 +747,15 @@ class _Visibility:
             # Each total row meets at most one row of the join (its source holds one tag set per row and
             # the link columns are its key): the row is in that group when the tagged semi-joins hold too.
             alias, arc = joined[0]
-            ok = _and([f"{alias}.{q('_k0')} IS NOT NULL"] + [self._exists(a, "_x", provided) for a in tagged_semi])
+            unfolded: list[str] = []
+            ok = _and([f"{alias}.{q('_k0')} IS NOT NULL"]
+                      + [self._tag_test(a, "_x", provided, unfolded) for a in tagged_semi])
             raw = "".join(f", {provided[i]} AS {q(f'_t{i}')}" for i in tags)
             join = self._join(alias, arc, {i: provided[i] for i in provided if provided[i].startswith('_x.')},
                               "LEFT JOIN")
             picks = "".join(f", CASE WHEN _y._ok THEN _y.{q(f'_t{i}')} END AS {_tag(i)}" for i in tags)
             return (f"SELECT _y.*{picks}, NOT _y._ok AS _nm FROM (SELECT _x.*{raw}, {ok} AS _ok FROM {rows} AS _x"
-                    f"\n  {join}) AS _y")
+                    f"\n  {join}" + "".join(f"\n  {j}" for j in unfolded) + ") AS _y")
         own = {s.index for s in self.sources if s.table == table}
         if not joined:
             picks = "".join(f", {provided[i]} AS {_tag(i)}" for i in tags)
