@@ -256,96 +256,57 @@ class _Arc:
     fans_out: bool  # a src value can match several src rows (many-to-many, or against a many-to-one)
 
 
-def _link_arcs(link: Link, both_ways: bool) -> list[_Arc]:
-    arcs = [_Arc(link.name, link.to_table, link.from_table, link.to_columns, link.from_columns,
-                 link.cardinality == "many-to-many")]
-    if both_ways:
-        arcs.append(_Arc(link.name, link.from_table, link.to_table, link.from_columns, link.to_columns,
-                         link.cardinality != "one-to-one"))
-    return arcs
+def _link_arcs(link: Link, edges: Sequence) -> list[_Arc]:
+    """The arcs of `link`'s graph edges: modeldiff.graph decides which directions carry filters and gives the
+    to -> from edge first, then from -> to when the link carries both ways (also for a link to its own table)."""
+    both = [_Arc(link.name, link.to_table, link.from_table, link.to_columns, link.from_columns,
+                 link.cardinality == "many-to-many"),
+            _Arc(link.name, link.from_table, link.to_table, link.from_columns, link.to_columns,
+                 link.cardinality != "one-to-one")]
+    return both[:len(edges)]
 
 
 def _flow_arcs(model: Model, setting) -> list[_Arc]:
     """semantics.md section 2, edge by edge (a link to its own table keeps both directions apart)."""
+    from modeldiff import graph
+
     arcs = []
     for name, flow in setting.flows.items():
         link = model.links.get(name)
         if link is not None and link.tables <= set(model.tables):
-            arcs += _link_arcs(link, flow == "two-way" or link.cardinality == "one-to-one")
+            arcs += _link_arcs(link, graph.flow_edges(link, flow))
     return arcs
 
 
 def _security_arcs(model: Model) -> list[_Arc]:
     """semantics.md section 3: the default setting's links, reversed only when security flows two-way."""
+    from modeldiff import graph
+
     arcs = []
     for name in sorted(model.links):
         link = model.links[name]
         if not link.standby and link.tables <= set(model.tables):
-            arcs += _link_arcs(link, link.cardinality == "one-to-one"
-                               or (link.flow == "two-way" and link.security_flow == "two-way"))
+            arcs += _link_arcs(link, graph.security_edges(link))
     return arcs
 
 
-def _reach(arcs: Sequence[_Arc], starts: Iterable[str], backwards: bool = False) -> set[str]:
-    nxt: dict[str, list[str]] = {}
-    for a in arcs:
-        u, v = (a.dst, a.src) if backwards else (a.src, a.dst)
-        nxt.setdefault(u, []).append(v)
-    seen = set(starts)
-    todo = list(seen)
-    while todo:
-        for v in nxt.get(todo.pop(), ()):
-            if v not in seen:
-                seen.add(v)
-                todo.append(v)
-    return seen
+def _graph(arcs: Sequence[_Arc], tables: Iterable[str] = ()):
+    """The `graph.FilterGraph` of `arcs` (over their tables and `tables`)."""
+    from modeldiff import graph
+
+    return graph.FilterGraph({*tables, *(a.src for a in arcs), *(a.dst for a in arcs)},
+                             [graph.Edge(a.link, a.src, a.dst) for a in arcs])
+
+
+def _reach(arcs: Sequence[_Arc], starts: Iterable[str]) -> set[str]:
+    starts = list(starts)
+    return set(_graph(arcs, starts).reach_all(starts))
 
 
 def _components(nodes: Sequence[str], arcs: Sequence[_Arc]) -> list[list[str]]:
-    """Strongly connected components in topological order (Tarjan's algorithm, iterative)."""
-    out: dict[str, list[str]] = {n: [] for n in nodes}
-    for a in arcs:
-        if a.src in out and a.dst in out:
-            out[a.src].append(a.dst)
-    index: dict[str, int] = {}
-    low: dict[str, int] = {}
-    stack: list[str] = []
-    on_stack: set[str] = set()
-    found: list[list[str]] = []
-    for root in nodes:
-        if root in index:
-            continue
-        work = [(root, iter(out[root]))]
-        index[root] = low[root] = len(index)
-        stack.append(root)
-        on_stack.add(root)
-        while work:
-            node, children = work[-1]
-            child = next(children, None)
-            if child is not None:
-                if child not in index:
-                    index[child] = low[child] = len(index)
-                    stack.append(child)
-                    on_stack.add(child)
-                    work.append((child, iter(out[child])))
-                elif child in on_stack:
-                    low[node] = min(low[node], index[child])
-                continue
-            work.pop()
-            if work:
-                parent = work[-1][0]
-                low[parent] = min(low[parent], low[node])
-            if low[node] == index[node]:
-                component = []
-                while True:
-                    member = stack.pop()
-                    on_stack.discard(member)
-                    component.append(member)
-                    if member == node:
-                        break
-                found.append(sorted(component))
-    found.reverse()
-    return found
+    """Strongly connected components of `nodes` (arcs among them) in topological order."""
+    inside = set(nodes)
+    return [list(c) for c in _graph([a for a in arcs if a.src in inside and a.dst in inside], nodes).components()]
 
 
 # --- SQL text helpers -------------------------------------------------------------------
