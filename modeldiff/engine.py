@@ -19,7 +19,9 @@ How the visible rows are computed
 Given direct filters, a table is constrained when it has one or a constrained
 table has a flow-graph edge into it; the others keep their rows and restrict
 nothing. The constrained tables are taken one strongly connected component at
-a time, in topological order. A component without a cycle needs one pass: a
+a time, in topological order (the arcs, reach and components come from
+modeldiff.graph: `flow_edges`/`security_edges`, `FilterGraph.reach_all`,
+`FilterGraph.components`). A component without a cycle needs one pass: a
 table's visible rows are its rows that pass its own filters and semi-join
 every constrained table with an edge into it, all final already. A component
 whose cycles are only links' two directions, the links forming a tree (a
@@ -54,7 +56,18 @@ the row passes the `where`; the groups, the `(no match)` row and each
 measure's values are read from that small result. When the table gets its
 tags through one join outside any cycle, the pass is its visible rows LEFT
 JOINed to that join's relation (the shape of a hand-written star join);
-otherwise its visible rows LEFT JOIN its grouped rows on `_row`.
+otherwise its visible rows LEFT JOIN its grouped rows on `_row`. When that
+one join leaves other routes to check as semi-joins that carry tags, a route
+whose tagged relation is itself one key join (partsupp tagged through
+supplier) is followed as a LEFT JOIN of untagged rows down to the first small
+tagged relation, then one EXISTS there: a tagged relation can hold a big
+table's rows once per group.
+
+When every base measure of the answer was aggregated in that one pass (one
+setting, one table, one `where`) and every grouping column reaches the table,
+the pass's rows are the answer: its groups, and its `_nm` row as `(no
+match)`; the final statement reads it once (the `_nm` and `_w` flags are
+grouped as 0/1 integers, which DuckDB groups by direct indexing).
 
 A measure's `(no match)` value, when every grouping column reaches its
 table, is read from the same pass (the rows marked `_nm`: each tag set of a
@@ -375,10 +388,17 @@ class _Plan:
         while todo:
             text = sql_of[todo.pop()]
             for name in sql_of:
-                if name not in needed and q(name) in text:
+                if name not in needed and _reads(text, name):
                     needed.add(name)
                     todo.append(name)
         return needed
+
+
+def _reads(text: str, name: str) -> bool:
+    """Whether SQL `text` reads relation `name` (after FROM or JOIN; the same quoted name as a column alias is
+    not a read, so a relation nothing reads is left out and DuckDB does not materialise what it reads)."""
+    quoted = q(name)
+    return quoted in text and (f"FROM {quoted}" in text or f"JOIN {quoted}" in text)
 
 
 def _referenced(rels: list[tuple[str, str]], texts: Sequence[str]) -> set[str]:
@@ -389,7 +409,7 @@ def _referenced(rels: list[tuple[str, str]], texts: Sequence[str]) -> set[str]:
     while todo:
         text = todo.pop()
         for name in sql_of:
-            if name not in found and q(name) in text:
+            if name not in found and _reads(text, name):
                 found.add(name)
                 todo.append(sql_of[name])
     return found
