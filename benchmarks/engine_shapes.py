@@ -2,6 +2,7 @@
 
     python benchmarks/engine_shapes.py            # scale factor 1 (6 million lineitem rows)
     python benchmarks/engine_shapes.py --smoke    # scale factor 0.01, one round
+    python benchmarks/engine_shapes.py --sf 10 --memory   # peak memory of each answer, each in its own process
 
 The model is benchmarks/shapes.model.yaml; its reports are the shapes:
 
@@ -28,12 +29,22 @@ cannot be installed offline), written once to Parquet in
 `Database.run`; the hand-written SQL runs on the same connection; rounds
 interleave them and the best of each counts. Every answer must equal the
 hand-written one row for row (exit 1 otherwise).
+
+`--memory` measures instead the peak resident memory of each answer: for
+each shape, one fresh process opens the data and computes the engine's
+answer, another the hand-written one, and a third opens the data only (the
+floor); each prints its own peak (`ru_maxrss`). At scale factor 10 (60
+million lineitem rows, about 350 MB of Parquet made on first use in a few
+minutes) this is the check that the engine stays within the machine.
 """
 
 from __future__ import annotations
 
 import argparse
+import json
 import os
+import resource
+import subprocess
 import shutil
 import sys
 import time
@@ -220,6 +231,57 @@ def run(sf: float, cache: Path, rounds: int, only: list[str]) -> int:
     return 0
 
 
+def peak_mb() -> float:
+    """This process's peak resident memory in MB (Linux reports ru_maxrss in KB)."""
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+
+
+def child(sf: float, cache: Path, shape: str, side: str) -> int:
+    """One answer in this process, then its peak memory and seconds as JSON on stdout."""
+    sys.path.insert(0, str(ROOT))
+    from modeldiff.data import Database
+    from modeldiff.load import load_path
+
+    model = load_path(MODEL).model
+    folder = cache / f"shapes-sf{sf_name(sf)}"
+    with Database.open(model, str(MODEL), data_dir=str(folder)) as db:
+        start = time.perf_counter()
+        if side == "engine":
+            rows = engine_answer(model, db, shape)
+        elif side == "hand":
+            rows = db.connection.execute(HAND[shape]).fetchall()
+        else:
+            rows = []
+        seconds = time.perf_counter() - start
+    print(json.dumps({"peak_mb": peak_mb(), "seconds": seconds, "rows": len(rows)}))
+    return 0
+
+
+def memory(sf: float, cache: Path, only: list[str]) -> int:
+    """Peak memory of each shape's engine and hand-written answers, each in a fresh process."""
+    data_dir(sf, cache)
+
+    def measure(shape: str, side: str) -> dict:
+        done = subprocess.run([sys.executable, __file__, "--sf", str(sf), "--cache", str(cache),
+                               "--child", f"{shape}:{side}"], capture_output=True, text=True)
+        if done.returncode != 0:
+            say(done.stderr.strip().splitlines()[-1] if done.stderr.strip() else f"{shape} {side} failed")
+            raise SystemExit(1)
+        return json.loads(done.stdout.strip().splitlines()[-1])
+
+    floor = measure(only[0], "none")
+    say(f"peak memory at scale factor {sf_name(sf)}: opening the data alone {floor['peak_mb']:.0f} MB")
+    worst = 0.0
+    for shape in only:
+        ours, theirs = measure(shape, "engine"), measure(shape, "hand")
+        worst = max(worst, ours["peak_mb"])
+        say(f"shape {shape}: engine peak {ours['peak_mb']:.0f} MB ({ours['seconds']:.1f} s), "
+            f"hand-written peak {theirs['peak_mb']:.0f} MB ({theirs['seconds']:.1f} s)")
+    total = os.sysconf("SC_PAGE_SIZE") * os.sysconf("SC_PHYS_PAGES") / 2**20
+    say(f"largest engine peak at scale factor {sf_name(sf)}: {worst:.0f} MB of {total:.0f} MB on this machine")
+    return 0
+
+
 def main(argv=None) -> int:
     p = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
     p.add_argument("--sf", type=float, default=1.0, help="scale factor (default 1)")
@@ -228,11 +290,19 @@ def main(argv=None) -> int:
     p.add_argument("--shape", action="append", choices=sorted(HAND), help="run only this shape (repeatable)")
     p.add_argument("--cache", type=Path, default=Path.home() / ".cache" / "modeldiff-bench",
                    help="where generated data lives")
+    p.add_argument("--memory", action="store_true",
+                   help="measure each answer's peak memory in its own process instead of timing")
+    p.add_argument("--child", help=argparse.SUPPRESS)  # SHAPE:engine|hand|none, run by --memory
     args = p.parse_args(argv)
     if args.sf <= 0:
         p.error("--sf must be positive")
     if args.smoke:
         args.sf, args.rounds = 0.01, 1
+    if args.child:
+        shape, _, side = args.child.partition(":")
+        return child(args.sf, args.cache.expanduser(), shape, side)
+    if args.memory:
+        return memory(args.sf, args.cache.expanduser(), args.shape or list(HAND))
     return run(args.sf, args.cache.expanduser(), max(1, args.rounds), args.shape or list(HAND))
 
 

@@ -19,7 +19,9 @@ How the visible rows are computed
 Given direct filters, a table is constrained when it has one or a constrained
 table has a flow-graph edge into it; the others keep their rows and restrict
 nothing. The constrained tables are taken one strongly connected component at
-a time, in topological order. A component without a cycle needs one pass: a
+a time, in topological order (the arcs, reach and components come from
+modeldiff.graph: `flow_edges`/`security_edges`, `FilterGraph.reach_all`,
+`FilterGraph.components`). A component without a cycle needs one pass: a
 table's visible rows are its rows that pass its own filters and semi-join
 every constrained table with an edge into it, all final already. A component
 whose cycles are only links' two directions, the links forming a tree (a
@@ -54,7 +56,18 @@ the row passes the `where`; the groups, the `(no match)` row and each
 measure's values are read from that small result. When the table gets its
 tags through one join outside any cycle, the pass is its visible rows LEFT
 JOINed to that join's relation (the shape of a hand-written star join);
-otherwise its visible rows LEFT JOIN its grouped rows on `_row`.
+otherwise its visible rows LEFT JOIN its grouped rows on `_row`. When that
+one join leaves other routes to check as semi-joins that carry tags, a route
+whose tagged relation is itself one key join (partsupp tagged through
+supplier) is followed as a LEFT JOIN of untagged rows down to the first small
+tagged relation, then one EXISTS there: a tagged relation can hold a big
+table's rows once per group.
+
+When every base measure of the answer was aggregated in that one pass (one
+setting, one table, one `where`) and every grouping column reaches the table,
+the pass's rows are the answer: its groups, and its `_nm` row as `(no
+match)`; the final statement reads it once (the `_nm` and `_w` flags are
+grouped as 0/1 integers, which DuckDB groups by direct indexing).
 
 A measure's `(no match)` value, when every grouping column reaches its
 table, is read from the same pass (the rows marked `_nm`: each tag set of a
@@ -257,96 +270,57 @@ class _Arc:
     fans_out: bool  # a src value can match several src rows (many-to-many, or against a many-to-one)
 
 
-def _link_arcs(link: Link, both_ways: bool) -> list[_Arc]:
-    arcs = [_Arc(link.name, link.to_table, link.from_table, link.to_columns, link.from_columns,
-                 link.cardinality == "many-to-many")]
-    if both_ways:
-        arcs.append(_Arc(link.name, link.from_table, link.to_table, link.from_columns, link.to_columns,
-                         link.cardinality != "one-to-one"))
-    return arcs
+def _link_arcs(link: Link, edges: Sequence) -> list[_Arc]:
+    """The arcs of `link`'s graph edges: modeldiff.graph decides which directions carry filters and gives the
+    to -> from edge first, then from -> to when the link carries both ways (also for a link to its own table)."""
+    both = [_Arc(link.name, link.to_table, link.from_table, link.to_columns, link.from_columns,
+                 link.cardinality == "many-to-many"),
+            _Arc(link.name, link.from_table, link.to_table, link.from_columns, link.to_columns,
+                 link.cardinality != "one-to-one")]
+    return both[:len(edges)]
 
 
 def _flow_arcs(model: Model, setting) -> list[_Arc]:
     """semantics.md section 2, edge by edge (a link to its own table keeps both directions apart)."""
+    from modeldiff import graph
+
     arcs = []
     for name, flow in setting.flows.items():
         link = model.links.get(name)
         if link is not None and link.tables <= set(model.tables):
-            arcs += _link_arcs(link, flow == "two-way" or link.cardinality == "one-to-one")
+            arcs += _link_arcs(link, graph.flow_edges(link, flow))
     return arcs
 
 
 def _security_arcs(model: Model) -> list[_Arc]:
     """semantics.md section 3: the default setting's links, reversed only when security flows two-way."""
+    from modeldiff import graph
+
     arcs = []
     for name in sorted(model.links):
         link = model.links[name]
         if not link.standby and link.tables <= set(model.tables):
-            arcs += _link_arcs(link, link.cardinality == "one-to-one"
-                               or (link.flow == "two-way" and link.security_flow == "two-way"))
+            arcs += _link_arcs(link, graph.security_edges(link))
     return arcs
 
 
-def _reach(arcs: Sequence[_Arc], starts: Iterable[str], backwards: bool = False) -> set[str]:
-    nxt: dict[str, list[str]] = {}
-    for a in arcs:
-        u, v = (a.dst, a.src) if backwards else (a.src, a.dst)
-        nxt.setdefault(u, []).append(v)
-    seen = set(starts)
-    todo = list(seen)
-    while todo:
-        for v in nxt.get(todo.pop(), ()):
-            if v not in seen:
-                seen.add(v)
-                todo.append(v)
-    return seen
+def _graph(arcs: Sequence[_Arc], tables: Iterable[str] = ()):
+    """The `graph.FilterGraph` of `arcs` (over their tables and `tables`)."""
+    from modeldiff import graph
+
+    return graph.FilterGraph({*tables, *(a.src for a in arcs), *(a.dst for a in arcs)},
+                             [graph.Edge(a.link, a.src, a.dst) for a in arcs])
+
+
+def _reach(arcs: Sequence[_Arc], starts: Iterable[str]) -> set[str]:
+    starts = list(starts)
+    return set(_graph(arcs, starts).reach_all(starts))
 
 
 def _components(nodes: Sequence[str], arcs: Sequence[_Arc]) -> list[list[str]]:
-    """Strongly connected components in topological order (Tarjan's algorithm, iterative)."""
-    out: dict[str, list[str]] = {n: [] for n in nodes}
-    for a in arcs:
-        if a.src in out and a.dst in out:
-            out[a.src].append(a.dst)
-    index: dict[str, int] = {}
-    low: dict[str, int] = {}
-    stack: list[str] = []
-    on_stack: set[str] = set()
-    found: list[list[str]] = []
-    for root in nodes:
-        if root in index:
-            continue
-        work = [(root, iter(out[root]))]
-        index[root] = low[root] = len(index)
-        stack.append(root)
-        on_stack.add(root)
-        while work:
-            node, children = work[-1]
-            child = next(children, None)
-            if child is not None:
-                if child not in index:
-                    index[child] = low[child] = len(index)
-                    stack.append(child)
-                    on_stack.add(child)
-                    work.append((child, iter(out[child])))
-                elif child in on_stack:
-                    low[node] = min(low[node], index[child])
-                continue
-            work.pop()
-            if work:
-                parent = work[-1][0]
-                low[parent] = min(low[parent], low[node])
-            if low[node] == index[node]:
-                component = []
-                while True:
-                    member = stack.pop()
-                    on_stack.discard(member)
-                    component.append(member)
-                    if member == node:
-                        break
-                found.append(sorted(component))
-    found.reverse()
-    return found
+    """Strongly connected components of `nodes` (arcs among them) in topological order."""
+    inside = set(nodes)
+    return [list(c) for c in _graph([a for a in arcs if a.src in inside and a.dst in inside], nodes).components()]
 
 
 # --- SQL text helpers -------------------------------------------------------------------
@@ -415,10 +389,17 @@ class _Plan:
         while todo:
             text = sql_of[todo.pop()]
             for name in sql_of:
-                if name not in needed and q(name) in text:
+                if name not in needed and _reads(text, name):
                     needed.add(name)
                     todo.append(name)
         return needed
+
+
+def _reads(text: str, name: str) -> bool:
+    """Whether SQL `text` reads relation `name` (after FROM or JOIN; the same quoted name as a column alias is
+    not a read, so a relation nothing reads is left out and DuckDB does not materialise what it reads)."""
+    quoted = q(name)
+    return quoted in text and (f"FROM {quoted}" in text or f"JOIN {quoted}" in text)
 
 
 def _referenced(rels: list[tuple[str, str]], texts: Sequence[str]) -> set[str]:
@@ -429,7 +410,7 @@ def _referenced(rels: list[tuple[str, str]], texts: Sequence[str]) -> set[str]:
     while todo:
         text = todo.pop()
         for name in sql_of:
-            if name not in found and q(name) in text:
+            if name not in found and _reads(text, name):
                 found.add(name)
                 todo.append(sql_of[name])
     return found
@@ -471,6 +452,7 @@ class _Visibility:
             for t in _reach(arcs, [s.table]):
                 self.tags[t] += (s.index,)
         self.rels: dict[str, _Rel] = {}
+        self.built: dict[str, list[_Arc]] = {}  # table -> the arcs `_select` built its relation from (no loop)
         for component in _components(sorted(self.constrained), self.arcs):
             self._component(component)
 
@@ -492,6 +474,7 @@ class _Visibility:
             table = members[0]
             self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}", self._select(table, self._into(table))),
                                     self.tags[table])
+            self.built[table] = self._into(table)
             return
         tree = self._two_way_tree(members)
         if tree is not None:
@@ -508,9 +491,11 @@ class _Visibility:
                 below = [a for a in self._into(table) if a.src not in inside or parent.get(a.src) == table]
                 self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}{'_' if table == root else 'p_'}{table}",
                                                            self._select(table, below)), self.tags[table])
+                self.built[table] = below
             for table in order[1:]:
                 self.rels[table] = _Rel(self.plan.relation(f"{self.prefix}_{table}",
                                                            self._select(table, self._into(table))), self.tags[table])
+                self.built[table] = self._into(table)
             return
         self.cyclic.update(members)
         for table in self._order(members):
@@ -596,6 +581,65 @@ class _Visibility:
         conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {(tag_of or {}).get(i, f'{outer}.{_tag(i)}')}"
                   for i in src.tags]
         return f"EXISTS (SELECT 1 FROM {q(src.name)} AS _u WHERE {_and(conds)})"
+
+    def _tag_test(self, arc: _Arc, outer: str, tag_of: Mapping[int, str], joins: list[str]) -> str:
+        """Whether the row at `outer` matches a visible row of arc.src carrying the tags `tag_of`.
+
+        `EXISTS` on arc.src's tagged rows, unless those rows are a join: when
+        arc.src's relation was built by `_select` from one join on a tagged
+        source and untagged semi-joins, and the arc's columns are unique in
+        arc.src, the outer row meets at most one of its rows, which has the
+        tags exactly when its row of the join's source has them. So the test
+        follows such joins down (partsupp -> supplier) as one LEFT JOIN of
+        the untagged rows, appended to `joins`, and ends with one `EXISTS` on
+        the first tagged relation that is not such a join (nation). A tagged
+        relation can hold a big table's rows once per group (partsupp once
+        per market segment); the chain holds each row once.
+        """
+        chain: list[tuple[_Arc, list[_Arc]]] = []  # (arc leaving the table, its untagged semi-joins)
+        step = arc
+        while True:
+            table = step.src
+            arcs = self.built.get(table)
+            if arcs is None or not self.unique_on(table, step.src_columns) or any(
+                    s.table == table for s in self.sources):
+                break
+            _, joined, semi = self._split(table, arcs)
+            if (len(joined) != 1 or any(self.rel(a.src).tags for a in semi)
+                    or set(self.tags[table]) - set(self.rel(joined[0][1].src).tags)):
+                break
+            chain.append((step, semi))
+            step = joined[0][1]
+        if not chain:
+            return self._exists(arc, outer, tag_of)
+        alias = f"_f{len(joins)}"
+        parts = []
+        for n, (leaving, semi) in enumerate(chain):
+            rows = f"({self._untagged(leaving.src, semi)}) AS _c{n}"
+            if n == 0:
+                parts.append(rows)
+            else:
+                on = [f"_c{n}.{q(s)} = _c{n - 1}.{q(d)}" for s, d in zip(leaving.src_columns, leaving.dst_columns)]
+                parts.append(f"JOIN {rows} ON {_and(on)}")
+        last = len(chain) - 1
+        picks = [f"_c0.{q(c)} AS {q(f'_o{m}')}" for m, c in enumerate(arc.src_columns)]
+        picks += [f"_c{last}.{q(c)} AS {q(f'_i{m}')}" for m, c in enumerate(step.dst_columns)]
+        on = [f"{alias}.{q(f'_o{m}')} = {outer}.{q(d)}" for m, d in enumerate(arc.dst_columns)]
+        joins.append(f"LEFT JOIN (SELECT {', '.join(picks)} FROM {' '.join(parts)}) AS {alias} ON {_and(on)}")
+        src = self.rel(step.src)
+        conds = [f"_u.{q(c)} = {alias}.{q(f'_i{m}')}" for m, c in enumerate(step.src_columns)]
+        conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {tag_of[i]}" for i in src.tags]
+        return f"EXISTS (SELECT 1 FROM {q(src.name)} AS _u WHERE {_and(conds)})"
+
+    def _untagged(self, table: str, semi: Sequence[_Arc]) -> str:
+        """Rows of `table` passing its filters and semi-joined with the (untagged) visible rows of `semi`'s sources."""
+        preds = self.filters.get(table, ())
+        inner = f"SELECT * FROM {q(self.base.get(table, table))} AS {q(table)}"
+        if preds:
+            inner += " WHERE " + _and([f"({p})" for p in preds])
+        if not semi:
+            return inner
+        return f"SELECT * FROM ({inner}) AS _c WHERE " + _and([self._exists(a, "_c") for a in semi])
 
     def _split(self, table: str, arcs: Sequence[_Arc]) -> tuple[dict[int, str], list[tuple[str, _Arc]], list[_Arc]]:
         """How `_select` meets `arcs`: tags `table` provides itself, arcs joined (with their alias), arcs semi-joined.
@@ -685,13 +729,15 @@ class _Visibility:
             # Each total row meets at most one row of the join (its source holds one tag set per row and
             # the link columns are its key): the row is in that group when the tagged semi-joins hold too.
             alias, arc = joined[0]
-            ok = _and([f"{alias}.{q('_k0')} IS NOT NULL"] + [self._exists(a, "_x", provided) for a in tagged_semi])
+            unfolded: list[str] = []
+            ok = _and([f"{alias}.{q('_k0')} IS NOT NULL"]
+                      + [self._tag_test(a, "_x", provided, unfolded) for a in tagged_semi])
             raw = "".join(f", {provided[i]} AS {q(f'_t{i}')}" for i in tags)
             join = self._join(alias, arc, {i: provided[i] for i in provided if provided[i].startswith('_x.')},
                               "LEFT JOIN")
             picks = "".join(f", CASE WHEN _y._ok THEN _y.{q(f'_t{i}')} END AS {_tag(i)}" for i in tags)
             return (f"SELECT _y.*{picks}, NOT _y._ok AS _nm FROM (SELECT _x.*{raw}, {ok} AS _ok FROM {rows} AS _x"
-                    f"\n  {join}) AS _y")
+                    f"\n  {join}" + "".join(f"\n  {j}" for j in unfolded) + ") AS _y")
         own = {s.index for s in self.sources if s.table == table}
         if not joined:
             picks = "".join(f", {provided[i]} AS {_tag(i)}" for i in tags)
@@ -887,6 +933,13 @@ class _Compiler:
             nothing = ", ".join([f"NULL AS {t}" for t in tag_cols] + [f"false AS {q(NO_MATCH_COLUMN)}"])
             final = f"SELECT {', '.join(outputs)}, {q(NO_MATCH_COLUMN)}\nFROM (SELECT {nothing}) AS _v WHERE false"
             return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
+        # (a condition, or a measure only the condition names, needs the general assembly below)
+        one_pass = None if having or shown < len(terms) else self._from_one_pass(values, len(terms), len(sources))
+        if one_pass is not None:
+            order = ", ".join([q(NO_MATCH_COLUMN)] + [f"{n} ASC NULLS LAST" for n in range(1, len(sources) + 1)])
+            final = (f"SELECT {', '.join(outputs)}, {q(NO_MATCH_COLUMN)}\nFROM (\n{one_pass}\n) AS _v\n"
+                     f"ORDER BY {order}")
+            return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
         combos = self.plan.relation("_combos", "\nUNION\n".join(dict.fromkeys(values[k].combos
                                                                              for k in range(shown))))
         picks, joins = [], []
@@ -909,6 +962,35 @@ class _Compiler:
         final = (f"SELECT {', '.join(outputs)}, {q(NO_MATCH_COLUMN)}\nFROM (\n{grouped_rows}\nUNION ALL\n"
                  f"{no_match_row}\n) AS _v{kept}\nORDER BY {order}")
         return self.plan.query(final, columns + [NO_MATCH_COLUMN], self.params)
+
+    def _from_one_pass(self, values: Mapping[int, "_Value"], n_terms: int, n_sources: int) -> str | None:
+        """The answer's rows read straight from the one pass that aggregated every measure, or None.
+
+        When all the base measures were aggregated in one pass (one setting,
+        one table, one `where`) and every grouping column reaches that table,
+        the pass's rows are the answer: its groups (tags, `_nm` false) are the
+        combinations in which a measure sees a row, and its `_nm` row is the
+        `(no match)` row, present exactly when such rows exist. Without a
+        `where` each row carries the values; with one, the group's values are
+        those of its rows passing the `where`, else the aggregate over no rows.
+        """
+        passes = {values[k].agg for k in range(n_terms)}
+        if len(passes) != 1 or "" in passes or any(set(values[k].tags) != set(range(n_sources))
+                                                    for k in range(n_terms)):
+            return None
+        agg = q(passes.pop())
+        tags = [_tag(i) for i in range(n_sources)]
+        flag = f"_nm AS {q(NO_MATCH_COLUMN)}"
+        if values[0].bound.where is None:
+            picks = [f"{q(f'_v{values[k].bound.k}')} AS {q(f'_m{k}')}" for k in range(n_terms)]
+            return f"SELECT {', '.join(tags + picks + [flag])} FROM {agg}"
+        keys = [f"_a.{t}" for t in tags]
+        conds = [f"_w.{t} IS NOT DISTINCT FROM _a.{t}" for t in tags] + ["_w._nm = _a._nm"]
+        picks = [f"CASE WHEN _w._nm IS NULL THEN (SELECT _value FROM {q(values[k].empty)}) "
+                 f"ELSE _w.{q(f'_v{values[k].bound.k}')} END AS {q(f'_m{k}')}" for k in range(n_terms)]
+        return (f"SELECT {', '.join(keys + picks)}, _a._nm AS {q(NO_MATCH_COLUMN)}\n"
+                f"FROM (SELECT DISTINCT {', '.join(tags)}, _nm FROM {agg}) AS _a\n"
+                f"  LEFT JOIN (SELECT * FROM {agg} WHERE _w) AS _w ON {_and(conds)}")
 
     def _no_match(self, v: "_Value", combos: str, n_sources: int, own_groups: bool = True) -> str:
         """`_rows`, `_value`: one base measure's home rows visible in its total but in no group of the answer.
@@ -1073,11 +1155,15 @@ class _SettingGroups:
             return out
         tags = tuple(self.grouped.rel(home).tags)
         tagged = self.plan.relation(f"_h{first.k}", self._home_rows(home))
-        rows = f"SELECT * FROM {q(tagged)}"
+        # `_nm` and `_w` are grouped as 0/1 integers (`_nf`, `_wf`): DuckDB groups small integer keys
+        # by direct indexing (its perfect hash aggregate) and booleans not, about 3x slower on 6M rows
+        flags = ", CASE WHEN _nm THEN 1 ELSE 0 END AS _nf"
         if where:
-            rows = f"SELECT *, ({where}) IS TRUE AS _w FROM ({rows}) AS {q(home)}"
-        keys = ", ".join([_tag(i) for i in tags] + ["_nm"] + (["_w"] if where else []))
-        agg = self.plan.relation(f"_a{first.k}", f"SELECT {keys}, count(*) AS _n, {values} FROM ({rows}) AS {q(home)} "
+            flags += f", CASE WHEN ({where}) IS TRUE THEN 1 ELSE 0 END AS _wf"
+        rows = f"SELECT *{flags} FROM {q(tagged)} AS {q(home)}"
+        keys = ", ".join([_tag(i) for i in tags] + ["_nf"] + (["_wf"] if where else []))
+        picks = ", ".join([_tag(i) for i in tags] + ["_nf = 1 AS _nm"] + (["_wf = 1 AS _w"] if where else []))
+        agg = self.plan.relation(f"_a{first.k}", f"SELECT {picks}, count(*) AS _n, {values} FROM ({rows}) AS {q(home)} "
                                                  f"GROUP BY {keys}")
         passing = " AND _w" if where else ""
         tag_list = ", ".join(_tag(i) for i in tags)

@@ -350,6 +350,70 @@ class FilterGraph:
     def reaches(self, source: str, target: str) -> bool:
         return target in self.reach(source)
 
+    def reach_all(self, starts: Iterable[str]) -> frozenset[str]:
+        """Tables a filter on any of `starts` reaches, `starts` (those of this graph) included."""
+        seen = {self._index[t] for t in starts if t in self._index}
+        stack = list(seen)
+        while stack:
+            for v, _ in self._out[stack.pop()]:
+                if v not in seen:
+                    seen.add(v)
+                    stack.append(v)
+        return frozenset(self._names[v] for v in seen)
+
+    def components(self) -> list[tuple[str, ...]]:
+        """Strongly connected components, in topological order (a component before those it has edges into).
+
+        Each is sorted by name. Tarjan's algorithm, iterative, over tables in
+        name order and edges in link-name order, so the order is the same on
+        every run. (The engine evaluates section 5's fixpoint one component at
+        a time in this order.)
+        """
+        out = self._out
+        index: list[int] = [-1] * len(self._names)
+        low: list[int] = [0] * len(self._names)
+        stack: list[int] = []
+        on_stack = [False] * len(self._names)
+        found: list[tuple[str, ...]] = []
+        counter = 0
+        for root in range(len(self._names)):
+            if index[root] >= 0:
+                continue
+            index[root] = low[root] = counter
+            counter += 1
+            stack.append(root)
+            on_stack[root] = True
+            work = [(root, iter(out[root]))]
+            while work:
+                node, children = work[-1]
+                step = next(children, None)
+                if step is not None:
+                    child = step[0]
+                    if index[child] < 0:
+                        index[child] = low[child] = counter
+                        counter += 1
+                        stack.append(child)
+                        on_stack[child] = True
+                        work.append((child, iter(out[child])))
+                    elif on_stack[child]:
+                        low[node] = min(low[node], index[child])
+                    continue
+                work.pop()
+                if work:
+                    parent = work[-1][0]
+                    low[parent] = min(low[parent], low[node])
+                if low[node] == index[node]:
+                    members = []
+                    while True:
+                        member = stack.pop()
+                        on_stack[member] = False
+                        members.append(self._names[member])
+                        if member == node:
+                            break
+                    found.append(tuple(sorted(members)))
+        found.reverse()
+        return found
+
     def route(self, source: str, target: str) -> Path | None:
         """One shortest path (fewest links, then by link name), or None when there is none."""
         s, x = self._index.get(source), self._index.get(target)

@@ -57,29 +57,31 @@ def layer(overrides) -> tuple:
 def setting(model, layers: Iterable) -> dict[str, LinkState]:
     """Link name -> whether it carries filters and its flow, after applying override layers in order."""
     state = {n: LinkState(not l.standby, l.flow) for n, l in model.links.items()}
-    switched_off: set[str] = set()
+    # link -> whether it carried filters before a layer set it `off`: a later flow turns it back to that,
+    # so a standby link no layer named in `via` stays on standby ("carries no filter unless ... named in
+    # via", model-format.md; seed 538 of the section 5 campaign made one carry)
+    switched_off: dict[str, bool] = {}
     for via, flow in layers:
         for name in via:
             if name not in model.links:
                 continue
             state[name].carries = True
-            switched_off.discard(name)
+            switched_off.pop(name, None)
             link = model.links[name]
             for other, o in model.links.items():  # every other link between the two tables goes on standby
                 if other not in via and o.tables == link.tables:
                     state[other].carries = False
-                    switched_off.discard(other)  # on standby now: a later flow does not bring it back
+                    switched_off.pop(other, None)  # on standby now: a later flow does not bring it back
         for name, value in flow:
             if name not in model.links:
                 continue
             if value == "off":
+                switched_off.setdefault(name, state[name].carries)
                 state[name].carries = False
-                switched_off.add(name)
             else:
                 state[name].flow = value
                 if name in switched_off:
-                    state[name].carries = True
-                    switched_off.discard(name)
+                    state[name].carries = switched_off.pop(name)
     return state
 
 

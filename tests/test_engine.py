@@ -82,6 +82,43 @@ def test_groups_with_data_and_the_no_match_row():
     )  # Hillside has no trip: a group without data is not a row
 
 
+def test_measures_of_one_pass_are_read_straight_from_it_with_the_no_match_row():
+    # trip_count and fare_revenue2 (no where) on trips: one pass grouped by district, read once; by hand:
+    # Harbour trips 1, 2 (fares 2.00 + 3.00); Old Town trip 3 (1.50); (no match) trips 4 and 5 (4.00 + 1.00)
+    m = edit(MINI, measure("fare_total", "sum(fare)", "trips"),
+             report("r", ["trip_count", "fare_total"], "districts.name"))
+    query = engine.report_query(m, "r")
+    assert '"_combos"' not in query.sql and query.sql.count('FROM "_a0"') == 1
+    assert rows_of(m, "r").rows == (("Harbour", 2, Decimal("5.00")), ("Old Town", 1, Decimal("1.50")),
+                                    (NO_MATCH, 2, Decimal("5.00")))
+
+
+def test_measures_of_two_passes_are_assembled_from_their_groups():
+    # trip_count on trips and station_count on stations: two passes, so the groups are put together
+    # (_combos); by hand: Harbour 2 trips, 2 stations; Old Town 1 trip, 1 station; (no match): trips 4, 5
+    # and station 30 (its district 9 is missing)
+    m = with_report(["trip_count", "station_count"], "districts.name")
+    assert '"_combos"' in engine.report_query(m, "r").sql
+    assert rows_of(m, "r").rows == (("Harbour", 2, 2), ("Old Town", 1, 1), (NO_MATCH, 2, 1))
+
+
+def test_a_route_whose_tagged_rows_are_a_key_join_is_followed_as_a_join():
+    # trips reach a district through their station and through their bike's home district (two routes that
+    # must agree). The engine tags trips through one route (bikes) and tests the other: stations' tagged
+    # rows are a key join on districts, so the test LEFT JOINs stations' untagged rows on the station key
+    # and probes the small tagged districts once.
+    m = edit(MINI, table("bikes", columns={"bike_key": "integer", "bike_type": "text", "home_district": "integer"}),
+             link("bikes_home_district", "bikes.home_district", "districts.district_key"),
+             report("r", "trip_count", "districts.name"))
+    rows = dict(ROWS, bikes=[(100, "classic", 1), (101, "electric", 2), (102, "classic", 1)])
+    sql = engine.report_query(m, "r").sql
+    assert 'LEFT JOIN (SELECT _c0."station_key" AS "_o0", _c0."district_key" AS "_i0"' in sql
+    # by hand: trip 1 (station Quay in Harbour, bike 100 at home in Harbour) -> Harbour; trip 2 (Mill in
+    # Harbour, bike 101 at home in Old Town) -> no group; trip 3 (Square in Old Town, bike 100 in Harbour)
+    # -> no group; trips 4 (station 30, district 9 missing) and 5 (no station) -> no group
+    assert rows_of(m, "r", rows=rows).rows == (("Harbour", 1), (NO_MATCH, 4))
+
+
 def test_no_no_match_row_when_every_visible_row_is_in_a_group():
     m = with_report("trip_count", "districts.name", where={"trips": "trip_key <= 3"})
     assert rows_of(m, "r").rows == (("Harbour", 2), ("Old Town", 1))

@@ -84,6 +84,29 @@ def test_reach_matches_networkx_descendants(fg):
         assert fg.reaching(t) == frozenset(nx.ancestors(ref, t)) | {t}
 
 
+@given(graphs(), st.lists(st.sampled_from(TABLES), max_size=3))
+def test_reach_all_matches_networkx_descendants_of_each_start(fg, starts):
+    ref = reference(fg)
+    expected = set().union(*({t} | nx.descendants(ref, t) for t in starts if t in fg.tables))
+    assert fg.reach_all(starts) == expected
+
+
+@given(graphs())
+def test_components_match_networkx_in_topological_order(fg):
+    """networkx.strongly_connected_components and networkx.condensation are the reference."""
+    ref = reference(fg)
+    found = fg.components()
+    assert sorted(found) == sorted(tuple(sorted(c)) for c in nx.strongly_connected_components(ref))
+    position = {t: i for i, c in enumerate(found) for t in c}
+    assert all(position[e.src] <= position[e.dst] for e in fg.edges)  # no edge goes back to an earlier component
+
+
+def test_components_put_a_cycle_together_and_a_chain_apart():
+    fg = FilterGraph(["a", "b", "c", "d"], [Edge("x", "a", "b"), Edge("y", "b", "a"), Edge("z", "b", "c")])
+    assert fg.components() == [("d",), ("a", "b"), ("c",)]
+    assert FilterGraph(["a", "b"], [Edge("x", "a", "b")]).components() == [("a",), ("b",)]
+
+
 @given(graphs())
 def test_ambiguity_and_paths_match_brute_force(fg):
     ref = reference(fg)

@@ -30,7 +30,10 @@ import section5_compare as C
 
 # 636: a table's one join carries several tag sets per row, so the engine must not read the groups off
 # that join with the other routes as semi-joins; found by benchmarks/campaigns/section5_campaign.py
-SEEDS = [*range(130), 636]
+# 538: a derived measure turning a standby link off and the measure it names setting its flow made the
+# link carry filters in the reference (not in the engine): the reference was wrong (model-format.md: a
+# standby link carries no filter unless named in `via`)
+SEEDS = [*range(130), 538, 636]
 
 
 def _cases():
@@ -94,3 +97,45 @@ def test_the_role_cut_equals_the_reference_on_random_models():
                         found.append(f"seed {seed} role {role} user {user}: engine {engine} reference {mine}")
     assert found == []
     assert compared >= 50
+
+
+def _link_model():
+    import textwrap
+
+    from modeldiff.load import load_files
+
+    return load_files([("s.yaml", textwrap.dedent("""\
+        model: s
+        format: 1
+        tables:
+          f: {kind: fact, key: id, columns: {id: integer, d: integer, e: integer}}
+          d: {kind: dimension, key: k, columns: {k: integer}}
+        links:
+          plain: {from: f.d, to: d.k}
+          spare: {from: f.e, to: d.k, standby: true}
+        """))]).model
+
+
+@pytest.mark.parametrize("layers, carries", [
+    # (via, ((link, flow), ...)) layers in order -> (plain carries, spare carries)
+    ([], (True, False)),
+    ([((), (("spare", "off"),)), ((), (("spare", "one-way"),))], (True, False)),  # seed 538: stays on standby
+    ([((), (("plain", "off"),)), ((), (("plain", "one-way"),))], (True, False)),  # turned back on
+    ([((), (("plain", "off"),))], (False, False)),
+    ([(("spare",), ()), ((), (("spare", "off"),)), ((), (("spare", "two-way"),))], (False, True)),
+    ([(("spare",), ()), ((), (("spare", "off"),)), ((), (("spare", "off"),)), ((), (("spare", "one-way"),))],
+     (False, True)),
+])
+def test_the_reference_turns_a_link_back_to_what_it_was_before_off(layers, carries):
+    """semantics.md section 1: a later flow turns back on a link an earlier layer set off; only `via` makes a
+    standby link carry filters. The engine's resolver (modeldiff.graph) agrees on each case."""
+    from modeldiff import graph
+    from modeldiff.model import Overrides
+
+    import section5 as S
+
+    model = _link_model()
+    state = S.setting(model, layers)
+    assert (state["plain"].carries, state["spare"].carries) == carries
+    resolved = graph.resolve_setting(model, *[Overrides(via=via, flow=dict(flow)) for via, flow in layers])
+    assert ("plain" in resolved.flows, "spare" in resolved.flows) == carries
