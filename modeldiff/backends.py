@@ -262,7 +262,10 @@ def _check_view_statement(text: str, dialect: str, prefix: str) -> None:
     elif isinstance(tree, exp.Uncache):
         name = tree.this.name
     elif isinstance(tree, exp.Drop) and (tree.args.get("kind") or "").upper() == "VIEW":
-        name = tree.this.name
+        tables = tree.args.get("tables") or [tree.this]
+        if len(tables) != 1 or tables[0] is None:
+            raise ModeldiffError("refusing to drop other than one view of ours; report this as a bug")
+        name = tables[0].name
     else:
         raise ModeldiffError("refusing to send a statement that is neither a query nor one of our temporary views; "
                              "report this as a bug")
@@ -421,6 +424,7 @@ def local_session(master: str):
 
     return (SparkSession.builder.master(master).appName("modeldiff")
             .config("spark.ui.enabled", "false")
+            .config("spark.ui.showConsoleProgress", "false")
             .config("spark.driver.host", "127.0.0.1")
             .config("spark.driver.bindAddress", "127.0.0.1")
             .config("spark.sql.shuffle.partitions", "4")
@@ -440,6 +444,7 @@ class _Timeout(Exception):
 
 _SRC = "_md_"  # CTE of a model table
 _VERSION = "_mdv_"  # a versioned relation of a loop
+_TABLE = "_mdt_"  # Spark: a model table's cached view
 
 
 @dataclass(frozen=True)
@@ -495,7 +500,7 @@ class RemoteDatabase:
 
     def close(self) -> None:
         try:
-            self._drop_views()
+            self._drop_views(everything=True)
         finally:
             if self._shape is not None:
                 self._shape.close()
@@ -509,6 +514,8 @@ class RemoteDatabase:
         from sqlglot import exp
 
         tree = sqlglot.parse_one(sql_text, read="duckdb")
+        for node in list(tree.find_all(exp.Div)):  # DuckDB's `/` divides in DOUBLE, whatever the operands
+            node.set("this", exp.cast(node.this, "DOUBLE"))
         for node in list(tree.find_all(exp.Placeholder, exp.Parameter)):
             name = node.name
             if name not in params:
@@ -532,10 +539,10 @@ class RemoteDatabase:
                 if not table.alias:
                     table.set("alias", exp.TableAlias(this=exp.to_identifier(name, quoted=True)))
             elif name in self.model.tables and name not in ctes:
-                table.set("this", exp.to_identifier(_SRC + name, quoted=True))
+                table.set("this", exp.to_identifier(self._table_view(name) or _SRC + name, quoted=True))
                 if not table.alias:
                     table.set("alias", exp.TableAlias(this=exp.to_identifier(name, quoted=True)))
-                if name not in used:
+                if name not in used and self.target.kind == "postgresql":
                     used.append(name)
         # the relations of the loop the query reads (PostgreSQL: as CTEs), with the model tables they read
         chain = []
@@ -544,7 +551,9 @@ class RemoteDatabase:
             for table in definition.find_all(exp.Table):
                 if table.name.startswith(_SRC) and table.name[len(_SRC):] not in used:
                     used.append(table.name[len(_SRC):])
-        head = [exp.CTE(this=self._source_tree(name), alias=exp.TableAlias(
+        with_row = any(c.name == "_row" for c in tree.find_all(exp.Column)) or any(
+            c.name == "_row" for _, d in chain for c in d.find_all(exp.Column))
+        head = [exp.CTE(this=self._source_tree(name, with_row), alias=exp.TableAlias(
             this=exp.to_identifier(_SRC + name, quoted=True))) for name in sorted(used)]
         head += [exp.CTE(this=definition.copy(), alias=exp.TableAlias(this=exp.to_identifier(version, quoted=True)))
                  for version, definition in chain]
@@ -554,7 +563,32 @@ class RemoteDatabase:
             tree.set("with_", exp.With(expressions=head + old))
         return tree.sql(dialect=self.target.dialect)
 
-    def _source_tree(self, name: str):
+    def _table_view(self, name: str) -> str | None:
+        """Spark: the cached temporary view holding a model table with `_row` (made on first use); else None.
+
+        A Spark query inlines every CTE where it is read, so `_row`'s window
+        would be computed again at each reference: the view is computed once
+        (in the cluster's memory, spilling to its disks) and dropped at the end."""
+        if self.target.kind != "spark":
+            return None
+        view = f"{_TABLE}{name}"
+        if view not in self._views:
+            text = f"CACHE LAZY TABLE {view} AS {self._source_tree(name, True).sql(dialect='spark')}"
+            self._views.insert(0, view)
+            self._session_view(text, f"table {name}")
+        return view
+
+    def _session_view(self, text: str, what: str) -> None:
+        try:
+            self.session.view(text, "_md")
+        except _Timeout:
+            raise ModeldiffError(f"{what} took longer than {self._limit()} on {self.target.shown}; give a longer "
+                                 "--timeout SECONDS") from None
+        except _Failed as error:
+            raise ModeldiffError(self.target.redact(f"cannot evaluate {what} on {self.target.shown}: "
+                                                    f"{error}")) from None
+
+    def _source_tree(self, name: str, with_row: bool = True):
         """`SELECT row_number() OVER (ORDER BY key) AS _row, <columns as the model names them> FROM <relation>`."""
         import sqlglot
 
@@ -568,7 +602,8 @@ class RemoteDatabase:
 
         order = ", ".join(quoted(source.columns[c][0]) for c in (table.key or tuple(table.columns)))
         picks = ", ".join(f"{quoted(source.columns[c][0])} AS {quoted(c)}" for c in table.columns)
-        text = f"SELECT row_number() OVER (ORDER BY {order}) AS _row, {picks} FROM {source.relation}"
+        row = f"row_number() OVER (ORDER BY {order}) AS _row, " if with_row else ""
+        text = f"SELECT {row}{picks} FROM {source.relation}"
         return sqlglot.parse_one(text, read=d)
 
     # -- sending --------------------------------------------------------------------------------------------
@@ -651,23 +686,17 @@ class RemoteDatabase:
         else:
             text = f"CACHE TABLE {version} AS {self._render(body, versions)}"
             self._views.append(version)
-            try:
-                self.session.view(text, _VERSION)
-            except _Timeout:
-                raise ModeldiffError(f"{what} took longer than {self._limit()} on {self.target.shown}; give a "
-                                     "longer --timeout SECONDS") from None
-            except _Failed as error:
-                raise ModeldiffError(self.target.redact(f"cannot evaluate {what} on {self.target.shown}: "
-                                                        f"{error}")) from None
+            self._session_view(text, what)
         versions[name] = version
 
-    def _drop_views(self) -> None:
-        while self._views:
+    def _drop_views(self, everything: bool = False) -> None:
+        """Drop the loop's views (and, at the end, the tables' views) this evaluation made."""
+        while self._views and (everything or self._views[-1].startswith(_VERSION)):
             name = self._views.pop()
             for text in (f"UNCACHE TABLE IF EXISTS {name}", f"DROP VIEW IF EXISTS {name}"):
                 try:
-                    self.session.view(text, _VERSION)
-                except _Failed:
+                    self.session.view(text, "_md")
+                except (_Failed, _Timeout):
                     pass
 
     def _typed(self, query: Query, rows: list[tuple]) -> list[tuple]:

@@ -502,24 +502,31 @@ def loading_model(result):
     return replace(result.new, tables=tables)
 
 
-def open_data(md, data_dir: str | None, db_file: str | None, allow_outside: bool = False) -> _Data:
+def open_data(md, data_dir: str | None, db_file: str | None, allow_outside: bool = False,
+              db_url: str | None = None, timeout: float | None = None) -> _Data:
     """Both revisions' databases; one shared database when both read the same place with the same tables."""
-    from modeldiff.data import Database
+    from modeldiff.data import open_database
 
     result = md.result
-    if db_file is not None:
+    where = dict(data_dir=data_dir, db_file=db_file, allow_outside=allow_outside, db_url=db_url, timeout=timeout)
+    if db_url is not None:
+        from modeldiff.backends import parse_url
+
+        label = f"database {parse_url(db_url).shown}"
+    elif db_file is not None:
         label = f"database {db_file}"
     elif data_dir is not None:
         label = f"folder {data_dir}"
     else:
         label = "the source: files named in the models"
     for_new = loading_model(result)
-    shared = (data_dir is not None or db_file is not None) and result.old.tables == result.new.tables
-    new = Database.open(for_new, md.new.path, data_dir, db_file, allow_outside)
+    shared = (data_dir is not None or db_file is not None or db_url is not None) and \
+        result.old.tables == result.new.tables
+    new = open_database(for_new, md.new.path, **where)
     if shared:
         return _Data(new, new, label)
     try:
-        old = Database.open(result.old, md.old.path, data_dir, db_file, allow_outside)
+        old = open_database(result.old, md.old.path, **where)
     except BaseException:
         new.close()
         raise
@@ -885,13 +892,14 @@ class _Progress:
 
 def verify(md, data_dir: str | None = None, db_file: str | None = None, user: str | None = None,
            progress_stream: TextIO | None = None, allow_outside: bool = False,
-           everything: bool = False) -> Verification:
+           everything: bool = False, db_url: str | None = None, timeout: float | None = None) -> Verification:
     """Evaluate what `md` (a compare.ModelDiff) says is impacted, on the data; raises ModeldiffError on bad input.
 
-    `everything` (`verify --all`): every report, measure and role, listed by the diff or not.
+    `everything` (`verify --all`): every report, measure and role, listed by the diff or not. `db_url`: a
+    server to evaluate in (modeldiff.backends), `timeout` its limit in seconds.
     """
     result = md.result
-    data = open_data(md, data_dir, db_file, allow_outside)
+    data = open_data(md, data_dir, db_file, allow_outside, db_url, timeout)
     try:
         return verify_on(md, data, user, progress_stream, everything)
     finally:
@@ -955,10 +963,14 @@ def missed_by_the_diff(result, reports, measures, roles) -> tuple[Missed, ...]:
 def configure(parser) -> None:
     parser.add_argument("old", metavar="OLD", help="the old revision: model file, NAME.model/ folder, or REV:PATH")
     parser.add_argument("new", metavar="NEW", help="the new revision, as OLD")
-    where = parser.add_mutually_exclusive_group()
-    where.add_argument("--data", metavar="DIR", help="folder holding <table>.parquet or <table>.csv "
-                                                     "(default: each table's source: in the model)")
-    where.add_argument("--db", metavar="FILE", help="a DuckDB database file holding one table per model table")
+    parser.add_argument("--data", metavar="DIR", help="folder holding <table>.parquet or <table>.csv "
+                                                      "(default: each table's source: in the model)")
+    parser.add_argument("--db", metavar="FILE|URL",
+                        help="a DuckDB database file holding one table per model table, or a server: "
+                             "postgresql://user@host:port/dbname, spark:local[N], sc://host:port (read-only)")
+    from modeldiff.evaluate import add_timeout
+
+    add_timeout(parser)
     parser.add_argument("--format", choices=FORMATS, default="text")
     parser.add_argument("--user", metavar="EMAIL", help="the person viewing, for roles and reports filtering on :user")
     parser.add_argument("--all", dest="everything", action="store_true",
@@ -979,8 +991,11 @@ def run(args, stdout: TextIO) -> int:
     if args.limit is not None and args.limit < 0:
         raise ModeldiffError(f"--limit {args.limit}: give 0 (list every difference) or a positive number")
     md = compare.compare_specs(args.old, args.new)
-    verification = verify(md, args.data, args.db, args.user, allow_outside=args.allow_data_outside,
-                          everything=args.everything)
+    from modeldiff.evaluate import where_the_data_is
+
+    where = where_the_data_is(args.data, args.db, args.timeout)
+    verification = verify(md, where["data_dir"], where["db_file"], args.user, allow_outside=args.allow_data_outside,
+                          everything=args.everything, db_url=where["db_url"], timeout=where["timeout"])
     render = {"json": verify_out.as_json, "markdown": verify_out.as_markdown}.get(args.format, verify_out.as_text)
     render(verification, stdout, limit=args.limit)
     return verification.exit_code

@@ -53,12 +53,29 @@ def to_postgres(duck, tables, server, dbname: str, schema: str | None = None, re
 
 
 def to_parquet(duck, tables, folder: Path) -> Path:
-    """Write each of `tables` to `folder/<table>.parquet` (without `_row`), for Spark's `--data DIR`."""
+    """Write each of `tables` to `folder/<table>.parquet` (without `_row`), for Spark's `--data DIR`.
+
+    `duck` is locked to its data (no file can be written through it): the rows
+    go through Python into a fresh connection that writes the files."""
+    import duckdb
+
     folder.mkdir(parents=True, exist_ok=True)
-    for table in tables:
-        names = ", ".join(f'"{c}"' for c, _ in _columns(duck, table))
-        path = str(folder / f"{table}.parquet").replace("'", "''")
-        duck.execute(f"COPY (SELECT {names} FROM \"{table}\" ORDER BY _row) TO '{path}' (FORMAT parquet)")
+    writer = duckdb.connect(":memory:")
+    try:
+        for table in tables:
+            columns = _columns(duck, table)
+            names = ", ".join(f'"{c}"' for c, _ in columns)
+            writer.execute(f'CREATE TABLE "{table}" (' + ", ".join(f'"{c}" {t}' for c, t in columns) + ")")
+            rows = duck.execute(f'SELECT {names} FROM "{table}" ORDER BY _row').fetchall()
+            for start in range(0, len(rows), 500):
+                chunk = rows[start:start + 500]
+                marks = "(" + ", ".join("?" for _ in columns) + ")"
+                writer.execute(f'INSERT INTO "{table}" VALUES ' + ", ".join(marks for _ in chunk),
+                               [v for row in chunk for v in row])
+            path = str(folder / f"{table}.parquet").replace("'", "''")
+            writer.execute(f"COPY \"{table}\" TO '{path}' (FORMAT parquet)")
+    finally:
+        writer.close()
     return folder
 
 
