@@ -62,19 +62,40 @@ class Postgres:
     pg_ctl: str = "pg_ctl"
 
     def url(self, dbname: str | None = None, user: str | None = None, password: str | None = None) -> str:
-        who = user or self.user
+        """A URL over TCP on the loopback (a password user: `reader`, `READER_PASSWORD`, set by `add_reader`)."""
+        who = user or READER
         if password is not None:
             who += f":{password}"
         return f"postgresql://{who}@127.0.0.1:{self.port}/{dbname or self.dbname}"
 
+    def socket_url(self, dbname: str | None = None) -> str:
+        """The administrator's URL, over the Unix socket in the server's folder (trusted)."""
+        return f"postgresql://{self.user}@/{dbname or self.dbname}?host={self.folder}&port={self.port}"
+
     def connect(self, dbname: str | None = None, autocommit: bool = True):
         import psycopg
 
-        return psycopg.connect(self.url(dbname), autocommit=autocommit)
+        return psycopg.connect(self.socket_url(dbname), autocommit=autocommit)
+
+    def reader_url(self, dbname: str | None = None) -> str:
+        return self.url(dbname, READER, READER_PASSWORD)
 
     def stop(self) -> None:
         _run([self.pg_ctl, "-D", str(self.folder / "data"), "-m", "immediate", "stop"], self.run_as, check=False)
         shutil.rmtree(self.folder, ignore_errors=True)
+
+
+READER = "reader"
+READER_PASSWORD = "Wh-s3cret-9f2c"  # the read-only account the tests connect as over TCP (never printed)
+
+
+def grant_reader(server: Postgres, dbname: str) -> None:
+    """Let `reader` read every table of `dbname`'s public schema, and nothing else."""
+    with server.connect(dbname) as admin:
+        admin.execute(f'GRANT CONNECT ON DATABASE "{dbname}" TO {READER}')
+        admin.execute(f"GRANT USAGE ON SCHEMA public TO {READER}")
+        admin.execute(f"GRANT SELECT ON ALL TABLES IN SCHEMA public TO {READER}")
+        admin.execute(f"REVOKE CREATE ON SCHEMA public FROM PUBLIC")
 
 
 def _run(args: list[str], user: str | None, check: bool = True) -> subprocess.CompletedProcess:
@@ -108,8 +129,8 @@ def start_postgres() -> Postgres:
     port = free_port()
     server = Postgres(folder, port, run_as=run_as, pg_ctl=pg_ctl)
     try:
-        _run([initdb, "-D", str(folder / "data"), "-U", server.user, "--auth=trust", "-E", "UTF8",
-              "--locale=C", "--no-sync"], run_as)
+        _run([initdb, "-D", str(folder / "data"), "-U", server.user, "--auth-local=trust",
+              "--auth-host=scram-sha-256", "-E", "UTF8", "--locale=C", "--no-sync"], run_as)
         options = (f"-c listen_addresses=127.0.0.1 -p {port} -k {folder} -c fsync=off -c full_page_writes=off "
                    "-c synchronous_commit=off -c shared_buffers=32MB -c max_connections=20")
         _run([pg_ctl, "-D", str(folder / "data"), "-o", options, "-l", str(folder / "log"), "-w", "-t", "60",
@@ -121,6 +142,12 @@ def start_postgres() -> Postgres:
         detail = getattr(error, "stderr", "") or ""
         shutil.rmtree(folder, ignore_errors=True)
         raise RuntimeError(f"PostgreSQL did not start: {error} {detail.strip()[-300:]} {log}") from None
+    try:
+        with server.connect() as admin:
+            admin.execute(f"CREATE ROLE {READER} LOGIN PASSWORD '{READER_PASSWORD}'")
+    except Exception as error:  # noqa: BLE001
+        server.stop()
+        raise RuntimeError(f"PostgreSQL started but cannot be reached on its socket: {error}") from None
     return server
 
 
