@@ -524,6 +524,8 @@ class RemoteDatabase:
         tree = sqlglot.parse_one(sql_text, read="duckdb")
         for node in list(tree.find_all(exp.Div)):  # DuckDB's `/` divides in DOUBLE, whatever the operands
             node.set("this", exp.cast(node.this, "DOUBLE"))
+        for node in list(tree.find_all(exp.Avg)):  # and its avg() is a DOUBLE (Spark's keeps a decimal's scale + 4)
+            node.set("this", exp.cast(node.this, "DOUBLE"))
         for node in list(tree.find_all(exp.Placeholder, exp.Parameter)):
             name = node.name
             if name not in params:
