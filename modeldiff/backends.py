@@ -518,20 +518,7 @@ class RemoteDatabase:
 
     def _tree(self, sql_text: str, params: dict):
         """The engine's statement as a sqlglot tree (DuckDB's dialect), parameters bound as literals."""
-        import sqlglot
-        from sqlglot import exp
-
-        tree = sqlglot.parse_one(sql_text, read="duckdb")
-        for node in list(tree.find_all(exp.Div)):  # DuckDB's `/` divides in DOUBLE, whatever the operands
-            node.set("this", exp.cast(node.this, "DOUBLE"))
-        for node in list(tree.find_all(exp.Avg)):  # and its avg() is a DOUBLE (Spark's keeps a decimal's scale + 4)
-            node.set("this", exp.cast(node.this, "DOUBLE"))
-        for node in list(tree.find_all(exp.Placeholder, exp.Parameter)):
-            name = node.name
-            if name not in params:
-                raise ModeldiffError(f"the query uses ${name} but no value was given (report this as a bug)")
-            node.replace(exp.convert(params[name]))
-        return tree
+        return _bound_tree(sql_text, params)
 
     def _render(self, tree, versions: dict[str, str] | None = None, defs: list | None = None) -> str:
         """`tree` (a query) in the target's dialect, reading the model's tables (and the loop's relations)."""
@@ -727,6 +714,27 @@ class RemoteDatabase:
                 for name in sorted(self.model.tables)}
 
 
+def _bound_tree(sql_text: str, params: dict):
+    """A statement of DuckDB's dialect as a sqlglot tree, with DuckDB's typing of `/` and avg, parameters bound."""
+    import sqlglot
+    from sqlglot import exp
+
+    tree = sqlglot.parse_one(sql_text, read="duckdb")
+    for node in list(tree.find_all(exp.Div)):  # DuckDB's `/` divides in DOUBLE, whatever the operands
+        node.set("this", exp.cast(node.this, "DOUBLE"))
+    for node in list(tree.find_all(exp.Avg)):  # and its avg() is a DOUBLE (Spark's keeps a decimal's scale + 4)
+        node.set("this", exp.cast(node.this, "DOUBLE"))
+    for n, node in enumerate(list(tree.find_all(exp.Subquery))):  # DuckDB lets a subquery in FROM go unnamed
+        if not node.alias and isinstance(node.parent, (exp.From, exp.Join)):
+            node.set("alias", exp.TableAlias(this=exp.to_identifier(f"_q{n}")))
+    for node in list(tree.find_all(exp.Placeholder, exp.Parameter)):
+        name = node.name
+        if name not in params:
+            raise ModeldiffError(f"the query uses ${name} but no value was given (report this as a bug)")
+        node.replace(exp.convert(params[name]))
+    return tree
+
+
 def _strip_model_ctes(tree):
     """A loop relation's tree without the model tables' CTEs `_render` put on it (the final query holds them)."""
     with_ = tree.args.get("with_")
@@ -896,3 +904,123 @@ def _columns(table: Table, found: dict, shown: str) -> dict:
                                  "the data or the column's type")
         out[name] = (stored, kind)
     return out
+
+
+# --- a PostgreSQL catalog and its tables as they are (draft --db, check --db) -------------------------------
+
+
+def _postgres_only(url: str, what: str) -> Target:
+    target = parse_url(url)
+    if target.kind != "postgresql":
+        raise ModeldiffError(f"{what} --db {target.shown}: give a DuckDB file or a postgresql:// URL "
+                             "(Spark is read by eval and verify)")
+    return target
+
+
+def postgres_catalog(url: str, schema: str | None = None) -> tuple[list[tuple], list[tuple], list[str], str]:
+    """The catalog of one schema (default `public`) of a PostgreSQL database, as `data.duckdb_catalog` gives it.
+
+    Returns (columns, constraints, views, shown): columns as (table, column,
+    type as format_type writes it) in the order the tables were created, base
+    tables only; constraints as (table, PRIMARY KEY | UNIQUE | FOREIGN KEY,
+    columns, referenced table, referenced columns); view names; the URL shown.
+    Read in a read-only transaction; nothing is written."""
+    target = _postgres_only(url, "draft")
+    schema = schema or "public"
+    session = _Postgres(target, 600)
+    try:
+        columns, _ = session.rows(
+            "SELECT cl.relname, a.attname, format_type(a.atttypid, a.atttypmod) FROM pg_class AS cl "
+            "JOIN pg_namespace AS ns ON ns.oid = cl.relnamespace JOIN pg_attribute AS a ON a.attrelid = cl.oid "
+            "WHERE ns.nspname = %s AND cl.relkind IN ('r', 'p') AND a.attnum > 0 AND NOT a.attisdropped "
+            "ORDER BY cl.oid, a.attnum", (schema,))
+        constraints, _ = session.rows(
+            "SELECT cl.relname, CASE con.contype WHEN 'p' THEN 'PRIMARY KEY' WHEN 'u' THEN 'UNIQUE' "
+            "ELSE 'FOREIGN KEY' END, "
+            "ARRAY(SELECT a.attname::text FROM unnest(con.conkey) WITH ORDINALITY AS k(n, i) JOIN pg_attribute AS a "
+            "ON a.attrelid = con.conrelid AND a.attnum = k.n ORDER BY k.i), rcl.relname, "
+            "ARRAY(SELECT a.attname::text FROM unnest(con.confkey) WITH ORDINALITY AS k(n, i) JOIN pg_attribute AS a "
+            "ON a.attrelid = con.confrelid AND a.attnum = k.n ORDER BY k.i) "
+            "FROM pg_constraint AS con JOIN pg_class AS cl ON cl.oid = con.conrelid "
+            "JOIN pg_namespace AS ns ON ns.oid = cl.relnamespace LEFT JOIN pg_class AS rcl ON rcl.oid = con.confrelid "
+            "WHERE ns.nspname = %s AND con.contype IN ('p', 'u', 'f') ORDER BY cl.relname, con.conname", (schema,))
+        views, _ = session.rows(
+            "SELECT cl.relname FROM pg_class AS cl JOIN pg_namespace AS ns ON ns.oid = cl.relnamespace "
+            "WHERE ns.nspname = %s AND cl.relkind IN ('v', 'm') ORDER BY cl.relname", (schema,))
+    except _Timeout:
+        raise ModeldiffError(f"reading the catalog of {target.shown} took too long") from None
+    except _Failed as error:
+        raise ModeldiffError(target.redact(f"cannot read the catalog of {target.shown}: {error}")) from None
+    finally:
+        session.close()
+    return ([tuple(r) for r in columns],
+            [(t, kind, tuple(cols or ()), ref, tuple(ref_cols or ())) for t, kind, cols, ref, ref_cols in constraints],
+            [r[0] for r in views], target.shown)
+
+
+class PostgresRawTables:
+    """The tables of one schema of a PostgreSQL database as they are, for the data-aware check (read-only).
+
+    The same interface as `data.RawTables`: `relations`, `columns(table)`
+    (DuckDB spellings of the types), `rows(sql, params)` with SQL of DuckDB's
+    dialect, rendered for PostgreSQL and checked to be a query."""
+
+    def __init__(self, session: _Postgres, target: Target, relations: dict[str, str], columns: dict) -> None:
+        self.session = session
+        self.target = target
+        self.relations = relations
+        self.shown = target.shown
+        self.bad_values: dict = {}
+        self._columns = columns
+
+    @classmethod
+    def open(cls, model: Model, url: str, schema: str | None = None) -> "PostgresRawTables":
+        target = _postgres_only(url, "check")
+        schema = schema or "public"
+        session = _Postgres(target, None)
+        try:
+            rows, _ = session.rows(
+                "SELECT table_name, column_name, data_type, numeric_precision, numeric_scale "
+                "FROM information_schema.columns WHERE table_schema = %s ORDER BY table_name, ordinal_position",
+                (schema,))
+        except _Failed as error:
+            session.close()
+            raise ModeldiffError(target.redact(f"cannot read the catalog of {target.shown}: {error}")) from None
+        except BaseException:
+            session.close()
+            raise
+        stored: dict[str, dict] = {}
+        for table, column, data_type, precision, scale in rows:
+            kind = _PG_TYPES.get(data_type, data_type.upper())
+            if kind == "DECIMAL":
+                kind = f"DECIMAL({precision or 38},{scale if scale is not None else 10})"
+            stored.setdefault(table, {})[column.lower()] = (column, kind)
+        found = {t.lower(): t for t in stored}
+        relations, columns = {}, {}
+        for name in model.tables:
+            actual = name if name in stored else found.get(name.lower())
+            if actual is not None:
+                relations[name] = f"{q(schema)}.{q(actual)}"
+                columns[name] = stored[actual]
+        return cls(session, target, relations, columns)
+
+    def __enter__(self) -> "PostgresRawTables":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def close(self) -> None:
+        self.session.close()
+
+    def columns(self, table: str) -> dict[str, tuple[str, str]] | None:
+        return self._columns.get(table)
+
+    def rows(self, sql_text: str, params: dict | None = None) -> list[tuple]:
+        tree = _bound_tree(sql_text, params or {})
+        try:
+            return self.session.rows(tree.sql(dialect="postgres"))[0]
+        except _Timeout:
+            raise ModeldiffError(f"a query on {self.shown} took longer than the statement timeout") from None
+        except _Failed as error:
+            raise ModeldiffError(self.target.redact(f"cannot read {self.shown}: {error}")) from None
