@@ -22,10 +22,11 @@ sqlglot at the one place where a query is sent (`RemoteDatabase._send`):
 
 1. the query is parsed and must be a query (SELECT, set operations, WITH);
 2. each model table it reads becomes a CTE `_md_<table>` reading the target's
-   relation, with the model's columns under the model's names and `_row`,
-   `row_number() OVER (ORDER BY key)` (all columns when there is no key: rows
-   alike in every column are interchangeable), so `_row` is the same in every
-   query over the same data;
+   relation, with the model's columns under the model's names and `_row`:
+   the key itself when it is one integer column, else `row_number() OVER
+   (ORDER BY key)` (all columns when there is no key: rows alike in every
+   column are interchangeable), so `_row` is the same in every query over the
+   same data;
 3. `$user` becomes a literal (sqlglot quotes it for the dialect);
 4. the tree is written in the target's dialect and read back with sqlglot:
    one statement, a query, nothing that writes.
@@ -599,7 +600,12 @@ class RemoteDatabase:
 
         order = ", ".join(quoted(source.columns[c][0]) for c in (table.key or tuple(table.columns)))
         picks = ", ".join(f"{quoted(source.columns[c][0])} AS {quoted(c)}" for c in table.columns)
-        row = f"row_number() OVER (ORDER BY {order}) AS _row, " if with_row else ""
+        if len(table.key) == 1 and table.columns[table.key[0]].type == "integer":
+            # a one-column integer key is a row number already: unique, never NULL (checked), no sort needed
+            number = f"CAST({quoted(source.columns[table.key[0]][0])} AS BIGINT)"
+        else:
+            number = f"row_number() OVER (ORDER BY {order})"
+        row = f"{number} AS _row, " if with_row else ""
         text = f"SELECT {row}{picks} FROM {source.relation}"
         return sqlglot.parse_one(text, read=d)
 
