@@ -336,3 +336,28 @@ def test_functions_both_engines_have_are_not_refused():
         model = load_path(path).model
         for kind in ("postgresql", "spark"):
             check_portable(model, Target(kind, "x", "x"))  # raises on a refusal
+
+
+def test_the_deadline_cancels_once_the_time_is_up():
+    import time
+
+    from modeldiff.backends import _Deadline
+
+    fired = []
+    deadline = _Deadline(0.05, lambda: fired.append(True))
+    time.sleep(0.5)
+    assert fired == [True] and deadline.expired
+    quiet = _Deadline(5, lambda: fired.append(False))  # the twin: stopped before its time, it never fires
+    quiet.stop()
+    time.sleep(0.1)
+    assert fired == [True] and not quiet.expired
+    assert _Deadline(None, lambda: fired.append(None)).expired is False
+
+
+def test_options_that_do_not_go_together_are_one_line(tmp_path):
+    err = one_line_error("eval", EXAMPLE, "--db", "postgresql://reader@127.0.0.1:1/x", "--data", tmp_path)
+    assert "--data with --db" in err
+    err = one_line_error("eval", EXAMPLE, "--db", "postgresql://reader@127.0.0.1:1/x", "--timeout", "0")
+    assert "--timeout 0" in err
+    err = one_line_error("eval", EXAMPLE, "--db", "mysql://reader@127.0.0.1:1/x")
+    assert "no such database file" in err
