@@ -427,10 +427,29 @@ class _Spark:
             self.session.stop()
 
 
+_LOG4J = """rootLogger.level = error
+rootLogger.appenderRef.stderr.ref = console
+appender.console.type = Console
+appender.console.name = console
+appender.console.target = SYSTEM_ERR
+appender.console.layout.type = PatternLayout
+appender.console.layout.pattern = %p %c{1}: %m%n
+"""
+
+
 def local_session(master: str):
-    """A local Spark session bound to the loopback interface, without its web UI."""
+    """A local Spark session bound to the loopback interface, without its web UI, logging errors only."""
+    import tempfile
+
     from pyspark.sql import SparkSession
 
+    if "PYSPARK_SUBMIT_ARGS" not in os.environ:  # Spark's own start-up chatter stays off the terminal
+        folder = tempfile.mkdtemp(prefix="modeldiff-spark-")
+        config = os.path.join(folder, "log4j2.properties")
+        with open(config, "w", encoding="utf-8") as out:
+            out.write(_LOG4J)
+        os.environ["PYSPARK_SUBMIT_ARGS"] = (f'--driver-java-options "-Dlog4j2.configurationFile=file:{config}" '
+                                             "pyspark-shell")
     return (SparkSession.builder.master(master).appName("modeldiff")
             .config("spark.ui.enabled", "false")
             .config("spark.ui.showConsoleProgress", "false")
