@@ -13,8 +13,8 @@ keys. Each source of a catalog is a `CatalogReader` (one method, `read()`):
   as `eval --data DIR` reads it (modeldiff.data.folder_catalog): columns and
   types only, since such files declare no keys (`Catalog.constraints` False).
 
-A reader of another warehouse (PostgreSQL's information_schema) is one more
-class with a `read()` returning the same records.
+- `PostgresCatalog`: a PostgreSQL database (`postgresql://` URL), through
+  pg_catalog in a read-only transaction (modeldiff.backends).
 
 `model_type` maps a database type to the model's seven column types, the same
 way for every reader; a type with no counterpart (BLOB, INTERVAL, TIME, lists,
@@ -115,22 +115,42 @@ class DuckDBCatalog:
         from modeldiff import data
 
         columns, constraints, views = data.duckdb_catalog(self.path, self.schema)
-        tables: dict[str, dict] = {}
-        for table, column, type_ in columns:
-            tables.setdefault(table, {"columns": [], "pk": (), "uniques": [], "fks": []})["columns"].append((column, type_))
-        for table, kind, cols, ref, ref_cols in constraints:
-            entry = tables.get(table)
-            if entry is None:
-                continue
-            if kind == "PRIMARY KEY":
-                entry["pk"] = cols
-            elif kind == "UNIQUE":
-                entry["uniques"].append(cols)
-            elif ref is not None:
-                entry["fks"].append(ForeignKey(cols, ref, ref_cols))
-        return Catalog(f"{os.path.basename(self.path)} (schema {self.schema})", tuple(
-            CatalogTable(name, tuple(t["columns"]), tuple(t["pk"]), tuple(t["uniques"]), tuple(t["fks"]))
-            for name, t in tables.items()), tuple(views))
+        return assemble(f"{os.path.basename(self.path)} (schema {self.schema})", columns, constraints, views)
+
+
+class PostgresCatalog:
+    """The catalog of one schema of a PostgreSQL database (default `public`), read in a read-only transaction."""
+
+    def __init__(self, url: str, schema: str | None = None) -> None:
+        self.url = url
+        self.schema = schema or "public"
+
+    def read(self) -> Catalog:
+        from modeldiff.backends import postgres_catalog
+
+        columns, constraints, views, shown = postgres_catalog(self.url, self.schema)
+        return assemble(f"{shown} (schema {self.schema})", columns, constraints, views)
+
+
+def assemble(source: str, columns, constraints, views) -> Catalog:
+    """A Catalog from a database's rows: columns (table, column, type) in table order, constraints (table,
+    PRIMARY KEY | UNIQUE | FOREIGN KEY, columns, referenced table, referenced columns), view names."""
+    tables: dict[str, dict] = {}
+    for table, column, type_ in columns:
+        tables.setdefault(table, {"columns": [], "pk": (), "uniques": [], "fks": []})["columns"].append((column, type_))
+    for table, kind, cols, ref, ref_cols in constraints:
+        entry = tables.get(table)
+        if entry is None:
+            continue
+        if kind == "PRIMARY KEY":
+            entry["pk"] = cols
+        elif kind == "UNIQUE":
+            entry["uniques"].append(cols)
+        elif ref is not None:
+            entry["fks"].append(ForeignKey(cols, ref, ref_cols))
+    return Catalog(source, tuple(
+        CatalogTable(name, tuple(t["columns"]), tuple(t["pk"]), tuple(t["uniques"]), tuple(t["fks"]))
+        for name, t in tables.items()), tuple(views))
 
 
 # --- data folder (Parquet / CSV) -----------------------------------------------------------

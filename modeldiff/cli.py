@@ -166,9 +166,11 @@ def build_parser(argv: Sequence[str] = ()) -> argparse.ArgumentParser:
     p.add_argument("--format", choices=FORMATS + ("github",), default="text")
     p.add_argument("--strict", action="store_true", help="exit 1 when there are warnings")
     p.add_argument("--no-cache", action="store_true", help="read and check afresh, ignoring and not writing the cache")
-    p.add_argument("--db", metavar="FILE.duckdb", help="also check the model against this DuckDB file's tables (read-only)")
+    p.add_argument("--db", metavar="FILE.duckdb|URL",
+                   help="also check the model against this DuckDB file's or postgresql:// database's tables (read-only)")
     p.add_argument("--data", metavar="DIR", help="also check the model against <table>.parquet or <table>.csv in DIR")
-    p.add_argument("--schema", metavar="NAME", help="with --db: the schema holding the tables (default: main)")
+    p.add_argument("--schema", metavar="NAME",
+                   help="with --db: the schema holding the tables (default: main; PostgreSQL: public)")
     p.set_defaults(run=cmd_check)
 
     p = sub.add_parser("diff", help="compare two revisions: changes, and what could return different numbers")

@@ -121,7 +121,7 @@ class Database:
             for name in sorted(model.tables):
                 _load(connection, model.tables[name], origins[name])
             for name in sorted(model.tables):
-                _check_keys(connection, model.tables[name], origins[name])
+                check_keys(connection, model.tables[name], origins[name].shown)
         except duckdb.Error as error:
             connection.close()
             raise ModeldiffError(f"cannot read the data: {_first_line(error)}") from None
@@ -226,6 +226,122 @@ def evaluate_report(model: Model, report_name: str, db: Database, user: str | No
         viewer = f" (user {user})" if user is not None else ""
         notes.insert(0, f"As role {report.role} sees it{viewer}.")
     return Result(tuple(columns), tuple(tuple(r) for r in rows), report_name, tuple(notes), groups)
+
+
+def open_database(model: Model, model_path: str | None = None, data_dir: str | None = None,
+                  db_file: str | None = None, allow_outside: bool = False, db_url: str | None = None,
+                  timeout: float | None = None):
+    """The model's tables, where they are: a server named by `db_url` (modeldiff.backends: PostgreSQL, Spark,
+    Spark reading `data_dir`'s Parquet files), else DuckDB over `db_file`, `data_dir` or the `source:` files."""
+    if db_url is not None:
+        from modeldiff.backends import RemoteDatabase, parse_url
+
+        return RemoteDatabase.open(model, parse_url(db_url), model_path, data_dir, allow_outside, timeout)
+    return Database.open(model, model_path, data_dir=data_dir, db_file=db_file, allow_outside=allow_outside)
+
+
+_REMOTE_ERROR: list = []
+
+
+def query_error(message: str) -> Exception:
+    """An error of a query run elsewhere (PostgreSQL, Spark): a ModeldiffError that is also a `duckdb.Error`,
+    so callers that fall back on a DuckDB error do the same for the other engines."""
+    if not _REMOTE_ERROR:
+        import duckdb
+
+        class RemoteQueryError(ModeldiffError, duckdb.Error):
+            """A query of another engine that failed; its message is redacted and one line."""
+
+        _REMOTE_ERROR.append(RemoteQueryError)
+    return _REMOTE_ERROR[0](message)
+
+
+def shape_database(model: Model, columns: dict[str, dict[str, tuple[str, str]]], engine: str):
+    """An empty, locked DuckDB database with the model's tables, typed as another engine stores them.
+
+    `columns`: table -> model column -> (stored name, DuckDB spelling of the
+    type). DuckDB plans each query on it to say which type each result column
+    has (`result_types`); no row of the data is ever in it.
+    """
+    import duckdb
+
+    connection = duckdb.connect(":memory:")
+    try:
+        for name in sorted(model.tables):
+            table = model.tables[name]
+            typed = ", ".join(f"{q(c)} {_shape_type(columns[name][c][1], table.columns[c].type)}"
+                              for c in table.columns)
+            connection.execute(f"CREATE TABLE {q(name)} (_row BIGINT, {typed})")
+        lock(connection, ())
+    except duckdb.Error as error:
+        connection.close()
+        raise ModeldiffError(f"cannot type the results of {engine} ({_first_line(error)}); report this as a bug") \
+            from None
+    return connection
+
+
+def _shape_type(stored: str, model_type: str) -> str:
+    base = stored.upper().split("(")[0].strip()
+    if base == "DECIMAL":
+        match = re.match(r"DECIMAL\((\d+),\s*(\d+)\)", stored.upper())
+        precision, scale = (int(match.group(1)), int(match.group(2))) if match else (38, 10)
+        precision = min(max(precision, 1), 38)
+        return f"DECIMAL({precision}, {min(scale, precision)})"
+    if base in INTEGER_TYPES or base in FLOAT_TYPES or base in ("VARCHAR", "DATE", "BOOLEAN", "TIMESTAMP"):
+        return base
+    if base.startswith("TIMESTAMP"):
+        return "TIMESTAMPTZ" if "ZONE" in stored.upper() else "TIMESTAMP"
+    return _SQL_TYPES[model_type]
+
+
+def result_types(connection, query: Query) -> list[str]:
+    """The DuckDB type of each column `query` returns, planned on `connection` (a `shape_database`)."""
+    db = Database(connection, Model(name="_shape", tables={}))
+    params = dict(query.params)
+    try:
+        for step in query.steps:
+            if isinstance(step, Loop):
+                db._loop(step, params)
+            else:
+                db._execute(step, params)
+        described = db._execute(query.sql, params).description
+    finally:
+        for statement in query.cleanup:
+            db._execute(statement, params)
+    return [str(d[1]) for d in described]
+
+
+def converter(duck_type: str):
+    """A function turning a value from another engine into the Python value DuckDB gives a `duck_type` column."""
+    from datetime import date, datetime
+    from decimal import Decimal
+
+    base = duck_type.upper().split("(")[0].strip()
+
+    def keep(value):
+        return value
+
+    if base in INTEGER_TYPES:
+        return lambda v: v if v is None else int(v)
+    if base in FLOAT_TYPES:
+        return lambda v: v if v is None else float(v)
+    if base == "DECIMAL":
+        match = re.match(r"DECIMAL\((\d+),\s*(\d+)\)", duck_type.upper())
+        unit = Decimal(1).scaleb(-int(match.group(2))) if match else None
+
+        def decimal(v):
+            if v is None or unit is None:
+                return v
+            return Decimal(str(v) if isinstance(v, float) else v).quantize(unit)
+        return decimal
+    if base == "BOOLEAN":
+        return lambda v: v if v is None else bool(v)
+    if base == "DATE":
+        return lambda v: v.date() if isinstance(v, datetime) else v
+    if base == "TIMESTAMP":
+        return lambda v: v.replace(tzinfo=None) if isinstance(v, datetime) else (
+            datetime(v.year, v.month, v.day) if isinstance(v, date) else v)
+    return keep
 
 
 # --- finding the data -------------------------------------------------------------------
@@ -488,29 +604,32 @@ def _a(model_type: str) -> str:
     return ("an " if model_type[0] in "aeiou" else "a ") + model_type
 
 
-def _check_keys(connection, table: Table, origin: _Origin) -> None:
-    """A table's key: no NULL, no duplicate; a `unique` column: no duplicate."""
+def check_keys(connection, table: Table, shown: str) -> None:
+    """A table's key: no NULL, no duplicate; a `unique` column: no duplicate (`shown` names the table in messages).
+
+    `connection` is DuckDB's, or a `backends.RemoteDatabase`'s (the same
+    queries, rendered for the target)."""
     name = q(table.name)
     if table.key:
         missing = " OR ".join(f"{q(c)} IS NULL" for c in table.key)
         count = connection.execute(f"SELECT count(*) FROM {name} WHERE {missing}").fetchone()[0]
         if count:
-            raise ModeldiffError(f"{origin.shown}: {count} row(s) have no value in {_names(table.key)}, the key of "
+            raise ModeldiffError(f"{shown}: {count} row(s) have no value in {_names(table.key)}, the key of "
                                  f"table {table.name}; fill the key or change the model's key")
-        _no_duplicates(connection, table, table.key, origin, "the key")
+        _no_duplicates(connection, table, table.key, shown, "the key")
     for column_name, column in table.columns.items():
         if column.unique:
-            _no_duplicates(connection, table, (column_name,), origin, "declared unique")
+            _no_duplicates(connection, table, (column_name,), shown, "declared unique")
 
 
-def _no_duplicates(connection, table: Table, columns, origin: _Origin, what: str) -> None:
+def _no_duplicates(connection, table: Table, columns, shown: str, what: str) -> None:
     cols = ", ".join(q(c) for c in columns)
     found = connection.execute(
         f"SELECT {cols}, count(*) FROM {q(table.name)} WHERE " + " AND ".join(f"{q(c)} IS NOT NULL" for c in columns)
         + f" GROUP BY {cols} HAVING count(*) > 1 ORDER BY {cols} LIMIT 1").fetchone()
     if found is not None:
         value = ", ".join(f"{c} = {v!r}" for c, v in zip(columns, found[:-1]))
-        raise ModeldiffError(f"{origin.shown}: {value} appears on {found[-1]} rows, but {_names(columns)} is {what} "
+        raise ModeldiffError(f"{shown}: {value} appears on {found[-1]} rows, but {_names(columns)} is {what} "
                              f"of table {table.name}; remove the duplicates or change the model")
 
 

@@ -1,4 +1,4 @@
-"""The data-aware check: `modeldiff check MODEL --db FILE.duckdb` (or `--data DIR`).
+"""The data-aware check: `modeldiff check MODEL --db FILE.duckdb|postgresql://...` (or `--data DIR`).
 
 Compares a model with the tables it describes, read-only (modeldiff.data's
 `RawTables`: a DuckDB file opened read-only, or a data folder copied into
@@ -74,9 +74,14 @@ class Problem:
 def check_data(model: Model, db_file: str | None = None, data_dir: str | None = None,
                schema: str | None = None) -> list[Finding]:
     """The data-aware findings of `model` against a DuckDB file or a data folder."""
+    from modeldiff.backends import PostgresRawTables, is_url
     from modeldiff.data import RawTables
 
-    with RawTables.open(model, db_file=db_file, data_dir=data_dir, schema=schema or "main") as raw:
+    if is_url(db_file):
+        opened = PostgresRawTables.open(model, db_file, schema)
+    else:
+        opened = RawTables.open(model, db_file=db_file, data_dir=data_dir, schema=schema or "main")
+    with opened as raw:
         return [as_finding(model, p) for p in problems(model, raw)]
 
 

@@ -456,7 +456,11 @@ def write_atomically(path: str, text: str, force: bool = False) -> None:
 
 
 def model_name_of(path: str) -> str:
-    """A model name from a file or folder name: `shop.duckdb` -> shop, `2024 sales.sql` -> m2024_sales."""
+    """A model name from a file or folder name, or a database URL: `shop.duckdb` -> shop, `2024 sales.sql` -> m2024_sales."""
+    if "://" in path:  # a database URL: its database's name
+        import urllib.parse
+
+        path = urllib.parse.urlsplit(path).path.strip("/") or "model"
     stem = os.path.basename(os.path.normpath(path)).split(".")[0]
     name = re.sub(r"[^A-Za-z0-9_]+", "_", stem).strip("_") or "model"
     return name if name[0].isalpha() else "m" + name
@@ -472,18 +476,27 @@ def reader_of(db: str | None, ddl: str | None, schema: str | None, dialect: str 
             raise UsageError("--schema goes with --db or --ddl (a data folder has no schemas)")
         return FolderCatalog(data_dir)
     if db is not None:
+        from modeldiff.backends import is_url
+
+        if is_url(db):
+            from modeldiff.catalog import PostgresCatalog
+
+            return PostgresCatalog(db, schema)
         if "://" in db:
-            raise ModeldiffError(f"{db}: database URLs are not read yet; give a DuckDB file, or the DDL with --ddl")
+            raise ModeldiffError(f"{db.split('://')[0]}:// URLs are not read; give a DuckDB file, a postgresql:// "
+                                 "URL, or the DDL with --ddl")
         return DuckDBCatalog(db, schema)
     return DdlCatalog(ddl, schema, dialect)
 
 
 def configure(parser) -> None:
-    parser.add_argument("--db", metavar="FILE.duckdb", help="read the catalog of this DuckDB file (read-only)")
+    parser.add_argument("--db", metavar="FILE.duckdb|URL",
+                        help="read the catalog of this DuckDB file or postgresql:// database (read-only)")
     parser.add_argument("--ddl", metavar="FILE.sql", help="read CREATE TABLE / ALTER TABLE statements from this script")
     parser.add_argument("--data", metavar="DIR", help="read the tables of a data folder (<table>.parquet or "
                                                       "<table>.csv, as eval reads them): columns and types, no keys")
-    parser.add_argument("--schema", metavar="NAME", help="the schema to draft (DuckDB default: main; DDL: all)")
+    parser.add_argument("--schema", metavar="NAME",
+                        help="the schema to draft (DuckDB default: main; PostgreSQL: public; DDL: all)")
     parser.add_argument("--dialect", metavar="NAME", help="SQL dialect of --ddl, as sqlglot names it (default: generic)")
     parser.add_argument("--name", metavar="MODEL", help="the model's name (default: from the file name)")
     parser.add_argument("-o", "--output", metavar="OUT", help="write the model here (default: standard output)")

@@ -1,11 +1,12 @@
-"""Evaluate a model's reports on data: `modeldiff eval MODEL [--data DIR|FILE] [--report NAME] [--user EMAIL]`.
+"""Evaluate a model's reports on data: `modeldiff eval MODEL [--data DIR|FILE] [--db URL] [--report NAME] [--user EMAIL]`.
 
 Each report becomes one table of numbers: its grouping columns ("table.column")
 first, then one column per measure, computed as semantics.md section 5 says
 (modeldiff.engine writes the SQL, modeldiff.data runs it on DuckDB). The rows
 come from `--data`: a folder holding `<table>.parquet` or `<table>.csv`, or a
 DuckDB database file; without it, from each table's `source:` (relative to the
-model file).
+model file). `--db URL` evaluates inside PostgreSQL or Spark instead
+(modeldiff.backends; docs/evaluation.md), with `--timeout SECONDS`.
 
 Formats: `text` (a table per report), `json` (one document: for one report
 `{"report", "columns", "rows"}`, for several a list of them; numbers as
@@ -36,8 +37,59 @@ def configure(parser) -> None:
     parser.add_argument("--report", metavar="NAME", action="append",
                         help="evaluate this report (repeat for several; default: every report)")
     parser.add_argument("--user", metavar="EMAIL", help="the viewer, bound to :user in a report's role")
+    parser.add_argument("--db", metavar="URL",
+                        help="evaluate where the data lives: postgresql://user@host:port/dbname, spark:local[N] or "
+                             "sc://host:port (read-only; see docs/evaluation.md); with Spark, --data DIR may hold "
+                             "<table>.parquet")
+    add_timeout(parser)
     parser.add_argument("--format", choices=FORMATS, default="text")
     add_allow_outside(parser)
+
+
+def add_timeout(parser) -> None:
+    """`--timeout SECONDS` (eval and verify): the longest the evaluation may take on a server."""
+    parser.add_argument("--timeout", metavar="SECONDS", type=float,
+                        help="stop the evaluation on a server (--db URL) after this many seconds "
+                             "(default: each PostgreSQL statement may take an hour)")
+
+
+def where_the_data_is(data: str | None, db: str | None, timeout: float | None = None) -> dict:
+    """The keyword arguments of `data.open_database` for the options --data and --db (eval and verify)."""
+    import os
+
+    from modeldiff.backends import is_url, parse_url
+    from modeldiff.errors import ModeldiffError, UsageError
+
+    if timeout is not None and not timeout > 0:
+        raise UsageError(f"--timeout {timeout:g}: give a number of seconds above 0")
+    out: dict = {"data_dir": None, "db_file": None, "db_url": None, "timeout": timeout}
+    if db is not None and is_url(db):
+        target = parse_url(db)
+        out["db_url"] = db
+        if data is not None:
+            if target.kind != "spark":
+                raise UsageError(f"--data with --db {target.shown}: the tables are in the database; give one of them")
+            if not os.path.isdir(data):
+                raise ModeldiffError(f"{data}: no such folder; give the folder holding <table>.parquet")
+            out["data_dir"] = data
+        return out
+    if db is not None:
+        if data is not None:
+            raise UsageError("give --data DIR or --db FILE, not both")
+        if not os.path.isfile(db):
+            raise ModeldiffError(f"{db}: no such database file; give a DuckDB file or a URL "
+                                 "(postgresql://..., spark:local[N], sc://host:port)")
+        out["db_file"] = db
+        return out
+    if data is not None:
+        if os.path.isdir(data):
+            out["data_dir"] = data
+        elif os.path.isfile(data):
+            out["db_file"] = data
+        else:
+            raise ModeldiffError(f"{data}: no such folder or file; give a folder of <table>.parquet/.csv "
+                                 "files or a DuckDB database file")
+    return out
 
 
 def add_allow_outside(parser) -> None:
@@ -48,9 +100,7 @@ def add_allow_outside(parser) -> None:
 
 
 def run(args, stdout: TextIO) -> int:
-    import os
-
-    from modeldiff.data import Database, evaluate_report
+    from modeldiff.data import evaluate_report, open_database
     from modeldiff.errors import ModeldiffError
 
     model = read_checked_model(args.model)
@@ -63,20 +113,17 @@ def run(args, stdout: TextIO) -> int:
             raise ModeldiffError(f"model {model.name} has no report {name}; its reports: {known}")
     if args.format == "csv" and len(names) > 1:
         raise ModeldiffError(f"--format csv writes one report; name it with --report (reports: {', '.join(names)})")
-    data_dir = db_file = None
-    if args.data is not None:
-        if os.path.isdir(args.data):
-            data_dir = args.data
-        elif os.path.isfile(args.data):
-            db_file = args.data
-        else:
-            raise ModeldiffError(f"{args.data}: no such folder or file; give a folder of <table>.parquet/.csv "
-                                 "files or a DuckDB database file")
+    where = where_the_data_is(args.data, getattr(args, "db", None), getattr(args, "timeout", None))
     from modeldiff.compare import spec_path
+    from modeldiff.verify import _Progress
 
-    with Database.open(model, spec_path(args.model), data_dir=data_dir, db_file=db_file,
-                       allow_outside=args.allow_data_outside) as db:
-        results = [evaluate_report(model, name, db, user=args.user) for name in names]
+    with open_database(model, spec_path(args.model), allow_outside=args.allow_data_outside, **where) as db:
+        step = _Progress(len(names) if where["db_url"] else 0)
+        try:
+            results = [step(f"report {name}", lambda name=name: evaluate_report(model, name, db, user=args.user))
+                       for name in names]
+        finally:
+            step.close()
     text = as_text(results, stdout) if args.format == "text" else {"json": as_json, "csv": as_csv}[args.format](results)
     stdout.write(text)
     return 0

@@ -487,24 +487,31 @@ def loading_model(result):
     return replace(result.new, tables=tables)
 
 
-def open_data(md, data_dir: str | None, db_file: str | None, allow_outside: bool = False) -> _Data:
+def open_data(md, data_dir: str | None, db_file: str | None, allow_outside: bool = False,
+              db_url: str | None = None, timeout: float | None = None) -> _Data:
     """Both revisions' databases; one shared database when both read the same place with the same tables."""
-    from modeldiff.data import Database
+    from modeldiff.data import open_database
 
     result = md.result
-    if db_file is not None:
+    where = dict(data_dir=data_dir, db_file=db_file, allow_outside=allow_outside, db_url=db_url, timeout=timeout)
+    if db_url is not None:
+        from modeldiff.backends import parse_url
+
+        label = f"database {parse_url(db_url).shown}"
+    elif db_file is not None:
         label = f"database {db_file}"
     elif data_dir is not None:
         label = f"folder {data_dir}"
     else:
         label = "the source: files named in the models"
     for_new = loading_model(result)
-    shared = (data_dir is not None or db_file is not None) and result.old.tables == result.new.tables
-    new = Database.open(for_new, md.new.path, data_dir, db_file, allow_outside)
+    shared = (data_dir is not None or db_file is not None or db_url is not None) and \
+        result.old.tables == result.new.tables
+    new = open_database(for_new, md.new.path, **where)
     if shared:
         return _Data(new, new, label)
     try:
-        old = Database.open(result.old, md.old.path, data_dir, db_file, allow_outside)
+        old = open_database(result.old, md.old.path, **where)
     except BaseException:
         new.close()
         raise
@@ -870,13 +877,14 @@ class _Progress:
 
 def verify(md, data_dir: str | None = None, db_file: str | None = None, user: str | None = None,
            progress_stream: TextIO | None = None, allow_outside: bool = False,
-           everything: bool = False) -> Verification:
+           everything: bool = False, db_url: str | None = None, timeout: float | None = None) -> Verification:
     """Evaluate what `md` (a compare.ModelDiff) says is impacted, on the data; raises ModeldiffError on bad input.
 
-    `everything` (`verify --all`): every report, measure and role, listed by the diff or not.
+    `everything` (`verify --all`): every report, measure and role, listed by the diff or not. `db_url`: a
+    server to evaluate in (modeldiff.backends), `timeout` its limit in seconds.
     """
     result = md.result
-    data = open_data(md, data_dir, db_file, allow_outside)
+    data = open_data(md, data_dir, db_file, allow_outside, db_url, timeout)
     try:
         return verify_on(md, data, user, progress_stream, everything)
     finally:
