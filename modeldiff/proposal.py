@@ -83,9 +83,13 @@ def row_count_measure(model: Model, table: str) -> str | None:
 
     for name in sorted(model.measures):
         m = model.measures[name]
-        if m.table == table and m.where is None and not m.overrides and \
-                sql.same_logic(m.expr, COUNT_WORDS, table):
-            return name
+        if m.table != table or m.where is not None or m.overrides:
+            continue
+        try:
+            if sql.same_logic(m.expr, COUNT_WORDS, table):
+                return name
+        except sql.SqlError:
+            continue  # not SQL: check reports it; it counts nothing here
     return None
 
 

@@ -272,3 +272,15 @@ def test_a_shortened_markdown_keeps_the_proposal_and_says_when_its_patch_is_left
     assert "1 patches of proposals" in tight.rstrip().splitlines()[-1]
     _, roomy = run("diff", OLD, FLIP, "--format", "markdown", "--budget", "30000")
     assert "```diff" in roomy and "patches of proposals" not in roomy
+
+
+def test_a_measure_that_is_not_sql_is_passed_over_without_a_traceback(tmp_path):
+    old, new = tmp_path / "old.model.yaml", tmp_path / "new.model.yaml"
+    broken = FLOW_STYLE.replace("revenue: {table: sales, expr: sum(amount)}",
+                                'revenue: {table: sales, expr: "count(*"}')
+    old.write_text(broken % ("", ""))
+    new.write_text(broken % (", flow: two-way", ""))
+    (p,) = proposal.proposals(compare.compare_specs(str(old), str(new)))
+    assert (p.measure, p.added_measure) == ("sales_rows", True)
+    code, text = run("plan", old, new)
+    assert code == 0 and "Instead of two-way: sales_shop (sales -> shops)" in text
