@@ -23,13 +23,14 @@ from __future__ import annotations
 
 import re
 from collections import defaultdict
-from dataclasses import asdict, dataclass, field, replace
+from dataclasses import asdict, dataclass, replace
 from functools import cached_property, lru_cache
 from typing import Any, Callable, Hashable, Iterable, Iterator, Mapping, TypeVar
 
 from modeldiff import sql  # light: sqlglot is imported on first use
 from modeldiff.changes import STRUCTURAL_KINDS, Change
 from modeldiff.model import Column, History, Link, Measure, Model, Overrides, Report, Role, Table, Variant, VariantOption
+from modeldiff.renames import Renames
 from modeldiff.words import and_list
 
 SAFE, NUMBERS, BREAKING = "safe", "numbers", "breaking"
@@ -413,118 +414,6 @@ class References:
             if hit:
                 found.add(subject)
         return tuple(sorted(found))
-
-
-# --- renames found so far, and the old revision seen through them ---------------------------
-
-
-@dataclass
-class Renames:
-    """Old name -> new name, per section; columns per (new) table, keyed by the lowercased old name.
-
-    `stale` holds the half-followed renames: section -> old name -> the subjects
-    (in new names) that still name the old one. Those items are read as
-    written: the old name stays the old name there, so a left-behind reference
-    is not mistaken for a change of that item (it is a `reference.broken`).
-    """
-
-    sections: dict[str, dict[str, str]] = field(default_factory=lambda: {
-        s: {} for s in ("tables", "links", "measures", "variants", "roles", "reports")})
-    columns: dict[str, dict[str, str]] = field(default_factory=dict)
-    stale: dict[str, dict[str, frozenset[str]]] = field(default_factory=lambda: {
-        s: {} for s in ("tables", "links", "measures", "variants", "roles", "reports")})
-
-    def name(self, section: str, old: str, subject: str | None = None) -> str:
-        """The new name of `old`; as written where `subject` still names the old one."""
-        renames = self.sections[section]
-        if old not in renames or (subject is not None and subject in self.stale[section].get(old, ())):
-            return old
-        return renames[old]
-
-    def followed(self, section: str, subject: str | None) -> dict[str, str]:
-        """The renames of `section` that `subject` follows (all of them when it is None)."""
-        renames = self.sections[section]
-        stale = self.stale[section]
-        if subject is None or not stale:
-            return renames
-        return {o: n for o, n in renames.items() if subject not in stale.get(o, ())}
-
-    def column(self, table: str, old: str) -> str:
-        """`table` is the new table name."""
-        mapping = self.columns.get(table)
-        return mapping.get(old.lower(), old) if mapping else old
-
-    def table_column(self, item: str, subject: str | None = None) -> str:
-        """A "table.column" string of the old revision, in new names."""
-        table, dot, column = item.partition(".")
-        table = self.name("tables", table, subject)
-        return f"{table}{dot}{self.column(table, column)}" if dot else table
-
-    def overrides(self, o: Overrides, subject: str | None = None) -> Overrides:
-        links = self.sections["links"]
-        if not links or not o:
-            return o
-        name = lambda n: self.name("links", n, subject)  # noqa: E731
-        return Overrides(tuple(map(name, o.via)), {name(n): v for n, v in o.flow.items()})
-
-    def tables_keyed(self, by_table: Mapping[str, str], subject: str | None = None) -> dict[str, str]:
-        return {self.name("tables", t, subject): text for t, text in by_table.items()}
-
-    def subject(self, subject: str) -> str:
-        """An item subject ("links.x") of the old revision, in new names."""
-        section, _, name = subject.partition(".")
-        return f"{section}.{self.name(section, name)}" if section in self.sections else subject
-
-    # translations of whole items (structure only; SQL text is left as written)
-
-    def table(self, t: Table) -> Table:
-        name = self.name("tables", t.name)
-        if name == t.name and name not in self.columns:
-            return t
-        col = lambda c: self.column(name, c)  # noqa: E731
-        columns = {col(n): (replace(c, name=col(n)) if col(n) != n else c) for n, c in t.columns.items()}
-        history = t.history
-        if history is not None:
-            history = replace(history, **{f: col(getattr(history, f)) for f in ("valid_from", "valid_to", "current", "previous")
-                                          if getattr(history, f) is not None})
-        return replace(t, name=name, key=tuple(map(col, t.key)), natural_key=tuple(map(col, t.natural_key)),
-                       columns=columns, history=history)
-
-    def link(self, link: Link) -> Link:
-        name = self.name("links", link.name)
-        subject = f"links.{name}"
-        from_table, to_table = self.name("tables", link.from_table, subject), self.name("tables", link.to_table, subject)
-        return replace(link, name=name,
-                       from_table=from_table, from_columns=tuple(self.column(from_table, c) for c in link.from_columns),
-                       to_table=to_table, to_columns=tuple(self.column(to_table, c) for c in link.to_columns))
-
-    def measure(self, m: Measure) -> Measure:
-        name = self.name("measures", m.name)
-        subject = f"measures.{name}"
-        table = self.name("tables", m.table, subject) if m.table is not None else None
-        return replace(m, name=name, table=table, overrides=self.overrides(m.overrides, subject))
-
-    def variant(self, v: Variant) -> Variant:
-        name = self.name("variants", v.name)
-        subject = f"variants.{name}"
-        options = {n: replace(o, overrides=self.overrides(o.overrides, subject), where=self.tables_keyed(o.where, subject))
-                   for n, o in v.options.items()}
-        return replace(v, name=name, options=options)
-
-    def role(self, r: Role) -> Role:
-        name = self.name("roles", r.name)
-        return replace(r, name=name, filters=self.tables_keyed(r.filters, f"roles.{name}"))
-
-    def report(self, p: Report) -> Report:
-        name = self.name("reports", p.name)
-        subject = f"reports.{name}"
-        return replace(p, name=name,
-                       measures=tuple(self.name("measures", m, subject) for m in p.measures),
-                       by=tuple(self.table_column(b, subject) for b in p.by),
-                       where=self.tables_keyed(p.where, subject),
-                       variant={self.name("variants", v, subject): o for v, o in p.variant.items()},
-                       role=self.name("roles", p.role, subject) if p.role is not None else None,
-                       overrides=self.overrides(p.overrides, subject))
 
 
 # --- the comparison context -------------------------------------------------------------------
