@@ -45,6 +45,7 @@ from typing import Any, Iterable, Mapping
 
 from modeldiff import conditions
 from modeldiff.changes import EXIT_CODES, Change, id_order, subject_item, subject_member, worst
+from modeldiff.renames import Renames
 from modeldiff.model import NO_OVERRIDES, Finding, Measure, Model, Overrides, Report, VariantOption, layers_key
 
 PATH_LIMIT = 64  # paths listed per pair when telling what was added or removed
@@ -119,50 +120,6 @@ class DiffResult:
         return out
 
 
-# --- renames ---------------------------------------------------------------------------
-
-
-@dataclass(frozen=True)
-class Renames:
-    """Old name -> new name, per section, taken from the structural `*.renamed` changes."""
-
-    tables: Mapping[str, str] = field(default_factory=dict)
-    links: Mapping[str, str] = field(default_factory=dict)
-    measures: Mapping[str, str] = field(default_factory=dict)
-    roles: Mapping[str, str] = field(default_factory=dict)
-    reports: Mapping[str, str] = field(default_factory=dict)
-    variants: Mapping[str, str] = field(default_factory=dict)
-
-    @classmethod
-    def of(cls, changes: Iterable[Change]) -> "Renames":
-        maps: dict[str, dict[str, str]] = {s: {} for s in ("table", "link", "measure", "role", "report", "variant")}
-        for change in changes:
-            section, _, what = change.kind.partition(".")
-            if what == "renamed" and section in maps:
-                maps[section][change.before] = change.after
-        return cls(maps["table"], maps["link"], maps["measure"], maps["role"], maps["report"], maps["variant"])
-
-    def table(self, name: str) -> str:
-        return self.tables.get(name, name)
-
-    def link(self, name: str) -> str:
-        return self.links.get(name, name)
-
-    def path(self, path: Path) -> Path:
-        return tuple(self.links.get(link, link) for link in path)
-
-    def __bool__(self) -> bool:
-        return bool(self.tables or self.links)
-
-    def inverse(self) -> "Renames":
-        """New name -> old name, per section."""
-        def flip(m: Mapping[str, str]) -> dict[str, str]:
-            return {new: old for old, new in m.items()}
-
-        return Renames(flip(self.tables), flip(self.links), flip(self.measures), flip(self.roles),
-                       flip(self.reports), flip(self.variants))
-
-
 # --- comparing two graphs around their changed edges ------------------------------------
 
 
@@ -188,8 +145,8 @@ def in_new_names(g, renames: Renames):
     if not renames:
         return g
 
-    edges = [graph.Edge(renames.link(e.link), renames.table(e.src), renames.table(e.dst)) for e in g.edges]
-    return graph.FilterGraph({renames.table(t) for t in g.tables}, edges)
+    edges = [graph.Edge(renames.link_name(e.link), renames.table_name(e.src), renames.table_name(e.dst)) for e in g.edges]
+    return graph.FilterGraph({renames.table_name(t) for t in g.tables}, edges)
 
 
 def _walk(g, source: str, path: Path):
@@ -402,7 +359,7 @@ def _security_changes(a: _Analysis) -> list[Change]:
     same_edges = set(s_old.edges) == set(s_new.edges)
     same_graph = same_edges and s_old.tables == s_new.tables
     for name in sorted(set(old_roles) & set(a.new.roles)):
-        old_filters = sorted(a.renames.table(t) for t in old_roles[name].filters)
+        old_filters = sorted(a.renames.table_name(t) for t in old_roles[name].filters)
         new_filters = sorted(a.new.roles[name].filters)
         if same_graph and old_filters == new_filters:
             continue  # the same filtered tables over the same graph: the same rows restricted, along the same paths
@@ -621,10 +578,10 @@ class _Impacts:
             by_tables.setdefault(key, set()).add(name)
             ends[name] = {key}
         for old_name, link in self.a.old.links.items():
-            name = renames.link(old_name)
+            name = renames.link_name(old_name)
             if new_links.get(name) is link and not renames.tables:
                 continue  # the very record under the same name: counted above
-            key = frozenset((renames.table(link.from_table), renames.table(link.to_table)))
+            key = frozenset((renames.table_name(link.from_table), renames.table_name(link.to_table)))
             by_tables.setdefault(key, set()).add(name)
             ends.setdefault(name, set()).add(key)
         return by_tables, ends
@@ -635,7 +592,7 @@ class _Impacts:
             out |= self.a.new.links[link].tables
         old = self.a.old.links.get(next((o for o, n in self.a.renames.links.items() if n == link), link))
         if old is not None:
-            out |= {self.a.renames.table(t) for t in old.tables}
+            out |= {self.a.renames.table_name(t) for t in old.tables}
         return out
 
     def edge_cause(self, edge, came: bool, comp: "_Computation | None") -> tuple[int, str] | None:
@@ -871,7 +828,7 @@ class _Impacts:
         out: dict[str, dict[str, dict[str, str]]] = {}
         for name in sorted(set(old_roles) & set(a.new.roles)):
             rows: dict[str, dict[str, str]] = {}
-            filters = ((s_old, sorted(a.renames.table(t) for t in old_roles[name].filters)),
+            filters = ((s_old, sorted(a.renames.table_name(t) for t in old_roles[name].filters)),
                        (s_new, sorted(a.new.roles[name].filters)))
             for g, filtered in filters:
                 if not upstream[id(g)] & set(filtered):
@@ -888,7 +845,7 @@ class _Impacts:
                                     set(change.after or {}))
                     for table in tables:
                         for g, _ in filters:
-                            for reached in sorted(g.reach(a.renames.table(table))):
+                            for reached in sorted(g.reach(a.renames.table_name(table))):
                                 rows.setdefault(reached, {}).setdefault(change.id, table)
             for change in self.kinds("security."):
                 if subject_item(change.subject) == name:
@@ -1187,7 +1144,7 @@ def _wheres(options: Mapping[str, tuple[str, VariantOption]], renames: Renames |
     out: dict[str, list[str]] = {}
     for variant in sorted(options):
         for table, predicate in sorted(options[variant][1].where.items()):
-            out.setdefault(renames.table(table) if renames else table, []).append(predicate)
+            out.setdefault(renames.table_name(table) if renames else table, []).append(predicate)
     return {t: tuple(p) for t, p in out.items()}
 
 

@@ -21,7 +21,7 @@ Rules (from the issue; "common practice" where no published source is named):
   the steps that move their numbers;
 - tables and columns are added before the links, measures and reports that use
   them; links, measures and reports are removed before the tables and columns
-  they use (who uses what comes from `diff.References` of each revision);
+  they use (who uses what comes from `references.References` of each revision);
 - a security exposure needs the organisation's security review to sign off
   before the steps that cause it.
 
@@ -232,7 +232,7 @@ def _value(v) -> str:
 
 class _Planner:
     def __init__(self, md):
-        from modeldiff.diff import References
+        from modeldiff.references import References
         from modeldiff.impact import Renames
 
         self.md = md

@@ -551,7 +551,7 @@ def _graph(tables, edges):
 def test_changed_pairs_reads_the_old_graph_in_new_names():
     old = _graph({"a", "b", "c"}, [("ab", "a", "b"), ("bc", "b", "c")])
     new = _graph({"a", "b2", "c"}, [("ab", "a", "b2"), ("b2c", "b2", "c")])
-    renames = impact.Renames(tables={"b": "b2"}, links={"bc": "b2c"})
+    renames = impact.Renames.named(tables={"b": "b2"}, links={"bc": "b2c"})
     assert impact.changed_pairs(old, new, renames) == {}
     assert impact.changed_pairs(old, new, impact.Renames()) != {}
 

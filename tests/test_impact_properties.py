@@ -254,7 +254,7 @@ def test_changed_pairs_filtered_by_source_or_target_is_the_unfiltered_answer_res
     from modeldiff import graph
 
     old, new = build(*case, "old"), build(*case, "new")
-    renames = impact.Renames(links=old_to_new(case[1]))
+    renames = impact.Renames.named(links=old_to_new(case[1]))
     g_old, g_new = graph.flow_graph(old), graph.flow_graph(new)
     everything = impact.changed_pairs(g_old, g_new, renames)
     some = set(case[0][::2])

@@ -196,7 +196,7 @@ def _richer_base():
 def test_renames_with_any_subset_of_references_left_behind_seeded():
     import random
 
-    from modeldiff.diff import References
+    from modeldiff.references import References
 
     rng = random.Random(20261203)
     base = _richer_base()
