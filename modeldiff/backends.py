@@ -477,6 +477,8 @@ _TABLE = "_mdt_"  # Spark: a model table's cached view
 
 @dataclass(frozen=True)
 class _Source:
+    """Where one model table's rows are in the target, how messages name it, and its columns there."""
+
     relation: str  # in the target's dialect
     shown: str
     columns: dict  # model column -> (stored name, target type)
