@@ -19,6 +19,10 @@ Disagreements found while writing the reference (docs/evaluation.md):
   combination when a measure sees a row there and has it among the values of
   its own setting's total (docs/evaluation.md). The reference follows the
   documented choice.
+- Campaign seed 538: the reference let a later `flow` bring back a standby
+  link that an earlier layer had set `off` as carrying filters; only `via`
+  makes a standby link carry (model-format.md), as the engine had it. Fixed
+  in the reference: a later flow restores what the link was before `off`.
 """
 
 from __future__ import annotations
