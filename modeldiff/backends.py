@@ -1051,3 +1051,15 @@ class PostgresRawTables:
             raise ModeldiffError(f"a query on {self.shown} took longer than the statement timeout") from None
         except _Failed as error:
             raise ModeldiffError(self.target.redact(f"cannot read {self.shown}: {error}")) from None
+
+
+def open_database(model, model_path: str | None = None, data_dir: str | None = None,
+                  db_file: str | None = None, allow_outside: bool = False, db_url: str | None = None,
+                  timeout: float | None = None):
+    """The model's tables, where they are: a server named by `db_url` (PostgreSQL, Spark, Spark reading
+    `data_dir`'s Parquet files), else DuckDB over `db_file`, `data_dir` or the `source:` files (data.Database)."""
+    if db_url is not None:
+        return RemoteDatabase.open(model, parse_url(db_url), model_path, data_dir, allow_outside, timeout)
+    from modeldiff.data import Database
+
+    return Database.open(model, model_path, data_dir=data_dir, db_file=db_file, allow_outside=allow_outside)

@@ -228,18 +228,6 @@ def evaluate_report(model: Model, report_name: str, db: Database, user: str | No
     return Result(tuple(columns), tuple(tuple(r) for r in rows), report_name, tuple(notes), groups)
 
 
-def open_database(model: Model, model_path: str | None = None, data_dir: str | None = None,
-                  db_file: str | None = None, allow_outside: bool = False, db_url: str | None = None,
-                  timeout: float | None = None):
-    """The model's tables, where they are: a server named by `db_url` (modeldiff.backends: PostgreSQL, Spark,
-    Spark reading `data_dir`'s Parquet files), else DuckDB over `db_file`, `data_dir` or the `source:` files."""
-    if db_url is not None:
-        from modeldiff.backends import RemoteDatabase, parse_url
-
-        return RemoteDatabase.open(model, parse_url(db_url), model_path, data_dir, allow_outside, timeout)
-    return Database.open(model, model_path, data_dir=data_dir, db_file=db_file, allow_outside=allow_outside)
-
-
 _REMOTE_ERROR: list = []
 
 

@@ -54,7 +54,7 @@ def add_timeout(parser) -> None:
 
 
 def where_the_data_is(data: str | None, db: str | None, timeout: float | None = None) -> dict:
-    """The keyword arguments of `data.open_database` for the options --data and --db (eval and verify)."""
+    """The keyword arguments of `backends.open_database` for the options --data and --db (eval and verify)."""
     import os
 
     from modeldiff.backends import is_url, parse_url
@@ -100,7 +100,8 @@ def add_allow_outside(parser) -> None:
 
 
 def run(args, stdout: TextIO) -> int:
-    from modeldiff.data import evaluate_report, open_database
+    from modeldiff.backends import open_database
+    from modeldiff.data import evaluate_report
     from modeldiff.errors import ModeldiffError
 
     model = read_checked_model(args.model)

@@ -490,7 +490,7 @@ def loading_model(result):
 def open_data(md, data_dir: str | None, db_file: str | None, allow_outside: bool = False,
               db_url: str | None = None, timeout: float | None = None) -> _Data:
     """Both revisions' databases; one shared database when both read the same place with the same tables."""
-    from modeldiff.data import open_database
+    from modeldiff.backends import open_database
 
     result = md.result
     where = dict(data_dir=data_dir, db_file=db_file, allow_outside=allow_outside, db_url=db_url, timeout=timeout)

@@ -23,7 +23,8 @@ import randmodel as R
 import serverkit
 import warehousekit as W
 from clikit import run
-from modeldiff.data import NO_MATCH, Database, evaluate_report, open_database
+from modeldiff.backends import open_database
+from modeldiff.data import NO_MATCH, Database, evaluate_report
 from modeldiff.errors import ModeldiffError
 from modeldiff.load import load_path
 

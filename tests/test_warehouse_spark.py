@@ -19,7 +19,8 @@ import pytest
 import randmodel as R
 import warehousekit as W
 from clikit import run
-from modeldiff.data import Database, evaluate_report, open_database
+from modeldiff.backends import open_database
+from modeldiff.data import Database, evaluate_report
 from modeldiff.load import load_path
 from test_warehouse_postgres import report_rows
 
