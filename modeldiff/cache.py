@@ -479,6 +479,45 @@ def read(folder: str, kind: str, key: str, fit: Callable[[Any], bool] | None = N
     return value
 
 
+def _payload(value: Any, limit: int) -> bytes | None:
+    """`json.dumps(_encode(value))` (compact) as bytes, or None once it would pass `limit` bytes.
+
+    A dict's sequences (a comparison's changes and impacted items) are encoded
+    item by item, so a value too large to store is given up at the limit
+    rather than built whole first: the comparison of a range of 300 commits
+    (13,000 changes, impacted items with their reasons) would have been
+    about 1 GB of JSON, and twice that in memory, only to be refused on read.
+    """
+    import json
+
+    def dumps(item: Any) -> str:
+        return json.dumps(item, separators=(",", ":"))
+
+    if type(value) is not dict or not all(type(k) is str for k in value):
+        text = dumps(_encode(value))
+        return text.encode("utf-8", "surrogatepass") if len(text) <= limit else None
+    def pieces():
+        for index, (key, item) in enumerate(value.items()):
+            yield ("," if index else "") + dumps(key) + ":"
+            if type(item) in (tuple, list):
+                yield '["t"' if type(item) is tuple else '["l"'
+                for element in item:
+                    yield "," + dumps(_encode(element))
+                yield "]"
+            else:
+                yield dumps(_encode(item))
+        yield "}"
+
+    parts = ["{"]
+    size = 1
+    for piece in pieces():
+        size += len(piece)
+        if size > limit:
+            return None
+        parts.append(piece)
+    return "".join(parts).encode("utf-8", "surrogatepass")
+
+
 def write(folder: str, kind: str, key: str, value: Any) -> bool:
     """Store `value` under (kind, key) atomically; False when the cache folder cannot be written."""
     import json
@@ -486,9 +525,11 @@ def write(folder: str, kind: str, key: str, value: Any) -> bool:
 
     try:
         _record_table()
-        payload = json.dumps(_encode(value), separators=(",", ":")).encode("utf-8", "surrogatepass")
+        payload = _payload(value, MAX_ENTRY_BYTES - 1024)
     except (TypeError, ValueError, RecursionError):
         return False
+    if payload is None:
+        return False  # larger than an entry read back may be: not stored
     secret = _secret(folder, create=True)
     if secret is None:
         return False

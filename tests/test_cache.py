@@ -454,3 +454,53 @@ def test_random_values_round_trip_and_foreign_json_never_raises_past_unfit():
             cache._decode(garbage)
         except cache._Unfit:
             pass
+
+
+def _random_value(rng, depth: int = 0):
+    choice = rng.randrange(9 if depth < 3 else 4)
+    if choice == 0:
+        return None
+    if choice == 1:
+        return rng.choice([0, -7, 3.5, 1e300, True, False])
+    if choice in (2, 3):
+        return rng.choice(["", "a", "é ü", "\u2192", "quote \" and \\\\", "\ud800"])
+    if choice == 4:
+        return tuple(_random_value(rng, depth + 1) for _ in range(rng.randrange(4)))
+    if choice == 5:
+        return [_random_value(rng, depth + 1) for _ in range(rng.randrange(4))]
+    if choice == 6:
+        return {f"k{i}": _random_value(rng, depth + 1) for i in range(rng.randrange(4))}
+    if choice == 7:
+        return frozenset(rng.sample(["x", "y", "z"], rng.randrange(3)))
+    return {1: "a", (2,): "b"}
+
+
+@pytest.mark.parametrize("seed", range(300))
+def test_an_entry_encoded_piece_by_piece_is_the_entry_encoded_whole(seed):
+    import json
+    import random
+
+    rng = random.Random(seed)
+    value = {f"f{i}": _random_value(rng) for i in range(rng.randrange(5))} if seed % 5 else _random_value(rng)
+    whole = json.dumps(cache._encode(value), separators=(",", ":")).encode("utf-8", "surrogatepass")
+    assert cache._payload(value, 1 << 20) == whole
+    assert cache._payload(value, len(whole)) == whole and (len(whole) < 3 or cache._payload(value, len(whole) - 1) is None)
+
+
+def test_an_entry_larger_than_can_be_read_back_is_not_written(tmp_path, monkeypatch):
+    monkeypatch.setattr(cache, "MAX_ENTRY_BYTES", 4096)
+    built = []
+    real_encode = cache._encode
+
+    def encode(value):
+        built.append(value)
+        return real_encode(value)
+
+    monkeypatch.setattr(cache, "_encode", encode)
+    large = {"format": 1, "changes": tuple(f"change {n}" * 10 for n in range(10_000))}
+    assert cache.write(str(tmp_path), "pair", "large", large) is False
+    assert not list(tmp_path.glob("pair-*"))
+    assert len(built) < 100  # given up at the limit, not encoded whole first
+    small = {"format": 1, "changes": tuple(f"change {n}" for n in range(10))}  # twin: within the limit
+    assert cache.write(str(tmp_path), "pair", "small", small) is True
+    assert cache.read(str(tmp_path), "pair", "small") == small
