@@ -172,17 +172,21 @@ class Database:
         params = dict(query.params)
         try:
             try:
-                for step in query.steps:
-                    if isinstance(step, Loop):
-                        self._loop(step, params)
-                    else:
-                        self._execute(step, params)
+                self._steps(query, params)
                 return self._execute(query.sql, params).fetchall()
             finally:
                 for statement in query.cleanup:
                     self._execute(statement, params)
         except duckdb.Error as error:
             raise ModeldiffError(f"cannot evaluate {what} on the data: {_first_line(error)}") from None
+
+    def _steps(self, query: Query, params: dict) -> None:
+        """Run the steps that prepare `query`'s answer (temporary relations, loops), in order."""
+        for step in query.steps:
+            if isinstance(step, Loop):
+                self._loop(step, params)
+            else:
+                self._execute(step, params)
 
     def _loop(self, loop: Loop, params: dict) -> None:
         before = self._execute(loop.progress, params).fetchone()[0]
@@ -287,11 +291,7 @@ def result_types(connection, query: Query) -> list[str]:
     db = Database(connection, Model(name="_shape", tables={}))
     params = dict(query.params)
     try:
-        for step in query.steps:
-            if isinstance(step, Loop):
-                db._loop(step, params)
-            else:
-                db._execute(step, params)
+        db._steps(query, params)
         described = db._execute(query.sql, params).description
     finally:
         for statement in query.cleanup:

@@ -631,12 +631,17 @@ class _Visibility:
         conds += [f"_u.{_tag(i)} IS NOT DISTINCT FROM {tag_of[i]}" for i in src.tags]
         return f"EXISTS (SELECT 1 FROM {q(src.name)} AS _u WHERE {_and(conds)})"
 
-    def _untagged(self, table: str, semi: Sequence[_Arc]) -> str:
-        """Rows of `table` passing its filters and semi-joined with the (untagged) visible rows of `semi`'s sources."""
+    def _filtered(self, table: str) -> str:
+        """SELECT of the rows of `table` that pass its own filters."""
         preds = self.filters.get(table, ())
         inner = f"SELECT * FROM {q(self.base.get(table, table))} AS {q(table)}"
         if preds:
             inner += " WHERE " + _and([f"({p})" for p in preds])
+        return inner
+
+    def _untagged(self, table: str, semi: Sequence[_Arc]) -> str:
+        """Rows of `table` passing its filters and semi-joined with the (untagged) visible rows of `semi`'s sources."""
+        inner = self._filtered(table)
         if not semi:
             return inner
         return f"SELECT * FROM ({inner}) AS _c WHERE " + _and([self._exists(a, "_c") for a in semi])
@@ -678,10 +683,7 @@ class _Visibility:
 
     def _select(self, table: str, arcs: Sequence[_Arc]) -> str:
         """Rows of `table` passing its filters, tagged, semi-joined with the visible rows of `arcs`' sources."""
-        preds = self.filters.get(table, ())
-        inner = f"SELECT * FROM {q(self.base.get(table, table))} AS {q(table)}"
-        if preds:
-            inner += " WHERE " + _and([f"({p})" for p in preds])
+        inner = self._filtered(table)
         own = {s.index: f"_x.{q(s.column)}" for s in self.sources if s.table == table}
         provided, joined, semi = self._split(table, arcs)
         joins = []
