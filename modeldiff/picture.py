@@ -19,7 +19,7 @@ caption says so.
 from __future__ import annotations
 
 import re
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Iterable, Sequence
 
 
@@ -296,7 +296,7 @@ def _words(names) -> str:
     return and_list(names)
 
 
-READABLE_NODES = 40  # tables a diagram in Markdown shows at most: beyond a few dozen it is not read (nor rendered)
+READABLE_NODES = 40  # tables a diagram (Markdown, HTML) shows at most: beyond a few dozen it is not read (nor rendered)
 
 
 def readable(pic: Picture, max_nodes: int = READABLE_NODES) -> Picture:
@@ -321,12 +321,13 @@ def readable(pic: Picture, max_nodes: int = READABLE_NODES) -> Picture:
     arrows: list[Arrow] = []
     for arrow in pic.arrows:
         if arrow.src in keep and arrow.dst in keep:
-            arrows.append(Arrow(len(arrows), arrow.link, arrow.src, arrow.dst, arrow.style, arrow.changed))
+            arrows.append(replace(arrow, index=len(arrows)))
     red_left = sum(1 for a in pic.arrows if a.red) - sum(1 for a in arrows if a.red)
     caption = (f"{pic.model}: showing {len(nodes)} of the {len(pic.nodes)} tables near what changed "
                f"(the changed links' own tables first); {len(pic.nodes) - len(nodes)} tables and "
                f"{len(pic.arrows) - len(arrows)} links left out"
-               + (f", {red_left} of them changed" if red_left else "") + ". The HTML report and `modeldiff graph` draw more.")
+               + (f", {red_left} of them changed" if red_left else "")
+               + ". `modeldiff graph` on the new revision draws every table; `--format json` lists every change.")
     return Picture(pic.model, nodes, tuple(arrows), caption, pic.setting)
 
 

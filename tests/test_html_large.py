@@ -11,6 +11,7 @@ Without Chromium the browser tests are skipped, except under CI=true, where they
 from __future__ import annotations
 
 import os
+import re
 import shutil
 import subprocess
 from html.parser import HTMLParser
@@ -178,3 +179,31 @@ def test_a_filter_shows_exactly_the_matching_items(large, tmp_path, choose):
     assert 0 < len(expected) < len(items)
     assert [i["text"] for i in shown] == [i["text"] for i in expected]
     assert f'id="f-shown">{len(expected)} of {len(items)} items shown<' in dom
+
+
+def _filter_graph(page: str) -> tuple[str, str]:
+    """(the filter graph's figure, the line under it) of a one-model report."""
+    start = page.index("<h3>Filter graph</h3>")
+    end = page.index("</figure>", start)
+    line = page[end:page.index("</p>", end)]
+    return page[start:end], line
+
+
+def test_a_large_change_draws_at_most_the_readable_tables_and_says_what_it_left_out(large):
+    from modeldiff.picture import READABLE_NODES, diff_picture, readable
+
+    result, page = large
+    near = diff_picture(result)
+    assert len(near.nodes) > READABLE_NODES  # the change reaches more tables than a diagram can show
+    figure, line = _filter_graph(page)
+    drawn = re.findall(r'<g class="node[^"]*" data-table="([^"]+)"', figure)
+    assert 0 < len(drawn) <= READABLE_NODES
+    assert set(drawn) == {n.table for n in readable(near).nodes}  # Markdown's selection, not a second one
+    arrows = re.findall(r'data-link="[^"]+" data-index=', figure)
+    assert f'<p class="left-out">{len(near.nodes) - len(drawn)} tables and {len(near.arrows) - len(arrows)} ' \
+           "links left out." in line
+    assert "modeldiff graph models/synthetic.model.yaml --format svg" in line and "--format json" in line
+    assert f"showing {len(drawn)} of the {len(near.nodes)} tables" in figure  # the caption too
+    source = page[page.index("<pre>", page.index("<summary>Mermaid source")):]
+    source = source[:source.index("</pre>")]
+    assert len(re.findall(r"^  t_\w+[^\w\s]", source, re.M)) == len(drawn)  # the Mermaid source: the same cut

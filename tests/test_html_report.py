@@ -93,6 +93,25 @@ def test_report_is_well_formed_with_summary_changes_impacts_and_graph():
     assert re.search(r'class="swatch-dimension".*?<rect [^>]*rx="6"', legend)
 
 
+def test_a_small_change_draws_its_whole_picture_and_says_nothing_was_left_out():
+    # twin of test_html_large's large change, whose diagram is cut to picture.READABLE_NODES tables
+    from modeldiff.load import load_files
+    from modeldiff.picture import diff_picture
+
+    page = html_of(str(EXAMPLE), str(REVISION_2))
+    old, new = (load_files([(p.name, p.read_text())]) for p in (EXAMPLE, REVISION_2))
+    near = diff_picture(impact.analyse(old.model, new.model, old.findings, new.findings))
+    start = page.index("<h3>Filter graph</h3>")
+    figure = page[start:page.index("</figure>", start)]
+    drawn = re.findall(r'<g class="node[^"]*" data-table="([^"]+)"', figure)
+    assert sorted(drawn) == sorted(n.table for n in near.nodes) and drawn
+    arrows = re.findall(r'data-link="[^"]+" data-index=', figure)
+    assert len(arrows) == len(near.arrows)
+    assert (f'<p class="left-out">All {len(drawn)} tables and {len(arrows)} links near what changed are drawn; '
+            "nothing was left out.</p>") in page
+    assert "left out." not in figure and "modeldiff graph" not in page
+
+
 def test_report_loads_nothing_from_the_network():
     page = html_of(str(EXAMPLE), str(REVISION_2))
     # one inline script (the filters), nothing fetched: no src, no link, no import

@@ -128,15 +128,26 @@ def _legend() -> str:
 
 
 def _diagram(md: ModelDiff, number: int) -> list[str]:
-    from modeldiff.picture import diff_picture, mermaid_of
+    """The filter graph cut like Markdown's (`picture.readable`), a line under it saying what was left out."""
+    from modeldiff.picture import diff_picture, mermaid_of, readable
+    from modeldiff.render.diff_out import _side
     from modeldiff.render.svg import svg_of
 
-    pic = diff_picture(md.result)
-    if pic is None:
+    near = diff_picture(md.result)
+    if near is None:
         return []
+    pic = readable(near)
     caption = pic.caption or "The new revision's filter graph; what changed is drawn in red."
+    if pic is near:
+        left_out = (f"All {len(pic.nodes)} tables and {len(pic.arrows)} links near what changed are drawn; "
+                    "nothing was left out.")
+    else:
+        left_out = (f"{len(near.nodes) - len(pic.nodes)} tables and {len(near.arrows) - len(pic.arrows)} links "
+                    f"left out. To see every table: <code>modeldiff graph {escape(_side(md.new))} --format svg "
+                    "&gt; graph.svg</code>; every change: <code>--format json</code>.")
     return ["<h3>Filter graph</h3>", "<figure>", svg_of(pic, prefix=f"mdg{number}"),
-            f"<figcaption>{escape(caption)}</figcaption>", "</figure>", _legend(),
+            f"<figcaption>{escape(caption)}</figcaption>", "</figure>",
+            f'<p class="left-out">{left_out}</p>', _legend(),
             "<details><summary>Mermaid source (paste into Markdown between <code>```mermaid</code> fences)</summary>",
             f"<pre>{escape(mermaid_of(pic))}</pre>", "</details>"]
 
