@@ -22,19 +22,19 @@ from modeldiff.errors import ModeldiffError, UsageError
 # code; only the module of the command being run is imported, so a command
 # pays for no other command's imports.
 EXTRA_COMMANDS = (
-    ("graph", "modeldiff.picture",
+    ("graph", "modeldiff.commands.picture",
      "draw a model's filter graph (Mermaid, Graphviz dot, SVG or text), optionally in one measure's or report's setting"),
-    ("plan", "modeldiff.plan",
+    ("plan", "modeldiff.commands.plan",
      "a migration plan from OLD to NEW: ordered steps with preconditions, checks (SQL for data) and rollbacks"),
-    ("notes", "modeldiff.notes",
+    ("notes", "modeldiff.commands.notes",
      "release notes for a range of commits (A..B): what changed in each model, by severity, with a diagram"),
-    ("hook", "modeldiff.hook",
+    ("hook", "modeldiff.commands.hook",
      "install, remove or show the pre-push hook that blocks unacknowledged breaking model changes"),
-    ("eval", "modeldiff.evaluate",
+    ("eval", "modeldiff.commands.evaluate",
      "evaluate a model's reports on data (Parquet, CSV or a DuckDB file) and print their numbers"),
     ("verify", "modeldiff.commands.verify",
      "evaluate OLD and NEW on the same data: which numbers really move, and whether the data meets the change's preconditions"),
-    ("draft", "modeldiff.draft",
+    ("draft", "modeldiff.commands.draft",
      "write a first model file from a database's catalog (a DuckDB file or a DDL script): tables, keys, links, guessed kinds"),
 )
 

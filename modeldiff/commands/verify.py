@@ -16,7 +16,7 @@ def configure(parser) -> None:
     parser.add_argument("--db", metavar="FILE|URL",
                         help="a DuckDB database file holding one table per model table, or a server: "
                              "postgresql://user@host:port/dbname, spark:local[N], sc://host:port (read-only)")
-    from modeldiff.evaluate import add_timeout
+    from modeldiff.commands.evaluate import add_timeout
 
     add_timeout(parser)
     parser.add_argument("--format", choices=FORMATS, default="text")
@@ -26,7 +26,7 @@ def configure(parser) -> None:
                              "moved without the diff listing it is a defect of the tool (exit 3)")
     parser.add_argument("--limit", metavar="N", type=int, default=DEFAULT_LIMIT,
                         help=f"differences listed per report or measure (default {DEFAULT_LIMIT}; 0: all)")
-    from modeldiff.evaluate import add_allow_outside
+    from modeldiff.commands.evaluate import add_allow_outside
 
     add_allow_outside(parser)
 
@@ -39,7 +39,7 @@ def run(args, stdout: TextIO) -> int:
     if args.limit is not None and args.limit < 0:
         raise ModeldiffError(f"--limit {args.limit}: give 0 (list every difference) or a positive number")
     md = compare.compare_specs(args.old, args.new)
-    from modeldiff.evaluate import where_the_data_is
+    from modeldiff.commands.evaluate import where_the_data_is
 
     where = where_the_data_is(args.data, args.db, args.timeout)
     verification = verify(md, where["data_dir"], where["db_file"], args.user, allow_outside=args.allow_data_outside,
