@@ -288,10 +288,17 @@ class FilterGraph:
     leaves this module.
     """
 
-    def __init__(self, tables: Iterable[str], edges: Iterable[Edge]) -> None:
+    def __init__(self, tables: Iterable[str], edges: Iterable[Edge], both_ways: Iterable[str] | None = None) -> None:
         self.tables: frozenset[str] = frozenset(tables)
         tables = self.tables
-        self.edges: tuple[Edge, ...] = tuple(sorted({e for e in edges if e.src in tables and e.dst in tables}))
+        kept = [e for e in edges if e.src in tables and e.dst in tables]
+        self.edges: tuple[Edge, ...] = tuple(sorted(set(kept)))
+        if both_ways is None:  # a self-link's two directions are one Edge: count them before they merge
+            selfs = [e.link for e in kept if e.src == e.dst]
+            both_ways = {link for link in selfs if selfs.count(link) > 1} if len(selfs) > 1 else ()
+        # self-links (from and to the same table) carrying filters both ways: the direction matters (which
+        # columns match), though `edges` holds their one (table, table) edge once
+        self.both_ways: frozenset[str] = frozenset(both_ways)
         self._names, self._index = _numbering(tables)  # (the two revisions of a diff mostly share their tables)
         links, sources, targets = zip(*self.edges) if self.edges else ((), (), ())
         self._link: list[str] = list(links)
@@ -313,10 +320,10 @@ class FilterGraph:
     def __eq__(self, other: object) -> bool:
         if not isinstance(other, FilterGraph):
             return NotImplemented
-        return self.tables == other.tables and self.edges == other.edges
+        return self.tables == other.tables and self.edges == other.edges and self.both_ways == other.both_ways
 
     def __hash__(self) -> int:
-        return hash((self.tables, self.edges))
+        return hash((self.tables, self.edges, self.both_ways))
 
     def __repr__(self) -> str:
         return f"FilterGraph({len(self.tables)} tables, {len(self.edges)} edges)"

@@ -146,7 +146,8 @@ def in_new_names(g, renames: Renames):
         return g
 
     edges = [graph.Edge(renames.link_name(e.link), renames.table_name(e.src), renames.table_name(e.dst)) for e in g.edges]
-    return graph.FilterGraph({renames.table_name(t) for t in g.tables}, edges)
+    return graph.FilterGraph({renames.table_name(t) for t in g.tables}, edges,
+                             {renames.link_name(link) for link in g.both_ways})
 
 
 def _walk(g, source: str, path: Path):
@@ -468,10 +469,16 @@ def _changed_edges(g_old, g_new, switched: frozenset[str]) -> tuple[tuple[Any, A
     An edge is its two tables and their columns (changes.md, "Impact"): it
     changes when it is in one graph only (`came`: it is in the new one), or
     when its link's columns changed (`switched` links; `both`: then it is
-    listed once per graph).
+    listed once per graph). A self-link's two directions share one
+    (table, table) edge: when its second direction comes or goes
+    (`FilterGraph.both_ways`), the edge counts as come or gone.
     """
     old, new = set(g_old.edges), set(g_new.edges)
     out = [(e, g_old, False, False) for e in sorted(old - new)] + [(e, g_new, True, False) for e in sorted(new - old)]
+    if g_old.both_ways != g_new.both_ways:  # a self-link's second direction came or went: its one edge stays
+        turned = g_old.both_ways ^ g_new.both_ways
+        out += [(e, g_new, True, False) if e.link in g_new.both_ways else (e, g_old, False, False)
+                for e in sorted(old & new) if e.link in turned and e.src == e.dst]
     if switched:
         for e in sorted(e for e in old & new if e.link in switched):
             out += [(e, g_old, False, True), (e, g_new, True, True)]

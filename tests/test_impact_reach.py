@@ -474,3 +474,36 @@ def test_variant_where_twin_a_where_on_a_table_that_reaches_no_group_lists_no_re
     r = diff(old, new)
     assert [c.kind for c in r.changes] == ["variant.changed"]
     assert names(r.reports) == [] and names(r.measures) == []
+
+
+# --- a self-link: its two directions are one (table, table) edge -------------------------------
+
+SELF_LINKED = """\
+model: selfy
+format: 1
+tables:
+  f: {kind: fact, key: id, columns: {id: integer, a: text, v: integer, r: integer}}
+links:
+  parent: {from: f.r, to: f.id, standby: true}
+measures:
+  total: {table: f, expr: sum(v), via: [parent]}
+reports:
+  by_a: {measures: [total], by: [f.a]}
+"""
+SELF_ROWS = {"f": [(1, "z", 3, 3), (3, "z", 2, 3)]}
+
+
+def test_a_self_link_made_one_to_one_lists_the_measure_its_second_direction_moves():
+    # Found by the random campaign (seed 3427): the new direction is the same (f, f) edge as the old one.
+    new = SELF_LINKED.replace("standby: true}", "standby: true, cardinality: one-to-one}")
+    assert numbers(SELF_LINKED, "by_a", SELF_ROWS) != numbers(new, "by_a", SELF_ROWS)
+    r = diff(SELF_LINKED, new)
+    assert names(r.measures) == ["total"] and names(r.reports) == ["by_a"]
+
+
+def test_a_self_link_already_two_way_made_one_to_one_lists_nothing():
+    two_way = SELF_LINKED.replace("standby: true}", "standby: true, flow: two-way}")
+    new = two_way.replace("flow: two-way}", "flow: two-way, cardinality: one-to-one}")
+    assert numbers(two_way, "by_a", SELF_ROWS) == numbers(new, "by_a", SELF_ROWS)
+    r = diff(two_way, new)
+    assert names(r.measures) == [] and names(r.reports) == []
