@@ -62,7 +62,7 @@ import sys
 from collections.abc import Mapping
 from typing import Any, Callable, Iterator, Sequence
 
-FORMAT = 3
+FORMAT = 4
 MAGIC = b"modeldiff-cache"
 MAX_ENTRIES = 500
 MAX_BYTES = 200 * 1024 * 1024
@@ -336,7 +336,7 @@ def _records() -> dict[str, tuple[type, tuple[Callable[[Any], bool], ...]]]:
 
     return {
         "Change": (Change, (text, text, severity, text, anything, anything, mapping, text)),
-        "Impact": (Impact, (text, severity, reasons, texts, texts, texts)),
+        "Impact": (Impact, (text, severity, reasons, texts, texts, texts, text_or_none, text_or_none, text_or_none)),
         "Reason": (Reason, (text, text, text_or_none, paths, paths, text_or_none, texts)),
         "Finding": (Finding, (text, text, text, text, paths, pos)),
         "Pos": (Pos, (text, whole, whole)),

@@ -88,6 +88,10 @@ class Impact:
     exposed: tuple[str, ...] = ()  # roles only
     tightened: tuple[str, ...] = ()
     rerouted: tuple[str, ...] = ()
+    # what the summary by cause counts, kept here so a cached comparison need not read the model again:
+    home: str | None = None  # a measure's table ("" for a derived measure, and for a report); None: not recorded
+    owner: str | None = None  # a measure's or report's owner
+    home_kind: str | None = None  # the kind of a measure's table (fact, dimension, ...)
 
 
 @dataclass(frozen=True)
@@ -1035,7 +1039,8 @@ class _Impacts:
                             for r in self.role_reasons(a.new.measures[base].table, comp)]
             if reasons:
                 result[name] = reasons
-        return [self._impact(name, reasons) for name, reasons in sorted(result.items())]
+        return [self._impact(name, reasons, self._record("measures", name), measure=True)
+                for name, reasons in sorted(result.items())]
 
     def roles(self) -> list[Impact]:
         rows = self.role_rows()
@@ -1124,7 +1129,7 @@ class _Impacts:
                     if change.severity == "breaking":
                         reasons.append(Reason(change.id, change.message))
             if reasons:
-                out.append(self._impact(name, reasons))
+                out.append(self._impact(name, reasons, report))
         return out
 
     def _tables_read(self, home: str, comp: _Computation, filters: set[str]) -> set[str]:
@@ -1136,11 +1141,23 @@ class _Impacts:
                 read |= g.reach(table) & above
         return read
 
-    def _impact(self, name: str, reasons: list[Reason]) -> Impact:
+    def _record(self, section: str, name: str):
+        """An item of the new revision, else of the old (by the same name), else None."""
+        for model in (self.a.new, self.a.old):
+            found = getattr(model, section).get(name)
+            if found is not None:
+                return found
+        return None
+
+    def _impact(self, name: str, reasons: list[Reason], record=None, measure: bool = False) -> Impact:
         reasons = sorted(_dedupe(reasons), key=lambda r: (id_order(r.change), r.source or "", r.paths_added,
                                                           r.paths_removed, r.route))
         severity = worst(self.by_id[r.change].severity for r in reasons if r.change in self.by_id)
-        return Impact(name, "numbers" if severity == "safe" else severity, tuple(reasons))
+        home = ((record.table or "") if measure else "") if record is not None else None
+        owner = record.owner if record is not None else None
+        table = self.a.new.tables.get(home) or self.a.old.tables.get(home) if home else None
+        return Impact(name, "numbers" if severity == "safe" else severity, tuple(reasons), home=home, owner=owner,
+                      home_kind=table.kind if table is not None else None)
 
 
 def _and(names: list[str]) -> str:

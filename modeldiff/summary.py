@@ -160,14 +160,23 @@ def causes(result) -> tuple[Cause, ...]:
         homes = []
         owners = []
         for m in measures:
-            record = lookup(result, "measures", m.name)
-            homes.append(record.table if record is not None and record.table else DERIVED_MEASURES)
-            if record is not None and record.owner:
-                owners.append(record.owner)
+            if m.home is not None:  # recorded by the analysis: the model need not be read again
+                home, owner = m.home, m.owner
+            else:
+                record = lookup(result, "measures", m.name)
+                home = record.table if record is not None else None
+                owner = record.owner if record is not None else None
+            homes.append(home or DERIVED_MEASURES)
+            if owner:
+                owners.append(owner)
         for rep in reports:
-            record = lookup(result, "reports", rep.name)
-            if record is not None and record.owner:
-                owners.append(record.owner)
+            if rep.home is None:
+                record = lookup(result, "reports", rep.name)
+                owner = record.owner if record is not None else None
+            else:
+                owner = rep.owner
+            if owner:
+                owners.append(owner)
         out.append(Cause(change, tuple(derived[key]), tuple(measures), tuple(roles), tuple(reports), severity,
                          _counted(homes), _counted(owners)))
     return tuple(sorted(out, key=lambda c: (-rank(c.severity), -c.size, c.change is None, id_order(c.id))))
@@ -208,7 +217,7 @@ def consequences(cause: Cause, result=None) -> str:
         tables = [t for t, _ in cause.tables if t != DERIVED_MEASURES]
         text = _plural(len(cause.measures), ("measure", "measures"))
         if tables:
-            text += f" in {_plural(len(tables), ('table', 'tables'))}" + _kinds_of(tables, result)
+            text += f" in {_plural(len(tables), ('table', 'tables'))}" + _kinds_of(tables, result, cause.measures)
         parts.append(text)
     if cause.roles:
         parts.append(_plural(len(cause.roles), ("role", "roles")))
@@ -217,14 +226,18 @@ def consequences(cause: Cause, result=None) -> str:
     return ", ".join(parts) if parts else "nothing else follows"
 
 
-def _kinds_of(tables: Sequence[str], result) -> str:
-    """' (3 fact, 1 dimension)' from the models, or '' without them."""
+def _kinds_of(tables: Sequence[str], result, measures: Sequence = ()) -> str:
+    """' (3 fact, 1 dimension)' from what the analysis recorded on the measures, else from the models, or ''."""
     if result is None:
         return ""
+    recorded = {m.home: m.home_kind for m in measures if m.home}
     kinds: dict[str, int] = {}
     for table in tables:
-        record = lookup(result, "tables", table)
-        kind = getattr(record, "kind", None) if record is not None else None
+        if table in recorded:
+            kind = recorded[table]
+        else:
+            record = lookup(result, "tables", table)
+            kind = getattr(record, "kind", None) if record is not None else None
         if kind:
             kinds[kind] = kinds.get(kind, 0) + 1
     return f" ({', '.join(f'{n} {k}' for k, n in sorted(kinds.items(), key=lambda kv: (-kv[1], kv[0])))})" if kinds else ""
