@@ -260,10 +260,10 @@ links:
 measures:
   n: {table: f, expr: count(*)}
 roles:
-  members_of_x: {filters: {d: "a = 'x'"}}
+  sees_only_x: {filters: {d: "a = 'x'"}}
   own_rows: {filters: {f: "k > 0"}}
 reports:
-  seen_as_x: {measures: [n], role: members_of_x}
+  seen_as_x: {measures: [n], role: sees_only_x}
 """
 
 
@@ -274,7 +274,7 @@ def test_key_switch_on_a_security_path_lists_the_role_and_its_report():
     assert numbers(new, "seen_as_x", rows) == {(): (0,)}
     r = diff(KEYED, new)
     switched = change_id(r, "link.key_switched", "links.f_d")
-    assert {x.change for x in reasons_of(r.roles, "members_of_x")} == {switched}
+    assert {x.change for x in reasons_of(r.roles, "sees_only_x")} == {switched}
     assert switched in {x.change for x in reasons_of(r.reports, "seen_as_x")}
     # twin: own_rows filters f, and nothing of d is reachable from f in the security graph
     assert "own_rows" not in names(r.roles)
@@ -296,7 +296,7 @@ measures:
   n: {table: f, expr: count(*)}
   dims: {table: d, expr: count(*)}
 roles:
-  members_of_x: {filters: {d: "a = 'x'"}}
+  sees_only_x: {filters: {d: "a = 'x'"}}
 reports:
   n_by_a: {measures: [n], by: [d.a]}
   dims_by_a: {measures: [dims], by: [d.a]}
@@ -312,9 +312,9 @@ def test_report_lists_reasons_whose_source_is_not_its_by_table():
 
 
 def test_report_under_a_role_is_listed_when_its_role_rows_of_a_table_it_reads_change():
-    old = SOURCES + "  n_as_x: {measures: [n], role: members_of_x}\n"
-    r = diff(old, old.replace("members_of_x: {filters: {d: \"a = 'x'\"}}", "members_of_x: {filters: {d: \"a = 'y'\"}}"))
-    changed = change_id(r, "role.filter_changed", "roles.members_of_x")
+    old = SOURCES + "  n_as_x: {measures: [n], role: sees_only_x}\n"
+    r = diff(old, old.replace("sees_only_x: {filters: {d: \"a = 'x'\"}}", "sees_only_x: {filters: {d: \"a = 'y'\"}}"))
+    changed = change_id(r, "role.filter_changed", "roles.sees_only_x")
     assert changed in {x.change for x in reasons_of(r.reports, "n_as_x")}
     # twin: the reports seen without a role are not moved by a role's filter
     assert "n_by_a" not in names(r.reports) and "dims_by_a" not in names(r.reports)
